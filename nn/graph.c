@@ -1,0 +1,169 @@
+/* nn/graph.c — tape recording and reverse replay (see graph.h). */
+#include "nn/graph.h"
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+struct nj_graph {
+    nj_arena *arena;
+    nj_op *tape;
+    int ntape, cap;
+    int grad_on, training, failed;
+    char err[512];
+};
+
+nj_graph *nj_graph_new(size_t arena_chunk_bytes)
+{
+    nj_graph *g = calloc(1, sizeof *g);
+    if (!g) return NULL;
+    g->arena = nj_arena_new(arena_chunk_bytes);
+    g->cap = 1024;
+    g->tape = malloc(sizeof *g->tape * (size_t)g->cap);
+    if (!g->arena || !g->tape) { nj_graph_free(g); return NULL; }
+    g->grad_on = 1;
+    g->training = 1;
+    return g;
+}
+
+void nj_graph_free(nj_graph *g)
+{
+    if (!g) return;
+    nj_arena_free(g->arena);
+    free(g->tape);
+    free(g);
+}
+
+void nj_graph_reset(nj_graph *g)
+{
+    nj_arena_reset(g->arena);
+    g->ntape = 0;
+    g->failed = 0;
+    g->err[0] = 0;
+}
+
+void nj_graph_set_grad(nj_graph *g, int enabled) { g->grad_on = enabled != 0; }
+int nj_graph_grad_enabled(const nj_graph *g) { return g->grad_on; }
+void nj_graph_set_training(nj_graph *g, int training) { g->training = training != 0; }
+int nj_graph_training(const nj_graph *g) { return g->training; }
+int nj_graph_failed(const nj_graph *g) { return g->failed; }
+const char *nj_graph_error(const nj_graph *g) { return g->err; }
+nj_arena *nj_graph_arena(nj_graph *g) { return g->arena; }
+int nj_graph_ops(const nj_graph *g) { return g->ntape; }
+
+void *nj_graph_fail(nj_graph *g, const char *fmt, ...)
+{
+    if (g->failed) return NULL;
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(g->err, sizeof g->err, fmt, ap);
+    va_end(ap);
+    g->failed = 1;
+    return NULL;
+}
+
+void *nj_graph_alloc(nj_graph *g, size_t bytes)
+{
+    void *p = nj_arena_alloc(g->arena, bytes);
+    if (!p) nj_graph_fail(g, "out of memory allocating %zu bytes for one step", bytes);
+    return p;
+}
+
+void *nj_graph_calloc(nj_graph *g, size_t bytes)
+{
+    void *p = nj_arena_calloc(g->arena, bytes);
+    if (!p) nj_graph_fail(g, "out of memory allocating %zu bytes for one step", bytes);
+    return p;
+}
+
+nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad)
+{
+    if (n <= 0 || c <= 0 || h <= 0 || w <= 0)
+        return nj_graph_fail(g, "tensor shape %dx%dx%dx%d has a non-positive dimension", n, c, h, w);
+    nj_tensor *t = nj_graph_alloc(g, sizeof *t);
+    if (!t) return NULL;
+    t->n = n; t->c = c; t->h = h; t->w = w;
+    t->grad = NULL;
+    size_t bytes = nj_numel(t) * sizeof(float);
+    if (!(t->data = nj_graph_alloc(g, bytes))) return NULL;
+    if (with_grad && g->grad_on && !(t->grad = nj_graph_calloc(g, bytes))) return NULL;
+    return t;
+}
+
+nj_tensor *nj_tensor_from(nj_graph *g, int n, int c, int h, int w,
+                          const float *data, int with_grad)
+{
+    nj_tensor *t = nj_tensor_new(g, n, c, h, w, with_grad);
+    if (t) memcpy(t->data, data, nj_numel(t) * sizeof(float));
+    return t;
+}
+
+nj_tensor *nj_tensor_wrap(nj_graph *g, int n, int c, int h, int w,
+                          float *data, float *grad)
+{
+    nj_tensor *t = nj_graph_alloc(g, sizeof *t);
+    if (!t) return NULL;
+    t->n = n; t->c = c; t->h = h; t->w = w;
+    t->data = data;
+    t->grad = g->grad_on ? grad : NULL;
+    return t;
+}
+
+nj_tensor *nj_op_output(nj_graph *g, int n, int c, int h, int w,
+                        nj_tensor *const *in, int nin)
+{
+    int need = 0;
+    for (int k = 0; k < nin; k++) need |= in[k] && in[k]->grad;
+    return nj_tensor_new(g, n, c, h, w, need);
+}
+
+nj_op *nj_graph_record(nj_graph *g, const char *name, nj_backward_fn bw,
+                       nj_tensor *out, nj_tensor *const *in, int nin)
+{
+    if (!out || !out->grad || !g->grad_on || g->failed) return NULL;
+    if (g->ntape == g->cap) {
+        /* Grows during the first step only: later steps record the same ops. */
+        nj_op *t = realloc(g->tape, sizeof *t * (size_t)g->cap * 2);
+        if (!t) return nj_graph_fail(g, "out of memory growing the tape");
+        g->tape = t;
+        g->cap *= 2;
+    }
+    nj_op *op = &g->tape[g->ntape++];
+    memset(op, 0, sizeof *op);
+    op->backward = bw;
+    op->name = name;
+    op->out = out;
+    for (int k = 0; k < nin && k < 4; k++) op->in[k] = in[k];
+    return op;
+}
+
+static int replay(nj_graph *g)
+{
+    for (int k = g->ntape - 1; k >= 0 && !g->failed; k--)
+        g->tape[k].backward(g, &g->tape[k]);
+    return g->failed ? -1 : 0;
+}
+
+int nj_backward_seeded(nj_graph *g, nj_tensor *out, const float *seed)
+{
+    if (g->failed) return -1;
+    if (!out) { nj_graph_fail(g, "backward: output is NULL"); return -1; }
+    if (!out->grad) return 0;
+    size_t n = nj_numel(out);
+    for (size_t i = 0; i < n; i++) out->grad[i] += seed[i];
+    return replay(g);
+}
+
+int nj_backward(nj_graph *g, nj_tensor *loss)
+{
+    if (g->failed) return -1;
+    if (!loss) { nj_graph_fail(g, "backward: loss is NULL"); return -1; }
+    if (nj_numel(loss) != 1) {
+        nj_graph_fail(g, "backward: loss must have one element, got %dx%dx%dx%d",
+                      loss->n, loss->c, loss->h, loss->w);
+        return -1;
+    }
+    if (!loss->grad) return 0; /* nothing upstream needs a gradient */
+    loss->grad[0] += 1.0f;
+    return replay(g);
+}

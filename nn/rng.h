@@ -1,0 +1,19 @@
+/* nn/rng.h — small seeded random number generator (xoroshiro128+,
+ * Blackman & Vigna 2018, seeded through splitmix64).  State is two 64-bit words so it
+ * can be saved in checkpoints and restored exactly. */
+#ifndef NJ_RNG_H
+#define NJ_RNG_H
+#include <stdint.h>
+
+typedef struct nj_rng { uint64_t s[2]; } nj_rng;
+
+void nj_rng_seed(nj_rng *r, uint64_t seed);
+uint64_t nj_rng_next(nj_rng *r);
+/* Uniform in [0, 1). */
+double nj_rng_uniform(nj_rng *r);
+/* Uniform integer in [0, n). */
+uint32_t nj_rng_below(nj_rng *r, uint32_t n);
+/* Standard normal (Box–Muller). */
+double nj_rng_normal(nj_rng *r);
+
+#endif

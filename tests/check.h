@@ -1,0 +1,16 @@
+/* tests/check.h — the test suite's tiny assertion layer.
+ * Every check prints one line: "PASS name" or "FAIL name: why".  tests/run.sh
+ * counts those lines over all test programs and prints "N passed, N failed".
+ * A test program ends with `return test_exit();`: non-zero if any check failed. */
+#ifndef NJ_CHECK_H
+#define NJ_CHECK_H
+
+/* Prints PASS/FAIL for `name`; the printf-style message explains a failure
+ * (the values seen).  Returns cond. */
+int check(int cond, const char *name, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+/* Number of failed checks so far in this program. */
+int test_failures(void);
+int test_exit(void);
+
+#endif

@@ -1,0 +1,22 @@
+#!/bin/sh
+# Runs every test program in DIR (default build/tests), echoing their output,
+# and ends with the summary line "N passed, N failed".  A program that exits
+# non-zero without printing a FAIL line counts as one failure.
+dir=${1:-build/tests}
+pass=0; fail=0
+for t in "$dir"/test_*; do
+  [ -x "$t" ] || continue
+  case "$t" in *.o|*.d) continue ;; esac
+  echo "== $(basename "$t")"
+  out=$("$t" 2>&1); rc=$?
+  printf '%s\n' "$out"
+  p=$(printf '%s\n' "$out" | grep -c '^PASS ')
+  f=$(printf '%s\n' "$out" | grep -c '^FAIL ')
+  if [ "$rc" -ne 0 ] && [ "$f" -eq 0 ]; then
+    echo "FAIL $(basename "$t"): exited with status $rc"
+    f=1
+  fi
+  pass=$((pass + p)); fail=$((fail + f))
+done
+echo "$pass passed, $fail failed"
+[ "$fail" -eq 0 ]

@@ -1,0 +1,26 @@
+/* losses/pose.h — rigid camera motion as differentiable graph ops.
+ *
+ * A pose tensor is N×1×3×4: per sample the row-major 3×4 matrix [R | t] that
+ * maps a point X in one camera's frame to R·X + t in the other's.  Poses come
+ * from 6 numbers per sample (N×6×1×1): an axis-angle rotation vector (radians,
+ * Rodrigues' formula) followed by a translation (metres or scene units).
+ */
+#ifndef NJ_POSE_H
+#define NJ_POSE_H
+#include "nn/graph.h"
+
+/* N×6×1×1 (rx, ry, rz, tx, ty, tz) → N×1×3×4.  Exact at and near zero angle
+ * (series expansions below 1e-2 rad), valid up to and including π. */
+nj_tensor *nj_pose_from_vec(nj_graph *g, nj_tensor *vec);
+/* [R|t]⁻¹ = [Rᵀ | −Rᵀt]. */
+nj_tensor *nj_pose_invert(nj_graph *g, nj_tensor *T);
+/* a ∘ b: first b, then a — [Ra·Rb | Ra·tb + ta]. */
+nj_tensor *nj_pose_compose(nj_graph *g, nj_tensor *a, nj_tensor *b);
+/* Constant N×1×3×4 pose of a rectified stereo pair: identity rotation and
+ * translation (tx, 0, 0).  For a left target and right source, tx = −baseline. */
+nj_tensor *nj_pose_stereo(nj_graph *g, int n, const float *tx);
+
+/* Plain Rodrigues' formula in double, for code outside the graph. */
+void nj_rotvec_to_matrix(const double v[3], double R[9]);
+
+#endif

@@ -1,0 +1,151 @@
+/* losses/view_synthesis.c — multi-scale photometric + smoothness loss with
+ * per-pixel minimum and auto-masking (see view_synthesis.h). */
+#include "losses/view_synthesis.h"
+#include "losses/depth.h"
+#include "losses/photometric.h"
+#include "losses/reproject.h"
+#include "losses/sample.h"
+#include "losses/smooth.h"
+#include "nn/ops.h"
+#include <string.h>
+
+/* Errors at or above this mark a pixel whose warp left the source view. */
+#define OUTSIDE_PENALTY 1e3f
+
+void nj_vs_config_default(nj_vs_config *cfg)
+{
+    cfg->alpha = 0.85f;
+    cfg->smooth_weight = 1e-3f;
+    cfg->min_depth = 0.1f;
+    cfg->max_depth = 100.0f;
+    cfg->automask = 1;
+    cfg->tie_break = 1e-5f;
+}
+
+/* Minimum over sources of the un-warped (identity) error, with tie-break noise. */
+static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in)
+{
+    int grad_was = nj_graph_grad_enabled(g);
+    nj_graph_set_grad(g, 0);  /* depends on no parameter */
+    nj_tensor *m = NULL;
+    for (int s = 0; s < in->nsources; s++) {
+        nj_tensor *pe = nj_photometric_error(g, in->sources[s], in->target, cfg->alpha);
+        m = m ? nj_minimum(g, m, pe) : pe;
+    }
+    nj_graph_set_grad(g, grad_was);
+    if (m && in->rng && cfg->tie_break > 0) {
+        size_t k = nj_numel(m);
+        for (size_t i = 0; i < k; i++)
+            m->data[i] += (float)(nj_rng_normal(in->rng) * cfg->tie_break);
+    }
+    return m;
+}
+
+/* (1 − valid)·penalty: pushes out-of-view pixels out of the minimum. */
+static nj_tensor *outside_penalty(nj_graph *g, nj_tensor *valid)
+{
+    if (!valid) return NULL;
+    nj_tensor *p = nj_tensor_new(g, valid->n, 1, valid->h, valid->w, 0);
+    if (!p) return NULL;
+    size_t k = nj_numel(p);
+    for (size_t i = 0; i < k; i++) p->data[i] = (1.0f - valid->data[i]) * OUTSIDE_PENALTY;
+    return p;
+}
+
+/* Per-pixel minimum over sources of the warped error at one scale. */
+static nj_tensor *reprojection_min(nj_graph *g, const nj_vs_config *cfg,
+                                   const nj_vs_input *in, nj_tensor *depth)
+{
+    nj_tensor *m = NULL;
+    for (int s = 0; s < in->nsources; s++) {
+        nj_tensor *valid = NULL;
+        nj_tensor *coords = nj_reproject(g, depth, in->poses[s], in->cams, &valid);
+        nj_tensor *warped = nj_sample_bilinear(g, in->sources[s], coords);
+        nj_tensor *pe = nj_add(g, nj_photometric_error(g, warped, in->target, cfg->alpha),
+                               outside_penalty(g, valid));
+        m = m ? nj_minimum(g, m, pe) : pe;
+    }
+    return m;
+}
+
+/* 1 where the warped error is usable and (with auto-masking) beats identity. */
+static nj_tensor *make_mask(nj_graph *g, nj_tensor *reproj, nj_tensor *ident, float *count)
+{
+    nj_tensor *mask = nj_tensor_new(g, reproj->n, 1, reproj->h, reproj->w, 0);
+    if (!mask) return NULL;
+    size_t k = nj_numel(mask);
+    double c = 0;
+    for (size_t i = 0; i < k; i++) {
+        int use = reproj->data[i] < OUTSIDE_PENALTY && (!ident || reproj->data[i] < ident->data[i]);
+        mask->data[i] = (float)use;
+        c += use;
+    }
+    *count = (float)c;
+    return mask;
+}
+
+static nj_tensor *scale_loss(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in,
+                             int s, nj_tensor *ident, nj_tensor *img,
+                             nj_vs_output *out, float *photo, float *smooth)
+{
+    nj_tensor *t = in->target, *d = in->disp[s];
+    nj_tensor *up = (d->h == t->h && d->w == t->w) ? d : nj_resize_bilinear(g, d, t->h, t->w);
+    nj_tensor *rmin = reprojection_min(g, cfg, in, nj_disp_to_depth(g, up, cfg->min_depth, cfg->max_depth));
+    if (!rmin) return NULL;
+    float used = 0;
+    nj_tensor *mask = make_mask(g, rmin, cfg->automask ? ident : NULL, &used);
+    nj_tensor *pl = nj_affine(g, nj_sum(g, nj_mul(g, rmin, mask), NJ_AXIS_ALL),
+                              1.0f / (used > 1 ? used : 1.0f), 0.0f);
+    nj_tensor *sl = nj_affine(g, nj_edge_smoothness(g, d, img), cfg->smooth_weight / (float)(1 << s), 0.0f);
+    if (!pl || !sl) return NULL;
+    *photo = pl->data[0];
+    *smooth = sl->data[0];
+    if (s == 0) {
+        out->automask = mask;
+        out->error = rmin;
+        out->mask_fraction = used / (float)nj_numel(mask);
+    }
+    return nj_add(g, pl, sl);
+}
+
+/* Target image at each disparity scale, by successive resizing: for even
+ * sizes each halving is an exact 2×2 average. */
+static int image_pyramid(nj_graph *g, const nj_vs_input *in, nj_tensor **img)
+{
+    int grad_was = nj_graph_grad_enabled(g);
+    nj_graph_set_grad(g, 0);
+    img[0] = in->target;
+    for (int s = 0; s < in->nscales; s++) {
+        nj_tensor *prev = s ? img[s - 1] : in->target, *d = in->disp[s];
+        if (!d) { nj_graph_fail(g, "view_synthesis_loss: disparity scale %d missing", s); break; }
+        img[s] = (d->h == prev->h && d->w == prev->w) ? prev : nj_resize_bilinear(g, prev, d->h, d->w);
+    }
+    nj_graph_set_grad(g, grad_was);
+    return nj_graph_failed(g) ? -1 : 0;
+}
+
+int nj_view_synthesis_loss(nj_graph *g, const nj_vs_config *cfg,
+                           const nj_vs_input *in, nj_vs_output *out)
+{
+    memset(out, 0, sizeof *out);
+    if (nj_graph_failed(g)) return -1;
+    if (in->nsources < 1 || in->nsources > NJ_MAX_SOURCES || in->nscales < 1 ||
+        in->nscales > NJ_MAX_SCALES || !in->target) {
+        nj_graph_fail(g, "view_synthesis_loss: need a target, 1..%d sources and 1..%d scales (got %d, %d)",
+                      NJ_MAX_SOURCES, NJ_MAX_SCALES, in->nsources, in->nscales);
+        return -1;
+    }
+    nj_tensor *pyr[NJ_MAX_SCALES];
+    if (image_pyramid(g, in, pyr)) return -1;
+    nj_tensor *ident = cfg->automask ? identity_min(g, cfg, in) : NULL;
+    nj_tensor *total = NULL;
+    for (int s = 0; s < in->nscales; s++) {
+        float photo = 0, smooth = 0;
+        nj_tensor *l = scale_loss(g, cfg, in, s, ident, pyr[s], out, &photo, &smooth);
+        total = total ? nj_add(g, total, l) : l;
+        out->photometric += photo / (float)in->nscales;
+        out->smoothness += smooth / (float)in->nscales;
+    }
+    out->total = nj_affine(g, total, 1.0f / (float)in->nscales, 0.0f);
+    return nj_graph_failed(g) ? -1 : 0;
+}

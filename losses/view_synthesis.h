@@ -1,0 +1,57 @@
+/* losses/view_synthesis.h — the self-supervised training signal.
+ *
+ * For each disparity scale s (0 = full resolution): upsample the disparity to
+ * the input size, convert to depth, warp every source frame into the target
+ * view with its pose, and take the per-pixel photometric error.  Then:
+ *  - per-pixel minimum over sources (Godard et al. 2019);
+ *  - auto-masking (Godard et al. 2019): the un-warped sources' errors, plus a
+ *    tiny random tie-break, compete; pixels where an un-warped source is at
+ *    least as good (static relative to the camera) contribute nothing;
+ *    pixels whose warped point leaves every source view are excluded too;
+ *  - edge-aware smoothness of the scale's own disparity against the image
+ *    downsampled to that scale, weight halved per scale (Godard et al. 2017).
+ * total = mean over scales of (photometric_s + smooth_weight/2^s · smooth_s).
+ */
+#ifndef NJ_VIEW_SYNTHESIS_H
+#define NJ_VIEW_SYNTHESIS_H
+#include "nn/graph.h"
+#include "nn/rng.h"
+#include "losses/camera.h"
+
+#define NJ_MAX_SOURCES 4
+#define NJ_MAX_SCALES 4
+
+typedef struct nj_vs_config {
+    float alpha;           /* SSIM weight in the photometric error, 0.85 */
+    float smooth_weight;   /* 1e-3 */
+    float min_depth, max_depth;
+    int automask;          /* 1: auto-mask static pixels */
+    float tie_break;       /* std-dev of the identity errors' noise, 1e-5; 0 = none */
+} nj_vs_config;
+
+typedef struct nj_vs_input {
+    nj_tensor *target;                      /* N×3×H×W, values in [0, 1] */
+    nj_tensor *sources[NJ_MAX_SOURCES];     /* N×3×H×W */
+    nj_tensor *poses[NJ_MAX_SOURCES];       /* N×1×3×4, target → source */
+    int nsources;
+    const nj_camera *cams;                  /* N intrinsics at H×W */
+    nj_tensor *disp[NJ_MAX_SCALES];         /* sigmoid outputs, N×1×(H/2^s)×(W/2^s) */
+    int nscales;
+    nj_rng *rng;                            /* tie-break noise; NULL = none */
+} nj_vs_input;
+
+typedef struct nj_vs_output {
+    nj_tensor *total;          /* 1×1×1×1, differentiable */
+    float photometric;         /* mean over scales, for logging */
+    float smoothness;          /* mean over scales of the weighted term */
+    nj_tensor *automask;       /* N×1×H×W at scale 0: 1 = pixel used */
+    nj_tensor *error;          /* N×1×H×W minimum photometric error at scale 0 */
+    float mask_fraction;       /* share of scale-0 pixels used */
+} nj_vs_output;
+
+void nj_vs_config_default(nj_vs_config *cfg);
+/* Returns 0, or -1 with the graph's error set. */
+int nj_view_synthesis_loss(nj_graph *g, const nj_vs_config *cfg,
+                           const nj_vs_input *in, nj_vs_output *out);
+
+#endif

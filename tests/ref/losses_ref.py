@@ -1,0 +1,224 @@
+#!/usr/bin/env python3
+"""tests/ref/losses_ref.py — outside references for nightjar's losses/.
+
+Usage: /usr/bin/python3 tests/ref/losses_ref.py MODE:OUTDIR   (one argument)
+
+Every reference value comes from a library this project did not write:
+  ssim        scikit-image structural_similarity(win_size=3, gaussian_weights=False,
+              use_sample_covariance=False, data_range=1, full=True) on random images and on
+              scikit-image's "camera" photograph (natural image).
+  sample      PyTorch grid_sample(bilinear, padding_mode="border", align_corners=True):
+              values and gradients w.r.t. image and pixel coordinates; OpenCV remap
+              (INTER_LINEAR, BORDER_REPLICATE) values.  Coordinates are multiples of 1/32
+              so OpenCV's fixed-point coordinate grid represents them exactly.
+  rotation    SciPy Rotation.from_rotvec(...).as_matrix(), including angles near 0 and π.
+  vsloss      an independent PyTorch (float64) implementation of the whole view-synthesis
+              loss written from the published formulas; value and gradients w.r.t. the
+              disparity pyramid and the 6-number poses.
+  motorcycle  the Middlebury 2014 "motorcycle" stereo pair with ground-truth disparity
+              (Scharstein et al. 2014) as shipped by scikit-image (data.stereo_motorcycle).
+Inputs and results are exchanged as float32 .npy files in OUTDIR.
+"""
+import os
+import sys
+
+import numpy as np
+
+
+def save(out, name, a):
+    np.save(os.path.join(out, name + ".npy"), np.ascontiguousarray(a, dtype=np.float32))
+
+
+def mode_ssim(out):
+    from skimage.metrics import structural_similarity
+    from skimage import data
+    rng = np.random.default_rng(11)
+    a = rng.random((23, 31)).astype(np.float32)
+    b = np.clip(a + 0.2 * rng.standard_normal(a.shape), 0, 1).astype(np.float32)
+    cam = data.camera()[200:264, 180:260].astype(np.float32) / 255.0
+    cam2 = np.clip(np.roll(cam, 1, axis=1) * 0.9 + 0.05 +
+                   0.02 * rng.standard_normal(cam.shape), 0, 1).astype(np.float32)
+    for tag, x, y in (("random", a, b), ("camera", cam, cam2)):
+        _, s = structural_similarity(x.astype(np.float64), y.astype(np.float64), win_size=3,
+                                     gaussian_weights=False, use_sample_covariance=False,
+                                     data_range=1.0, full=True)
+        save(out, tag + "_a", x)
+        save(out, tag + "_b", y)
+        save(out, tag + "_ssim", s)
+
+
+def mode_sample(out):
+    import torch
+    import torch.nn.functional as F
+    import cv2
+    rng = np.random.default_rng(5)
+    N, C, H, W, Ho, Wo = 2, 3, 9, 13, 7, 11
+    img = rng.random((N, C, H, W)).astype(np.float32)
+    # pixel coordinates on a 1/32 grid, partly outside the image (border clamp)
+    xs = np.round(rng.uniform(-2.0, W + 1.0, (N, Ho, Wo)) * 32) / 32
+    ys = np.round(rng.uniform(-2.0, H + 1.0, (N, Ho, Wo)) * 32) / 32
+    # keep coordinates off exact integers, where the one-sided derivatives differ
+    xs = np.where(np.abs(xs - np.round(xs)) < 1e-6, xs + 1.0 / 32, xs)
+    ys = np.where(np.abs(ys - np.round(ys)) < 1e-6, ys + 1.0 / 32, ys)
+    coords = np.stack([xs, ys], axis=1).astype(np.float32)
+    go = rng.standard_normal((N, C, Ho, Wo)).astype(np.float32)
+    ti = torch.tensor(img, dtype=torch.float64, requires_grad=True)
+    tc = torch.tensor(coords, dtype=torch.float64, requires_grad=True)
+    gx = 2 * tc[:, 0] / (W - 1) - 1
+    gy = 2 * tc[:, 1] / (H - 1) - 1
+    grid = torch.stack([gx, gy], dim=-1)
+    y = F.grid_sample(ti, grid, mode="bilinear", padding_mode="border", align_corners=True)
+    (y * torch.tensor(go, dtype=torch.float64)).sum().backward()
+    save(out, "img", img)
+    save(out, "coords", coords)
+    save(out, "go", go)
+    save(out, "torch_y", y.detach().numpy())
+    save(out, "torch_gimg", ti.grad.numpy())
+    save(out, "torch_gcoords", tc.grad.numpy())
+    cvy = np.zeros((N, C, Ho, Wo), np.float32)
+    for n in range(N):
+        for c in range(C):
+            cvy[n, c] = cv2.remap(img[n, c], xs[n].astype(np.float32), ys[n].astype(np.float32),
+                                  cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    save(out, "cv_y", cvy)
+
+
+def mode_rotation(out):
+    from scipy.spatial.transform import Rotation
+    rng = np.random.default_rng(3)
+    vecs = []
+    for mag in (0.0, 1e-9, 1e-6, 1e-4, 5e-3, 9.99e-3, 1.01e-2, 0.3, 1.0, 2.5,
+                np.pi - 1e-3, np.pi - 1e-6, np.pi):
+        for _ in range(3):
+            d = rng.standard_normal(3)
+            vecs.append(d / np.linalg.norm(d) * mag)
+    vecs = np.array(vecs, dtype=np.float32)
+    mats = Rotation.from_rotvec(vecs.astype(np.float64)).as_matrix()
+    save(out, "rotvec", vecs)
+    save(out, "matrix", mats)
+
+
+# ---------------------------------------------------------------- view synthesis
+def _ssim(x, y, F):
+    pad = lambda t: F.pad(t, (1, 1, 1, 1), mode="reflect")
+    mu_x = F.avg_pool2d(pad(x), 3, 1)
+    mu_y = F.avg_pool2d(pad(y), 3, 1)
+    sx = F.avg_pool2d(pad(x * x), 3, 1) - mu_x ** 2
+    sy = F.avg_pool2d(pad(y * y), 3, 1) - mu_y ** 2
+    sxy = F.avg_pool2d(pad(x * y), 3, 1) - mu_x * mu_y
+    c1, c2 = 0.01 ** 2, 0.03 ** 2
+    return ((2 * mu_x * mu_y + c1) * (2 * sxy + c2)) / ((mu_x ** 2 + mu_y ** 2 + c1) * (sx + sy + c2))
+
+
+def _pe(a, b, F, torch, alpha=0.85):
+    dssim = torch.clamp((1 - _ssim(a, b, F)) / 2, 0, 1)
+    return (alpha * dssim + (1 - alpha) * (a - b).abs()).mean(1, keepdim=True)
+
+
+def _rodrigues(v, torch):
+    theta = torch.sqrt((v ** 2).sum(-1, keepdim=True))
+    k = v / theta
+    K = torch.zeros(v.shape[0], 3, 3, dtype=v.dtype)
+    K[:, 0, 1], K[:, 0, 2], K[:, 1, 2] = -k[:, 2], k[:, 1], -k[:, 0]
+    K[:, 1, 0], K[:, 2, 0], K[:, 2, 1] = k[:, 2], -k[:, 1], k[:, 0]
+    s, c = torch.sin(theta)[..., None], torch.cos(theta)[..., None]
+    eye = torch.eye(3, dtype=v.dtype).expand(v.shape[0], 3, 3)
+    return eye + s * K + (1 - c) * (K @ K)
+
+
+def mode_vsloss(out):
+    import torch
+    import torch.nn.functional as F
+    rng = np.random.default_rng(17)
+    N, H, W, S, nsrc = 2, 24, 32, 4, 2
+    min_d, max_d, smooth_w = 0.1, 100.0, 1e-3
+    target = rng.random((N, 3, H, W)).astype(np.float32)
+    sources = [np.clip(target + 0.1 * rng.standard_normal(target.shape), 0, 1).astype(np.float32)
+               for _ in range(nsrc)]
+    posevec = [np.concatenate([rng.uniform(-0.05, 0.05, (N, 3)), rng.uniform(-0.3, 0.3, (N, 3))],
+                              axis=1).astype(np.float32) for _ in range(nsrc)]
+    disps = [rng.uniform(0.05, 0.4, (N, 1, H >> s, W >> s)).astype(np.float32) for s in range(S)]
+    cams = np.array([[30.0, 28.0, 15.5, 11.0], [26.0, 27.0, 16.0, 12.5]], np.float32)
+    for i, s in enumerate(sources):
+        save(out, "source%d" % i, s)
+        save(out, "pose%d" % i, posevec[i].reshape(N, 6, 1, 1))
+    for s, d in enumerate(disps):
+        save(out, "disp%d" % s, d)
+    save(out, "target", target)
+    save(out, "cams", cams)
+
+    dt = torch.float64
+    T = torch.tensor(target, dtype=dt)
+    Ss = [torch.tensor(s, dtype=dt) for s in sources]
+    P = [torch.tensor(p, dtype=dt, requires_grad=True) for p in posevec]
+    D = [torch.tensor(d, dtype=dt, requires_grad=True) for d in disps]
+    ident = torch.stack([_pe(s, T, F, torch) for s in Ss]).min(0).values
+    vv, uu = torch.meshgrid(torch.arange(H, dtype=dt), torch.arange(W, dtype=dt), indexing="ij")
+    total, masks = 0, []
+    imgs = [T]
+    for s in range(1, S):
+        imgs.append(F.interpolate(imgs[-1], size=(H >> s, W >> s), mode="bilinear", align_corners=False))
+    for s in range(S):
+        up = D[s] if s == 0 else F.interpolate(D[s], size=(H, W), mode="bilinear", align_corners=False)
+        depth = 1.0 / (1.0 / max_d + (1.0 / min_d - 1.0 / max_d) * up)
+        errs = []
+        for i in range(nsrc):
+            R = _rodrigues(P[i][:, :3], torch)
+            t = P[i][:, 3:]
+            fx, fy, cx, cy = [torch.tensor(cams[:, k], dtype=dt).view(N, 1, 1) for k in range(4)]
+            X = (uu - cx) / fx * depth[:, 0]
+            Y = (vv - cy) / fy * depth[:, 0]
+            Z = depth[:, 0]
+            pts = torch.stack([X, Y, Z], 1).view(N, 3, -1)
+            Q = R @ pts + t.view(N, 3, 1)
+            Qx, Qy, Qz = Q[:, 0].view(N, H, W), Q[:, 1].view(N, H, W), Q[:, 2].view(N, H, W)
+            x = fx * Qx / Qz + cx
+            y = fy * Qy / Qz + cy
+            valid = ((Qz > 1e-3) & (x >= 0) & (x <= W - 1) & (y >= 0) & (y <= H - 1)).to(dt)
+            grid = torch.stack([2 * x / (W - 1) - 1, 2 * y / (H - 1) - 1], -1)
+            warped = F.grid_sample(Ss[i], grid, mode="bilinear", padding_mode="border", align_corners=True)
+            errs.append(_pe(warped, T, F, torch) + (1 - valid[:, None]) * 1e3)
+        rmin = torch.stack(errs).min(0).values
+        mask = ((rmin < 1e3) & (rmin < ident)).to(dt).detach()
+        photo = (rmin * mask).sum() / max(float(mask.sum()), 1.0)
+        d = D[s]
+        dn = d / (d.mean((2, 3), keepdim=True) + 1e-7)
+        img = imgs[s]
+        gx = (dn[..., 1:] - dn[..., :-1]).abs() * torch.exp(-(img[..., 1:] - img[..., :-1]).abs().mean(1, keepdim=True))
+        gy = (dn[..., 1:, :] - dn[..., :-1, :]).abs() * torch.exp(-(img[..., 1:, :] - img[..., :-1, :]).abs().mean(1, keepdim=True))
+        smooth = (gx.mean() + gy.mean()) * smooth_w / (2 ** s)
+        total = total + photo + smooth
+        masks.append(mask)
+    total = total / S
+    total.backward()
+    save(out, "total", np.array([total.item()]))
+    save(out, "mask0", masks[0].numpy())
+    for s in range(S):
+        save(out, "gdisp%d" % s, D[s].grad.numpy())
+    for i in range(nsrc):
+        save(out, "gpose%d" % i, P[i].grad.numpy().reshape(N, 6, 1, 1))
+
+
+def mode_motorcycle(out):
+    from skimage import data
+    left, right, disp = data.stereo_motorcycle()
+    save(out, "left", left.transpose(2, 0, 1)[None].astype(np.float32) / 255.0)
+    save(out, "right", right.transpose(2, 0, 1)[None].astype(np.float32) / 255.0)
+    d = disp.astype(np.float32)
+    d[~np.isfinite(d)] = 0.0      # unknown pixels (inf in the data set) become 0
+    save(out, "disp", d[None, None])
+
+
+def main():
+    if len(sys.argv) != 2 or ":" not in sys.argv[1]:
+        sys.exit("usage: losses_ref.py MODE:OUTDIR")
+    mode, out = sys.argv[1].split(":", 1)
+    modes = {"ssim": mode_ssim, "sample": mode_sample, "rotation": mode_rotation,
+             "vsloss": mode_vsloss, "motorcycle": mode_motorcycle}
+    if mode not in modes:
+        sys.exit("losses_ref.py: unknown mode %s" % mode)
+    modes[mode](out)
+
+
+if __name__ == "__main__":
+    main()

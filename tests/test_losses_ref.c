@@ -1,0 +1,180 @@
+/* tests/test_losses_ref.c — losses/ against outside references
+ * (tests/ref/losses_ref.py): scikit-image SSIM, PyTorch grid_sample and OpenCV
+ * remap, SciPy rotations, an independent PyTorch view-synthesis loss, and the
+ * Middlebury 2014 motorcycle stereo pair (Scharstein et al. 2014). */
+#include "losses/photometric.h"
+#include "losses/pose.h"
+#include "losses/reproject.h"
+#include "losses/sample.h"
+#include "losses/view_synthesis.h"
+#include "nn/ops.h"
+#include "tests/check.h"
+#include "tests/losses_support.h"
+#include "tests/torch_ref.h"
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+/* Max |a − b| over pixels at least one away from the border. */
+static double interior_max_abs(const nj_tensor *a, const nj_tensor *b)
+{
+    double m = 0;
+    for (int y = 1; y < a->h - 1; y++)
+        for (int x = 1; x < a->w - 1; x++) {
+            double d = fabs(a->data[y * a->w + x] - b->data[y * b->w + x]);
+            if (!(d <= m)) m = d;
+        }
+    return m;
+}
+
+/* scikit-image structural_similarity(win_size=3, uniform, population stats). */
+static void test_ssim(nj_graph *g)
+{
+    char dir[4096];
+    if (losses_ref_run("ssim", dir, sizeof dir, "ssim vs scikit-image")) return;
+    const char *tags[2] = {"random", "camera"};
+    for (int k = 0; k < 2; k++) {
+        char na[64], nb[64], ns[64], name[96];
+        snprintf(na, sizeof na, "%s_a", tags[k]);
+        snprintf(nb, sizeof nb, "%s_b", tags[k]);
+        snprintf(ns, sizeof ns, "%s_ssim", tags[k]);
+        snprintf(name, sizeof name, "ssim vs scikit-image structural_similarity (%s image)", tags[k]);
+        nj_graph_reset(g);
+        nj_tensor *a = losses_ref_tensor(g, dir, na, 0), *b = losses_ref_tensor(g, dir, nb, 0);
+        nj_tensor *ref = losses_ref_tensor(g, dir, ns, 0);
+        nj_tensor *s = nj_ssim(g, a, b);
+        if (!s) { check(0, name, "%s", nj_graph_error(g)); continue; }
+        double err = interior_max_abs(s, ref);
+        check(err <= 1e-5, name, "max abs difference on interior pixels %.3g > 1e-5", err);
+    }
+    ref_rmtree(dir);
+}
+
+static void compare(const char *name, const float *a, const float *b, size_t n, double tol)
+{
+    double e = ref_rel_err(a, b, n);
+    check(e <= tol, name, "relative error %.3g > %.1g", e, tol);
+}
+
+/* PyTorch grid_sample (border, align_corners=True) and OpenCV remap. */
+static void test_sample(nj_graph *g)
+{
+    char dir[4096];
+    if (losses_ref_run("sample", dir, sizeof dir, "bilinear sampling vs PyTorch grid_sample")) return;
+    nj_graph_reset(g);
+    nj_tensor *img = losses_ref_tensor(g, dir, "img", 1), *co = losses_ref_tensor(g, dir, "coords", 1);
+    nj_tensor *go = losses_ref_tensor(g, dir, "go", 0), *ty = losses_ref_tensor(g, dir, "torch_y", 0);
+    nj_tensor *tgi = losses_ref_tensor(g, dir, "torch_gimg", 0);
+    nj_tensor *tgc = losses_ref_tensor(g, dir, "torch_gcoords", 0);
+    nj_tensor *cv = losses_ref_tensor(g, dir, "cv_y", 0);
+    nj_tensor *y = nj_sample_bilinear(g, img, co);
+    if (!y || !go || !ty || !tgi || !tgc || !cv) {
+        check(0, "bilinear sampling vs PyTorch grid_sample", "%s", nj_graph_error(g));
+        ref_rmtree(dir);
+        return;
+    }
+    nj_backward_seeded(g, y, go->data);
+    compare("sample values vs PyTorch grid_sample(border, align_corners=True)", y->data, ty->data, nj_numel(y), 1e-5);
+    compare("sample image gradient vs PyTorch grid_sample", img->grad, tgi->data, nj_numel(img), 1e-4);
+    compare("sample coordinate gradient vs PyTorch grid_sample", co->grad, tgc->data, nj_numel(co), 1e-4);
+    compare("sample values vs OpenCV remap(INTER_LINEAR, BORDER_REPLICATE)", y->data, cv->data, nj_numel(y), 1e-5);
+    ref_rmtree(dir);
+}
+
+/* SciPy Rotation.from_rotvec, angles from 0 to π. */
+static void test_rotation(nj_graph *g)
+{
+    const char *name = "Rodrigues rotation vs SciPy Rotation.from_rotvec (0 .. pi)";
+    char dir[4096];
+    if (losses_ref_run("rotation", dir, sizeof dir, name)) return;
+    nj_graph_reset(g);
+    nj_tensor *v = losses_ref_tensor(g, dir, "rotvec", 0), *m = losses_ref_tensor(g, dir, "matrix", 0);
+    if (!v || !m) { ref_rmtree(dir); return; }
+    int n = v->h;   /* rotvec is (n, 3) → 1×1×n×3 */
+    nj_tensor *vec = nj_tensor_new(g, n, 6, 1, 1, 0);
+    for (int k = 0; k < n; k++)
+        for (int j = 0; j < 6; j++) vec->data[6 * k + j] = j < 3 ? v->data[3 * k + j] : 0.0f;
+    nj_tensor *T = nj_pose_from_vec(g, vec);
+    double worst = 0;
+    for (int k = 0; k < n; k++)
+        for (int r = 0; r < 3; r++)
+            for (int c = 0; c < 3; c++) {
+                double d = fabs(T->data[12 * k + 4 * r + c] - m->data[9 * k + 3 * r + c]);
+                if (!(d <= worst)) worst = d;
+            }
+    check(worst <= 2e-7, name, "max abs difference %.3g > 2e-7", worst);
+    ref_rmtree(dir);
+}
+
+/* The whole loss against an independent PyTorch implementation. */
+static void test_vsloss(nj_graph *g)
+{
+    const char *name = "view synthesis loss vs independent PyTorch implementation";
+    char dir[4096];
+    if (losses_ref_run("vsloss", dir, sizeof dir, name)) return;
+    nj_graph_reset(g);
+    nj_vs_input in;
+    memset(&in, 0, sizeof in);
+    in.target = losses_ref_tensor(g, dir, "target", 0);
+    in.nsources = 2;
+    in.nscales = 4;
+    nj_tensor *pv[2];
+    char nm[32];
+    for (int i = 0; i < 2; i++) {
+        snprintf(nm, sizeof nm, "source%d", i);
+        in.sources[i] = losses_ref_tensor(g, dir, nm, 0);
+        snprintf(nm, sizeof nm, "pose%d", i);
+        pv[i] = losses_ref_tensor(g, dir, nm, 1);
+        in.poses[i] = nj_pose_from_vec(g, pv[i]);
+    }
+    for (int s = 0; s < 4; s++) {
+        snprintf(nm, sizeof nm, "disp%d", s);
+        in.disp[s] = losses_ref_tensor(g, dir, nm, 1);
+    }
+    nj_tensor *cams = losses_ref_tensor(g, dir, "cams", 0);
+    nj_tensor *total = losses_ref_tensor(g, dir, "total", 0);
+    if (nj_graph_failed(g) || !cams || !total) { check(0, name, "%s", nj_graph_error(g)); ref_rmtree(dir); return; }
+    nj_camera cam[2];
+    for (int n = 0; n < 2; n++)
+        cam[n] = (nj_camera){cams->data[4 * n], cams->data[4 * n + 1], cams->data[4 * n + 2], cams->data[4 * n + 3]};
+    in.cams = cam;
+    nj_vs_config cfg;
+    nj_vs_config_default(&cfg);
+    cfg.tie_break = 0;          /* the reference has no random tie-break */
+    nj_vs_output out;
+    if (nj_view_synthesis_loss(g, &cfg, &in, &out) || nj_backward(g, out.total)) {
+        check(0, name, "%s", nj_graph_error(g));
+        ref_rmtree(dir);
+        return;
+    }
+    nj_tensor *mask = losses_ref_tensor(g, dir, "mask0", 0);
+    compare("view synthesis auto-mask vs PyTorch", out.automask->data, mask->data, nj_numel(mask), 0);
+    compare("view synthesis loss value vs PyTorch", out.total->data, total->data, 1, 1e-4);
+    for (int s = 0; s < 4; s++) {
+        char tn[96];
+        snprintf(nm, sizeof nm, "gdisp%d", s);
+        nj_tensor *r = losses_ref_tensor(g, dir, nm, 0);
+        snprintf(tn, sizeof tn, "view synthesis d(loss)/d(disparity scale %d) vs PyTorch", s);
+        compare(tn, in.disp[s]->grad, r->data, nj_numel(r), 1e-4);
+    }
+    for (int i = 0; i < 2; i++) {
+        char tn[96];
+        snprintf(nm, sizeof nm, "gpose%d", i);
+        nj_tensor *r = losses_ref_tensor(g, dir, nm, 0);
+        snprintf(tn, sizeof tn, "view synthesis d(loss)/d(pose %d) vs PyTorch", i);
+        compare(tn, pv[i]->grad, r->data, nj_numel(r), 1e-4);
+    }
+    ref_rmtree(dir);
+}
+
+int main(void)
+{
+    nj_threads_init(0);
+    nj_graph *g = nj_graph_new(16 << 20);
+    test_ssim(g);
+    test_sample(g);
+    test_rotation(g);
+    test_vsloss(g);
+    nj_graph_free(g);
+    return test_exit();
+}

@@ -6,12 +6,16 @@
 #include <stdlib.h>
 #include <string.h>
 
+/* splitmix64 (Steele et al. 2014): well mixed even for consecutive seeds. */
 void test_fill_uniform(float *x, size_t n, float lo, float hi, unsigned seed)
 {
-    uint64_t s = 0x9E3779B97F4A7C15ull ^ ((uint64_t)seed * 0xD1B54A32D192ED03ull);
+    uint64_t s = 0x243F6A8885A308D3ull + (uint64_t)seed * 0x9E3779B97F4A7C15ull;
     for (size_t i = 0; i < n; i++) {
-        s ^= s << 13; s ^= s >> 7; s ^= s << 17;
-        x[i] = lo + (hi - lo) * (float)((s >> 40) * (1.0 / 16777216.0));
+        uint64_t z = (s += 0x9E3779B97F4A7C15ull);
+        z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
+        z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
+        z ^= z >> 31;
+        x[i] = lo + (hi - lo) * (float)((z >> 40) * (1.0 / 16777216.0));
     }
 }
 

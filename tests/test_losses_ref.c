@@ -167,6 +167,74 @@ static void test_vsloss(nj_graph *g)
     ref_rmtree(dir);
 }
 
+/* Mean photometric error of the right image warped into the left with
+ * disparity disp + offset, over pixels flagged in `use`. */
+static double stereo_error(nj_graph *g, nj_tensor *left, nj_tensor *right, const nj_tensor *disp,
+                           const unsigned char *use, float offset)
+{
+    const float fx = 500.0f, baseline = 0.2f;   /* any values: only fx·B/Z = d matters */
+    int H = left->h, W = left->w;
+    nj_tensor *depth = nj_tensor_new(g, 1, 1, H, W, 0);
+    for (int i = 0; i < H * W; i++) {
+        float d = disp->data[i] > 0 ? disp->data[i] + offset : offset;
+        depth->data[i] = d > 1e-3f ? fx * baseline / d : 1e6f;
+    }
+    nj_camera cam = {fx, fx, (W - 1) / 2.0f, (H - 1) / 2.0f};
+    float tx = -baseline;
+    nj_tensor *T = nj_pose_stereo(g, 1, &tx);
+    nj_tensor *warped = nj_sample_bilinear(g, right, nj_reproject(g, depth, T, &cam, NULL));
+    nj_tensor *pe = nj_photometric_error(g, warped, left, 0.85f);
+    if (!pe) return NAN;
+    double s = 0; long n = 0;
+    for (int i = 0; i < H * W; i++)
+        if (use[i]) { s += pe->data[i]; n++; }
+    return n ? s / n : NAN;
+}
+
+/* Middlebury 2014 motorcycle pair (Scharstein et al. 2014, quarter size, via
+ * scikit-image): the true disparity must explain the pair far better than
+ * zero or shifted disparities, and a sweep of offsets must bottom out at 0. */
+static void test_motorcycle(nj_graph *g)
+{
+    const char *name = "Middlebury motorcycle: true disparity warps right into left";
+    char dir[4096];
+    if (losses_ref_run("motorcycle", dir, sizeof dir, name)) return;
+    nj_graph_reset(g);
+    nj_graph_set_grad(g, 0);
+    nj_tensor *left = losses_ref_tensor(g, dir, "left", 0), *right = losses_ref_tensor(g, dir, "right", 0);
+    nj_tensor *disp = losses_ref_tensor(g, dir, "disp", 0);
+    if (!left || !right || !disp) { ref_rmtree(dir); nj_graph_set_grad(g, 1); return; }
+    int H = left->h, W = left->w;
+    unsigned char *use = nj_graph_alloc(g, (size_t)H * W);
+    long count = 0;
+    for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++) {
+            float d = disp->data[y * W + x];   /* 0 = unknown in the ground truth */
+            use[y * W + x] = d > 0 && x - d - 3 >= 1 && x - d + 3 <= W - 2;
+            count += use[y * W + x];
+        }
+    double e_true = stereo_error(g, left, right, disp, use, 0.0f);
+    nj_tensor *zero = nj_tensor_new(g, 1, 1, H, W, 0);
+    memset(zero->data, 0, sizeof(float) * (size_t)H * W);
+    double e_zero = stereo_error(g, left, right, zero, use, 0.0f);
+    double e_plus = stereo_error(g, left, right, disp, use, 3.0f);
+    double e_minus = stereo_error(g, left, right, disp, use, -3.0f);
+    check(count > H * W / 2 && e_true < 0.5 * e_zero && e_true < 0.75 * e_plus && e_true < 0.75 * e_minus, name,
+          "%ld pixels; error true %.4f, zero %.4f, +3px %.4f, -3px %.4f", count, e_true, e_zero, e_plus, e_minus);
+    float best = 99;
+    double best_e = INFINITY;
+    for (int k = -12; k <= 12; k++) {
+        double e = stereo_error(g, left, right, disp, use, k * 0.25f);
+        if (e < best_e) { best_e = e; best = k * 0.25f; }
+    }
+    printf("  motorcycle: error true %.4f zero %.4f +3px %.4f -3px %.4f; sweep minimum at %+.2f px\n",
+           e_true, e_zero, e_plus, e_minus, best);
+    check(fabsf(best) <= 0.5f, "Middlebury motorcycle: offset sweep minimum at 0 +- 0.5 px",
+          "minimum at %+.2f px (error %.4f)", best, best_e);
+    nj_graph_set_grad(g, 1);
+    ref_rmtree(dir);
+}
+
 int main(void)
 {
     nj_threads_init(0);
@@ -175,6 +243,7 @@ int main(void)
     test_sample(g);
     test_rotation(g);
     test_vsloss(g);
+    test_motorcycle(g);
     nj_graph_free(g);
     return test_exit();
 }

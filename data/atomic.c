@@ -1,0 +1,73 @@
+/* data/atomic.c — temp file + fsync + rename (see atomic.h). */
+#include "data/atomic.h"
+#include <errno.h>
+#include <fcntl.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+int nj_atomic_open(nj_atomic_file *a, const char *path, char *err, size_t errlen)
+{
+    a->f = NULL;
+    a->path = path;
+    size_t n = strlen(path) + 16;
+    a->tmp = malloc(n);
+    if (!a->tmp) {
+        snprintf(err, errlen, "%s: out of memory", path);
+        return -1;
+    }
+    snprintf(a->tmp, n, "%s.XXXXXX", path);
+    int fd = mkstemp(a->tmp);
+    if (fd < 0) {
+        snprintf(err, errlen, "%s: cannot create a temporary file: %s", path, strerror(errno));
+        free(a->tmp);
+        a->tmp = NULL;
+        return -1;
+    }
+    fchmod(fd, 0644);
+    a->f = fdopen(fd, "wb");
+    if (!a->f) {
+        snprintf(err, errlen, "%s: fdopen failed: %s", path, strerror(errno));
+        close(fd);
+        unlink(a->tmp);
+        free(a->tmp);
+        a->tmp = NULL;
+        return -1;
+    }
+    return 0;
+}
+
+/* fsync of the folder holding `path`, so the rename itself is durable. */
+static void sync_parent(const char *path)
+{
+    const char *slash = strrchr(path, '/');
+    char dir[4096];
+    if (!slash) snprintf(dir, sizeof dir, ".");
+    else if (slash == path) snprintf(dir, sizeof dir, "/");
+    else snprintf(dir, sizeof dir, "%.*s", (int)(slash - path), path);
+    int fd = open(dir, O_RDONLY | O_DIRECTORY);
+    if (fd >= 0) {
+        fsync(fd);
+        close(fd);
+    }
+}
+
+int nj_atomic_close(nj_atomic_file *a, int ok, char *err, size_t errlen)
+{
+    int e = 0;
+    if (ok && (fflush(a->f) != 0 || fsync(fileno(a->f)) != 0)) { ok = 0; e = errno; }
+    if (fclose(a->f) != 0 && ok) { ok = 0; e = errno; }
+    a->f = NULL;
+    if (ok && rename(a->tmp, a->path) != 0) { ok = 0; e = errno; }
+    if (!ok) {
+        unlink(a->tmp);
+        if (e) snprintf(err, errlen, "%s: write failed: %s", a->path, strerror(e));
+        else if (err && errlen && !err[0]) snprintf(err, errlen, "%s: write failed", a->path);
+    } else {
+        sync_parent(a->path);
+    }
+    free(a->tmp);
+    a->tmp = NULL;
+    return ok ? 0 : -1;
+}

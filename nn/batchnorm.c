@@ -1,0 +1,138 @@
+/* nn/batchnorm.c — batch normalisation (Ioffe & Szegedy 2015) over N, H, W per
+ * channel, following torch.nn.BatchNorm2d: training mode normalises with the
+ * batch mean and biased variance and updates the running statistics as
+ * run = (1 - momentum) * run + momentum * stat with the unbiased variance;
+ * inference mode normalises with the running statistics.  Both modes have a
+ * full backward for x, gamma and beta.  Threads own whole channels, so the
+ * per-channel reductions of forward and backward are race-free.
+ * nj_batchnorm_fold() merges an inference-mode batch norm into a conv. */
+#include "nn/ops.h"
+#include <math.h>
+
+/* Below this many elements a loop runs on one thread. */
+enum { PAR_MIN = 1 << 14 };
+
+/* Mean and biased variance of channel c over N, H, W (two passes, double). */
+static void channel_stats(const nj_tensor *x, int c, double *mean, double *var)
+{
+    const size_t hw = (size_t)x->h * x->w;
+    double s = 0, q = 0;
+    for (int n = 0; n < x->n; n++) {
+        const float *p = x->data + ((size_t)n * x->c + c) * hw;
+        for (size_t i = 0; i < hw; i++) s += p[i];
+    }
+    const double m = (double)x->n * (double)hw, mu = s / m;
+    for (int n = 0; n < x->n; n++) {
+        const float *p = x->data + ((size_t)n * x->c + c) * hw;
+        for (size_t i = 0; i < hw; i++) q += (p[i] - mu) * (p[i] - mu);
+    }
+    *mean = mu;
+    *var = q / m;
+}
+
+/* y = x * alpha + shift on channel c of every sample. */
+static void channel_affine(const nj_tensor *x, nj_tensor *y, int c, float alpha, float shift)
+{
+    const size_t hw = (size_t)x->h * x->w;
+    for (int n = 0; n < x->n; n++) {
+        const size_t off = ((size_t)n * x->c + c) * hw;
+        const float *p = x->data + off;
+        float *q = y->data + off;
+        for (size_t i = 0; i < hw; i++) q[i] = p[i] * alpha + shift;
+    }
+}
+
+/* Per channel: sums of gy and gy * xhat; then gamma/beta grads and, when x
+ * needs it, dx = gamma * invstd * (gy - [training] (mean(gy) + xhat * mean(gy * xhat))). */
+static void channel_backward(const nj_op *op, int c)
+{
+    const nj_tensor *x = op->in[0], *gamma = op->in[1], *beta = op->in[2], *y = op->out;
+    const float *stats = op->aux;
+    const float mean = stats[c], invstd = stats[x->c + c];
+    const size_t hw = (size_t)x->h * x->w;
+    double sg = 0, sgx = 0;
+    for (int n = 0; n < x->n; n++) {
+        const size_t off = ((size_t)n * x->c + c) * hw;
+        const float *p = x->data + off, *gy = y->grad + off;
+        for (size_t i = 0; i < hw; i++) {
+            sg += gy[i];
+            sgx += gy[i] * ((p[i] - mean) * invstd);
+        }
+    }
+    if (gamma->grad) gamma->grad[c] += (float)sgx;
+    if (beta->grad) beta->grad[c] += (float)sg;
+    if (!x->grad) return;
+    const double m = (double)x->n * (double)hw;
+    const float k = gamma->data[c] * invstd;
+    const float mg = op->i[0] ? (float)(sg / m) : 0.0f, mgx = op->i[0] ? (float)(sgx / m) : 0.0f;
+    for (int n = 0; n < x->n; n++) {
+        const size_t off = ((size_t)n * x->c + c) * hw;
+        const float *p = x->data + off, *gy = y->grad + off;
+        float *gx = x->grad + off;
+        for (size_t i = 0; i < hw; i++)
+            gx[i] += k * (gy[i] - mg - (p[i] - mean) * invstd * mgx);
+    }
+}
+
+static void batchnorm_backward(nj_graph *g, const nj_op *op)
+{
+    (void)g;
+    const nj_tensor *x = op->in[0];
+    #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
+    for (int c = 0; c < x->c; c++) channel_backward(op, c);
+}
+
+static int is_channel_vector(const nj_tensor *t, int c)
+{
+    return t->n == 1 && t->c == c && t->h == 1 && t->w == 1;
+}
+
+nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *beta,
+                        float *run_mean, float *run_var, float momentum, float eps)
+{
+    if (!x || !gamma || !beta || nj_graph_failed(g)) return NULL;
+    if (!is_channel_vector(gamma, x->c) || !is_channel_vector(beta, x->c))
+        return nj_graph_fail(g, "batchnorm: gamma %dx%dx%dx%d and beta %dx%dx%dx%d must be 1x%dx1x1 for x %dx%dx%dx%d",
+                             gamma->n, gamma->c, gamma->h, gamma->w, beta->n, beta->c, beta->h,
+                             beta->w, x->c, x->n, x->c, x->h, x->w);
+    if (!run_mean || !run_var)
+        return nj_graph_fail(g, "batchnorm: running statistics are NULL for x %dx%dx%dx%d",
+                             x->n, x->c, x->h, x->w);
+    const int training = nj_graph_training(g);
+    const double m = (double)x->n * x->h * x->w;
+    if (training && m < 2)
+        return nj_graph_fail(g, "batchnorm: training needs more than one value per channel, x is %dx%dx%dx%d",
+                             x->n, x->c, x->h, x->w);
+    nj_tensor *in[3] = {x, gamma, beta};
+    nj_tensor *y = nj_op_output(g, x->n, x->c, x->h, x->w, in, 3);
+    float *stats = nj_graph_alloc(g, sizeof(float) * 2 * (size_t)x->c); /* mean, invstd */
+    if (!y || !stats) return NULL;
+    #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
+    for (int c = 0; c < x->c; c++) {
+        double mean = run_mean[c], var = run_var[c];
+        if (training) {
+            channel_stats(x, c, &mean, &var);
+            run_mean[c] = (float)(momentum * mean + (1.0 - momentum) * run_mean[c]);
+            run_var[c] = (float)(momentum * var * m / (m - 1) + (1.0 - momentum) * run_var[c]);
+        }
+        const double invstd = 1.0 / sqrt(var + eps), alpha = gamma->data[c] * invstd;
+        stats[c] = (float)mean;
+        stats[x->c + c] = (float)invstd;
+        channel_affine(x, y, c, (float)alpha, (float)(beta->data[c] - mean * alpha));
+    }
+    nj_op *op = nj_graph_record(g, "batchnorm", batchnorm_backward, y, in, 3);
+    if (op) { op->i[0] = training; op->f[0] = eps; op->aux = stats; }
+    return y;
+}
+
+void nj_batchnorm_fold(float *w, float *b, int cout, int per_out,
+                       const float *gamma, const float *beta,
+                       const float *run_mean, const float *run_var, float eps)
+{
+    for (int o = 0; o < cout; o++) {
+        const double scale = gamma[o] / sqrt((double)run_var[o] + eps);
+        float *wo = w + (size_t)o * (size_t)per_out;
+        for (int i = 0; i < per_out; i++) wo[i] = (float)(wo[i] * scale);
+        b[o] = (float)((b[o] - run_mean[o]) * scale + beta[o]);
+    }
+}

@@ -21,6 +21,8 @@ TEST_SUP := $(filter-out $(TEST_SRC),$(wildcard tests/*.c))
 TEST_SUP_OBJ := $(TEST_SUP:%.c=$(B)/%.o)
 
 .PHONY: all deps deps-test test bench bench-nn demo clean help
+# keep object files of test programs (no trailing "rm" after the summary line)
+.SECONDARY:
 all: deps nightjar
 
 deps:

@@ -20,7 +20,7 @@ TEST_BIN := $(TEST_SRC:tests/%.c=$(B)/tests/%)
 TEST_SUP := $(filter-out $(TEST_SRC),$(wildcard tests/*.c))
 TEST_SUP_OBJ := $(TEST_SUP:%.c=$(B)/%.o)
 
-.PHONY: all deps deps-test test bench bench-nn demo clean help
+.PHONY: all deps deps-test test bench bench-nn bench-losses demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
 .SECONDARY:
 all: deps nightjar
@@ -53,7 +53,10 @@ $(B)/bench/%: $(B)/bench/%.o $(B)/libnightjar.a
 bench-nn: deps $(B)/bench/bench_nn
 	@$(B)/bench/bench_nn
 
-bench: bench-nn
+bench-losses: deps $(B)/bench/bench_losses
+	@$(B)/bench/bench_losses
+
+bench: bench-nn bench-losses
 
 demo: deps nightjar
 	@echo "make demo: the end-to-end demo arrives with the trainer."

@@ -2,6 +2,7 @@
  * (tests/ref/losses_ref.py): scikit-image SSIM, PyTorch grid_sample and OpenCV
  * remap, SciPy rotations, an independent PyTorch view-synthesis loss, and the
  * Middlebury 2014 motorcycle stereo pair (Scharstein et al. 2014). */
+#include "losses/camera.h"
 #include "losses/photometric.h"
 #include "losses/pose.h"
 #include "losses/reproject.h"
@@ -235,6 +236,27 @@ static void test_motorcycle(nj_graph *g)
     ref_rmtree(dir);
 }
 
+/* Intrinsics under resize and crop vs where OpenCV's INTER_AREA resize puts
+ * a sub-pixel dot: a point projecting onto the dot at full size must project
+ * onto the dot's centroid in the resized (and then cropped) image. */
+static void test_camera(nj_graph *g)
+{
+    const char *name = "camera intrinsics resize+crop vs OpenCV INTER_AREA dot centroid";
+    char dir[4096];
+    if (losses_ref_run("camera", dir, sizeof dir, name)) return;
+    nj_graph_reset(g);
+    nj_tensor *d = losses_ref_tensor(g, dir, "dot", 0);
+    if (!d) { ref_rmtree(dir); return; }
+    const float *v = d->data;
+    nj_camera c = {200.0f, 190.0f, 160.2f, 119.7f};
+    float Z = 7.0f, X = (v[0] - c.cx) / c.fx * Z, Y = (v[1] - c.cy) / c.fy * Z;
+    nj_camera s = nj_camera_resize(c, 320, 240, 128, 96), k = nj_camera_crop(s, 20, 10);
+    double e1 = fabs(s.fx * X / Z + s.cx - v[2]) + fabs(s.fy * Y / Z + s.cy - v[3]);
+    double e2 = fabs(k.fx * X / Z + k.cx - v[4]) + fabs(k.fy * Y / Z + k.cy - v[5]);
+    check(e1 < 0.02 && e2 < 0.02, name, "resized error %.4f px, cropped error %.4f px", e1, e2);
+    ref_rmtree(dir);
+}
+
 int main(void)
 {
     nj_threads_init(0);
@@ -244,6 +266,7 @@ int main(void)
     test_rotation(g);
     test_vsloss(g);
     test_motorcycle(g);
+    test_camera(g);
     nj_graph_free(g);
     return test_exit();
 }

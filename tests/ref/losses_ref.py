@@ -15,6 +15,8 @@ Every reference value comes from a library this project did not write:
   vsloss      an independent PyTorch (float64) implementation of the whole view-synthesis
               loss written from the published formulas; value and gradients w.r.t. the
               disparity pyramid and the 6-number poses.
+  camera      OpenCV resize(INTER_AREA) and cropping of an image with a sub-pixel dot: where
+              the dot's centroid lands checks the intrinsics' resize/crop convention.
   motorcycle  the Middlebury 2014 "motorcycle" stereo pair with ground-truth disparity
               (Scharstein et al. 2014) as shipped by scikit-image (data.stereo_motorcycle).
 Inputs and results are exchanged as float32 .npy files in OUTDIR.
@@ -209,12 +211,28 @@ def mode_motorcycle(out):
     save(out, "disp", d[None, None])
 
 
+def mode_camera(out):
+    """A Gaussian dot at a sub-pixel position, shrunk by OpenCV INTER_AREA and
+    cropped: where its centroid lands checks the intrinsics' resize and crop."""
+    import cv2
+    H, W, u, v = 240, 320, 123.3, 77.8
+    yy, xx = np.mgrid[0:H, 0:W].astype(np.float64)
+    img = np.exp(-((xx - u) ** 2 + (yy - v) ** 2) / (2 * 3.0 ** 2)).astype(np.float32)
+    small = cv2.resize(img, (128, 96), interpolation=cv2.INTER_AREA).astype(np.float64)
+    sy, sx = np.mgrid[0:96, 0:128]
+    cs = [(small * sx).sum() / small.sum(), (small * sy).sum() / small.sum()]
+    crop = small[10:80, 20:110]
+    cy2, cx2 = np.mgrid[0:70, 0:90]
+    cc = [(crop * cx2).sum() / crop.sum(), (crop * cy2).sum() / crop.sum()]
+    save(out, "dot", np.array([u, v, cs[0], cs[1], cc[0], cc[1]]))
+
+
 def main():
     if len(sys.argv) != 2 or ":" not in sys.argv[1]:
         sys.exit("usage: losses_ref.py MODE:OUTDIR")
     mode, out = sys.argv[1].split(":", 1)
     modes = {"ssim": mode_ssim, "sample": mode_sample, "rotation": mode_rotation,
-             "vsloss": mode_vsloss, "motorcycle": mode_motorcycle}
+             "vsloss": mode_vsloss, "camera": mode_camera, "motorcycle": mode_motorcycle}
     if mode not in modes:
         sys.exit("losses_ref.py: unknown mode %s" % mode)
     modes[mode](out)

@@ -17,8 +17,8 @@ int nj_atomic_open(nj_atomic_file *a, const char *path, char *err, size_t errlen
         snprintf(err, errlen, "%s: out of memory", path);
         return -1;
     }
-    snprintf(a->tmp, n, "%s.XXXXXX", path);
-    int fd = mkstemp(a->tmp);
+    snprintf(a->tmp, n, "%s.XXXXXX.tmp", path);
+    int fd = mkstemps(a->tmp, 4);
     if (fd < 0) {
         snprintf(err, errlen, "%s: cannot create a temporary file: %s", path, strerror(errno));
         free(a->tmp);

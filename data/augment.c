@@ -1,0 +1,72 @@
+/* data/augment.c — colour jitter and horizontal flip (see augment.h).
+ * YIQ: the NTSC luma/chroma transform (FCC 1953 coefficients). */
+#include "data/augment.h"
+#include <math.h>
+#include <stddef.h>
+
+static float clamp01(float v) { return v < 0 ? 0 : v > 1 ? 1 : v; }
+
+static float uniform(nj_rng *r, float lo, float hi) { return lo + (hi - lo) * (float)nj_rng_uniform(r); }
+
+nj_jitter nj_jitter_draw(nj_rng *r, float B, float C, float S, float H)
+{
+    nj_jitter j;
+    j.brightness = uniform(r, 1 - B, 1 + B);
+    j.contrast = uniform(r, 1 - C, 1 + C);
+    j.saturation = uniform(r, 1 - S, 1 + S);
+    j.hue = uniform(r, -H, H);
+    return j;
+}
+
+static float grey(float r, float g, float b) { return 0.299f * r + 0.587f * g + 0.114f * b; }
+
+float nj_jitter_pivot(const nj_jitter *j, const float *rgb, int w, int h)
+{
+    size_t n = (size_t)w * h;
+    double s = 0;
+    for (size_t i = 0; i < n; i++)
+        s += grey(clamp01(rgb[i] * j->brightness), clamp01(rgb[n + i] * j->brightness),
+                  clamp01(rgb[2 * n + i] * j->brightness));
+    return (float)(s / (double)n);
+}
+
+/* Hue rotation in YIQ. */
+static void rotate_hue(float *r, float *g, float *b, float cs, float sn)
+{
+    float y = 0.299f * *r + 0.587f * *g + 0.114f * *b;
+    float i = 0.596f * *r - 0.274f * *g - 0.322f * *b;
+    float q = 0.211f * *r - 0.523f * *g + 0.312f * *b;
+    float i2 = cs * i - sn * q, q2 = sn * i + cs * q;
+    *r = clamp01(y + 0.956f * i2 + 0.621f * q2);
+    *g = clamp01(y - 0.272f * i2 - 0.647f * q2);
+    *b = clamp01(y - 1.106f * i2 + 1.703f * q2);
+}
+
+void nj_jitter_apply(const nj_jitter *j, float pivot, const float *in, float *out, int w, int h)
+{
+    size_t n = (size_t)w * h;
+    float cs = cosf(6.2831853f * j->hue), sn = sinf(6.2831853f * j->hue);
+    for (size_t p = 0; p < n; p++) {
+        float c[3];
+        for (int k = 0; k < 3; k++) {
+            float v = clamp01(in[k * n + p] * j->brightness);
+            c[k] = clamp01((v - pivot) * j->contrast + pivot);
+        }
+        float gr = grey(c[0], c[1], c[2]);
+        for (int k = 0; k < 3; k++) c[k] = clamp01(gr + j->saturation * (c[k] - gr));
+        if (j->hue != 0) rotate_hue(&c[0], &c[1], &c[2], cs, sn);
+        for (int k = 0; k < 3; k++) out[k * n + p] = c[k];
+    }
+}
+
+void nj_flip_planes(float *data, int planes, int w, int h)
+{
+    for (long row = 0; row < (long)planes * h; row++) {
+        float *r = data + row * w;
+        for (int a = 0, b = w - 1; a < b; a++, b--) {
+            float t = r[a];
+            r[a] = r[b];
+            r[b] = t;
+        }
+    }
+}

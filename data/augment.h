@@ -1,0 +1,34 @@
+/* data/augment.h — per-sample augmentation.
+ *
+ * Colour jitter (brightness, contrast, saturation, hue) with one set of
+ * parameters per sample, applied identically to every frame of the sample —
+ * the same affine colour map, with the contrast pivot taken from the target —
+ * and only to the copies fed to the network; the loss compares the clean
+ * images.  Order: brightness (x·b), contrast ((x − m)·c + m, m the target's
+ * mean grey after brightness), saturation (grey + s·(x − grey), grey =
+ * 0.299R + 0.587G + 0.114B), hue (rotation of the YIQ chroma plane by 2π·h);
+ * values are clamped to [0, 1] after every step.
+ *
+ * Horizontal flip mirrors x ↦ W − 1 − x (pixel centres at integers), so a
+ * camera's cx becomes W − 1 − cx (nj_camera_flip); the mirrored views are
+ * those of a mirrored world, so a stereo partner that was to the right of the
+ * target is to its left afterwards.
+ */
+#ifndef NJ_AUGMENT_H
+#define NJ_AUGMENT_H
+#include "nn/rng.h"
+
+typedef struct nj_jitter {
+    float brightness, contrast, saturation, hue;   /* factors b, c, s and the hue turn h */
+} nj_jitter;
+
+/* Draws b ∈ [1−B, 1+B], c ∈ [1−C, 1+C], s ∈ [1−S, 1+S], h ∈ [−H, H]. */
+nj_jitter nj_jitter_draw(nj_rng *r, float B, float C, float S, float H);
+/* The contrast pivot: mean grey of the planar RGB image after brightness. */
+float nj_jitter_pivot(const nj_jitter *j, const float *rgb, int w, int h);
+/* out = jitter(in) for one planar RGB image (out may equal in). */
+void nj_jitter_apply(const nj_jitter *j, float pivot, const float *in, float *out, int w, int h);
+/* Mirrors `planes` planar w×h planes left-right in place. */
+void nj_flip_planes(float *data, int planes, int w, int h);
+
+#endif

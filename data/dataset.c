@@ -1,0 +1,293 @@
+/* data/dataset.c — parsing the dataset JSON (cJSON) into nj_dataset.
+ * Syntax errors are located by line and column from cJSON's parse-end
+ * pointer; every missing or ill-typed key is one problem line naming the
+ * JSON file and the sequence. */
+#include "data/dataset.h"
+#include <cjson/cJSON.h>
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define MAX_JSON_BYTES (64L << 20)
+
+typedef struct ctx {
+    const char *path;        /* the JSON file */
+    char where[160];         /* "sequence 2 (\"yard-03\")" */
+    nj_problems *pr;
+} ctx;
+
+static char *read_text(const char *path, nj_problems *pr)
+{
+    FILE *f = fopen(path, "rb");
+    if (!f) {
+        nj_problem(pr, "%s: cannot open the dataset file: %s", path, strerror(errno));
+        return NULL;
+    }
+    char *buf = NULL;
+    long n = -1;
+    if (fseek(f, 0, SEEK_END) == 0) n = ftell(f);
+    if (n >= 0 && n <= MAX_JSON_BYTES && fseek(f, 0, SEEK_SET) == 0) buf = malloc((size_t)n + 1);
+    if (buf && fread(buf, 1, (size_t)n, f) != (size_t)n) { free(buf); buf = NULL; }
+    fclose(f);
+    if (!buf) nj_problem(pr, "%s: cannot read the dataset file (larger than 64 MB or unreadable)", path);
+    else buf[n] = 0;
+    return buf;
+}
+
+/* 1-based line and column (in bytes) of `at` inside `text`. */
+static void text_position(const char *text, const char *at, int *line, int *col)
+{
+    *line = 1;
+    *col = 1;
+    for (const char *c = text; *c && c < at; c++) {
+        if (*c == '\n') { (*line)++; *col = 1; }
+        else (*col)++;
+    }
+}
+
+static void bad_json(const char *path, const char *text, const char *at, nj_problems *pr)
+{
+    int line, col;
+    if (!at) at = text + strlen(text);
+    text_position(text, at, &line, &col);
+    char near[24];
+    int k = 0;
+    for (const char *c = at; *c && *c != '\n' && k < 20; c++) near[k++] = *c;
+    near[k] = 0;
+    if (k) nj_problem(pr, "%s:%d:%d: bad JSON near '%s'", path, line, col, near);
+    else nj_problem(pr, "%s:%d:%d: bad JSON (unexpected end of text)", path, line, col);
+}
+
+static char *resolve(const char *root, const char *p)
+{
+    if (p[0] == '/' || !strcmp(root, ".")) return strdup(p);
+    return nj_path_join(root, p);
+}
+
+static const cJSON *member(const cJSON *obj, const char *key) { return cJSON_GetObjectItemCaseSensitive(obj, key); }
+
+/* 1 present and a non-empty string, 0 absent, -1 wrong type (problem added). */
+static int get_string(ctx *c, const cJSON *obj, const char *key, const char **out)
+{
+    const cJSON *v = member(obj, key);
+    if (!v) return 0;
+    if (!cJSON_IsString(v) || !v->valuestring[0]) {
+        nj_problem(c->pr, "%s: %s: \"%s\" must be a non-empty string", c->path, c->where, key);
+        return -1;
+    }
+    *out = v->valuestring;
+    return 1;
+}
+
+static int get_number(ctx *c, const cJSON *obj, const char *prefix, const char *key, double *out)
+{
+    const cJSON *v = member(obj, key);
+    if (!v) return 0;
+    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble)) {
+        nj_problem(c->pr, "%s: %s: \"%s%s\" must be a number", c->path, c->where, prefix, key);
+        return -1;
+    }
+    *out = v->valuedouble;
+    return 1;
+}
+
+static void missing(ctx *c, const char *key, const char *why)
+{
+    nj_problem(c->pr, "%s: %s: missing key \"%s\"%s", c->path, c->where, key, why);
+}
+
+static void positive(ctx *c, const char *key, double v, const char *what)
+{
+    if (!(v > 0)) nj_problem(c->pr, "%s: %s: %s \"%s\" must be positive (got %g)", c->path, c->where, what, key, v);
+}
+
+static void parse_camera(ctx *c, const cJSON *seq, nj_sequence *s)
+{
+    const cJSON *cam = member(seq, "camera");
+    if (!cam) { missing(c, "camera", ""); return; }
+    if (!cJSON_IsObject(cam)) {
+        nj_problem(c->pr, "%s: %s: \"camera\" must be an object with fx, fy, cx, cy", c->path, c->where);
+        return;
+    }
+    static const char *keys[4] = {"fx", "fy", "cx", "cy"};
+    double v[4] = {0, 0, 0, 0};
+    for (int i = 0; i < 4; i++) {
+        char full[16];
+        snprintf(full, sizeof full, "camera.%s", keys[i]);
+        int r = get_number(c, cam, "camera.", keys[i], &v[i]);
+        if (r == 0) missing(c, full, "");
+        if (r == 1 && i < 2) positive(c, full, v[i], "focal length");
+    }
+    s->camera = (nj_camera){(float)v[0], (float)v[1], (float)v[2], (float)v[3]};
+}
+
+static void parse_stereo(ctx *c, const cJSON *seq, nj_sequence *s, const char *root)
+{
+    const char *right = NULL;
+    double b = 0;
+    int r = get_string(c, seq, "right_images", &right);
+    int rb = get_number(c, seq, "", "baseline", &b);
+    if (r == 1) s->right_images = resolve(root, right);
+    if (r == 1 && rb == 0) missing(c, "baseline", " (required with \"right_images\")");
+    if (r == 1 && rb == 1) positive(c, "baseline", b, "stereo");
+    if (r == 0 && rb == 1) nj_warning(c->pr, "%s: %s: \"baseline\" is ignored without \"right_images\"", c->path, c->where);
+    s->baseline = (float)b;
+}
+
+static void parse_depth(ctx *c, const cJSON *seq, nj_sequence *s, const char *root)
+{
+    const cJSON *d = member(seq, "depth");
+    if (!d) return;
+    if (!cJSON_IsObject(d)) {
+        nj_problem(c->pr, "%s: %s: \"depth\" must be an object with dir, format (and scale)", c->path, c->where);
+        return;
+    }
+    const char *dir = NULL, *fmt = NULL;
+    double scale = 0;
+    int rd = get_string(c, d, "dir", &dir), rf = get_string(c, d, "format", &fmt);
+    int rs = get_number(c, d, "depth.", "scale", &scale);
+    if (rd == 0) missing(c, "depth.dir", "");
+    if (rf == 0) missing(c, "depth.format", "");
+    if (rf == 1 && nj_depth_format_parse(fmt, &s->depth_format))
+        nj_problem(c->pr, "%s: %s: \"depth.format\" is \"%s\"; expected png16, npy or pfm", c->path, c->where, fmt);
+    if (s->depth_format == NJ_DEPTH_PNG16 && rs == 0) missing(c, "depth.scale", " (required with png16)");
+    if (s->depth_format == NJ_DEPTH_PNG16 && rs == 1) positive(c, "depth.scale", scale, "depth");
+    s->depth_scale = (float)scale;
+    if (rd == 1) s->depth_dir = resolve(root, dir);
+}
+
+static void parse_split(ctx *c, const cJSON *seq, nj_sequence *s)
+{
+    const char *v = NULL;
+    s->split = NJ_SPLIT_TRAIN;
+    if (get_string(c, seq, "split", &v) != 1) return;
+    if (!strcmp(v, "train")) s->split = NJ_SPLIT_TRAIN;
+    else if (!strcmp(v, "val")) s->split = NJ_SPLIT_VAL;
+    else if (!strcmp(v, "test")) s->split = NJ_SPLIT_TEST;
+    else nj_problem(c->pr, "%s: %s: \"split\" is \"%s\"; expected train, val or test", c->path, c->where, v);
+}
+
+static void warn_unknown(ctx *c, const cJSON *obj, const char *const *known, int nknown)
+{
+    for (const cJSON *it = obj->child; it; it = it->next) {
+        int ok = 0;
+        for (int i = 0; i < nknown && !ok; i++) ok = it->string && !strcmp(it->string, known[i]);
+        if (!ok) nj_warning(c->pr, "%s: %s: unknown key \"%s\" ignored", c->path, c->where, it->string ? it->string : "?");
+    }
+}
+
+static void parse_sequence(ctx *c, const cJSON *seq, int i, nj_sequence *s, const char *root)
+{
+    static const char *known[] = {"name", "images", "camera", "right_images", "baseline", "depth", "poses", "split"};
+    snprintf(c->where, sizeof c->where, "sequence %d", i + 1);
+    if (!cJSON_IsObject(seq)) {
+        nj_problem(c->pr, "%s: %s: must be an object", c->path, c->where);
+        return;
+    }
+    const char *name = NULL, *images = NULL, *poses = NULL;
+    if (get_string(c, seq, "name", &name) == 0) missing(c, "name", "");
+    if (name) {
+        s->name = strdup(name);
+        snprintf(c->where, sizeof c->where, "sequence %d (\"%.100s\")", i + 1, name);
+    }
+    if (get_string(c, seq, "images", &images) == 0) missing(c, "images", "");
+    if (images) s->images = resolve(root, images);
+    parse_camera(c, seq, s);
+    parse_stereo(c, seq, s, root);
+    parse_depth(c, seq, s, root);
+    if (get_string(c, seq, "poses", &poses) == 1) s->poses = resolve(root, poses);
+    parse_split(c, seq, s);
+    warn_unknown(c, seq, known, (int)(sizeof known / sizeof known[0]));
+}
+
+static void check_names(ctx *c, const nj_dataset *ds)
+{
+    for (int i = 0; i < ds->nseq; i++)
+        for (int j = 0; j < i; j++)
+            if (ds->seq[i].name && ds->seq[j].name && !strcmp(ds->seq[i].name, ds->seq[j].name)) {
+                nj_problem(c->pr, "%s: sequences %d and %d share the name \"%s\"", c->path, j + 1, i + 1, ds->seq[i].name);
+                break;
+            }
+}
+
+static void parse_root(ctx *c, const cJSON *root, nj_dataset *ds)
+{
+    if (!cJSON_IsObject(root)) {
+        nj_problem(c->pr, "%s: the top level must be an object with \"sequences\"", c->path);
+        return;
+    }
+    const cJSON *seqs = member(root, "sequences");
+    if (!seqs) { nj_problem(c->pr, "%s: missing key \"sequences\"", c->path); return; }
+    if (!cJSON_IsArray(seqs)) { nj_problem(c->pr, "%s: \"sequences\" must be an array", c->path); return; }
+    int n = cJSON_GetArraySize(seqs);
+    if (n == 0) { nj_problem(c->pr, "%s: \"sequences\" is empty", c->path); return; }
+    ds->seq = calloc((size_t)n, sizeof(nj_sequence));
+    if (!ds->seq) { nj_problem(c->pr, "%s: out of memory", c->path); return; }
+    ds->nseq = n;
+    int i = 0;
+    for (const cJSON *it = seqs->child; it; it = it->next, i++) parse_sequence(c, it, i, &ds->seq[i], ds->root);
+    check_names(c, ds);
+    static const char *known[] = {"sequences"};
+    snprintf(c->where, sizeof c->where, "top level");
+    warn_unknown(c, root, known, 1);
+}
+
+static char *folder_of(const char *path)
+{
+    const char *slash = strrchr(path, '/');
+    if (!slash) return strdup(".");
+    if (slash == path) return strdup("/");
+    return strndup(path, (size_t)(slash - path));
+}
+
+int nj_dataset_parse(const char *path, nj_dataset *ds, nj_problems *pr)
+{
+    int before = pr->n;
+    memset(ds, 0, sizeof *ds);
+    ds->path = strdup(path);
+    ds->root = folder_of(path);
+    char *text = read_text(path, pr);
+    if (!text) return pr->n - before;
+    const char *end = NULL;
+    cJSON *root = cJSON_ParseWithOpts(text, &end, 1);
+    ctx c = {path, "", pr};
+    if (!root) bad_json(path, text, end, pr);
+    else parse_root(&c, root, ds);
+    cJSON_Delete(root);
+    free(text);
+    return pr->n - before;
+}
+
+const char *nj_split_name(nj_split s)
+{
+    return s == NJ_SPLIT_VAL ? "val" : s == NJ_SPLIT_TEST ? "test" : "train";
+}
+
+void nj_data_options_default(nj_data_options *o)
+{
+    o->k = 1;
+    o->stereo = 1;
+    o->dup_threshold = 0.003f;
+}
+
+static void sequence_free(nj_sequence *s)
+{
+    free(s->name);
+    free(s->images);
+    free(s->right_images);
+    free(s->depth_dir);
+    free(s->poses);
+    nj_free_names(s->frames, s->nframes);
+    free(s->kept);
+}
+
+void nj_dataset_free(nj_dataset *ds)
+{
+    for (int i = 0; i < ds->nseq; i++) sequence_free(&ds->seq[i]);
+    free(ds->seq);
+    free(ds->path);
+    free(ds->root);
+    memset(ds, 0, sizeof *ds);
+}

@@ -1,0 +1,108 @@
+/* data/dataset.h — the dataset description (JSON) and its validation.
+ *
+ * The JSON contract (keys kept exactly; relative paths resolve against the
+ * JSON file's folder):
+ *   { "sequences": [ { "name": "yard-03",
+ *       "images": "yard-03/cam0",            folder of PNG/JPEG frames, ordered by file name
+ *       "camera": {"fx":..,"fy":..,"cx":..,"cy":..},   pixels, at the on-disk image size
+ *       "right_images": "yard-03/cam1",      optional rectified stereo partner (same file names)
+ *       "baseline": 0.12,                    metres, required with right_images
+ *       "depth": {"dir": "...", "format": "png16"|"npy"|"pfm", "scale": 1000.0},
+ *                                            optional ground truth (scale: png16 only, required there)
+ *       "poses": "yard-03/poses.txt",        optional ground truth, 12 numbers per line
+ *       "split": "train" } ] }               train | val | test, default train
+ *
+ * nj_dataset_open parses and validates everything `nightjar check-data`
+ * reports; training calls the same function and refuses data with problems.
+ */
+#ifndef NJ_DATASET_H
+#define NJ_DATASET_H
+#include "data/depthio.h"
+#include "data/problems.h"
+#include "losses/camera.h"
+
+typedef enum { NJ_SPLIT_TRAIN = 0, NJ_SPLIT_VAL = 1, NJ_SPLIT_TEST = 2 } nj_split;
+
+typedef struct nj_sequence {
+    /* from the JSON (paths resolved) */
+    char *name;
+    char *images;            /* folder of frames */
+    nj_camera camera;        /* at the on-disk size */
+    char *right_images;      /* NULL without stereo */
+    float baseline;          /* metres */
+    char *depth_dir;         /* NULL without depth */
+    nj_depth_format depth_format;
+    float depth_scale;
+    char *poses;             /* NULL without poses */
+    nj_split split;
+    /* from validation */
+    int nframes;
+    char **frames;           /* file names in images/, sorted */
+    int width, height;       /* of the first frame */
+    int nkept;               /* frames left after skipping near-duplicates */
+    int *kept;               /* their indices into frames[] */
+    int duplicates;          /* frames skipped as near-duplicates */
+    int problems;            /* problems found in this sequence */
+} nj_sequence;
+
+typedef struct nj_dataset {
+    char *path;              /* the JSON file */
+    char *root;              /* its folder */
+    int nseq;
+    nj_sequence *seq;
+} nj_dataset;
+
+typedef struct nj_data_options {
+    int k;                   /* temporal sources t−k and t+k; 0 = none */
+    int stereo;              /* add the stereo partner when the sequence has one */
+    float dup_threshold;     /* skip frames whose mean absolute difference (0..1, on
+                                64-pixel-wide grey thumbnails) to the last kept frame is
+                                below this; 0 disables */
+} nj_data_options;
+
+/* k = 1, stereo on, dup_threshold = 0.003. */
+void nj_data_options_default(nj_data_options *o);
+
+/* Parses the JSON into *ds (no file system checks).  Returns the number of
+ * problems added to *pr (0 = the description is well-formed). */
+int nj_dataset_parse(const char *path, nj_dataset *ds, nj_problems *pr);
+/* Parses and validates folders, frames (every image is decoded), sizes,
+ * stereo partners, ground truth and sample counts.  Returns the number of
+ * problems (0 = training can use the data). */
+int nj_dataset_open(const char *path, const nj_data_options *o, nj_dataset *ds, nj_problems *pr);
+void nj_dataset_free(nj_dataset *ds);
+
+/* Validation of one parsed sequence (folders, frames, images, partners,
+ * ground truth, duplicates).  Returns the problems added. */
+int nj_sequence_validate(nj_sequence *s, const nj_data_options *o, nj_problems *pr);
+/* Frame listing: PNG/JPEG file names in `dir` sorted by name (malloc'd).
+ * Returns the count, or -1 if the folder cannot be read. */
+int nj_list_frames(const char *dir, char ***names);
+void nj_free_names(char **names, int n);
+
+/* "DIR/NAME" (malloc'd). */
+char *nj_path_join(const char *dir, const char *name);
+/* Depth file of a frame: DEPTH_DIR/<frame stem><extension of the format>. */
+char *nj_depth_path(const nj_sequence *s, int frame);
+
+/* One training sample: target frame, its temporal sources, the stereo flag. */
+typedef struct nj_sample {
+    int seq;                 /* index into ds->seq */
+    int target;              /* frame index into seq->frames */
+    int src[2];              /* t−k and t+k (frame indices), when nsrc == 2 */
+    int nsrc;                /* 0 or 2 */
+    int stereo;              /* 1: the stereo partner of the target is used */
+} nj_sample;
+
+/* Number of samples a sequence yields under the options. */
+int nj_sequence_samples(const nj_sequence *s, const nj_data_options *o, nj_sample *out, int seq);
+/* All samples of the sequences in `split` (malloc'd into *out).  Returns the
+ * count, or -1 when out of memory. */
+int nj_dataset_samples(const nj_dataset *ds, nj_split split, const nj_data_options *o, nj_sample **out);
+
+const char *nj_split_name(nj_split s);
+
+/* The per-sequence report and the problems, as `nightjar check-data` prints. */
+void nj_dataset_report(const nj_dataset *ds, const nj_data_options *o, const nj_problems *pr, FILE *f);
+
+#endif

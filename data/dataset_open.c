@@ -1,0 +1,50 @@
+/* data/dataset_open.c — parse + validate a dataset, and the check-data
+ * report.  Training calls nj_dataset_open and refuses data with problems. */
+#include "data/dataset.h"
+
+static int split_samples(const nj_dataset *ds, const nj_data_options *o, nj_split split)
+{
+    int n = 0;
+    for (int i = 0; i < ds->nseq; i++)
+        if (ds->seq[i].split == split) n += nj_sequence_samples(&ds->seq[i], o, NULL, i);
+    return n;
+}
+
+int nj_dataset_open(const char *path, const nj_data_options *o, nj_dataset *ds, nj_problems *pr)
+{
+    int before = pr->n;
+    if (nj_dataset_parse(path, ds, pr) && ds->nseq == 0) return pr->n - before;
+    for (int i = 0; i < ds->nseq; i++) {
+        nj_sequence *s = &ds->seq[i];
+        nj_sequence_validate(s, o, pr);
+        if (!s->problems && s->nframes && !nj_sequence_samples(s, o, NULL, i))
+            nj_warning(pr, "%s: sequence \"%s\" yields no samples (%d usable frames, k = %d)",
+                       s->images, s->name, s->nkept, o->k);
+    }
+    if (pr->n == before && split_samples(ds, o, NJ_SPLIT_TRAIN) == 0)
+        nj_problem(pr, "%s: no usable training samples (needs a \"train\" sequence with at least %d usable frames%s)",
+                   path, 2 * o->k + 1, o->stereo ? " or a stereo partner" : "");
+    return pr->n - before;
+}
+
+static void report_sequence(const nj_sequence *s, const nj_data_options *o, int i, FILE *f)
+{
+    fprintf(f, "  %-16s %-5s %5d frames  %dx%d", s->name ? s->name : "?", nj_split_name(s->split),
+            s->nframes, s->width, s->height);
+    if (s->right_images) fprintf(f, "  stereo %.3f m", s->baseline);
+    if (s->depth_dir) fprintf(f, "  depth %s", nj_depth_format_name(s->depth_format));
+    if (s->poses) fprintf(f, "  poses");
+    fprintf(f, "  usable samples %d  duplicates skipped %d", nj_sequence_samples(s, o, NULL, i), s->duplicates);
+    if (s->problems) fprintf(f, "  problems %d", s->problems);
+    fprintf(f, "\n");
+}
+
+void nj_dataset_report(const nj_dataset *ds, const nj_data_options *o, const nj_problems *pr, FILE *f)
+{
+    fprintf(f, "dataset %s: %d sequence%s (k = %d, stereo %s, duplicate threshold %g)\n", ds->path ? ds->path : "?",
+            ds->nseq, ds->nseq == 1 ? "" : "s", o->k, o->stereo ? "on" : "off", o->dup_threshold);
+    for (int i = 0; i < ds->nseq; i++) report_sequence(&ds->seq[i], o, i, f);
+    fprintf(f, "samples: train %d, val %d, test %d\n", split_samples(ds, o, NJ_SPLIT_TRAIN),
+            split_samples(ds, o, NJ_SPLIT_VAL), split_samples(ds, o, NJ_SPLIT_TEST));
+    nj_problems_print(pr, f);
+}

@@ -1,0 +1,95 @@
+/* data/image.c — decoding PNG/JPEG into planar float RGB with size limits. */
+#include "data/image.h"
+#include <errno.h>
+#include <stb_image.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+int nj_image_alloc(nj_image *im, int w, int h)
+{
+    im->w = w;
+    im->h = h;
+    im->data = malloc((size_t)3 * (size_t)w * (size_t)h * sizeof(float));
+    return im->data ? 0 : -1;
+}
+
+void nj_image_free(nj_image *im)
+{
+    if (!im) return;
+    free(im->data);
+    im->data = NULL;
+    im->w = im->h = 0;
+}
+
+static int check_limits(const char *path, int w, int h, char *err, size_t errlen)
+{
+    if (w <= 0 || h <= 0) {
+        snprintf(err, errlen, "%s: image has an empty size %dx%d", path, w, h);
+        return -1;
+    }
+    if (w > NJ_IMAGE_MAX_SIDE || h > NJ_IMAGE_MAX_SIDE) {
+        snprintf(err, errlen, "%s: image is %dx%d; refusing sides above %d pixels",
+                 path, w, h, NJ_IMAGE_MAX_SIDE);
+        return -1;
+    }
+    if ((long)w * (long)h > NJ_IMAGE_MAX_PIXELS) {
+        snprintf(err, errlen, "%s: image is %dx%d (%.1f MP); refusing more than %ld MP",
+                 path, w, h, (double)w * h / 1e6, NJ_IMAGE_MAX_PIXELS / 1000000);
+        return -1;
+    }
+    return 0;
+}
+
+int nj_image_probe(const char *path, int *w, int *h, char *err, size_t errlen)
+{
+    struct stat st;
+    if (stat(path, &st) != 0) {
+        snprintf(err, errlen, "%s: cannot open image: %s", path, strerror(errno));
+        return -1;
+    }
+    if (!S_ISREG(st.st_mode)) {
+        snprintf(err, errlen, "%s: not a regular file", path);
+        return -1;
+    }
+    int comp = 0;
+    if (!stbi_info(path, w, h, &comp)) {
+        snprintf(err, errlen, "%s: unreadable image (%s)", path, stbi_failure_reason());
+        return -1;
+    }
+    return check_limits(path, *w, *h, err, errlen);
+}
+
+/* Interleaved 8-bit RGB → planar float in [0,1]. */
+static void to_planar(const unsigned char *px, nj_image *im)
+{
+    size_t n = (size_t)im->w * (size_t)im->h;
+    float *r = im->data, *g = r + n, *b = g + n;
+    for (size_t i = 0; i < n; i++) {
+        r[i] = px[3 * i] / 255.0f;
+        g[i] = px[3 * i + 1] / 255.0f;
+        b[i] = px[3 * i + 2] / 255.0f;
+    }
+}
+
+int nj_image_load(const char *path, nj_image *im, char *err, size_t errlen)
+{
+    im->data = NULL;
+    im->w = im->h = 0;
+    int w, h, comp;
+    if (nj_image_probe(path, &w, &h, err, errlen)) return -1;
+    unsigned char *px = stbi_load(path, &w, &h, &comp, 3);
+    if (!px) {
+        snprintf(err, errlen, "%s: corrupt image (%s)", path, stbi_failure_reason());
+        return -1;
+    }
+    if (nj_image_alloc(im, w, h)) {
+        stbi_image_free(px);
+        snprintf(err, errlen, "%s: out of memory for %dx%d", path, w, h);
+        return -1;
+    }
+    to_planar(px, im);
+    stbi_image_free(px);
+    return 0;
+}

@@ -1,0 +1,259 @@
+/* data/loader.c — the batch loader: step → samples order, a ring of batch
+ * slots, and pthread workers that fill the slots of upcoming steps while the
+ * trainer uses the current one (see loader.h). */
+#include "data/loader.h"
+#include "data/image.h"
+#include "data/loader_item.h"
+#include "nn/rng.h"
+#include <pthread.h>
+#include <stdlib.h>
+#include <string.h>
+
+enum { SLOT_FREE, SLOT_FILLING, SLOT_READY };
+
+typedef struct slot {
+    nj_batch b;
+    int state, rc;
+    char err[512];
+} slot;
+
+struct nj_loader {
+    const nj_dataset *ds;
+    nj_sample *samples;
+    int nsamples;
+    nj_loader_config cfg;
+    int nslots;
+    slot *slots;
+    pthread_t *threads;
+    int nthreads;
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+    long next_assign;        /* next step a worker takes */
+    long next_consume;       /* step the trainer receives next */
+    int held;                /* slot handed out by the last nj_loader_next, or −1 */
+    int stop;
+};
+
+void nj_loader_config_default(nj_loader_config *c)
+{
+    memset(c, 0, sizeof *c);
+    c->width = 320;
+    c->height = 240;
+    c->batch = 4;
+    c->seed = 1;
+    c->workers = 1;
+    c->prefetch = 2;
+    c->jitter = 1;
+    c->brightness = c->contrast = c->saturation = 0.2f;
+    c->hue = 0.05f;
+    c->flip_prob = 0.5f;
+}
+
+static void shuffle(uint64_t seed, long epoch, int n, int *perm)
+{
+    nj_rng r;
+    nj_rng_seed(&r, nj_loader_item_seed(seed ^ 0x5EEDull, epoch, -1));
+    for (int i = 0; i < n; i++) perm[i] = i;
+    for (int i = n - 1; i > 0; i--) {
+        int j = (int)nj_rng_below(&r, (uint32_t)(i + 1)), t = perm[i];
+        perm[i] = perm[j];
+        perm[j] = t;
+    }
+}
+
+void nj_loader_step_samples(uint64_t seed, long step, int batch, int nsamples, int *out)
+{
+    int *perm = malloc((size_t)nsamples * sizeof(int));
+    long have = -1;
+    for (int i = 0; i < batch; i++) {
+        long p = step * batch + i, e = p / nsamples;
+        if (!perm) { out[i] = (int)(p % nsamples); continue; }   /* out of memory: unshuffled */
+        if (e != have) shuffle(seed, e, nsamples, perm);
+        have = e;
+        out[i] = perm[p % nsamples];
+    }
+    free(perm);
+}
+
+/* ---- batch buffers ------------------------------------------------------ */
+
+static void batch_free(nj_batch *b, int jitter)
+{
+    free(b->target);
+    free(b->sources);
+    free(b->partner);
+    if (jitter) {
+        free(b->target_in);
+        free(b->sources_in);
+        free(b->partner_in);
+    }
+    free(b->camera);
+    free(b->stereo_tx);
+    free(b->has_partner);
+    free(b->flipped);
+    free(b->sample);
+}
+
+static float *images(int count, size_t n)
+{
+    return malloc((size_t)(count ? count : 1) * n * sizeof(float));
+}
+
+static int batch_alloc(nj_batch *b, const nj_loader_config *c, int nsrc, int stereo)
+{
+    memset(b, 0, sizeof *b);
+    size_t n = (size_t)3 * c->width * c->height;
+    b->n = c->batch;
+    b->w = c->width;
+    b->h = c->height;
+    b->nsrc = nsrc;
+    b->stereo = stereo;
+    b->target = images(b->n, n);
+    b->sources = images(b->n * nsrc, n);
+    b->partner = stereo ? images(b->n, n) : NULL;
+    b->target_in = c->jitter ? images(b->n, n) : b->target;
+    b->sources_in = c->jitter ? images(b->n * nsrc, n) : b->sources;
+    b->partner_in = stereo ? (c->jitter ? images(b->n, n) : b->partner) : NULL;
+    b->camera = malloc((size_t)b->n * sizeof(nj_camera));
+    b->stereo_tx = malloc((size_t)b->n * sizeof(float));
+    b->has_partner = malloc((size_t)b->n * sizeof(int));
+    b->flipped = malloc((size_t)b->n * sizeof(int));
+    b->sample = malloc((size_t)b->n * sizeof(int));
+    return b->target && b->sources && b->target_in && b->sources_in && (!stereo || (b->partner && b->partner_in)) &&
+                   b->camera && b->stereo_tx && b->has_partner && b->flipped && b->sample
+               ? 0 : -1;
+}
+
+/* ---- workers ------------------------------------------------------------ */
+
+static void fill(nj_loader *L, slot *sl, long step)
+{
+    nj_batch *b = &sl->b;
+    b->step = step;
+    sl->rc = 0;
+    sl->err[0] = 0;
+    nj_loader_step_samples(L->cfg.seed, step, b->n, L->nsamples, b->sample);
+    for (int i = 0; i < b->n && !sl->rc; i++)
+        sl->rc = nj_loader_item(L->ds, &L->samples[b->sample[i]], &L->cfg, step, i, b, sl->err, sizeof sl->err);
+}
+
+static void *worker(void *arg)
+{
+    nj_loader *L = arg;
+    pthread_mutex_lock(&L->mu);
+    for (;;) {
+        while (!L->stop && L->slots[L->next_assign % L->nslots].state != SLOT_FREE) pthread_cond_wait(&L->cv, &L->mu);
+        if (L->stop) break;
+        long step = L->next_assign++;
+        slot *sl = &L->slots[step % L->nslots];
+        sl->state = SLOT_FILLING;
+        pthread_mutex_unlock(&L->mu);
+        fill(L, sl, step);
+        pthread_mutex_lock(&L->mu);
+        sl->state = SLOT_READY;
+        pthread_cond_broadcast(&L->cv);
+    }
+    pthread_mutex_unlock(&L->mu);
+    return NULL;
+}
+
+/* ---- public ------------------------------------------------------------- */
+
+static int check_config(const nj_loader_config *c, int nsamples, char *err, size_t errlen)
+{
+    const char *why = NULL;
+    if (nsamples <= 0) why = "no samples to load";
+    else if (c->width <= 0 || c->height <= 0 || c->width > NJ_IMAGE_MAX_SIDE || c->height > NJ_IMAGE_MAX_SIDE)
+        why = "training size must be positive and at most 16384";
+    else if (c->batch <= 0) why = "batch must be positive";
+    else if (c->workers <= 0 || c->workers > 64) why = "workers must be in 1..64";
+    else if (c->prefetch <= 0 || c->prefetch > 64) why = "prefetch must be in 1..64";
+    else if (c->start_step < 0) why = "start step must be non-negative";
+    if (why) snprintf(err, errlen, "loader: %s", why);
+    return why ? -1 : 0;
+}
+
+static void loader_free(nj_loader *L)
+{
+    for (int i = 0; L->slots && i < L->nslots; i++) batch_free(&L->slots[i].b, L->cfg.jitter);
+    free(L->slots);
+    free(L->samples);
+    free(L->threads);
+    free(L);
+}
+
+static int setup(nj_loader *L, const nj_sample *samples, int nsamples)
+{
+    int nsrc = samples[0].nsrc, stereo = 0;
+    for (int i = 0; i < nsamples; i++) stereo |= samples[i].stereo;
+    L->samples = malloc((size_t)nsamples * sizeof(nj_sample));
+    L->nslots = L->cfg.prefetch + 1;
+    L->slots = calloc((size_t)L->nslots, sizeof(slot));
+    L->threads = calloc((size_t)L->cfg.workers, sizeof(pthread_t));
+    if (!L->samples || !L->slots || !L->threads) return -1;
+    memcpy(L->samples, samples, (size_t)nsamples * sizeof(nj_sample));
+    for (int i = 0; i < L->nslots; i++)
+        if (batch_alloc(&L->slots[i].b, &L->cfg, nsrc, stereo)) return -1;
+    return 0;
+}
+
+nj_loader *nj_loader_create(const nj_dataset *ds, const nj_sample *samples, int nsamples,
+                            const nj_loader_config *c, char *err, size_t errlen)
+{
+    if (check_config(c, nsamples, err, errlen)) return NULL;
+    nj_loader *L = calloc(1, sizeof *L);
+    if (!L) { snprintf(err, errlen, "loader: out of memory"); return NULL; }
+    L->ds = ds;
+    L->nsamples = nsamples;
+    L->cfg = *c;
+    L->next_assign = L->next_consume = c->start_step;
+    L->held = -1;
+    if (setup(L, samples, nsamples)) {
+        snprintf(err, errlen, "loader: out of memory for %d batch slots", L->nslots);
+        loader_free(L);
+        return NULL;
+    }
+    pthread_mutex_init(&L->mu, NULL);
+    pthread_cond_init(&L->cv, NULL);
+    for (int i = 0; i < c->workers; i++)
+        if (pthread_create(&L->threads[i], NULL, worker, L) == 0) L->nthreads++;
+    if (!L->nthreads) {
+        snprintf(err, errlen, "loader: cannot start worker threads");
+        nj_loader_destroy(L);
+        return NULL;
+    }
+    return L;
+}
+
+const nj_batch *nj_loader_next(nj_loader *L, char *err, size_t errlen)
+{
+    pthread_mutex_lock(&L->mu);
+    if (L->held >= 0) {
+        L->slots[L->held].state = SLOT_FREE;
+        L->held = -1;
+        pthread_cond_broadcast(&L->cv);
+    }
+    long step = L->next_consume++;
+    slot *sl = &L->slots[step % L->nslots];
+    while (!(sl->state == SLOT_READY && sl->b.step == step)) pthread_cond_wait(&L->cv, &L->mu);
+    L->held = (int)(step % L->nslots);
+    pthread_mutex_unlock(&L->mu);
+    if (sl->rc) {
+        snprintf(err, errlen, "%s", sl->err);
+        return NULL;
+    }
+    return &sl->b;
+}
+
+void nj_loader_destroy(nj_loader *L)
+{
+    if (!L) return;
+    pthread_mutex_lock(&L->mu);
+    L->stop = 1;
+    pthread_cond_broadcast(&L->cv);
+    pthread_mutex_unlock(&L->mu);
+    for (int i = 0; i < L->nthreads; i++) pthread_join(L->threads[i], NULL);
+    pthread_mutex_destroy(&L->mu);
+    pthread_cond_destroy(&L->cv);
+    loader_free(L);
+}

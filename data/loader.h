@@ -1,0 +1,72 @@
+/* data/loader.h — training batches prepared ahead by worker threads.
+ *
+ * The samples of step s are a deterministic function of (seed, s): position
+ * p = s·batch + i walks through epochs of N samples, epoch e = p / N being a
+ * Fisher–Yates shuffle seeded by (seed, e); augmentation parameters of item i
+ * of step s come from an RNG seeded by (seed, s, i).  So a loader created with
+ * start_step = s (resume) yields exactly the batches a fresh one yields from
+ * step s on, whatever the number of workers.
+ *
+ * Each item: the target, its temporal sources and its stereo partner, decoded,
+ * resized to the training size (area filter when shrinking), intrinsics
+ * scaled to match; then, seeded, a horizontal flip of all its frames (cx
+ * mirrored, partner side swapped — see augment.h) and a colour jitter
+ * applied only to the network-input copies.
+ */
+#ifndef NJ_LOADER_H
+#define NJ_LOADER_H
+#include "data/dataset.h"
+#include <stdint.h>
+
+typedef struct nj_loader_config {
+    int width, height;       /* training size */
+    int batch;
+    uint64_t seed;
+    long start_step;         /* first step produced (resume) */
+    int workers;             /* threads preparing batches (≥ 1) */
+    int prefetch;            /* batches prepared ahead (≥ 1) */
+    int jitter;              /* colour jitter on the network-input copies */
+    float brightness, contrast, saturation, hue;   /* jitter ranges (see augment.h) */
+    float flip_prob;         /* probability of a horizontal flip per item */
+} nj_loader_config;
+
+/* 320x240, batch 4, seed 1, workers 1, prefetch 2, jitter on with ranges
+ * 0.2/0.2/0.2/0.05, flip probability 0.5. */
+void nj_loader_config_default(nj_loader_config *c);
+
+typedef struct nj_batch {
+    long step;
+    int n, w, h;
+    int nsrc;                /* temporal sources per item (0 or 2) */
+    int stereo;              /* partner arrays present (some item has a partner) */
+    /* Clean images, for the loss (planar RGB in [0,1]): */
+    float *target;           /* n×3×h×w */
+    float *sources;          /* n×nsrc×3×h×w: source j of item i at (i·nsrc + j)·3·h·w; j=0 is t−k, j=1 is t+k */
+    float *partner;          /* n×3×h×w, or NULL when !stereo */
+    /* The same images with the item's colour jitter, for the network input
+     * (they alias the clean arrays when jitter is off): */
+    float *target_in, *sources_in, *partner_in;
+    nj_camera *camera;       /* n: intrinsics at w×h (after flip) */
+    float *stereo_tx;        /* n: x of the target→partner transform, for nj_pose_stereo:
+                                −baseline normally, +baseline after a flip; 0 without partner */
+    int *has_partner;        /* n */
+    int *flipped;            /* n */
+    int *sample;             /* n: indices into the loader's sample list */
+} nj_batch;
+
+typedef struct nj_loader nj_loader;
+
+/* Starts the workers.  `samples` is copied; `ds` must outlive the loader.
+ * Returns NULL with a message in err on bad configuration. */
+nj_loader *nj_loader_create(const nj_dataset *ds, const nj_sample *samples, int nsamples,
+                            const nj_loader_config *c, char *err, size_t errlen);
+/* The batch of the next step (blocks until ready).  It stays valid until the
+ * next call or nj_loader_destroy.  NULL on failure (e.g. an image that became
+ * unreadable), with the one-line message in err; the step is then skipped. */
+const nj_batch *nj_loader_next(nj_loader *L, char *err, size_t errlen);
+void nj_loader_destroy(nj_loader *L);
+
+/* The sample indices of step `step` (batch of them into out). */
+void nj_loader_step_samples(uint64_t seed, long step, int batch, int nsamples, int *out);
+
+#endif

@@ -1,0 +1,251 @@
+/* data/validate.c — checking one sequence against the file system: folders,
+ * frames (every image fully decoded, in parallel), sizes, stereo partners,
+ * ground-truth files, and near-duplicate frames (a stopped machine).
+ *
+ * Near-duplicates: each frame is reduced to a grey thumbnail 64 pixels wide
+ * (area filter), and a frame whose mean absolute difference to the last kept
+ * frame is below the threshold is skipped.  Comparing with the last kept
+ * frame (not the previous one) lets slow motion accumulate until it counts. */
+#include "data/dataset.h"
+#include "data/image.h"
+#include "data/poses.h"
+#include <errno.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#define CHUNK 32        /* frames decoded in parallel at a time */
+#define LISTED 5        /* problems listed per kind and sequence before a summary */
+#define THUMB_W 64
+
+enum { K_IMAGE, K_SIZE, K_PARTNER, K_PARTNER_SIZE, K_DEPTH, NKINDS };
+
+typedef struct scan {
+    nj_sequence *s;
+    nj_problems *pr;
+    int tw, th;                 /* thumbnail size */
+    float *last;                /* thumbnail of the last kept frame (NULL: none) */
+    int kinds[NKINDS];          /* problems of each kind seen */
+} scan;
+
+typedef struct frame_result {
+    int w, h, ok;
+    char err[512];
+    int rw, rh, rok, rmissing;
+    char rerr[512];
+    float *thumb;
+} frame_result;
+
+/* A problem of a kind that may repeat over many frames: listed LISTED times. */
+static void listed(scan *sc, int kind, const char *fmt, const char *a, const char *b)
+{
+    if (sc->kinds[kind]++ < LISTED) nj_problem(sc->pr, fmt, a, b);
+}
+
+static void summarise(scan *sc)
+{
+    static const char *what[NKINDS] = {"unreadable or corrupt images", "frames of another size",
+                                       "missing stereo partners", "stereo partners of another size",
+                                       "missing ground-truth depth files"};
+    for (int k = 0; k < NKINDS; k++)
+        if (sc->kinds[k] > LISTED)
+            nj_problem(sc->pr, "%s: %d more %s in sequence \"%s\" (first %d listed above)",
+                       k == K_DEPTH ? sc->s->depth_dir : sc->s->images, sc->kinds[k] - LISTED, what[k],
+                       sc->s->name ? sc->s->name : "?", LISTED);
+}
+
+static int check_folder(const char *dir, const char *key, const nj_sequence *s, nj_problems *pr)
+{
+    struct stat st;
+    const char *name = s->name ? s->name : "?";
+    if (stat(dir, &st) != 0) {
+        nj_problem(pr, "%s: missing folder (\"%s\" of sequence \"%s\")", dir, key, name);
+        return -1;
+    }
+    if (!S_ISDIR(st.st_mode)) {
+        nj_problem(pr, "%s: not a folder (\"%s\" of sequence \"%s\")", dir, key, name);
+        return -1;
+    }
+    return 0;
+}
+
+/* Grey thumbnail of a decoded frame (caller frees). */
+static float *thumbnail(const nj_image *im, int tw, int th)
+{
+    size_t n = (size_t)im->w * im->h;
+    float *grey = malloc(n * sizeof(float)), *t = malloc((size_t)tw * th * sizeof(float));
+    if (grey && t) {
+        for (size_t i = 0; i < n; i++) grey[i] = (im->data[i] + im->data[n + i] + im->data[2 * n + i]) / 3.0f;
+        if (nj_resize_plane(grey, im->w, im->h, t, tw, th)) { free(t); t = NULL; }
+    } else {
+        free(t);
+        t = NULL;
+    }
+    free(grey);
+    return t;
+}
+
+static void decode_left(const scan *sc, int i, frame_result *r)
+{
+    nj_image im;
+    char *path = nj_path_join(sc->s->images, sc->s->frames[i]);
+    r->ok = path && !nj_image_load(path, &im, r->err, sizeof r->err);
+    if (r->ok) {
+        r->w = im.w;
+        r->h = im.h;
+        if (im.w == sc->s->width && im.h == sc->s->height) r->thumb = thumbnail(&im, sc->tw, sc->th);
+        nj_image_free(&im);
+    }
+    free(path);
+}
+
+static void decode_right(const scan *sc, int i, frame_result *r)
+{
+    nj_image im;
+    struct stat st;
+    char *path = nj_path_join(sc->s->right_images, sc->s->frames[i]);
+    r->rmissing = !path || stat(path, &st) != 0;
+    r->rok = !r->rmissing && !nj_image_load(path, &im, r->rerr, sizeof r->rerr);
+    if (r->rok) {
+        r->rw = im.w;
+        r->rh = im.h;
+        nj_image_free(&im);
+    }
+    free(path);
+}
+
+static double mean_abs_diff(const float *a, const float *b, size_t n)
+{
+    double s = 0;
+    for (size_t i = 0; i < n; i++) s += fabs((double)a[i] - b[i]);
+    return s / (double)n;
+}
+
+/* In frame order: problems, then the duplicate decision. */
+static void account(scan *sc, int i, frame_result *r, const nj_data_options *o, int stereo_ok)
+{
+    nj_sequence *s = sc->s;
+    char *left = nj_path_join(s->images, s->frames[i]), *right = stereo_ok ? nj_path_join(s->right_images, s->frames[i]) : NULL;
+    char why[96];
+    int bad = !r->ok;
+    if (!r->ok) listed(sc, K_IMAGE, "%s%s", r->err, "");
+    else if (r->w != s->width || r->h != s->height) {
+        snprintf(why, sizeof why, ": size %dx%d differs from the sequence's %dx%d", r->w, r->h, s->width, s->height);
+        listed(sc, K_SIZE, "%s%s", left, why);
+        bad = 1;
+    }
+    if (stereo_ok && r->rmissing) listed(sc, K_PARTNER, "%s: missing stereo partner of %s", right, left);
+    else if (stereo_ok && !r->rok) listed(sc, K_IMAGE, "%s%s", r->rerr, "");
+    else if (stereo_ok && r->ok && (r->rw != r->w || r->rh != r->h)) {
+        snprintf(why, sizeof why, ": stereo partner is %dx%d but the left frame is %dx%d", r->rw, r->rh, r->w, r->h);
+        listed(sc, K_PARTNER_SIZE, "%s%s", right, why);
+    }
+    size_t tn = (size_t)sc->tw * sc->th;
+    if (!bad && r->thumb && sc->last && o->dup_threshold > 0 && mean_abs_diff(r->thumb, sc->last, tn) < o->dup_threshold)
+        s->duplicates++;
+    else if (!bad && r->thumb) {
+        s->kept[s->nkept++] = i;
+        free(sc->last);
+        sc->last = r->thumb;
+        r->thumb = NULL;
+    }
+    free(r->thumb);
+    free(left);
+    free(right);
+}
+
+static void scan_chunk(scan *sc, int i0, int n, const nj_data_options *o, int stereo_ok)
+{
+    frame_result res[CHUNK];
+    memset(res, 0, sizeof res);
+#pragma omp parallel for schedule(dynamic) if (n > 1)
+    for (int j = 0; j < n; j++) {
+        decode_left(sc, i0 + j, &res[j]);
+        if (stereo_ok) decode_right(sc, i0 + j, &res[j]);
+    }
+    for (int j = 0; j < n; j++) account(sc, i0 + j, &res[j], o, stereo_ok);
+}
+
+/* The sequence's size: from the first frame whose header reads. */
+static void sequence_size(nj_sequence *s)
+{
+    char err[512];
+    s->width = s->height = 0;
+    for (int i = 0; i < s->nframes && !s->width; i++) {
+        char *p = nj_path_join(s->images, s->frames[i]);
+        if (p && nj_image_probe(p, &s->width, &s->height, err, sizeof err)) s->width = s->height = 0;
+        free(p);
+    }
+}
+
+static void scan_images(nj_sequence *s, const nj_data_options *o, int stereo_ok, nj_problems *pr)
+{
+    scan sc;
+    memset(&sc, 0, sizeof sc);
+    sc.s = s;
+    sc.pr = pr;
+    sequence_size(s);
+    sc.tw = s->width < THUMB_W ? s->width : THUMB_W;
+    sc.th = s->width ? (int)lround((double)s->height * sc.tw / s->width) : 0;
+    if (sc.th < 1) sc.th = 1;
+    s->kept = malloc((size_t)s->nframes * sizeof(int));
+    if (!s->kept) { nj_problem(pr, "%s: out of memory", s->images); return; }
+    for (int i = 0; i < s->nframes; i += CHUNK)
+        scan_chunk(&sc, i, s->nframes - i < CHUNK ? s->nframes - i : CHUNK, o, stereo_ok);
+    free(sc.last);
+    summarise(&sc);
+}
+
+static void check_depth(nj_sequence *s, nj_problems *pr)
+{
+    if (!s->depth_dir || s->depth_format == NJ_DEPTH_NONE) return;
+    if (check_folder(s->depth_dir, "depth.dir", s, pr)) return;
+    scan sc;
+    memset(&sc, 0, sizeof sc);
+    sc.s = s;
+    sc.pr = pr;
+    for (int i = 0; i < s->nframes; i++) {
+        char *p = nj_depth_path(s, i);
+        struct stat st;
+        if (p && (stat(p, &st) != 0 || !S_ISREG(st.st_mode)))
+            listed(&sc, K_DEPTH, "%s: missing ground-truth depth for frame %s", p, s->frames[i]);
+        free(p);
+    }
+    summarise(&sc);
+}
+
+static void check_poses(nj_sequence *s, nj_problems *pr)
+{
+    if (!s->poses) return;
+    double *p = NULL;
+    char err[512];
+    int n = nj_poses_read(s->poses, &p, err, sizeof err);
+    if (n < 0) nj_problem(pr, "%s", err);
+    else if (n != s->nframes)
+        nj_problem(pr, "%s: has %d poses for %d frames in %s", s->poses, n, s->nframes, s->images);
+    free(p);
+}
+
+int nj_sequence_validate(nj_sequence *s, const nj_data_options *o, nj_problems *pr)
+{
+    int before = pr->n;
+    if (!s->images || check_folder(s->images, "images", s, pr)) goto done;
+    s->nframes = nj_list_frames(s->images, &s->frames);
+    if (s->nframes < 0) {
+        nj_problem(pr, "%s: cannot read folder: %s", s->images, strerror(errno));
+        s->nframes = 0;
+        goto done;
+    }
+    if (s->nframes == 0) {
+        nj_problem(pr, "%s: no PNG or JPEG frames in the folder", s->images);
+        goto done;
+    }
+    int stereo_ok = s->right_images && !check_folder(s->right_images, "right_images", s, pr);
+    scan_images(s, o, stereo_ok, pr);
+    check_depth(s, pr);
+    check_poses(s, pr);
+done:
+    s->problems = pr->n - before;
+    return s->problems;
+}

@@ -1,0 +1,358 @@
+/* tests/test_data_loader.c — the batch loader.
+ *  - the same seed gives the same batches (with 1 or 2 workers), another seed
+ *    different ones, and a loader started at step s (resume) repeats step s;
+ *  - every sample appears once per epoch;
+ *  - clean images equal the decoded, resized files; intrinsics are scaled;
+ *  - colour jitter changes only the network input, identically for all
+ *    frames of a sample;
+ *  - a horizontal flip keeps geometry consistent: with the flipped camera
+ *    (cx' = W − 1 − cx), the flipped ground-truth depth and the swapped stereo
+ *    side (stereo_tx = +baseline), the flipped target reprojects onto the
+ *    flipped partner; and onto the flipped next frame with the mirrored pose
+ *    S·T·S, S = diag(−1, 1, 1).  The reprojection here is this test's own.
+ *  - a file that disappears gives an error naming it. */
+#include "data/dataset.h"
+#include "data/image.h"
+#include "data/loader.h"
+#include "data/npy.h"
+#include "data/poses.h"
+#include "data/synth.h"
+#include "tests/check.h"
+#include "tests/test_data_util.h"
+
+#define SW 96
+#define SH 72
+
+static char dir[64];
+
+static int open_dataset(const char *json, nj_dataset *ds, nj_sample **samples, int *n)
+{
+    nj_data_options o;
+    nj_data_options_default(&o);
+    o.dup_threshold = 0;
+    nj_problems pr;
+    nj_problems_init(&pr);
+    int bad = nj_dataset_open(json, &o, ds, &pr);
+    if (bad) nj_problems_print(&pr, stdout);
+    nj_problems_free(&pr);
+    *n = bad ? 0 : nj_dataset_samples(ds, NJ_SPLIT_TRAIN, &o, samples);
+    return bad || *n <= 0 ? -1 : 0;
+}
+
+static size_t batch_floats(const nj_batch *b) { return (size_t)b->n * 3 * b->w * b->h; }
+
+static int same_batch(const nj_batch *a, const nj_batch *b)
+{
+    size_t n = batch_floats(a);
+    return a->n == b->n && !memcmp(a->sample, b->sample, sizeof(int) * a->n) &&
+           !memcmp(a->flipped, b->flipped, sizeof(int) * a->n) && !memcmp(a->target, b->target, n * 4) &&
+           !memcmp(a->target_in, b->target_in, n * 4) && !memcmp(a->sources_in, b->sources_in, n * a->nsrc * 4) &&
+           !memcmp(a->partner_in, b->partner_in, n * 4) && !memcmp(a->camera, b->camera, sizeof(nj_camera) * a->n) &&
+           !memcmp(a->stereo_tx, b->stereo_tx, sizeof(float) * a->n);
+}
+
+static nj_loader *make(const nj_dataset *ds, const nj_sample *s, int n, uint64_t seed, int workers, long start,
+                       int w, int h)
+{
+    nj_loader_config c;
+    char err[512];
+    nj_loader_config_default(&c);
+    c.width = w;
+    c.height = h;
+    c.batch = 3;
+    c.seed = seed;
+    c.workers = workers;
+    c.start_step = start;
+    nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    if (!L) printf("note: %s\n", err);
+    return L;
+}
+
+/* Copies of the first `steps` batches. */
+static nj_batch *take(nj_loader *L, int steps)
+{
+    nj_batch *out = calloc((size_t)steps, sizeof(nj_batch));
+    char err[512];
+    for (int s = 0; s < steps; s++) {
+        const nj_batch *b = nj_loader_next(L, err, sizeof err);
+        if (!b) { printf("note: %s\n", err); continue; }
+        nj_batch *c = &out[s];
+        *c = *b;
+        size_t n = batch_floats(b) * 4;
+#define DUP(f, bytes) c->f = malloc(bytes), memcpy(c->f, b->f, bytes)
+        DUP(target, n); DUP(target_in, n); DUP(sources_in, n * b->nsrc); DUP(partner_in, n);
+        DUP(sample, sizeof(int) * b->n); DUP(flipped, sizeof(int) * b->n);
+        DUP(camera, sizeof(nj_camera) * b->n); DUP(stereo_tx, sizeof(float) * b->n);
+#undef DUP
+    }
+    return out;
+}
+
+static void drop(nj_batch *b, int steps)
+{
+    for (int s = 0; s < steps; s++) {
+        free(b[s].target); free(b[s].target_in); free(b[s].sources_in); free(b[s].partner_in);
+        free(b[s].sample); free(b[s].flipped); free(b[s].camera); free(b[s].stereo_tx);
+    }
+    free(b);
+}
+
+static void test_determinism(const nj_dataset *ds, const nj_sample *s, int n)
+{
+    enum { STEPS = 6 };
+    nj_loader *a = make(ds, s, n, 11, 1, 0, 64, 48), *b = make(ds, s, n, 11, 2, 0, 64, 48);
+    nj_loader *c = make(ds, s, n, 12, 2, 0, 64, 48), *r = make(ds, s, n, 11, 2, 4, 64, 48);
+    if (!a || !b || !c || !r) { check(0, "loader_create", "create failed"); return; }
+    nj_batch *ba = take(a, STEPS), *bb = take(b, STEPS), *bc = take(c, STEPS), *br = take(r, 1);
+    int same = 1, differ = 0;
+    for (int i = 0; i < STEPS; i++) {
+        same &= same_batch(&ba[i], &bb[i]);
+        differ |= !same_batch(&ba[i], &bc[i]);
+    }
+    check(same, "loader_same_seed_same_batches", "batches differ between 1 and 2 workers with seed 11");
+    check(differ, "loader_other_seed_other_batches", "seed 12 gave the same batches");
+    check(br[0].step == 4 && same_batch(&ba[4], &br[0]), "loader_resume_repeats_step", "start_step 4 differs from step 4");
+    drop(ba, STEPS); drop(bb, STEPS); drop(bc, STEPS); drop(br, 1);
+    nj_loader_destroy(a); nj_loader_destroy(b); nj_loader_destroy(c); nj_loader_destroy(r);
+}
+
+static void test_epoch(int n)
+{
+    int seen[64] = {0}, idx[64], ok = n <= 64;
+    for (int step = 0; ok && step * 4 < n; step++) {   /* batch 4 over one epoch */
+        int k = n - step * 4 < 4 ? n - step * 4 : 4;
+        nj_loader_step_samples(5, step, 4, n, idx);
+        for (int i = 0; i < k; i++) seen[idx[i]]++;
+    }
+    for (int i = 0; ok && i < n; i++) ok = seen[i] == 1;
+    int a[4], b[4];
+    nj_loader_step_samples(5, 0, 4, n, a);
+    nj_loader_step_samples(5, 3, 4, n, b);
+    check(ok && memcmp(a, b, sizeof a) != 0, "loader_epoch_is_a_permutation", "a sample is missing or repeated");
+}
+
+static void flip_plane(float *p, int planes, int w, int h)
+{
+    for (int r = 0; r < planes * h; r++)
+        for (int a = 0, b = w - 1; a < b; a++, b--) { float t = p[r * w + a]; p[r * w + a] = p[r * w + b]; p[r * w + b] = t; }
+}
+
+/* Clean target = the file decoded and resized (flipped if the item is). */
+static void test_clean_and_camera(const nj_dataset *ds, const nj_sample *s, int n)
+{
+    nj_loader *L = make(ds, s, n, 3, 1, 0, 64, 48);
+    char err[512], *path;
+    const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL;
+    int ok = b != NULL, cam_ok = ok, jitter_changed = 0;
+    for (int i = 0; ok && i < b->n; i++) {
+        const nj_sample *q = &s[b->sample[i]];
+        const nj_sequence *sq = &ds->seq[q->seq];
+        nj_image im, r;
+        path = nj_path_join(sq->images, sq->frames[q->target]);
+        ok = !nj_image_load(path, &im, err, sizeof err) && !nj_image_resize(&im, 64, 48, &r);
+        free(path);
+        if (!ok) break;
+        if (b->flipped[i]) flip_plane(r.data, 3, 64, 48);
+        ok = !memcmp(r.data, b->target + (size_t)i * 3 * 64 * 48, sizeof(float) * 3 * 64 * 48);
+        nj_camera want = nj_camera_resize(sq->camera, SW, SH, 64, 48);
+        if (b->flipped[i]) want.cx = 63 - want.cx;
+        cam_ok &= fabsf(want.fx - b->camera[i].fx) < 1e-5f && fabsf(want.cx - b->camera[i].cx) < 1e-4f &&
+                  fabsf(want.cy - b->camera[i].cy) < 1e-4f;
+        jitter_changed |= memcmp(b->target + (size_t)i * 3 * 64 * 48, b->target_in + (size_t)i * 3 * 64 * 48,
+                                 sizeof(float) * 3 * 64 * 48) != 0;
+        nj_image_free(&im);
+        nj_image_free(&r);
+    }
+    check(ok, "loader_clean_images_are_decoded_resized_files", "target differs from decode+resize");
+    check(cam_ok, "loader_intrinsics_scaled_and_flipped", "camera does not match nj_camera_resize/flip");
+    check(jitter_changed, "loader_jitter_changes_network_input", "target_in equals target");
+    nj_loader_destroy(L);
+}
+
+/* A dataset whose frames (and partners) are all the same image: jitter
+ * identical across frames means identical network inputs. */
+static void test_jitter_identical(void)
+{
+    char d[256], p[1024], err[512];
+    snprintf(d, sizeof d, "%s/same", dir);
+    snprintf(p, sizeof p, "mkdir -p '%s/l' '%s/r'", d, d);
+    if (system(p) != 0) return;
+    nj_image im;
+    nj_image_alloc(&im, 40, 30);
+    for (int i = 0; i < 3 * 40 * 30; i++) im.data[i] = (float)((i * 37) % 251) / 255.0f;
+    for (int f = 0; f < 4; f++)
+        for (int side = 0; side < 2; side++) {
+            snprintf(p, sizeof p, "%s/%s/%03d.png", d, side ? "r" : "l", f);
+            nj_png_write_rgb(p, &im, err, sizeof err);
+        }
+    nj_image_free(&im);
+    snprintf(p, sizeof p, "%s/ds.json", d);
+    FILE *f = fopen(p, "w");
+    if (f) {
+        fprintf(f, "{\"sequences\": [{\"name\": \"s\", \"images\": \"l\", \"right_images\": \"r\", \"baseline\": 0.1,"
+                   " \"camera\": {\"fx\": 30, \"fy\": 30, \"cx\": 19.5, \"cy\": 14.5}}]}\n");
+        fclose(f);
+    }
+    nj_dataset ds;
+    nj_sample *s = NULL;
+    int n, ok = 0, changed = 0;
+    if (!open_dataset(p, &ds, &s, &n)) {
+        nj_loader *L = make(&ds, s, n, 9, 1, 0, 40, 30);
+        const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL;
+        size_t m = (size_t)3 * 40 * 30;
+        ok = b != NULL;
+        for (int i = 0; ok && i < b->n; i++) {
+            const float *t = b->target_in + i * m;
+            ok = !memcmp(t, b->sources_in + (2 * i) * m, m * 4) && !memcmp(t, b->sources_in + (2 * i + 1) * m, m * 4) &&
+                 !memcmp(t, b->partner_in + i * m, m * 4);
+            changed |= memcmp(t, b->target + i * m, m * 4) != 0;
+        }
+        nj_loader_destroy(L);
+        nj_dataset_free(&ds);
+    }
+    free(s);
+    check(ok && changed, "loader_jitter_identical_for_all_frames", "ok %d, changed %d", ok, changed);
+}
+
+static float *flipped_depth(const nj_sequence *q, int frame)
+{
+    char err[512], *path = nj_depth_path(q, frame);
+    float *d = NULL;
+    int shape[4], nd;
+    if (nj_npy_read(path, &d, shape, &nd, err, sizeof err)) printf("note: %s\n", err);
+    free(path);
+    if (d) flip_plane(d, 1, SW, SH);
+    return d;
+}
+
+static float bilinear(const float *img, float x, float y)
+{
+    int x0 = (int)floorf(x), y0 = (int)floorf(y);
+    float ax = x - x0, ay = y - y0;
+    const float *p = img + y0 * SW + x0;
+    return (1 - ay) * ((1 - ax) * p[0] + ax * p[1]) + ay * ((1 - ax) * p[SW] + ax * p[SW + 1]);
+}
+
+/* Mean photometric error of warping img_a (depth da) into img_b with X_b = R X_a + t. */
+static double warp(const float *img_a, const float *da, const float *img_b, const double T[12], nj_camera k)
+{
+    double sum = 0;
+    long n = 0;
+    for (int v = 0; v < SH; v++)
+        for (int u = 0; u < SW; u++) {
+            float d = da[v * SW + u];
+            if (!(d > 0)) continue;
+            double X[3] = {d * (u - k.cx) / k.fx, d * (v - k.cy) / k.fy, d}, Y[3];
+            for (int i = 0; i < 3; i++) Y[i] = T[4 * i] * X[0] + T[4 * i + 1] * X[1] + T[4 * i + 2] * X[2] + T[4 * i + 3];
+            float x = (float)(k.fx * Y[0] / Y[2] + k.cx), y = (float)(k.fy * Y[1] / Y[2] + k.cy);
+            if (Y[2] < 0.1 || x < 0 || y < 0 || x >= SW - 1 || y >= SH - 1) continue;
+            for (int c = 0; c < 3; c++) sum += fabs(img_a[c * SW * SH + v * SW + u] - bilinear(img_b + c * SW * SH, x, y));
+            n++;
+        }
+    return n > SW * SH / 4 ? sum / (3.0 * n) : 1.0;
+}
+
+/* X_b = S·T·S X_a for the mirrored world, T from the poses (camera a → b). */
+static void mirrored_relative(const double *pa, const double *pb, double T[12])
+{
+    for (int i = 0; i < 3; i++) {
+        for (int j = 0; j < 3; j++) {
+            double v = 0;
+            for (int k = 0; k < 3; k++) v += pb[4 * k + i] * pa[4 * k + j];
+            T[4 * i + j] = v * ((i == 0) != (j == 0) ? -1 : 1);
+        }
+        double t = 0;
+        for (int k = 0; k < 3; k++) t += pb[4 * k + i] * (pa[4 * k + 3] - pb[4 * k + 3]);
+        T[4 * i + 3] = i == 0 ? -t : t;
+    }
+}
+
+static void test_flip_geometry(const nj_dataset *ds, const nj_sample *s, int n, const char *poses_path)
+{
+    nj_loader_config c;
+    char err[512];
+    nj_loader_config_default(&c);
+    c.width = SW;
+    c.height = SH;
+    c.batch = 2;
+    c.flip_prob = 1.0f;
+    c.jitter = 0;
+    nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL;
+    double *poses = NULL;
+    int np = nj_poses_read(poses_path, &poses, err, sizeof err);
+    if (!b || np <= 0) { check(0, "loader_flip_geometry", "%s", err); nj_loader_destroy(L); free(poses); return; }
+    const nj_sample *q = &s[b->sample[0]];
+    const nj_sequence *sq = &ds->seq[q->seq];
+    float *d = flipped_depth(sq, q->target);
+    size_t m = (size_t)3 * SW * SH;
+    double Ts[12] = {1, 0, 0, b->stereo_tx[0], 0, 1, 0, 0, 0, 0, 1, 0}, Tw[12] = {1, 0, 0, -b->stereo_tx[0], 0, 1, 0, 0, 0, 0, 1, 0};
+    double es = warp(b->target, d, b->partner, Ts, b->camera[0]), ew = warp(b->target, d, b->partner, Tw, b->camera[0]);
+    double Tt[12];
+    mirrored_relative(poses + 12 * q->target, poses + 12 * q->src[1], Tt);
+    double et = warp(b->target, d, b->sources + m, Tt, b->camera[0]);
+    float *src = malloc(sizeof(float) * m);                          /* the source left unflipped: wrong */
+    memcpy(src, b->sources + m, sizeof(float) * m);
+    flip_plane(src, 3, SW, SH);
+    double eu = warp(b->target, d, src, Tt, b->camera[0]);
+    free(src);
+    printf("info: flipped stereo warp %.4f (unswapped side %.4f), flipped temporal warp %.4f (source unflipped %.4f)\n",
+           es, ew, et, eu);
+    check(b->flipped[0] && fabsf(b->stereo_tx[0] - sq->baseline) < 1e-6f && es < 0.02 && ew > 2 * es,
+          "loader_flip_swaps_stereo_side", "stereo_tx %g, error %.4f vs %.4f", b->stereo_tx[0], es, ew);
+    check(fabsf(b->camera[0].cx - (SW - 1 - sq->camera.cx)) < 1e-5f && et < 0.02 && eu > 2 * et,
+          "loader_flip_mirrors_cx_and_motion", "cx %g, temporal error %.4f (source unflipped %.4f)", b->camera[0].cx, et, eu);
+    free(d);
+    free(poses);
+    nj_loader_destroy(L);
+}
+
+static void test_missing_file(nj_dataset *ds, const nj_sample *s, int n)
+{
+    char err[512] = "", *path = nj_path_join(ds->seq[0].images, ds->seq[0].frames[s[0].target]);
+    remove(path);
+    nj_loader_config c;
+    nj_loader_config_default(&c);
+    c.batch = 1;
+    c.width = 64;
+    c.height = 48;
+    nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    int failed = 0;
+    for (int step = 0; L && step < n && !failed; step++) failed = nj_loader_next(L, err, sizeof err) == NULL;
+    check(failed && strstr(err, path), "loader_missing_file_reported", "err '%s'", err);
+    nj_loader_destroy(L);
+    free(path);
+}
+
+int main(void)
+{
+    if (tdu_tmpdir(dir, sizeof dir)) return 1;
+    nj_synth_config sc;
+    char out[256], json[300], poses[300], err[512];
+    nj_synth_config_default(&sc);
+    snprintf(out, sizeof out, "%s/synth", dir);
+    sc.out = out;
+    sc.frames = 10;
+    sc.sequences = 1;
+    sc.width = SW;
+    sc.height = SH;
+    sc.stereo = 1;
+    sc.seed = 4;
+    nj_dataset ds;
+    nj_sample *s = NULL;
+    int n = 0;
+    snprintf(json, sizeof json, "%s/dataset.json", out);
+    snprintf(poses, sizeof poses, "%s/yard-00/poses.txt", out);
+    if (!check(!nj_synth_run(&sc, err, sizeof err) && !open_dataset(json, &ds, &s, &n), "loader_dataset_ready", "%s", err))
+        return test_exit();
+    test_determinism(&ds, s, n);
+    test_epoch(n);
+    test_clean_and_camera(&ds, s, n);
+    test_jitter_identical();
+    test_flip_geometry(&ds, s, n, poses);
+    test_missing_file(&ds, s, n);
+    free(s);
+    nj_dataset_free(&ds);
+    tdu_rmtree(dir);
+    return test_exit();
+}

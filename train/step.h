@@ -1,0 +1,25 @@
+/* train/step.h — one forward/backward pass of the training recipe on a batch:
+ * depth net on the (jittered) target, pose net on each (jittered) frame pair,
+ * view-synthesis loss on the clean images, backward into the parameters. */
+#ifndef NJ_STEP_H
+#define NJ_STEP_H
+#include "data/loader.h"
+#include "train/config.h"
+#include "train/model.h"
+
+typedef struct nj_step_result {
+    float loss, photometric, smoothness;
+    float mask_fraction;        /* share of pixels the auto-mask keeps */
+    float saturated;            /* share of scale-0 disparities within 1% of a range bound */
+    float translation;          /* mean |t| of the predicted poses (0 without video) */
+    nj_tensor *disp0;           /* scale-0 disparity (arena; valid until the next reset) */
+    nj_tensor *automask, *error;
+} nj_step_result;
+
+/* Builds the step in g (reset first by the caller).  With backward != 0 runs
+ * the reverse pass (gradients accumulate into the model's parameters).
+ * rng: tie-break noise source, or NULL.  Returns 0 or -1 with g's error set. */
+int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
+                  nj_rng *rng, int backward, nj_step_result *r);
+
+#endif

@@ -1,0 +1,289 @@
+/* train/trainer.c — the training loop: steps, learning-rate schedule,
+ * gradient clipping, NaN/Inf handling, logging, validation, checkpoints,
+ * budgets and signals. */
+#include "train/trainer.h"
+#include "train/runfiles.h"
+#include "train/step.h"
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <string.h>
+#include <time.h>
+
+/* Set by SIGINT/SIGTERM; the loop finishes its step, saves and exits. */
+static volatile sig_atomic_t stop_signal;
+
+static void on_signal(int sig) { stop_signal = sig; }
+
+static double now_elapsed(const nj_trainer *t)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return t->elapsed0 + (ts.tv_sec + ts.tv_nsec * 1e-9 - t->wall0);
+}
+
+int nj_trainer_save(nj_trainer *t, const char *name, char *err, size_t errlen)
+{
+    char path[NJ_PATH_MAX + 64];
+    t->st.adam_step = t->opt.step;
+    t->st.rng[0] = t->rng.s[0];
+    t->st.rng[1] = t->rng.s[1];
+    t->st.loader_cursor = t->st.step * t->cfg.batch;
+    t->st.elapsed_seconds = now_elapsed(t);
+    if (name) snprintf(path, sizeof path, "%s/%s", t->dir, name);
+    else nj_run_step_path(t->dir, t->st.step, path, sizeof path);
+    if (nj_checkpoint_save(path, &t->model, &t->cfg, &t->st, err, errlen)) return -1;
+    if (!name) nj_run_prune(t->dir, t->cfg.keep_last > 0 ? t->cfg.keep_last : 1);
+    return 0;
+}
+
+/* Global L2 norm of all gradients; non-finite when any gradient is. */
+static double grad_norm(const nj_params *ps)
+{
+    double s = 0;
+    for (int i = 0; i < ps->count; i++) {
+        const nj_param *p = ps->items[i];
+        size_t k = nj_param_numel(p);
+        for (size_t j = 0; j < k; j++) s += (double)p->grad[j] * p->grad[j];
+    }
+    return sqrt(s);
+}
+
+static void scale_grads(nj_params *ps, float f)
+{
+    for (int i = 0; i < ps->count; i++) {
+        nj_param *p = ps->items[i];
+        size_t k = nj_param_numel(p);
+        for (size_t j = 0; j < k; j++) p->grad[j] *= f;
+    }
+}
+
+/* Fixes the LR schedule's horizon for time-budgeted runs once the speed is known. */
+static void fix_schedule(nj_trainer *t, double secs_per_step)
+{
+    if (t->st.schedule_steps > 0 || t->cfg.minutes <= 0 || t->st.step < 20) return;
+    t->st.schedule_steps = (long)(t->cfg.minutes * 60.0 / secs_per_step);
+    if (t->cfg.max_steps > 0 && t->cfg.max_steps < t->st.schedule_steps)
+        t->st.schedule_steps = t->cfg.max_steps;
+}
+
+/* NaN/Inf: skip; after 3 in a row reload the last good checkpoint, halve the LR. */
+static int handle_bad_step(nj_trainer *t, const char *what)
+{
+    t->bad_steps++;
+    char line[256], err[512];
+    snprintf(line, sizeof line, "{\"type\":\"nonfinite\",\"step\":%ld,\"what\":\"%s\"}", t->st.step, what);
+    nj_runlog_json(&t->log, line);
+    nj_runlog_say(&t->log, "step %ld: non-finite %s, update skipped", t->st.step, what);
+    if (t->bad_steps < 3) return 0;
+    float scale = t->st.lr_scale * 0.5f;
+    int recoveries = t->st.nan_recoveries + 1;
+    int r = nj_trainer_load_latest(t, err, sizeof err);
+    if (r != 0) {
+        nj_runlog_say(&t->log, "repeated non-finite steps and no checkpoint to go back to; stopping");
+        return -1;
+    }
+    t->st.lr_scale = scale;
+    t->st.nan_recoveries = recoveries;
+    t->opt.step = t->st.adam_step;
+    t->bad_steps = 0;
+    nj_loader_destroy(t->loader);
+    nj_loader_config lc;
+    (void)lc;
+    nj_runlog_say(&t->log, "reloaded the checkpoint of step %ld with the learning rate halved (x%.3g)",
+                  t->st.step, t->st.lr_scale);
+    return 1;   /* caller restarts the loader */
+}
+
+static void log_step(nj_trainer *t, const nj_step_result *r, float lr, double ips, int epoch_len)
+{
+    char line[1024], health[64];
+    double el = now_elapsed(t);
+    long total = t->st.schedule_steps;
+    double eta = total > 0 && t->st.step > 0 ? (double)(total - t->st.step) * (el - t->elapsed0 > 0 ? 1 : 0) : 0;
+    (void)eta;
+    snprintf(line, sizeof line,
+             "{\"type\":\"step\",\"step\":%ld,\"epoch\":%.3f,\"loss\":%.6g,\"photometric\":%.6g,"
+             "\"smoothness\":%.6g,\"lr\":%.6g,\"images_per_s\":%.3f,\"mask_kept\":%.4f,"
+             "\"saturated\":%.4f,\"translation\":%.6g,\"elapsed_s\":%.1f,\"health\":\"%s\"}",
+             t->st.step, (double)t->st.step * t->cfg.batch / epoch_len, r->loss, r->photometric,
+             r->smoothness, lr, ips, r->mask_fraction, r->saturated, r->translation, el,
+             nj_health_summary(&t->health, health, sizeof health));
+    nj_runlog_json(&t->log, line);
+}
+
+static void progress(nj_trainer *t, const nj_step_result *r, float lr, double ips, int epoch_len)
+{
+    char text[512], eta[32] = "";
+    double el = now_elapsed(t);
+    if (t->cfg.minutes > 0) {
+        double left = t->cfg.minutes * 60 - el;
+        snprintf(eta, sizeof eta, " eta %dm%02ds", (int)(left / 60), (int)fmod(left > 0 ? left : 0, 60));
+    } else if (t->cfg.max_steps > 0 && ips > 0) {
+        double left = (double)(t->cfg.max_steps - t->st.step) * t->cfg.batch / ips;
+        snprintf(eta, sizeof eta, " eta %dm%02ds", (int)(left / 60), (int)fmod(left, 60));
+    }
+    snprintf(text, sizeof text, "step %ld epoch %.2f loss %.4f photo %.4f smooth %.5f lr %.2g %.1f img/s%s",
+             t->st.step, (double)t->st.step * t->cfg.batch / epoch_len, r->loss, r->photometric,
+             r->smoothness, lr, ips, eta);
+    nj_runlog_progress(&t->log, text);
+}
+
+static void check_health(nj_trainer *t, const nj_step_result *r)
+{
+    int fired = nj_health_observe(&t->health, t->st.step, r->loss, r->saturated, r->translation,
+                                  r->mask_fraction);
+    for (int bit = 1; bit <= NJ_HEALTH_FLAT; bit <<= 1)
+        if (fired & bit) {
+            char line[512];
+            nj_runlog_say(&t->log, "health: %s", nj_health_message(bit));
+            snprintf(line, sizeof line, "{\"type\":\"health\",\"step\":%ld,\"message\":\"%s\"}",
+                     t->st.step, nj_health_message(bit));
+            nj_runlog_json(&t->log, line);
+        }
+}
+
+static int validate(nj_trainer *t)
+{
+    if (t->nval == 0) return 0;
+    float photo;
+    char err[512], line[256];
+    if (nj_trainer_validate(t, 64, &photo, err, sizeof err)) {
+        nj_runlog_say(&t->log, "validation failed: %s", err);
+        return -1;
+    }
+    t->last_val = photo;
+    snprintf(line, sizeof line, "{\"type\":\"val\",\"step\":%ld,\"photometric\":%.6g,\"elapsed_s\":%.1f}",
+             t->st.step, photo, now_elapsed(t));
+    nj_runlog_json(&t->log, line);
+    nj_runlog_say(&t->log, "validation at step %ld: photometric %.5f%s", t->st.step, photo,
+                  photo < t->st.best_val ? " (best so far)" : "");
+    if (photo < t->st.best_val) {
+        t->st.best_val = photo;
+        if (nj_trainer_save(t, "best.ckpt", err, sizeof err)) {
+            nj_runlog_say(&t->log, "cannot save best.ckpt: %s", err);
+            return -1;
+        }
+    }
+    return 0;
+}
+
+static int budget_reached(const nj_trainer *t)
+{
+    if (t->cfg.max_steps > 0 && t->st.step >= t->cfg.max_steps) return 1;
+    return t->cfg.minutes > 0 && now_elapsed(t) >= t->cfg.minutes * 60.0;
+}
+
+static int checkpoint_due(const nj_trainer *t)
+{
+    if (t->cfg.checkpoint_steps > 0 && t->st.step - t->last_ckpt_step >= t->cfg.checkpoint_steps) return 1;
+    return t->cfg.checkpoint_minutes > 0 && now_elapsed(t) - t->last_ckpt >= t->cfg.checkpoint_minutes * 60.0;
+}
+
+/* One optimiser step on a batch.  Returns 0 ok, 1 skipped, -1 fatal. */
+static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float *lr)
+{
+    nj_graph_reset(t->g);
+    nj_params_zero_grad(&t->model.params);
+    if (nj_train_step(t->g, &t->model, &t->cfg, b, &t->rng, 1, r)) {
+        nj_runlog_say(&t->log, "step %ld failed: %s", t->st.step, nj_graph_error(t->g));
+        return -1;
+    }
+    double gn = grad_norm(&t->model.params);
+    if (!isfinite(r->loss) || !isfinite(gn)) return handle_bad_step(t, isfinite(r->loss) ? "gradient" : "loss") < 0 ? -1 : 1;
+    t->bad_steps = 0;
+    if (t->cfg.grad_clip > 0 && gn > t->cfg.grad_clip) scale_grads(&t->model.params, (float)(t->cfg.grad_clip / gn));
+    *lr = nj_train_config_lr(&t->cfg, t->st.step, t->st.schedule_steps) * t->st.lr_scale;
+    t->opt.lr = *lr;
+    nj_adam_step(&t->opt, &t->model.params);
+    t->st.step++;
+    return 0;
+}
+
+static int restart_loader(nj_trainer *t, char *err, size_t errlen);
+
+int nj_trainer_run(nj_trainer *t)
+{
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_signal;
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
+    stop_signal = 0;
+    char err[1024];
+    int epoch_len = t->ntrain, code = 0, logged = 0;
+    double tlog = now_elapsed(t);
+    long slog = t->st.step;
+    const char *ended = "budget reached";
+    while (!budget_reached(t) && !stop_signal) {
+        const nj_batch *b = nj_loader_next(t->loader, err, sizeof err);
+        if (!b) { nj_runlog_say(&t->log, "data: %s", err); code = 1; ended = "data error"; break; }
+        nj_step_result r;
+        float lr = 0;
+        int s = train_one(t, b, &r, &lr);
+        if (s < 0) { code = 1; ended = "error"; break; }
+        if (s == 1) {
+            if (t->bad_steps == 0 && restart_loader(t, err, sizeof err)) { code = 1; break; }
+            continue;
+        }
+        double el = now_elapsed(t);
+        fix_schedule(t, (el - t->elapsed0) / (double)(t->st.step - (long)0 > 0 ? t->st.step : 1));
+        if (t->st.step % (t->cfg.log_every > 0 ? t->cfg.log_every : 1) == 0 || !logged) {
+            double ips = el > tlog ? (double)(t->st.step - slog) * t->cfg.batch / (el - tlog) : 0;
+            check_health(t, &r);
+            log_step(t, &r, lr, ips, epoch_len);
+            progress(t, &r, lr, ips, epoch_len);
+            tlog = el; slog = t->st.step; logged = 1;
+        }
+        if (t->cfg.validate_every > 0 && t->st.step % t->cfg.validate_every == 0 && validate(t)) { code = 1; break; }
+        if (checkpoint_due(t)) {
+            if (nj_trainer_save(t, NULL, err, sizeof err)) {
+                nj_runlog_say(&t->log, "checkpoint failed, stopping (the previous checkpoint is intact): %s", err);
+                code = 1; ended = "checkpoint write failed";
+                break;
+            }
+            t->last_ckpt = now_elapsed(t);
+            t->last_ckpt_step = t->st.step;
+        }
+    }
+    if (stop_signal) ended = stop_signal == SIGINT ? "interrupted (SIGINT)" : "stopped (SIGTERM)";
+    if (code == 0) {
+        if (t->nval > 0 && t->cfg.validate_every > 0) validate(t);
+        if (nj_trainer_save(t, NULL, err, sizeof err) || nj_trainer_save(t, "final.ckpt", err, sizeof err)) {
+            nj_runlog_say(&t->log, "saving failed: %s", err);
+            code = 1;
+        }
+    }
+    char line[512];
+    snprintf(line, sizeof line, "{\"type\":\"end\",\"step\":%ld,\"ended\":\"%s\",\"elapsed_s\":%.1f,"
+             "\"resumes\":%d,\"nan_recoveries\":%d}", t->st.step, ended, now_elapsed(t),
+             t->st.resumes, t->st.nan_recoveries);
+    nj_runlog_json(&t->log, line);
+    char health[64];
+    nj_runlog_say(&t->log, "training ended at step %ld: %s; health: %s", t->st.step, ended,
+                  nj_health_summary(&t->health, health, sizeof health));
+    if (code == 0) nj_runlog_say(&t->log, "model: %s/final.ckpt", t->dir);
+    if (stop_signal && code == 0)
+        nj_runlog_say(&t->log, "to continue this run: nightjar train --config <same config> --out %s --resume", t->dir);
+    return code;
+}
+
+static int restart_loader(nj_trainer *t, char *err, size_t errlen)
+{
+    nj_loader_config lc;
+    nj_loader_config_default(&lc);
+    lc.width = t->cfg.width;
+    lc.height = t->cfg.height;
+    lc.batch = t->cfg.batch;
+    lc.seed = t->st.loader_seed;
+    lc.start_step = t->st.step;
+    lc.brightness = t->cfg.brightness;
+    lc.contrast = t->cfg.contrast;
+    lc.saturation = t->cfg.saturation;
+    lc.hue = t->cfg.hue;
+    lc.jitter = t->cfg.brightness > 0 || t->cfg.contrast > 0 || t->cfg.saturation > 0 || t->cfg.hue > 0;
+    lc.flip_prob = t->cfg.flip;
+    t->loader = nj_loader_create(&t->ds, t->train, t->ntrain, &lc, err, errlen);
+    if (!t->loader) nj_runlog_say(&t->log, "cannot restart the loader: %s", err);
+    return t->loader ? 0 : -1;
+}

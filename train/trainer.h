@@ -1,0 +1,60 @@
+/* train/trainer.h — the training run: data, model, loop, validation,
+ * checkpoints, signals, NaN recovery, health monitoring. */
+#ifndef NJ_TRAINER_H
+#define NJ_TRAINER_H
+#include "data/dataset.h"
+#include "data/loader.h"
+#include "nn/adam.h"
+#include "train/checkpoint.h"
+#include "train/config.h"
+#include "train/health.h"
+#include "train/model.h"
+#include "train/runlog.h"
+
+typedef struct nj_trainer {
+    nj_train_config cfg;
+    char dir[NJ_PATH_MAX];
+    nj_dataset ds;
+    nj_data_options dopt;
+    nj_sample *train, *val;
+    int ntrain, nval;
+    nj_loader *loader;
+    nj_model model;
+    int model_ready;
+    nj_adam opt;
+    nj_graph *g;
+    nj_rng rng;
+    nj_train_state st;
+    nj_health health;
+    nj_runlog log;
+    double wall0;              /* monotonic seconds at (re)start */
+    double elapsed0;           /* st.elapsed_seconds at (re)start */
+    double last_ckpt;          /* elapsed seconds at the last checkpoint */
+    long last_ckpt_step;
+    int bad_steps;             /* consecutive non-finite steps */
+    float last_val;
+} nj_trainer;
+
+/* `./nightjar train ...` */
+int nj_train_main(int argc, char **argv);
+
+/* Setup (train_setup.c): dataset, samples, model (fresh, --init or resumed),
+ * optimiser, loader.  Returns 0 or -1 with a message. */
+int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen);
+void nj_trainer_teardown(nj_trainer *t);
+/* Loads the newest readable checkpoint of the run (falling back over
+ * truncated or corrupt ones, which are reported).  Returns 0, 1 when there is
+ * none, -1 on error. */
+int nj_trainer_load_latest(nj_trainer *t, char *err, size_t errlen);
+uint64_t nj_dataset_hash(const nj_dataset *ds);
+
+/* The loop (trainer.c).  Returns the process exit code. */
+int nj_trainer_run(nj_trainer *t);
+/* Writes a numbered checkpoint (and prunes) — also best/final via `name`. */
+int nj_trainer_save(nj_trainer *t, const char *name, char *err, size_t errlen);
+
+/* Validation (validate.c): mean photometric loss over up to `max_samples`
+ * val samples in inference mode.  Returns 0 or -1 with a message. */
+int nj_trainer_validate(nj_trainer *t, int max_samples, float *photometric, char *err, size_t errlen);
+
+#endif

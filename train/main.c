@@ -1,4 +1,7 @@
 /* train/main.c — the ./nightjar command: dispatches subcommands. */
+#include "data/check.h"
+#include "data/synth.h"
+#include "train/trainer.h"
 #include "train/version.h"
 #include <cblas.h>
 #include <stdio.h>
@@ -12,10 +15,17 @@ typedef struct command {
 
 static int cmd_version(int argc, char **argv);
 static int cmd_help(int argc, char **argv);
+int nj_eval_main(int argc, char **argv);
+int nj_predict_main(int argc, char **argv);
 
 static const command COMMANDS[] = {
     {"help", "show this help", cmd_help},
     {"version", "print the version and the libraries in use", cmd_version},
+    {"check-data", "check a dataset description and its files", nj_check_data_main},
+    {"synth", "render synthetic robot-yard sequences with exact ground truth", nj_synth_main},
+    {"train", "train the depth and pose networks on a dataset", nj_train_main},
+    {"eval", "depth and pose metrics of a model against two baselines", nj_eval_main},
+    {"predict", "depth maps, pictures and point clouds for frames", nj_predict_main},
 };
 #define NCOMMANDS (int)(sizeof COMMANDS / sizeof COMMANDS[0])
 

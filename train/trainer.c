@@ -58,11 +58,18 @@ static void scale_grads(nj_params *ps, float f)
     }
 }
 
-/* Fixes the LR schedule's horizon for time-budgeted runs once the speed is known. */
-static void fix_schedule(nj_trainer *t, double secs_per_step)
+/* Fixes the LR schedule's horizon of a time-budgeted run once the speed is
+ * known: at step max(warm-up, 100), from the time per step since step 10 (the
+ * first steps are slowed by start-up).  Saved in checkpoints, so a resumed run
+ * keeps the same schedule. */
+static void fix_schedule(nj_trainer *t)
 {
-    if (t->st.schedule_steps > 0 || t->cfg.minutes <= 0 || t->st.step < 20) return;
-    t->st.schedule_steps = (long)(t->cfg.minutes * 60.0 / secs_per_step);
+    if (t->st.schedule_steps > 0 || t->cfg.minutes <= 0) return;
+    long at = t->cfg.warmup_steps > 100 ? t->cfg.warmup_steps : 100;
+    if (t->st.step == 10) t->t10 = now_elapsed(t);
+    if (t->st.step < at || t->t10 <= 0) return;
+    double per_step = (now_elapsed(t) - t->t10) / (double)(t->st.step - 10);
+    t->st.schedule_steps = t->st.step + (long)((t->cfg.minutes * 60.0 - now_elapsed(t)) / per_step);
     if (t->cfg.max_steps > 0 && t->cfg.max_steps < t->st.schedule_steps)
         t->st.schedule_steps = t->cfg.max_steps;
 }
@@ -227,7 +234,7 @@ int nj_trainer_run(nj_trainer *t)
             continue;
         }
         double el = now_elapsed(t);
-        fix_schedule(t, (el - t->elapsed0) / (double)(t->st.step - (long)0 > 0 ? t->st.step : 1));
+        fix_schedule(t);
         if (t->st.step % (t->cfg.log_every > 0 ? t->cfg.log_every : 1) == 0 || !logged) {
             double ips = el > tlog ? (double)(t->st.step - slog) * t->cfg.batch / (el - tlog) : 0;
             check_health(t, &r);

@@ -33,6 +33,7 @@ typedef struct nj_trainer {
     long last_ckpt_step;
     int bad_steps;             /* consecutive non-finite steps */
     float last_val;
+    double t10;                /* elapsed seconds at step 10 (schedule estimate) */
 } nj_trainer;
 
 /* `./nightjar train ...` */

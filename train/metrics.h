@@ -1,0 +1,86 @@
+/* train/metrics.h — depth and camera-motion accuracy against ground truth.
+ *
+ * Depth (Eigen et al. 2014), over the valid ground-truth pixels of an image —
+ * finite gt with min_depth < gt < max_depth (the depth cap):
+ *   absrel   = mean |gt − p| / gt          sqrel    = mean (gt − p)² / gt
+ *   rmse     = sqrt(mean (gt − p)²)        rmse_log = sqrt(mean (ln gt − ln p)²)
+ *   delta_k  = share of pixels with max(gt/p, p/gt) < 1.25^k, k = 1, 2, 3
+ * where p is the prediction times a scale factor, then clamped to
+ * [min_depth, max_depth].  Monocular models are scaled per image by
+ * median(gt)/median(p) (Zhou et al. 2017; medians as numpy: the mean of the two
+ * middle values for an even count); metric models use scale 1.  Images are
+ * accumulated the usual way: the metrics of each image, then their mean over
+ * images; `pixels` is the total count of pixels evaluated.  The spread of the
+ * per-image scale factors (mean and population standard deviation) shows how
+ * consistent a model's scale is.
+ *
+ * Camera motion (Zhou et al. 2017 protocol): snippets of 5 consecutive frames;
+ * ground-truth and predicted camera positions are expressed relative to the
+ * snippet's first frame (so the first positions coincide), the prediction is
+ * scaled by the least-squares factor s = Σ gt·pred / Σ pred·pred, and the
+ * error is e_i = s·pred_i − gt_i.  The protocol's reported number is
+ * ate = sqrt(Σ_i |e_i|²) / n (as in the published evaluation code); the plain
+ * root-mean-square sqrt(Σ_i |e_i|² / n) is given alongside.
+ */
+#ifndef NJ_METRICS_H
+#define NJ_METRICS_H
+#include <stddef.h>
+
+#define NJ_EVAL_MIN_DEPTH 1e-3      /* ground truth at or below this is "no data" */
+#define NJ_EVAL_MAX_DEPTH 80.0f     /* default depth cap */
+#define NJ_ATE_SNIPPET 5
+
+typedef struct nj_depth_metrics {
+    double absrel, sqrel, rmse, rmse_log, delta1, delta2, delta3;
+    long pixels;
+} nj_depth_metrics;
+
+/* Copies the pairs (gt[i], pred[i]) with a valid gt (finite, min_depth < gt <
+ * max_depth) into gt_out/pred_out (room for n each).  Returns their count. */
+size_t nj_depth_select(const float *gt, const float *pred, size_t n, float min_depth,
+                       float max_depth, float *gt_out, float *pred_out);
+/* Quantile q ∈ [0, 1] of x[0..n-1] with numpy's default (linear)
+ * interpolation between order statistics; x is reordered.  NaN when n = 0. */
+double nj_quantile(float *x, size_t n, double q);
+/* Median of x[0..n-1] (numpy's definition: the mean of the two middle
+ * values for an even count); x is reordered.  NaN when n = 0. */
+double nj_median(float *x, size_t n);
+/* median(gt)/median(pred) over n selected pairs (the arrays are not changed;
+ * `scratch` needs room for n floats).  NaN when n = 0 or median(pred) ≤ 0. */
+double nj_median_scale(const float *gt, const float *pred, size_t n, float *scratch);
+/* Metrics of n selected pairs with pred multiplied by `scale` and clamped to
+ * [min_depth, max_depth].  Returns 0, or -1 when n = 0. */
+int nj_depth_metrics_compute(const float *gt, const float *pred, size_t n, double scale,
+                             float min_depth, float max_depth, nj_depth_metrics *out);
+
+/* Mean of per-image metrics and of the per-image scale factors. */
+typedef struct nj_metrics_acc {
+    double sum[7];
+    long pixels;
+    int images;
+    double scale_mean, scale_m2;     /* Welford accumulators */
+} nj_metrics_acc;
+
+void nj_metrics_acc_init(nj_metrics_acc *a);
+void nj_metrics_acc_add(nj_metrics_acc *a, const nj_depth_metrics *m, double scale);
+/* Mean metrics (pixels = total); scale mean and population std.  All zero
+ * when no image was added. */
+void nj_metrics_acc_result(const nj_metrics_acc *a, nj_depth_metrics *mean,
+                           double *scale_mean, double *scale_std);
+
+/* ---- camera motion --------------------------------------------------------- */
+
+/* Positions of n frames relative to the first, from camera-to-world poses
+ * (12 doubles each, row-major [R | t]): p_i = R_0ᵀ (t_i − t_0). */
+void nj_positions_from_c2w(const double *c2w, int n, double *xyz);
+/* Positions of n frames relative to the first from the n − 1 predicted
+ * motions between consecutive frames: rel[i] (12 doubles, [R | t]) maps
+ * points of camera i into camera i + 1, so camera i + 1's pose in the first
+ * camera's frame is C_{i+1} = C_i · rel[i]⁻¹ with C_0 = I; p_i = translation of C_i. */
+void nj_positions_from_motions(const double *rel, int n, double *xyz);
+/* The protocol above on n positions (xyz triplets).  Returns ate; *scale and
+ * *rmse (may be NULL) receive the alignment factor and the plain RMS.  When
+ * the prediction does not move at all the scale is 0. */
+double nj_ate(const double *gt, const double *pred, int n, double *scale, double *rmse);
+
+#endif

@@ -20,7 +20,7 @@ TEST_BIN := $(TEST_SRC:tests/%.c=$(B)/tests/%)
 TEST_SUP := $(filter-out $(TEST_SRC),$(wildcard tests/*.c))
 TEST_SUP_OBJ := $(TEST_SUP:%.c=$(B)/%.o)
 
-.PHONY: all deps deps-test test bench bench-nn bench-losses bench-data demo clean help
+.PHONY: all deps deps-test test bench bench-nn bench-losses bench-data bench-export demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
 .SECONDARY:
 all: deps nightjar
@@ -59,10 +59,13 @@ bench-losses: deps $(B)/bench/bench_losses
 bench-data: deps $(B)/bench/bench_data
 	@$(B)/bench/bench_data
 
-bench: bench-nn bench-losses bench-data
+bench-export: deps nightjar $(B)/bench/bench_export
+	@$(B)/bench/bench_export
+
+bench: bench-nn bench-losses bench-data bench-export
 
 demo: deps nightjar
-	@echo "make demo: the end-to-end demo arrives with the trainer."
+	@sh tools/demo.sh
 
 clean:
 	rm -rf $(B) nightjar

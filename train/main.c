@@ -17,6 +17,7 @@ static int cmd_version(int argc, char **argv);
 static int cmd_help(int argc, char **argv);
 int nj_eval_main(int argc, char **argv);
 int nj_predict_main(int argc, char **argv);
+int nj_export_main(int argc, char **argv);
 
 static const command COMMANDS[] = {
     {"help", "show this help", cmd_help},
@@ -26,6 +27,7 @@ static const command COMMANDS[] = {
     {"train", "train the depth and pose networks on a dataset", nj_train_main},
     {"eval", "depth and pose metrics of a model against two baselines", nj_eval_main},
     {"predict", "depth maps, pictures and point clouds for frames", nj_predict_main},
+    {"export", "export a model as C99 code, ONNX or safetensors", nj_export_main},
 };
 #define NCOMMANDS (int)(sizeof COMMANDS / sizeof COMMANDS[0])
 

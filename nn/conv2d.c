@@ -251,7 +251,9 @@ static void backward_phase(const conv_geom *G, const nj_op *op, int phase,
     int step = phase < 0 ? 1 : 2, first = phase < 0 ? 0 : phase;
     int per = (G->nbands - first + step - 1) / step, items = G->n * per;
     size_t tile = tile_floats(G), wsize = (size_t)G->cout * G->k;
-    #pragma omp parallel for schedule(dynamic, 1) if (par)
+    /* static: each thread gets the same items every step, so its dW partial
+     * (and hence the reduced dW) is bit-identical from run to run */
+    #pragma omp parallel for schedule(static) if (par)
     for (int it = 0; it < items; it++) {
         int t = omp_get_thread_num();
         backward_item(G, op, it / per, first + step * (it % per),

@@ -12,7 +12,7 @@ void nj_model_config_default(nj_model_config *cfg)
     cfg->width = 1.0f;
     cfg->scales = 4;
     cfg->norm = NJ_NORM_BATCH;
-    cfg->head_init = 0.1f;
+    cfg->head_init = 0.01f;
     cfg->pose = 1;
     cfg->pose_stages = 5;
     cfg->pose_width = 1.0f;
@@ -107,7 +107,10 @@ static int build_depth(builder *b)
         snprintf(nm, sizeof nm, "head%d", s);
         m->head[s] = add_unit(b, nm, NJ_GROUP_DECODER, ch[s], 1, 3, 1, NJ_PAD_REFLECT, NJ_NORM_NONE, NJ_ACT_SIGMOID);
         if (m->head[s] < 0) return -1;
-        /* start at a mid-range disparity everywhere: small weights, bias = logit(head_init) */
+        /* start at a far, uniform depth (head_init 0.01 ≈ 9 m for a 0.1–100 m range):
+         * predicted flow then starts below the true flow everywhere, where the
+         * photometric gradient points the right way.  Starting near (large
+         * flow) was measured to train inverted depth even with true poses. */
         nj_unit *u = &m->units[m->head[s]];
         for (size_t k = 0; k < nj_param_numel(u->w); k++) u->w->data[k] *= 0.1f;
         nj_init_const(u->b, logf(c->head_init / (1.0f - c->head_init)));
@@ -128,9 +131,16 @@ static int build_pose(builder *b)
         if (m->pose_units[i] < 0) return -1;
         cin = cout;
     }
-    m->pose_units[c->pose_stages] = add_unit(b, "pose.out", NJ_GROUP_POSE, cin, 6, 1, 1, NJ_PAD_ZERO,
-                                             NJ_NORM_NONE, NJ_ACT_NONE);
-    if (m->pose_units[c->pose_stages] < 0) return -1;
+    int out = add_unit(b, "pose.out", NJ_GROUP_POSE, cin, 6, 1, 1, NJ_PAD_ZERO, NJ_NORM_NONE, NJ_ACT_NONE);
+    if (out < 0) return -1;
+    /* Start from (almost) no motion: with zero flow the photometric gradient is
+     * a valid local linearisation everywhere; a random initial motion would make
+     * the predicted flow overshoot by pixels and the depth net learns from
+     * aliased gradients (measured: inverted depth). */
+    nj_unit *u = &m->units[out];
+    for (size_t k = 0; k < nj_param_numel(u->w); k++) u->w->data[k] *= 0.01f;
+    nj_init_const(u->b, 0.0f);
+    m->pose_units[c->pose_stages] = out;
     m->npose = c->pose_stages + 1;
     return 0;
 }
@@ -250,6 +260,7 @@ double nj_pose_flops(const nj_model *m, int h, int w)
 
 int nj_model_size_ok(const nj_model *m, int h, int w)
 {
+    /* the coarsest feature map needs 2 pixels a side for reflection padding */
     int d = 1 << m->cfg.stages;
-    return h > 0 && w > 0 && h % d == 0 && w % d == 0;
+    return h >= 2 * d && w >= 2 * d && h % d == 0 && w % d == 0;
 }

@@ -33,7 +33,7 @@ typedef struct nj_model_config {
     float width;           /* channel multiplier (default 1) */
     int scales;            /* disparity outputs, 1..4 (default 4) */
     nj_norm_kind norm;     /* default batch */
-    float head_init;       /* initial sigmoid output of the heads (default 0.1) */
+    float head_init;       /* initial sigmoid output of the heads (default 0.01: far) */
     int pose;              /* 1: build the pose net */
     int pose_stages;       /* stride-2 convs in the pose net (default 5) */
     float pose_width;
@@ -76,7 +76,8 @@ nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor
 /* Forward multiply-adds ×2 (FLOPs) of the depth net at h×w, and of one pose pair. */
 double nj_depth_flops(const nj_model *m, int h, int w);
 double nj_pose_flops(const nj_model *m, int h, int w);
-/* Non-zero when h and w are usable input sizes. */
+/* Non-zero when h and w are usable input sizes: multiples of 2^stages with at
+ * least 2 pixels per side at the coarsest level. */
 int nj_model_size_ok(const nj_model *m, int h, int w);
 
 #endif

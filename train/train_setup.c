@@ -142,8 +142,8 @@ int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
     if (nj_run_mkdir(t->dir, err, errlen) || open_data(t, err, errlen)) return -1;
     if (resume ? resume_model(t, err, errlen) : fresh_model(t, err, errlen)) return -1;
     if (!nj_model_size_ok(&t->model, t->cfg.height, t->cfg.width)) {
-        snprintf(err, errlen, "training size %dx%d must be divisible by %d", t->cfg.width, t->cfg.height,
-                 1 << t->model.cfg.stages);
+        snprintf(err, errlen, "training size %dx%d must be a multiple of %d and at least %d on each side",
+                 t->cfg.width, t->cfg.height, 1 << t->model.cfg.stages, 2 << t->model.cfg.stages);
         return -1;
     }
     nj_params_freeze_group(&t->model.params, NJ_GROUP_ENCODER, t->cfg.freeze_encoder);

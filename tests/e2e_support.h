@@ -1,0 +1,22 @@
+/* tests/e2e_support.h — running ./nightjar from tests: temp folders, shell
+ * commands with captured output, small file helpers, JSON number lookup. */
+#ifndef NJ_E2E_SUPPORT_H
+#define NJ_E2E_SUPPORT_H
+#include <stddef.h>
+
+/* Runs `cmd` through sh with stdout+stderr into `log`; returns the exit status
+ * (128+signal when killed, -1 when it could not run). */
+int e2e_run(const char *cmd, const char *log);
+/* Whole file as a NUL-terminated string (malloc'd), NULL when unreadable. */
+char *e2e_slurp(const char *path);
+/* Writes text to path; returns 0 or -1. */
+int e2e_write(const char *path, const char *text);
+/* Number at a dotted key path ("baseline_constant.absrel") in a JSON file;
+ * NAN when missing. */
+double e2e_json_number(const char *path, const char *key);
+/* Number of lines of `text` containing `needle`. */
+int e2e_count(const char *text, const char *needle);
+/* 1 when ./nightjar exists (tests run from the repository root). */
+int e2e_have_binary(void);
+
+#endif

@@ -1,0 +1,120 @@
+/* tests/test_train_e2e.c — the main job end to end on small synthetic data:
+ * monocular video training must lower the loss and beat both baselines
+ * (constant depth and the untrained network, median-scaled) on the held-out
+ * sequence; stereo-only training must give metric depth (no scaling) with
+ * AbsRel < 0.2.  Ground truth is the renderer's exact depth; the metrics are
+ * the eval command's (checked against NumPy in test_metrics/test_predict_cli). */
+#include "tests/check.h"
+#include "tests/e2e_support.h"
+#include "tests/torch_ref.h"
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Minutes of training per case: long enough to learn, short for the suite. */
+#define TRAIN_MINUTES "2.5"
+
+static const char *MONO_CONFIG =
+    "{ \"run\": { \"name\": \"e2e-mono\", \"seed\": 2, \"threads\": 2, \"log_every\": 10,\n"
+    "           \"validate_every\": 0, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
+    "  \"data\": { \"width\": 160, \"height\": 96, \"batch\": 4, \"frame_offsets\": [1],\n"
+    "            \"video\": true, \"stereo\": false, \"duplicate_threshold\": 0.003 },\n"
+    "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 50 } }\n";
+
+static const char *STEREO_CONFIG =
+    "{ \"run\": { \"name\": \"e2e-stereo\", \"seed\": 2, \"threads\": 2, \"log_every\": 10,\n"
+    "           \"validate_every\": 0, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
+    "  \"data\": { \"width\": 320, \"height\": 96, \"batch\": 4, \"frame_offsets\": [],\n"
+    "            \"video\": false, \"stereo\": true },\n"
+    "  \"model\": { \"pose\": false },\n"
+    "  \"loss\": { \"max_depth\": 40 },\n"
+    "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 50 } }\n";
+
+/* Mean "loss" of the first and last `k` step lines of a run's log. */
+static int loss_ends(const char *log, int k, double *first, double *last)
+{
+    char *text = e2e_slurp(log);
+    if (!text) return -1;
+    double v[4096];
+    int n = 0;
+    for (char *p = text; (p = strstr(p, "\"type\":\"step\"")) && n < 4096; p++) {
+        char *l = strstr(p, "\"loss\":");
+        if (l) v[n++] = atof(l + 7);
+    }
+    free(text);
+    if (n < 2 * k) return -1;
+    *first = *last = 0;
+    for (int i = 0; i < k; i++) { *first += v[i] / k; *last += v[n - k + i] / k; }
+    return 0;
+}
+
+static int train_and_eval(const char *dir, const char *tag, const char *config_text,
+                          const char *data, const char *eval_extra)
+{
+    char cfg[1024], cmd[4096], log[1024];
+    snprintf(cfg, sizeof cfg, "%s/%s.json", dir, tag);
+    e2e_write(cfg, config_text);
+    snprintf(log, sizeof log, "%s/%s-train.txt", dir, tag);
+    snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/%s --minutes %s",
+             cfg, data, dir, tag, TRAIN_MINUTES);
+    int rc = e2e_run(cmd, log);
+    char name[128];
+    snprintf(name, sizeof name, "%s training runs to its time budget", tag);
+    if (!check(rc == 0, name, "exit %d (log %s)", rc, log)) return -1;
+    snprintf(log, sizeof log, "%s/%s-eval.txt", dir, tag);
+    snprintf(cmd, sizeof cmd, "./nightjar eval --model %s/%s/final.ckpt --data %s --split test --out %s/%s.metrics.json %s",
+             dir, tag, data, dir, tag, eval_extra);
+    rc = e2e_run(cmd, log);
+    snprintf(name, sizeof name, "%s model evaluates", tag);
+    char *out = e2e_slurp(log);
+    if (out) { printf("%s", out); free(out); }
+    return check(rc == 0, name, "exit %d (log %s)", rc, log) ? 0 : -1;
+}
+
+static void mono(const char *dir)
+{
+    char cmd[2048], data[1024], log[1024], metrics[1024];
+    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/mono --seed 11 --sequences 6 --frames 100 --size 240x144", dir);
+    snprintf(log, sizeof log, "%s/synth-mono.txt", dir);
+    if (!check(e2e_run(cmd, log) == 0, "synth renders the monocular data", "see %s", log)) return;
+    snprintf(data, sizeof data, "%s/mono/dataset.json", dir);
+    if (train_and_eval(dir, "mono", MONO_CONFIG, data, "")) return;
+    double first = 0, last = 0;
+    snprintf(log, sizeof log, "%s/mono/log.jsonl", dir);
+    if (check(loss_ends(log, 10, &first, &last) == 0, "monocular training log has step lines", "%s", log))
+        check(last < 0.9 * first, "monocular training lowers the loss", "first %.4f last %.4f", first, last);
+    snprintf(metrics, sizeof metrics, "%s/mono.metrics.json", dir);
+    double m = e2e_json_number(metrics, "absrel"), c = e2e_json_number(metrics, "baseline_constant.absrel");
+    double u = e2e_json_number(metrics, "baseline_untrained.absrel");
+    check(m < c && m < u, "monocular AbsRel beats the constant-depth and untrained baselines (median-scaled)",
+          "model %.4f, constant %.4f, untrained %.4f", m, c, u);
+}
+
+static void stereo(const char *dir)
+{
+    char cmd[2048], data[1024], log[1024], metrics[1024];
+    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/stereo --seed 12 --sequences 6 --frames 100 --size 320x192 --stereo", dir);
+    snprintf(log, sizeof log, "%s/synth-stereo.txt", dir);
+    if (!check(e2e_run(cmd, log) == 0, "synth renders the stereo data", "see %s", log)) return;
+    snprintf(data, sizeof data, "%s/stereo/dataset.json", dir);
+    if (train_and_eval(dir, "stereo", STEREO_CONFIG, data, "--max-depth 20")) return;
+    snprintf(metrics, sizeof metrics, "%s/stereo.metrics.json", dir);
+    char *text = e2e_slurp(metrics);
+    check(text && strstr(text, "\"metric\""), "stereo model is evaluated metric (no scaling)", "%s", metrics);
+    free(text);
+    double m = e2e_json_number(metrics, "absrel");
+    check(m < 0.2, "stereo-only training gives metric depth with AbsRel < 0.2 (within 20 m)", "AbsRel %.4f", m);
+}
+
+int main(void)
+{
+    char dir[256];
+    if (!check(e2e_have_binary(), "./nightjar is built", "run from the repository root after make")) return test_exit();
+    if (ref_mkdtemp(dir, sizeof dir, "e2e")) { check(0, "temp folder", "%s", dir); return test_exit(); }
+    mono(dir);
+    stereo(dir);
+    if (!test_failures()) ref_rmtree(dir);
+    else printf("# kept %s for inspection\n", dir);
+    return test_exit();
+}

@@ -1,0 +1,214 @@
+/* tests/test_train_resume.c — crashes, interruptions and bad input:
+ *  - train N steps uninterrupted; train the same run, kill -9 it at a random
+ *    moment after its first checkpoint, resume (repeatedly) → the final
+ *    weights equal the uninterrupted run's within 1e-6 (same thread count);
+ *  - a truncated newest checkpoint is detected and the previous one used;
+ *  - SIGINT finishes the step, saves, exits 0 and says how to resume;
+ *  - command-line and config errors give one line and a non-zero exit. */
+#include "tests/check.h"
+#include "tests/e2e_support.h"
+#include "tests/torch_ref.h"
+#include "train/checkpoint.h"
+#include "train/runfiles.h"
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <sys/wait.h>
+#include <time.h>
+#include <unistd.h>
+
+
+static const char *CONFIG =
+    "{ \"run\": { \"name\": \"resume\", \"seed\": 5, \"threads\": 2, \"log_every\": 1,\n"
+    "           \"validate_every\": 0, \"checkpoint_minutes\": 1000, \"checkpoint_steps\": 3,\n"
+    "           \"keep_last\": 3, \"max_steps\": 60 },\n"
+    "  \"data\": { \"width\": 64, \"height\": 32, \"batch\": 2, \"frame_offsets\": [1],\n"
+    "            \"video\": true, \"duplicate_threshold\": 0 },\n"
+    "  \"model\": { \"width\": 0.5, \"stages\": 4 },\n"
+    "  \"optim\": { \"lr\": 3e-4, \"warmup_steps\": 4 } }\n";
+
+static char dir[256], cfg[512], data[512];
+
+/* Max |a − b| over all parameters and buffers of two checkpoints. */
+static double weight_diff(const char *a, const char *b, char *err, size_t len)
+{
+    nj_model ma, mb;
+    if (nj_checkpoint_load(a, &ma, NULL, NULL, err, len)) return INFINITY;
+    if (nj_checkpoint_load(b, &mb, NULL, NULL, err, len)) { nj_model_free(&ma); return INFINITY; }
+    double worst = 0;
+    nj_params *pa[2] = {&ma.params, &ma.buffers}, *pb[2] = {&mb.params, &mb.buffers};
+    for (int s = 0; s < 2; s++)
+        for (int i = 0; i < pa[s]->count && i < pb[s]->count; i++) {
+            size_t k = nj_param_numel(pa[s]->items[i]);
+            for (size_t j = 0; j < k; j++) {
+                double d = fabs((double)pa[s]->items[i]->data[j] - pb[s]->items[i]->data[j]);
+                if (!(d <= worst)) worst = d;
+            }
+        }
+    nj_model_free(&ma);
+    nj_model_free(&mb);
+    return worst;
+}
+
+static int file_exists(const char *p) { struct stat st; return stat(p, &st) == 0; }
+
+/* Starts training in the background; returns its pid. */
+static pid_t start_training(const char *out, int resume)
+{
+    pid_t pid = fork();
+    if (pid == 0) {
+        char log[600];
+        snprintf(log, sizeof log, "%s.log", out);
+        if (!freopen(log, "a", stdout) || !freopen(log, "a", stderr)) _exit(127);
+        execl("./nightjar", "nightjar", "train", "--config", cfg, "--data", data, "--out", out,
+              resume ? "--resume" : "--threads", resume ? "--threads" : "2", resume ? "2" : NULL, (char *)NULL);
+        _exit(127);
+    }
+    return pid;
+}
+
+static int wait_status(pid_t pid)
+{
+    int st;
+    waitpid(pid, &st, 0);
+    return WIFEXITED(st) ? WEXITSTATUS(st) : 128 + WTERMSIG(st);
+}
+
+static void sleep_ms(long ms)
+{
+    struct timespec ts = {ms / 1000, (ms % 1000) * 1000000L};
+    nanosleep(&ts, NULL);
+}
+
+static double now_s(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
+/* Three SIGKILLs at random moments (some land inside checkpoint writes: one
+ * is written every 3 steps), each followed by --resume, then a clean finish. */
+static void kill_and_resume(const char *ref, double ref_seconds)
+{
+    char out[512], final[600], err[512];
+    snprintf(out, sizeof out, "%s/killed", dir);
+    srand((unsigned)time(NULL));
+    int kills = 0, rc = -1;
+    pid_t pid = start_training(out, 0);
+    for (int round = 0; round < 3; round++) {
+        sleep_ms((long)(ref_seconds * 1000 * (0.15 + 0.5 * rand() / (double)RAND_MAX)));
+        kill(pid, SIGKILL);
+        rc = wait_status(pid);
+        if (rc == 128 + SIGKILL) kills++;
+        long steps[8];
+        pid = start_training(out, nj_run_list_steps(out, steps, 8) > 0);
+    }
+    rc = wait_status(pid);
+    check(rc == 0 && kills > 0, "training killed with SIGKILL and resumed completes",
+          "exit %d after %d kills (log %s.log)", rc, kills, out);
+    snprintf(final, sizeof final, "%s/final.ckpt", out);
+    double d = weight_diff(ref, final, err, sizeof err);
+    check(d <= 1e-6, "weights after kill -9 + resume equal an uninterrupted run (same threads)",
+          "max |difference| %.3g after %d kills %s", d, kills, isinf(d) ? err : "");
+}
+
+static void truncated_checkpoint(void)
+{
+    char out[512], path[600], log[600], cmd[2048];
+    snprintf(out, sizeof out, "%s/trunc", dir);
+    snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s --steps 6 --threads 2", cfg, data, out);
+    snprintf(log, sizeof log, "%s.log", out);
+    if (!check(e2e_run(cmd, log) == 0, "6-step run for the truncation test", "see %s", log)) return;
+    snprintf(path, sizeof path, "%s/step-00000006.ckpt", out);
+    if (truncate(path, 1000) != 0) { check(0, "truncate newest checkpoint", "%s", path); return; }
+    snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s --steps 9 --threads 2 --resume", cfg, data, out);
+    int rc = e2e_run(cmd, log);
+    char *text = e2e_slurp(log);
+    check(rc == 0 && text && strstr(text, "skipping unreadable checkpoint") && strstr(text, "resuming at step 3"),
+          "a truncated checkpoint is detected and the previous one is used", "exit %d, log %s", rc, log);
+    free(text);
+}
+
+static void interrupted(void)
+{
+    char out[512], first[600], log[600];
+    snprintf(out, sizeof out, "%s/sigint", dir);
+    snprintf(first, sizeof first, "%s/step-00000003.ckpt", out);
+    pid_t pid = start_training(out, 0);
+    for (int w = 0; w < 600 && !file_exists(first); w++) sleep_ms(50);
+    kill(pid, SIGINT);
+    int rc = wait_status(pid);
+    snprintf(log, sizeof log, "%s.log", out);
+    char *text = e2e_slurp(log);
+    check(rc == 0 && text && strstr(text, "--resume") && strstr(text, "interrupted"),
+          "SIGINT: the step finishes, the run is saved, exit 0 with how to resume", "exit %d, log %s", rc, log);
+    free(text);
+}
+
+typedef struct { const char *args; int code; const char *message; } bad_case;
+
+static void bad_input(void)
+{
+    char bad[600], log[600], cmd[2048];
+    snprintf(bad, sizeof bad, "%s/bad.json", dir);
+    e2e_write(bad, "{ \"data\": { \"batch\": 0 } }");
+    const bad_case cases[] = {
+        {"", 2, "--config FILE is required"},
+        {"--config CFG --bogus", 2, "unknown option '--bogus'"},
+        {"--config CFG --minutes abc", 2, "--minutes expects a number"},
+        {"--config /nonexistent/x.json", 2, "/nonexistent/x.json"},
+        {"--config BAD", 2, "batch"},
+        {"--config CFG --data /nonexistent/d.json --steps 1", 1, "/nonexistent/d.json"},
+        {"--config CFG --data DATA --out OUT/none --resume --steps 1", 1, "nothing to resume"},
+        {"--config CFG --data DATA --out OUT/init --init /nonexistent/c.ckpt --steps 1", 1, "/nonexistent/c.ckpt"},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        char args[1024] = "", *d = args;
+        for (const char *s = cases[i].args; *s; ) {
+            if (!strncmp(s, "CFG", 3)) { d += sprintf(d, "%s", cfg); s += 3; }
+            else if (!strncmp(s, "BAD", 3)) { d += sprintf(d, "%s", bad); s += 3; }
+            else if (!strncmp(s, "DATA", 4)) { d += sprintf(d, "%s", data); s += 4; }
+            else if (!strncmp(s, "OUT", 3)) { d += sprintf(d, "%s", dir); s += 3; }
+            else *d++ = *s++, *d = 0;
+        }
+        snprintf(cmd, sizeof cmd, "./nightjar train %s", args);
+        snprintf(log, sizeof log, "%s/bad%zu.txt", dir, i);
+        int rc = e2e_run(cmd, log);
+        char *text = e2e_slurp(log), name[160];
+        int lines = text ? e2e_count(text, "\n") : 0;
+        snprintf(name, sizeof name, "train error: %.60s", cases[i].message);
+        check(rc == cases[i].code && text && strstr(text, cases[i].message) && lines <= 2, name,
+              "exit %d (want %d), %d lines: %s", rc, cases[i].code, lines, text ? text : "");
+        free(text);
+    }
+}
+
+int main(void)
+{
+    if (!check(e2e_have_binary(), "./nightjar is built", "run from the repository root after make")) return test_exit();
+    if (ref_mkdtemp(dir, sizeof dir, "resume")) { check(0, "temp folder", "%s", dir); return test_exit(); }
+    char cmd[2048], log[600], ref[600];
+    snprintf(cfg, sizeof cfg, "%s/resume.json", dir);
+    snprintf(data, sizeof data, "%s/data/dataset.json", dir);
+    e2e_write(cfg, CONFIG);
+    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 96x64", dir);
+    snprintf(log, sizeof log, "%s/synth.txt", dir);
+    if (check(e2e_run(cmd, log) == 0, "synth renders the resume data", "see %s", log)) {
+        snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/ref --threads 2", cfg, data, dir);
+        snprintf(log, sizeof log, "%s/ref.log", dir);
+        snprintf(ref, sizeof ref, "%s/ref/final.ckpt", dir);
+        double t0 = now_s();
+        if (check(e2e_run(cmd, log) == 0, "uninterrupted reference run", "see %s", log))
+            kill_and_resume(ref, now_s() - t0);
+        truncated_checkpoint();
+        interrupted();
+        bad_input();
+    }
+    if (!test_failures()) ref_rmtree(dir);
+    else printf("# kept %s for inspection\n", dir);
+    return test_exit();
+}

@@ -319,7 +319,7 @@ static void test_shipped(const char *argv0)
     int rc = nj_train_config_load(&c, path, err, sizeof err);
     snprintf(want, sizeof want, "%s/../demo-out/data/dataset.json", dir);
     check(rc == 0 && !strcmp(c.dataset, want) && c.width % 32 == 0 && c.height % 32 == 0 && c.batch == 4 &&
-              c.video && c.noffsets == 1 && c.offsets[0] == 1 && c.minutes == 5,
+              c.video && c.noffsets == 1 && c.offsets[0] == 2 && c.minutes == 5,
           "config_demo_contents", "rc %d dataset %s %dx%d batch %d minutes %g", rc, c.dataset, c.width, c.height,
           c.batch, c.minutes);
     nj_train_config_default(&c);

@@ -4,6 +4,7 @@
 #   2. train the demo configuration (about 5 minutes on 2 cores)
 #   3. evaluate on the held-out sequence against the two baselines
 #   4. predict depth pictures and a point cloud for a few frames
+#   5. export the model for a board: C source (f32 and int8), ONNX, safetensors
 # Everything goes to demo-out/ (DEMO_OUT overrides); DEMO_MINUTES shortens or
 # lengthens training.
 set -eu
@@ -12,7 +13,7 @@ OUT=${DEMO_OUT:-demo-out}
 MIN=${DEMO_MINUTES:-5}
 NJ=./nightjar
 
-echo "== 1/4 synthetic data -> $OUT/data"
+echo "== 1/5 synthetic data -> $OUT/data"
 if [ -f "$OUT/data/dataset.json" ]; then
   echo "   (already there; delete $OUT/data to render again)"
 else
@@ -20,14 +21,14 @@ else
 fi
 $NJ check-data "$OUT/data/dataset.json" | tail -n 2
 
-echo "== 2/4 training configs/demo.json for $MIN minutes -> $OUT/run"
+echo "== 2/5 training configs/demo.json for $MIN minutes -> $OUT/run"
 rm -rf "$OUT/run"
 $NJ train --config configs/demo.json --data "$OUT/data/dataset.json" --out "$OUT/run" --minutes "$MIN"
 
-echo "== 3/4 evaluation on the test split"
+echo "== 3/5 evaluation on the test split"
 $NJ eval --model "$OUT/run/final.ckpt" --data "$OUT/data/dataset.json" --split test --out "$OUT/metrics.json"
 
-echo "== 4/4 prediction for a few test frames"
+echo "== 4/5 prediction for a few test frames"
 rm -rf "$OUT/frames" "$OUT/predict"
 mkdir -p "$OUT/frames"
 seq=$(ls "$OUT/data" | grep '^yard-' | tail -n 1)
@@ -36,9 +37,24 @@ for f in 000020 000060 000100; do cp "$OUT/data/$seq/cam0/$f.png" "$OUT/frames/"
 cam() { grep -m1 "\"$1\"" "$OUT/data/dataset.json" | tr -dc '0-9.\n'; }
 $NJ predict --model "$OUT/run/final.ckpt" --input "$OUT/frames" --out "$OUT/predict" --ply \
   --camera "$(cam fx),$(cam fy),$(cam cx),$(cam cy)"
+echo "== 5/5 export for the board"
+rm -rf "$OUT/export"
+mkdir -p "$OUT/export"
+$NJ export --model "$OUT/run/final.ckpt" --format c --out "$OUT/export/nightjar_depth.c"
+$NJ export --model "$OUT/run/final.ckpt" --format c --weights int8 --out "$OUT/export/nightjar_depth_int8.c"
+$NJ export --model "$OUT/run/final.ckpt" --format onnx --out "$OUT/export/nightjar_depth.onnx"
+$NJ export --model "$OUT/run/final.ckpt" --format safetensors --out "$OUT/export/nightjar.safetensors"
+echo "export sizes:"
+for f in "$OUT"/export/*; do
+  printf '  %-44s %10s bytes\n' "$f" "$(wc -c < "$f" | tr -d ' ')"
+done
+
 echo
 echo "Outputs:"
 echo "  data           $OUT/data (dataset.json, frames, ground-truth depth and poses)"
 echo "  training run   $OUT/run (final.ckpt, best.ckpt, log.jsonl)"
 echo "  metrics        $OUT/metrics.json"
 echo "  predictions    $OUT/predict (*.depth.npy, *.depth16.png, *.preview.png, *.points.ply)"
+echo "  board export   $OUT/export (C source f32 and int8, ONNX, safetensors)"
+echo "The metric table above compares the model with a constant depth and the untrained network."
+echo "Caution: learned monocular depth is not a certified safety sensor."

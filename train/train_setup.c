@@ -116,7 +116,7 @@ static int resume_model(nj_trainer *t, char *err, size_t errlen)
     return 0;
 }
 
-static int start_loader(nj_trainer *t, char *err, size_t errlen)
+int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
 {
     nj_loader_config lc;
     nj_loader_config_default(&lc);
@@ -160,7 +160,7 @@ int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
     t->elapsed0 = t->st.elapsed_seconds;
     t->last_ckpt = t->st.elapsed_seconds;
     t->last_ckpt_step = t->st.step;
-    return start_loader(t, err, errlen);
+    return nj_trainer_start_loader(t, err, errlen);
 }
 
 void nj_trainer_teardown(nj_trainer *t)

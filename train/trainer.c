@@ -92,11 +92,11 @@ static int handle_bad_step(nj_trainer *t, const char *what)
     }
     t->st.lr_scale = scale;
     t->st.nan_recoveries = recoveries;
+    nj_params_freeze_group(&t->model.params, NJ_GROUP_ENCODER, t->cfg.freeze_encoder);
     t->opt.step = t->st.adam_step;
     t->bad_steps = 0;
     nj_loader_destroy(t->loader);
-    nj_loader_config lc;
-    (void)lc;
+    t->loader = NULL;
     nj_runlog_say(&t->log, "reloaded the checkpoint of step %ld with the learning rate halved (x%.3g)",
                   t->st.step, t->st.lr_scale);
     return 1;   /* caller restarts the loader */
@@ -106,9 +106,6 @@ static void log_step(nj_trainer *t, const nj_step_result *r, float lr, double ip
 {
     char line[1024], health[64];
     double el = now_elapsed(t);
-    long total = t->st.schedule_steps;
-    double eta = total > 0 && t->st.step > 0 ? (double)(total - t->st.step) * (el - t->elapsed0 > 0 ? 1 : 0) : 0;
-    (void)eta;
     snprintf(line, sizeof line,
              "{\"type\":\"step\",\"step\":%ld,\"epoch\":%.3f,\"loss\":%.6g,\"photometric\":%.6g,"
              "\"smoothness\":%.6g,\"lr\":%.6g,\"images_per_s\":%.3f,\"mask_kept\":%.4f,"
@@ -207,8 +204,6 @@ static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float 
     return 0;
 }
 
-static int restart_loader(nj_trainer *t, char *err, size_t errlen);
-
 int nj_trainer_run(nj_trainer *t)
 {
     struct sigaction sa;
@@ -230,7 +225,11 @@ int nj_trainer_run(nj_trainer *t)
         int s = train_one(t, b, &r, &lr);
         if (s < 0) { code = 1; ended = "error"; break; }
         if (s == 1) {
-            if (t->bad_steps == 0 && restart_loader(t, err, sizeof err)) { code = 1; break; }
+            if (t->bad_steps == 0 && nj_trainer_start_loader(t, err, sizeof err)) {
+                nj_runlog_say(&t->log, "cannot restart the loader: %s", err);
+                code = 1;
+                break;
+            }
             continue;
         }
         double el = now_elapsed(t);
@@ -273,24 +272,4 @@ int nj_trainer_run(nj_trainer *t)
     if (stop_signal && code == 0)
         nj_runlog_say(&t->log, "to continue this run: nightjar train --config <same config> --out %s --resume", t->dir);
     return code;
-}
-
-static int restart_loader(nj_trainer *t, char *err, size_t errlen)
-{
-    nj_loader_config lc;
-    nj_loader_config_default(&lc);
-    lc.width = t->cfg.width;
-    lc.height = t->cfg.height;
-    lc.batch = t->cfg.batch;
-    lc.seed = t->st.loader_seed;
-    lc.start_step = t->st.step;
-    lc.brightness = t->cfg.brightness;
-    lc.contrast = t->cfg.contrast;
-    lc.saturation = t->cfg.saturation;
-    lc.hue = t->cfg.hue;
-    lc.jitter = t->cfg.brightness > 0 || t->cfg.contrast > 0 || t->cfg.saturation > 0 || t->cfg.hue > 0;
-    lc.flip_prob = t->cfg.flip;
-    t->loader = nj_loader_create(&t->ds, t->train, t->ntrain, &lc, err, errlen);
-    if (!t->loader) nj_runlog_say(&t->log, "cannot restart the loader: %s", err);
-    return t->loader ? 0 : -1;
 }

@@ -43,6 +43,9 @@ int nj_train_main(int argc, char **argv);
  * optimiser, loader.  Returns 0 or -1 with a message. */
 int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen);
 void nj_trainer_teardown(nj_trainer *t);
+/* (Re)starts the batch loader at the current step (after setup or a NaN
+ * recovery).  Returns 0 or -1 with a message. */
+int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen);
 /* Loads the newest readable checkpoint of the run (falling back over
  * truncated or corrupt ones, which are reported).  Returns 0, 1 when there is
  * none, -1 on error. */

@@ -66,7 +66,7 @@ static int add_stereo(nj_graph *g, const nj_batch *b, nj_vs_input *in)
 static float saturation_share(const nj_tensor *d)
 {
     size_t k = nj_numel(d), s = 0;
-    for (size_t i = 0; i < k; i++) s += d->data[i] < 0.01f || d->data[i] > 0.99f;
+    for (size_t i = 0; i < k; i++) s += d->data[i] < 1e-3f || d->data[i] > 0.999f;
     return (float)s / (float)k;
 }
 

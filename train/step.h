@@ -10,7 +10,7 @@
 typedef struct nj_step_result {
     float loss, photometric, smoothness;
     float mask_fraction;        /* share of pixels the auto-mask keeps */
-    float saturated;            /* share of scale-0 disparities within 1% of a range bound */
+    float saturated;            /* share of scale-0 sigmoid outputs within 0.001 of 0 or 1 */
     float translation;          /* mean |t| of the predicted poses (0 without video) */
     nj_tensor *disp0;           /* scale-0 disparity (arena; valid until the next reset) */
     nj_tensor *automask, *error;

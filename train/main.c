@@ -18,6 +18,7 @@ static int cmd_help(int argc, char **argv);
 int nj_eval_main(int argc, char **argv);
 int nj_predict_main(int argc, char **argv);
 int nj_export_main(int argc, char **argv);
+int nj_report_main(int argc, char **argv);
 
 static const command COMMANDS[] = {
     {"help", "show this help", cmd_help},
@@ -28,6 +29,7 @@ static const command COMMANDS[] = {
     {"eval", "depth and pose metrics of a model against two baselines", nj_eval_main},
     {"predict", "depth maps, pictures and point clouds for frames", nj_predict_main},
     {"export", "export a model as C99 code, ONNX or safetensors", nj_export_main},
+    {"report", "a self-contained HTML page about a training run", nj_report_main},
 };
 #define NCOMMANDS (int)(sizeof COMMANDS / sizeof COMMANDS[0])
 

@@ -2,6 +2,7 @@
  * gradient clipping, NaN/Inf handling, logging, validation, checkpoints,
  * budgets and signals. */
 #include "train/trainer.h"
+#include "train/report.h"
 #include "train/runfiles.h"
 #include "train/step.h"
 #include <math.h>
@@ -169,6 +170,7 @@ static int validate(nj_trainer *t)
             return -1;
         }
     }
+    if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
     return 0;
 }
 
@@ -265,6 +267,8 @@ int nj_trainer_run(nj_trainer *t)
              "\"resumes\":%d,\"nan_recoveries\":%d}", t->st.step, ended, now_elapsed(t),
              t->st.resumes, t->st.nan_recoveries);
     nj_runlog_json(&t->log, line);
+    if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
+    else nj_runlog_say(&t->log, "report: %s/report.html", t->dir);
     char health[64];
     nj_runlog_say(&t->log, "training ended at step %ld: %s; health: %s", t->st.step, ended,
                   nj_health_summary(&t->health, health, sizeof health));

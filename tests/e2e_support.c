@@ -21,7 +21,7 @@ int e2e_run(const char *cmd, const char *log)
     return -1;
 }
 
-char *e2e_slurp(const char *path)
+char *e2e_slurp(const char *path, size_t *len)
 {
     FILE *f = fopen(path, "rb");
     if (!f) return NULL;
@@ -31,6 +31,7 @@ char *e2e_slurp(const char *path)
     char *s = malloc((size_t)(n > 0 ? n : 0) + 1);
     size_t got = s && n > 0 ? fread(s, 1, (size_t)n, f) : 0;
     if (s) s[got] = 0;
+    if (len) *len = got;
     fclose(f);
     return s;
 }
@@ -45,7 +46,7 @@ int e2e_write(const char *path, const char *text)
 
 double e2e_json_number(const char *path, const char *key)
 {
-    char *text = e2e_slurp(path);
+    char *text = e2e_slurp(path, NULL);
     if (!text) return NAN;
     cJSON *root = cJSON_Parse(text), *node = root;
     free(text);

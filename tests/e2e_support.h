@@ -7,8 +7,9 @@
 /* Runs `cmd` through sh with stdout+stderr into `log`; returns the exit status
  * (128+signal when killed, -1 when it could not run). */
 int e2e_run(const char *cmd, const char *log);
-/* Whole file as a NUL-terminated string (malloc'd), NULL when unreadable. */
-char *e2e_slurp(const char *path);
+/* Whole file as a NUL-terminated string (malloc'd), NULL when unreadable;
+ * *len (when len is non-NULL) gets its size in bytes. */
+char *e2e_slurp(const char *path, size_t *len);
 /* Writes text to path; returns 0 or -1. */
 int e2e_write(const char *path, const char *text);
 /* Number at a dotted key path ("baseline_constant.absrel") in a JSON file;

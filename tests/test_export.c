@@ -28,6 +28,7 @@
 #include "data/image.h"
 #include "data/npy.h"
 #include "tests/check.h"
+#include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
 #include "train/checkpoint.h"
 #include "train/infer.h"
@@ -53,21 +54,6 @@ static int sh(const char *cmd)
 {
     int rc = system(cmd);
     return rc == -1 ? -1 : (rc >> 8) & 0xff;
-}
-
-static char *slurp(const char *path, long *len)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *s = malloc((size_t)n + 1);
-    if (s && fread(s, 1, (size_t)n, f) != (size_t)n) n = 0;
-    if (s) s[n] = 0;
-    fclose(f);
-    if (len) *len = n;
-    return s;
 }
 
 static int count_lines(const char *s)
@@ -342,10 +328,10 @@ static int run_driver_on(const char *sub, const char *runner, const char *frames
     snprintf(cmd, sizeof cmd, "%s '%s/%s/driver' '%s/%s' %d '%s/%s/depth.f32'", runner, dir, sub, dir, frames, n, dir, sub);
     if (sh(cmd)) return -1;
     snprintf(path, sizeof path, "%s/%s/depth.f32", dir, sub);
-    long len = 0;
-    char *d = slurp(path, &len);
-    int ok = d && len == (long)(sizeof(float) * npix * n);
-    if (ok) memcpy(out, d, (size_t)len);
+    size_t len = 0;
+    char *d = e2e_slurp(path, &len);
+    int ok = d && len == sizeof(float) * npix * n;
+    if (ok) memcpy(out, d, len);
     free(d);
     return ok ? 0 : -1;
 }
@@ -359,9 +345,9 @@ static void check_header(const char *sub)
 {
     char path[512];
     snprintf(path, sizeof path, "%s/%s/nightjar_depth.h", dir, sub);
-    char *h = slurp(path, NULL);
+    char *h = e2e_slurp(path, NULL);
     snprintf(path, sizeof path, "%s/%s/nightjar_depth.c", dir, sub);
-    char *c = slurp(path, NULL);
+    char *c = e2e_slurp(path, NULL);
     int includes_ok = c != NULL;
     for (const char *p = c; p && (p = strstr(p, "#include")); p++)
         includes_ok &= !strncmp(p, "#include \"nightjar_depth.h\"", 27) || !strncmp(p, "#include <math.h>", 17);
@@ -434,7 +420,7 @@ static long rodata_bytes(const char *sub)
              "awk '$1 ~ /^\\.rodata/ {s += $2} END {print s + 0}' > '%s/%s/rodata.txt'", dir, sub, dir, sub, dir, sub, dir, sub);
     if (sh(cmd)) return -1;
     snprintf(path, sizeof path, "%s/%s/rodata.txt", dir, sub);
-    char *s = slurp(path, NULL);
+    char *s = e2e_slurp(path, NULL);
     long v = s ? atol(s) : -1;
     free(s);
     return v;
@@ -539,7 +525,7 @@ static void test_c_size(void)
     int ran = built && run_driver_on("csize", "", "crop.rgb", 1, CW * CW, out) == 0;
     double e = ran ? max_rel(out, ref, CW * CW) : INFINITY;
     snprintf(path, sizeof path, "%s/csize/nightjar_depth.h", dir);
-    char *h = slurp(path, NULL);
+    char *h = e2e_slurp(path, NULL);
     check(ran && e <= 1e-4 && h && strstr(h, "#define NIGHTJAR_DEPTH_WIDTH 32") && strstr(h, "Trained on 64x48"),
           "export c --size 32x32 vs train/infer.c at 32x32 on a crop: max rel err <= 1e-4",
           "ok %d (%s) built %d ran %d max rel %.3g", ok, err, built, ran, e);
@@ -601,7 +587,7 @@ static void expect_failure(const char *what, const char *args, int want)
     int rc = nightjar(args);
     char path[512], name[200];
     snprintf(path, sizeof path, "%s/err.txt", dir);
-    char *err = slurp(path, NULL);
+    char *err = e2e_slurp(path, NULL);
     snprintf(name, sizeof name, "export refuses %s: one stderr line, exit %d", what, want);
     check(rc == want && count_lines(err) == 1 && strstr(err, "nightjar export: "), name, "status %d, stderr: %s", rc,
           err ? err : "");

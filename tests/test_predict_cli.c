@@ -26,6 +26,7 @@
 #include "data/npy.h"
 #include "data/synth.h"
 #include "tests/check.h"
+#include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
 #include "train/checkpoint.h"
 #include <cjson/cJSON.h>
@@ -43,20 +44,6 @@
 static char dir[64], bin[1024], refdir[1024];
 
 /* ---- helpers ---------------------------------------------------------------- */
-
-static char *slurp(const char *path)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *s = malloc((size_t)n + 1);
-    if (s && fread(s, 1, (size_t)n, f) != (size_t)n) n = 0;
-    if (s) s[n] = 0;
-    fclose(f);
-    return s;
-}
 
 static int count_lines(const char *s)
 {
@@ -79,7 +66,7 @@ static char *output(const char *which)
 {
     char p[256];
     snprintf(p, sizeof p, "%s/%s.txt", dir, which);
-    return slurp(p);
+    return e2e_slurp(p, NULL);
 }
 
 static int file_exists(const char *path)
@@ -301,7 +288,7 @@ static int same_metrics(const cJSON *a, const cJSON *b, double tol, char *why, s
 
 static cJSON *load_json(const char *path)
 {
-    char *s = slurp(path);
+    char *s = e2e_slurp(path, NULL);
     cJSON *j = s ? cJSON_Parse(s) : NULL;
     free(s);
     return j;

@@ -20,7 +20,8 @@
  *    no "Uncaught", "ERROR:CONSOLE", "Failed to load resource" or "net::ERR"
  *    lines.  The console capture itself is checked on a probe copy of the
  *    page that logs a known console.error message, so the grep can fail. */
-#include "check.h"
+#include "tests/check.h"
+#include "tests/e2e_support.h"
 #include "train/checkpoint.h"
 #include "train/report.h"
 #include <math.h>
@@ -41,21 +42,6 @@ typedef struct logvals {
     double step[NSTEP], loss[NSTEP], pho[NSTEP], smo[NSTEP], lr[NSTEP], el[NSTEP];
     double vstep[NVAL], vpho[NVAL];
 } logvals;
-
-static char *slurp(const char *path, size_t *len)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f) return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *s = malloc((size_t)n + 1);
-    if (s && fread(s, 1, (size_t)n, f) != (size_t)n) { free(s); s = NULL; }
-    if (s) s[n] = 0;
-    fclose(f);
-    if (len) *len = (size_t)n;
-    return s;
-}
 
 static int write_log(const char *dir, logvals *v)
 {
@@ -318,7 +304,7 @@ static int read_probe(const char *root, const char *out, probe *p)
 {
     char path[600];
     snprintf(path, sizeof path, "%s/%s.txt", root, out);
-    char *dom = slurp(path, NULL);
+    char *dom = e2e_slurp(path, NULL);
     const char *t = dom ? strstr(dom, "<title>PROBE ") : NULL;
     int n = t ? sscanf(t + 13, "%d %d %d %d %d %d %d %d %d %d %d %d %d", &p->chart[0], &p->chart[1], &p->chart[2],
                        &p->chart[3], &p->gallery[0], &p->gallery[1], &p->gallery[2], &p->gallery[3], &p->imgs,
@@ -352,7 +338,7 @@ static double non_uniform(const unsigned char *px, int W, int H, const int box[4
 
 static int log_has(const char *path, const char *const *words, int nwords, char *found, size_t flen)
 {
-    char *s = slurp(path, NULL);
+    char *s = e2e_slurp(path, NULL);
     int hit = 0;
     for (int i = 0; s && i < nwords && !hit; i++) {
         const char *p = strstr(s, words[i]);
@@ -374,7 +360,7 @@ static void check_browser(const char *root, const char *report)
     }
     char probe_path[600], shot[600], found[300] = "";
     size_t len;
-    char *html = slurp(report, &len);
+    char *html = e2e_slurp(report, &len);
     snprintf(probe_path, sizeof probe_path, "%s/probe.html", root);
     char *body = html ? strstr(html, "</body>") : NULL;
     FILE *f = body ? fopen(probe_path, "w") : NULL;
@@ -436,7 +422,7 @@ int main(void)
     int rc = nj_report_write(run, NULL, err, sizeof err);
     check(rc == 0, "nj_report_write succeeds", "%s", err);
     snprintf(report, sizeof report, "%s/report.html", run);
-    char *html = slurp(report, NULL);
+    char *html = e2e_slurp(report, NULL);
     check(html != NULL, "report.html written", "missing %s", report);
     if (html) {
         check_static(html);

@@ -39,7 +39,7 @@ static const char *STEREO_CONFIG =
 /* Mean "loss" of the first and last `k` step lines of a run's log. */
 static int loss_ends(const char *log, int k, double *first, double *last)
 {
-    char *text = e2e_slurp(log);
+    char *text = e2e_slurp(log, NULL);
     if (!text) return -1;
     double v[4096];
     int n = 0;
@@ -72,7 +72,7 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
              dir, tag, data, dir, tag, eval_extra);
     rc = e2e_run(cmd, log);
     snprintf(name, sizeof name, "%s model evaluates", tag);
-    char *out = e2e_slurp(log);
+    char *out = e2e_slurp(log, NULL);
     if (out) { printf("%s", out); free(out); }
     return check(rc == 0, name, "exit %d (log %s)", rc, log) ? 0 : -1;
 }
@@ -103,7 +103,7 @@ static void stereo(const char *dir)
     snprintf(data, sizeof data, "%s/stereo/dataset.json", dir);
     if (train_and_eval(dir, "stereo", STEREO_CONFIG, data, "--max-depth 20")) return;
     snprintf(metrics, sizeof metrics, "%s/stereo.metrics.json", dir);
-    char *text = e2e_slurp(metrics);
+    char *text = e2e_slurp(metrics, NULL);
     check(text && strstr(text, "\"metric\""), "stereo model is evaluated metric (no scaling)", "%s", metrics);
     free(text);
     double m = e2e_json_number(metrics, "absrel"), c = e2e_json_number(metrics, "baseline_constant.absrel");

@@ -127,7 +127,7 @@ static void truncated_checkpoint(void)
     if (truncate(path, 1000) != 0) { check(0, "truncate newest checkpoint", "%s", path); return; }
     snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s --steps 9 --threads 2 --resume", cfg, data, out);
     int rc = e2e_run(cmd, log);
-    char *text = e2e_slurp(log);
+    char *text = e2e_slurp(log, NULL);
     check(rc == 0 && text && strstr(text, "skipping unreadable checkpoint") && strstr(text, "resuming at step 3"),
           "a truncated checkpoint is detected and the previous one is used", "exit %d, log %s", rc, log);
     free(text);
@@ -143,7 +143,7 @@ static void interrupted(void)
     kill(pid, SIGINT);
     int rc = wait_status(pid);
     snprintf(log, sizeof log, "%s.log", out);
-    char *text = e2e_slurp(log);
+    char *text = e2e_slurp(log, NULL);
     check(rc == 0 && text && strstr(text, "--resume") && strstr(text, "interrupted"),
           "SIGINT: the step finishes, the run is saved, exit 0 with how to resume", "exit %d, log %s", rc, log);
     free(text);
@@ -178,7 +178,7 @@ static void bad_input(void)
         snprintf(cmd, sizeof cmd, "./nightjar train %s", args);
         snprintf(log, sizeof log, "%s/bad%zu.txt", dir, i);
         int rc = e2e_run(cmd, log);
-        char *text = e2e_slurp(log), name[160];
+        char *text = e2e_slurp(log, NULL), name[160];
         int lines = text ? e2e_count(text, "\n") : 0;
         snprintf(name, sizeof name, "train error: %.60s", cases[i].message);
         check(rc == cases[i].code && text && strstr(text, cases[i].message) && lines <= 2, name,

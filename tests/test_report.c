@@ -40,7 +40,7 @@ int nj_synth_main(int argc, char **argv);
 
 typedef struct logvals {
     double step[NSTEP], loss[NSTEP], pho[NSTEP], smo[NSTEP], lr[NSTEP], el[NSTEP];
-    double vstep[NVAL], vpho[NVAL];
+    double vstep[NVAL], vpho[NVAL], vabs[NVAL], vdel[NVAL];
 } logvals;
 
 static int write_log(const char *dir, logvals *v)
@@ -65,8 +65,11 @@ static int write_log(const char *dir, logvals *v)
             int k = i / 4;
             v->vstep[k] = v->step[i];
             v->vpho[k] = 0.05 - 0.004 * k * k;
-            fprintf(f, "{\"type\":\"val\",\"step\":%.0f,\"photometric\":%.17g,\"elapsed_s\":%.1f}\n",
-                    v->vstep[k], v->vpho[k], v->el[i] + 1);
+            v->vabs[k] = 0.6 - 0.05 * k;
+            v->vdel[k] = 0.2 + 0.03 * k * k;
+            fprintf(f, "{\"type\":\"val\",\"step\":%.0f,\"photometric\":%.17g,\"absrel\":%.17g,"
+                       "\"delta_1_25\":%.17g,\"elapsed_s\":%.1f}\n",
+                    v->vstep[k], v->vpho[k], v->vabs[k], v->vdel[k], v->el[i] + 1);
         }
     }
     fprintf(f, "{\"type\":\"end\",\"step\":22,\"ended\":\"budget reached\",\"elapsed_s\":500.0,"
@@ -226,6 +229,8 @@ static void check_charts(const char *html, const logvals *v)
         {"Smoothness loss (weighted) vs wall time", hours, v->smo, NSTEP},
         {"Learning rate vs step", v->step, v->lr, NSTEP},
         {"Validation photometric loss vs step", v->vstep, v->vpho, NVAL},
+        {"Validation AbsRel vs step", v->vstep, v->vabs, NVAL},
+        {"Validation share within 1.25x vs step", v->vstep, v->vdel, NVAL},
     };
     for (size_t k = 0; k < sizeof C / sizeof C[0]; k++) {
         const char *end, *svg = find_chart(html, C[k].title, &end);

@@ -1,7 +1,8 @@
 /* tests/test_train_e2e.c — the main job end to end on small synthetic data,
  * 2.5 minutes of training per case:
- *  - monocular video: training runs to its budget, lowers the loss, and the
- *    model evaluates on the held-out sequence;
+ *  - monocular video: training runs to its budget, lowers the loss, logs
+ *    validation depth metrics, writes its report, and the model evaluates on
+ *    the held-out sequence;
  *  - stereo only: the model's metric depth (no scaling at all) beats both
  *    baselines — a median-scaled constant depth and the untrained network —
  *    on the held-out sequence within 20 m.
@@ -22,7 +23,7 @@
 
 static const char *MONO_CONFIG =
     "{ \"run\": { \"name\": \"e2e-mono\", \"seed\": 2, \"threads\": 2, \"log_every\": 10,\n"
-    "           \"validate_every\": 0, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
+    "           \"validate_every\": 150, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
     "  \"data\": { \"width\": 160, \"height\": 96, \"batch\": 4, \"frame_offsets\": [1],\n"
     "            \"video\": true, \"stereo\": false, \"duplicate_threshold\": 0.003 },\n"
     "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 50 } }\n";
@@ -89,6 +90,17 @@ static void mono(const char *dir)
     snprintf(log, sizeof log, "%s/mono/log.jsonl", dir);
     if (check(loss_ends(log, 10, &first, &last) == 0, "monocular training log has step lines", "%s", log))
         check(last < 0.9 * first, "monocular training lowers the loss", "first %.4f last %.4f", first, last);
+    char *text = e2e_slurp(log, NULL);
+    char *val = text ? strstr(text, "\"type\":\"val\"") : NULL;
+    char *nl = val ? strchr(val, '\n') : NULL, *abs = val ? strstr(val, "\"absrel\":") : NULL;
+    check(abs && (!nl || abs < nl), "validation logs depth metrics where the val split has ground truth",
+          "first val line: %.200s", val ? val : "(none)");
+    free(text);
+    snprintf(log, sizeof log, "%s/mono/report.html", dir);
+    text = e2e_slurp(log, NULL);
+    check(text && strstr(text, "Validation AbsRel vs step"), "the run wrote its report with depth-metric curves",
+          "%s", log);
+    free(text);
     snprintf(metrics, sizeof metrics, "%s/mono.metrics.json", dir);
     double m = e2e_json_number(metrics, "absrel");
     check(isfinite(m) && m > 0, "monocular metrics.json has the AbsRel of the model", "%s: %g", metrics, m);

@@ -133,18 +133,22 @@ static void header(FILE *f, const char *run_dir, const nj_run_log *log)
 static void charts(FILE *f, const nj_run_log *log)
 {
     int n = log->nsteps, nv = log->nvals;
-    double *a = malloc(((size_t)6 * n + 2 * nv + 1) * sizeof *a);
+    double *a = malloc(((size_t)6 * n + 5 * nv + 1) * sizeof *a);
     fputs("<section id=\"charts\"><h2>Training curves</h2><div class=\"charts\">\n", f);
     if (!a) { fputs("<p class=\"note\">out of memory</p></div></section>\n", f); return; }
     double *step = a, *hours = a + n, *tot = a + 2 * n, *pho = a + 3 * n, *smo = a + 4 * n, *lr = a + 5 * n;
-    double *vstep = a + 6 * n, *vpho = vstep + nv;
+    double *vstep = a + 6 * n, *vpho = vstep + nv, *vabs = vpho + nv, *vdel = vabs + nv, *dstep = vdel + nv;
+    int nd = 0;   /* validations that carry depth metrics */
     for (int i = 0; i < n; i++) {
         const nj_log_step *s = &log->steps[i];
         step[i] = (double)s->step;
         hours[i] = s->elapsed_s / 3600.0;
         tot[i] = s->loss, pho[i] = s->photometric, smo[i] = s->smoothness, lr[i] = s->lr;
     }
-    for (int i = 0; i < nv; i++) vstep[i] = (double)log->vals[i].step, vpho[i] = log->vals[i].photometric;
+    for (int i = 0; i < nv; i++) {
+        vstep[i] = (double)log->vals[i].step, vpho[i] = log->vals[i].photometric;
+        if (isfinite(log->vals[i].absrel)) nd++;
+    }
     const char *names[3] = {"total", "photometric", "smoothness"};
     const char *titles[3] = {"Total loss", "Photometric loss", "Smoothness loss (weighted)"};
     double *ys[3] = {tot, pho, smo};
@@ -161,8 +165,20 @@ static void charts(FILE *f, const nj_run_log *log)
     nj_svg_chart(f, "Learning rate vs step", "training step", "learning rate (per step)", &l, 1);
     nj_series v = {"val photometric", vstep, vpho, nv};
     nj_svg_chart(f, "Validation photometric loss vs step", "training step", "loss (dimensionless)", &v, 1);
-    fputs("</div>\n<p class=\"note\">The log holds no per-validation depth metrics; see the final table.</p>"
-          "</section>\n", f);
+    if (nd > 0) {
+        int k = 0;   /* the validations that carry depth metrics, in order */
+        for (int i = 0; i < nv; i++)
+            if (isfinite(log->vals[i].absrel))
+                vabs[k] = log->vals[i].absrel, vdel[k] = log->vals[i].delta1, dstep[k] = vstep[i], k++;
+        nj_series d1 = {"val AbsRel", dstep, vabs, nd};
+        nj_svg_chart(f, "Validation AbsRel vs step", "training step", "AbsRel (dimensionless)", &d1, 1);
+        nj_series d2 = {"val delta<1.25", dstep, vdel, nd};
+        nj_svg_chart(f, "Validation share within 1.25x vs step", "training step", "share of pixels", &d2, 1);
+        fputs("</div>\n</section>\n", f);
+    } else {
+        fputs("</div>\n<p class=\"note\">The validation split has no ground-truth depth, so there are no "
+              "depth-metric curves; see the final table.</p></section>\n", f);
+    }
     free(a);
 }
 

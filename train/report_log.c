@@ -57,6 +57,8 @@ static int add_record(const cJSON *o, nj_run_log *log, int *scap, int *vcap)
         v->step = (long)num(o, "step");
         v->photometric = num(o, "photometric");
         v->elapsed_s = num(o, "elapsed_s");
+        v->absrel = num(o, "absrel");
+        v->delta1 = num(o, "delta_1_25");
     } else if (!strcmp(type, "health")) {
         log->health++;
     } else if (!strcmp(type, "nonfinite")) {

@@ -14,6 +14,7 @@ typedef struct nj_log_step {
 typedef struct nj_log_val {
     long step;
     double photometric, elapsed_s;
+    double absrel, delta1;      /* NaN when the val split has no ground truth */
 } nj_log_val;
 
 typedef struct nj_run_log {

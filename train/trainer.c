@@ -151,18 +151,28 @@ static void check_health(nj_trainer *t, const nj_step_result *r)
 static int validate(nj_trainer *t)
 {
     if (t->nval == 0) return 0;
-    float photo;
-    char err[512], line[256];
-    if (nj_trainer_validate(t, 64, &photo, err, sizeof err)) {
+    nj_val_result v;
+    char err[512], line[512], depth[256] = "";
+    if (nj_trainer_validate(t, 64, &v, err, sizeof err)) {
         nj_runlog_say(&t->log, "validation failed: %s", err);
         return -1;
     }
+    float photo = v.photometric;
     t->last_val = photo;
-    snprintf(line, sizeof line, "{\"type\":\"val\",\"step\":%ld,\"photometric\":%.6g,\"elapsed_s\":%.1f}",
-             t->st.step, photo, now_elapsed(t));
+    if (v.depth_images > 0)
+        snprintf(depth, sizeof depth, ",\"absrel\":%.6g,\"rmse\":%.6g,\"rmse_log\":%.6g,\"delta_1_25\":%.6g,"
+                 "\"depth_images\":%d", v.depth.absrel, v.depth.rmse, v.depth.rmse_log, v.depth.delta1,
+                 v.depth_images);
+    snprintf(line, sizeof line, "{\"type\":\"val\",\"step\":%ld,\"photometric\":%.6g%s,\"elapsed_s\":%.1f}",
+             t->st.step, photo, depth, now_elapsed(t));
     nj_runlog_json(&t->log, line);
-    nj_runlog_say(&t->log, "validation at step %ld: photometric %.5f%s", t->st.step, photo,
-                  photo < t->st.best_val ? " (best so far)" : "");
+    if (v.depth_images > 0)
+        nj_runlog_say(&t->log, "validation at step %ld: photometric %.5f, AbsRel %.4f, d<1.25 %.3f (%d images)%s",
+                      t->st.step, photo, v.depth.absrel, v.depth.delta1, v.depth_images,
+                      photo < t->st.best_val ? " (best so far)" : "");
+    else
+        nj_runlog_say(&t->log, "validation at step %ld: photometric %.5f%s", t->st.step, photo,
+                      photo < t->st.best_val ? " (best so far)" : "");
     if (photo < t->st.best_val) {
         t->st.best_val = photo;
         if (nj_trainer_save(t, "best.ckpt", err, sizeof err)) {

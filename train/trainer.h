@@ -9,6 +9,7 @@
 #include "train/config.h"
 #include "train/health.h"
 #include "train/model.h"
+#include "train/metrics.h"
 #include "train/runlog.h"
 
 typedef struct nj_trainer {
@@ -57,8 +58,14 @@ int nj_trainer_run(nj_trainer *t);
 /* Writes a numbered checkpoint (and prunes) — also best/final via `name`. */
 int nj_trainer_save(nj_trainer *t, const char *name, char *err, size_t errlen);
 
-/* Validation (validate.c): mean photometric loss over up to `max_samples`
- * val samples in inference mode.  Returns 0 or -1 with a message. */
-int nj_trainer_validate(nj_trainer *t, int max_samples, float *photometric, char *err, size_t errlen);
+/* Validation (validate.c) over up to `max_samples` val samples in inference
+ * mode: mean photometric loss, and depth metrics where ground truth exists
+ * (depth_images = 0 when none).  Returns 0 or -1 with a message. */
+typedef struct nj_val_result {
+    float photometric;
+    int depth_images;
+    nj_depth_metrics depth;
+} nj_val_result;
+int nj_trainer_validate(nj_trainer *t, int max_samples, nj_val_result *res, char *err, size_t errlen);
 
 #endif

@@ -357,6 +357,18 @@ static int log_has(const char *path, const char *const *words, int nwords, char 
     return s ? hit : -1;
 }
 
+/* HTML Tidy (Debian package tidy, an independent HTML checker): exit 0 means
+ * neither errors nor warnings. */
+static void check_tidy(const char *report)
+{
+    char cmd[1200];
+    snprintf(cmd, sizeof cmd, "tidy -q -e '%s' > /dev/null 2>&1", report);
+    int st = system(cmd);
+    int rc = st == -1 ? -1 : WIFEXITED(st) ? WEXITSTATUS(st) : 128;
+    check(rc == 0, "HTML Tidy finds no errors or warnings in the report",
+          "tidy exit %d (1 = warnings, 2 = errors; run tidy -q -e %s)", rc, report);
+}
+
 static void check_browser(const char *root, const char *report)
 {
     if (system("command -v chromium >/dev/null 2>&1") != 0) {
@@ -431,6 +443,7 @@ int main(void)
     check(html != NULL, "report.html written", "missing %s", report);
     if (html) {
         check_static(html);
+        check_tidy(report);
         check_charts(html, &v);
         check_browser(root, report);
     }

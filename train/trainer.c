@@ -8,6 +8,7 @@
 #include <math.h>
 #include <signal.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <time.h>
 
@@ -75,6 +76,26 @@ static void fix_schedule(nj_trainer *t)
         t->st.schedule_steps = t->cfg.max_steps;
 }
 
+/* Recoveries (reload + halved LR) allowed in one run before giving up. */
+#define MAX_NAN_RECOVERIES 6
+
+/* Test hook: NJ_FAULT_NONFINITE=STEP:COUNT makes the next COUNT losses from
+ * STEP on NaN, so the recovery path below can be exercised end to end. */
+static void parse_fault_hook(nj_trainer *t)
+{
+    const char *v = getenv("NJ_FAULT_NONFINITE");
+    t->fault_left = 0;
+    if (v && sscanf(v, "%ld:%d", &t->fault_step, &t->fault_left) != 2) t->fault_left = 0;
+}
+
+static void inject_fault(nj_trainer *t, nj_step_result *r)
+{
+    if (t->fault_left > 0 && t->st.step >= t->fault_step) {
+        r->loss = NAN;
+        t->fault_left--;
+    }
+}
+
 /* NaN/Inf: skip; after 3 in a row reload the last good checkpoint, halve the LR. */
 static int handle_bad_step(nj_trainer *t, const char *what)
 {
@@ -86,6 +107,11 @@ static int handle_bad_step(nj_trainer *t, const char *what)
     if (t->bad_steps < 3) return 0;
     float scale = t->st.lr_scale * 0.5f;
     int recoveries = t->st.nan_recoveries + 1;
+    if (recoveries > MAX_NAN_RECOVERIES) {
+        nj_runlog_say(&t->log, "non-finite steps persist after %d recoveries with halved learning rates; "
+                      "stopping without saving (the last good checkpoint is kept)", MAX_NAN_RECOVERIES);
+        return -1;
+    }
     int r = nj_trainer_load_latest(t, err, sizeof err);
     if (r != 0) {
         nj_runlog_say(&t->log, "repeated non-finite steps and no checkpoint to go back to; stopping");
@@ -205,6 +231,7 @@ static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float 
         nj_runlog_say(&t->log, "step %ld failed: %s", t->st.step, nj_graph_error(t->g));
         return -1;
     }
+    inject_fault(t, r);
     double gn = grad_norm(&t->model.params);
     if (!isfinite(r->loss) || !isfinite(gn)) return handle_bad_step(t, isfinite(r->loss) ? "gradient" : "loss") < 0 ? -1 : 1;
     t->bad_steps = 0;
@@ -224,6 +251,7 @@ int nj_trainer_run(nj_trainer *t)
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
     stop_signal = 0;
+    parse_fault_hook(t);
     char err[1024];
     int epoch_len = t->ntrain, code = 0, logged = 0;
     double tlog = now_elapsed(t);
@@ -235,7 +263,7 @@ int nj_trainer_run(nj_trainer *t)
         nj_step_result r;
         float lr = 0;
         int s = train_one(t, b, &r, &lr);
-        if (s < 0) { code = 1; ended = "error"; break; }
+        if (s < 0) { code = 1; ended = t->bad_steps ? "non-finite steps persist" : "error"; break; }
         if (s == 1) {
             if (t->bad_steps == 0 && nj_trainer_start_loader(t, err, sizeof err)) {
                 nj_runlog_say(&t->log, "cannot restart the loader: %s", err);

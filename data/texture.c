@@ -17,19 +17,22 @@ static void scale3(float out[3], float k)
     for (int c = 0; c < 3; c++) out[c] *= k;
 }
 
-/* Running-bond bricks of size bw×bh with mortar fraction `joint`: returns the
- * brick mask (1 brick, 0 mortar) and a per-brick random value in *id. */
-/* A per-element random value faded to its mean 0.5 once elements of size
- * `size` shrink below a few pixels (it would otherwise alias). */
-static float fade_id(float id, float size, float fw)
+/* How far per-element detail of size `size` has faded to its mean, 0..1:
+ * elements shrinking below a few pixels would otherwise alias. */
+static float fade_of(float size, float fw)
 {
-    return mixf(id, 0.5f, nj_smoothstep(0.2f, 0.5f, fw / size));
+    return nj_smoothstep(0.2f, 0.5f, fw / size);
 }
 
+/* Running-bond bricks of size bw×bh with mortar fraction `joint`: returns the
+ * brick mask (1 brick, 0 mortar) and a per-brick random value in *id (raw:
+ * callers fade the resulting colour with fade_of, never the id itself, so a
+ * non-linear use of the id cannot make a surface point change colour with
+ * viewing distance). */
 static float bricks(float u, float v, float bw, float bh, float joint, float fw, uint32_t seed, float *id)
 {
     float row = floorf(v / bh), x = u / bw + 0.5f * (float)((int)row & 1);
-    *id = fade_id(nj_hashf((int)floorf(x), (int)row, 7, seed), bh, fw);
+    *id = nj_hashf((int)floorf(x), (int)row, 7, seed);
     return nj_filtered_pulse(x, 1 - joint * bh / bw, fw / bw) * nj_filtered_pulse(v / bh, 1 - joint, fw / bh);
 }
 
@@ -66,12 +69,28 @@ static void gravel(float x, float z, float fw, uint32_t seed, float rgb[3])
     for (int c = 0; c < 3; c++) rgb[c] = stone[c] * low;
 }
 
+/* Paver colour for a per-brick random value: red or grey, with a tone. */
+static void paver_colour(float id, float rgb[3])
+{
+    const float red[3] = {0.55f, 0.32f, 0.25f}, grey[3] = {0.50f, 0.48f, 0.45f};
+    mix3(rgb, red, grey, 1 - nj_smoothstep(0.25f, 0.35f, id));
+    scale3(rgb, 0.8f + 0.35f * id);
+}
+
 static void pavers(float x, float z, float fw, uint32_t seed, float rgb[3])
 {
     float id, m = bricks(x, z, 0.2f, 0.1f, 0.08f, fw, seed + 17, &id);
-    float red[3] = {0.55f, 0.32f, 0.25f}, grey[3] = {0.50f, 0.48f, 0.45f}, brick[3], mortar[3] = {0.38f, 0.37f, 0.35f};
-    mix3(brick, red, grey, 1 - nj_smoothstep(0.25f, 0.35f, id));
-    scale3(brick, 0.8f + 0.35f * id + 0.06f * nj_fbm2(x * 12, z * 12, 3, fw * 12, seed + 19));
+    float brick[3], mortar[3] = {0.38f, 0.37f, 0.35f}, fade = fade_of(0.1f, fw);
+    paver_colour(id, brick);
+    if (fade > 0) {                          /* the mean paver colour over id in [0, 1] */
+        float mean[3] = {0, 0, 0}, c[3];
+        for (int i = 0; i < 32; i++) {
+            paver_colour((i + 0.5f) / 32.0f, c);
+            for (int k = 0; k < 3; k++) mean[k] += c[k] / 32.0f;
+        }
+        mix3(brick, brick, mean, fade);
+    }
+    scale3(brick, 1 + 0.06f * nj_fbm2(x * 12, z * 12, 3, fw * 12, seed + 19));
     mix3(rgb, mortar, brick, m);
 }
 
@@ -104,7 +123,8 @@ static void crate(const nj_object *o, const nj_hit *h, float fw, float rgb[3])
     float u = h->u, v = h->v, plank = floorf(v / 0.14f);
     float gap = nj_filtered_pulse(v / 0.14f, 0.92f, fw / 0.14f);
     float grain = nj_fbm2(u * 2.0f + plank * 13.1f, v * 30.0f, 5, fw * 30.0f, o->seed);
-    float tone = 0.8f + 0.35f * fade_id(nj_hashf((int)plank, 0, 5, o->seed), 0.14f, fw);
+    float id = nj_hashf((int)plank, 0, 5, o->seed);
+    float tone = 0.8f + 0.35f * mixf(id, 0.5f, fade_of(0.14f, fw));   /* linear in id: fading it is exact */
     for (int c = 0; c < 3; c++) rgb[c] = o->colour[c] * tone * (0.85f + 0.15f * grain) * (0.35f + 0.65f * gap);
 }
 
@@ -125,7 +145,7 @@ static void wall(const nj_scene *s, const nj_hit *h, float fw, float rgb[3])
 {
     float id, m = bricks(h->u, h->v, 0.24f, 0.075f, 0.12f, fw, s->seed + 29, &id);
     float brick[3] = {0.55f, 0.26f, 0.18f}, mortar[3] = {0.62f, 0.60f, 0.56f};
-    scale3(brick, 0.75f + 0.45f * id);
+    scale3(brick, 0.75f + 0.45f * mixf(id, 0.5f, fade_of(0.075f, fw)));   /* linear in id */
     mix3(rgb, mortar, brick, m);
     scale3(rgb, 1 + 0.12f * nj_fbm2(h->u * 0.8f, h->v * 0.8f, 6, fw * 0.8f, s->seed + 31));
 }

@@ -52,6 +52,7 @@ const nj_config_field nj_config_fields[] = {
     F("loss", "min_depth", NJ_F_FLOAT, loss.min_depth, 0, 1e6, 1, 0),
     F("loss", "max_depth", NJ_F_FLOAT, loss.max_depth, 0, 1e6, 1, 0),
     TEXT("loss", "automask", NJ_F_BOOL, loss.automask),
+    F("loss", "automask_from_step", NJ_F_LONG, automask_from, 0, 1e12, 0, 0),
     F("loss", "tie_break", NJ_F_FLOAT, loss.tie_break, 0, 1, 0, 0),
     F("optim", "lr", NJ_F_FLOAT, lr, 0, 1, 1, 0),
     F("optim", "lr_min", NJ_F_FLOAT, lr_min, 0, 1, 0, 0),

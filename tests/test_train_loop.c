@@ -1,4 +1,7 @@
-/* tests/test_train_nonfinite.c — the trainer's NaN/Inf recovery, driven by the
+/* tests/test_train_loop.c — behaviours of the training loop.
+ * Auto-masking that starts at loss.automask_from_step: before that step the
+ * run is identical to one without auto-masking, from it on it is not.
+ * NaN/Inf recovery, driven by the
  * NJ_FAULT_NONFINITE=STEP:COUNT hook (the next COUNT losses from STEP on are
  * NaN):
  *  - one or two bad steps are skipped and logged, training goes on;
@@ -86,6 +89,56 @@ static int weights_finite(const char *path)
     return ok;
 }
 
+/* "loss" and "mask_kept" of step line `step` of RUN/log.jsonl (NAN when absent). */
+static void step_values(const char *run, int step, double *loss, double *kept)
+{
+    char path[600];
+    snprintf(path, sizeof path, "%s/log.jsonl", run);
+    *loss = *kept = NAN;
+    char *text = e2e_slurp(path, NULL);
+    for (char *line = text ? strtok(text, "\n") : NULL; line; line = strtok(NULL, "\n")) {
+        cJSON *j = cJSON_Parse(line);
+        const char *type = j ? cJSON_GetStringValue(cJSON_GetObjectItem(j, "type")) : NULL;
+        if (type && !strcmp(type, "step") && cJSON_GetNumberValue(cJSON_GetObjectItem(j, "step")) == step) {
+            *loss = cJSON_GetNumberValue(cJSON_GetObjectItem(j, "loss"));
+            *kept = cJSON_GetNumberValue(cJSON_GetObjectItem(j, "mask_kept"));
+        }
+        cJSON_Delete(j);
+    }
+    free(text);
+}
+
+/* Same run twice, 10 steps: auto-masking off, and on from step 6. */
+static void automask_warmup(void)
+{
+    char cmd[2048], log[400], runs[2][300], mcfg[300];
+    const char *loss_keys[2] = {"\"automask\": false", "\"automask\": true, \"automask_from_step\": 6"};
+    for (int i = 0; i < 2; i++) {
+        char text[4096], *cut;
+        snprintf(text, sizeof text, "%s", CONFIG);
+        cut = strrchr(text, '}');
+        snprintf(cut, sizeof text - (size_t)(cut - text), ", \"loss\": { %s } }\n", loss_keys[i]);
+        snprintf(mcfg, sizeof mcfg, "%s/mask%d.json", dir, i);
+        e2e_write(mcfg, text);
+        snprintf(runs[i], sizeof runs[i], "%s/mask%d", dir, i);
+        snprintf(log, sizeof log, "%s/mask%d.log", dir, i);
+        snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/mask%d --steps 10", mcfg, data, dir, i);
+        if (!check(e2e_run(cmd, log) == 0, "auto-mask warm-up run", "config %s, log %s", mcfg, log)) return;
+    }
+    int same_before = 1, differ_after = 0;
+    for (int step = 1; step <= 10; step++) {
+        double l0, k0, l1, k1;
+        step_values(runs[0], step, &l0, &k0);
+        step_values(runs[1], step, &l1, &k1);
+        if (step <= 6) same_before &= l0 == l1 && k0 == k1;
+        else differ_after |= k1 < k0;
+    }
+    check(same_before, "before automask_from_step the run equals one without auto-masking",
+          "steps 1-6 differ (%s, %s)", runs[0], runs[1]);
+    check(differ_after, "from automask_from_step on, auto-masking removes pixels",
+          "mask_kept not lower in steps 7-10 (%s, %s)", runs[0], runs[1]);
+}
+
 static void skipped_steps(void)
 {
     char out[512], *text, final[600];
@@ -143,7 +196,7 @@ static void persistent(void)
 int main(void)
 {
     if (!check(e2e_have_binary(), "./nightjar is built", "run from the repository root after make")) return test_exit();
-    if (ref_mkdtemp(dir, sizeof dir, "nonfinite")) { check(0, "temp folder", "%s", dir); return test_exit(); }
+    if (ref_mkdtemp(dir, sizeof dir, "loop")) { check(0, "temp folder", "%s", dir); return test_exit(); }
     char cmd[2048], log[600];
     snprintf(cfg, sizeof cfg, "%s/nonfinite.json", dir);
     snprintf(data, sizeof data, "%s/data/dataset.json", dir);
@@ -151,6 +204,7 @@ int main(void)
     snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/data --seed 4 --sequences 2 --frames 10 --size 96x64", dir);
     snprintf(log, sizeof log, "%s/synth.txt", dir);
     if (check(e2e_run(cmd, log) == 0, "synth renders the data", "see %s", log)) {
+        automask_warmup();
         skipped_steps();
         recovery();
         persistent();

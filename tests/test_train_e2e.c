@@ -62,14 +62,14 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
     snprintf(cfg, sizeof cfg, "%s/%s.json", dir, tag);
     e2e_write(cfg, config_text);
     snprintf(log, sizeof log, "%s/%s-train.txt", dir, tag);
-    snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/%s --minutes %s",
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/%s --minutes %s", e2e_bin(),
              cfg, data, dir, tag, TRAIN_MINUTES);
     int rc = e2e_run(cmd, log);
     char name[128];
     snprintf(name, sizeof name, "%s training runs to its time budget", tag);
     if (!check(rc == 0, name, "exit %d (log %s)", rc, log)) return -1;
     snprintf(log, sizeof log, "%s/%s-eval.txt", dir, tag);
-    snprintf(cmd, sizeof cmd, "./nightjar eval --model %s/%s/final.ckpt --data %s --split test --out %s/%s.metrics.json %s",
+    snprintf(cmd, sizeof cmd, "%s eval --model %s/%s/final.ckpt --data %s --split test --out %s/%s.metrics.json %s", e2e_bin(),
              dir, tag, data, dir, tag, eval_extra);
     rc = e2e_run(cmd, log);
     snprintf(name, sizeof name, "%s model evaluates", tag);
@@ -81,7 +81,7 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
 static void mono(const char *dir)
 {
     char cmd[2048], data[1024], log[1024], metrics[1024];
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/mono --seed 11 --sequences 6 --frames 100 --size 240x144", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/mono --seed 11 --sequences 6 --frames 100 --size 240x144", e2e_bin(), dir);
     snprintf(log, sizeof log, "%s/synth-mono.txt", dir);
     if (!check(e2e_run(cmd, log) == 0, "synth renders the monocular data", "see %s", log)) return;
     snprintf(data, sizeof data, "%s/mono/dataset.json", dir);
@@ -109,7 +109,7 @@ static void mono(const char *dir)
 static void stereo(const char *dir)
 {
     char cmd[2048], data[1024], log[1024], metrics[1024];
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/stereo --seed 12 --sequences 6 --frames 100 --size 320x192 --stereo", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/stereo --seed 12 --sequences 6 --frames 100 --size 320x192 --stereo", e2e_bin(), dir);
     snprintf(log, sizeof log, "%s/synth-stereo.txt", dir);
     if (!check(e2e_run(cmd, log) == 0, "synth renders the stereo data", "see %s", log)) return;
     snprintf(data, sizeof data, "%s/stereo/dataset.json", dir);

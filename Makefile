@@ -15,6 +15,11 @@ B        ?= build
 # the program the tests run (make sanitize builds its own in build-san/)
 BIN      ?= nightjar
 # SAN=1: AddressSanitizer + UndefinedBehaviorSanitizer, every error fatal
+# FUZZ=1: objects for libFuzzer targets (clang), with ASan+UBSan
+ifeq ($(FUZZ),1)
+SANFLAGS := -fsanitize=fuzzer-no-link,address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
+CFLAGS   += $(SANFLAGS)
+endif
 ifeq ($(SAN),1)
 SANFLAGS := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
 CFLAGS   += $(SANFLAGS)
@@ -27,6 +32,9 @@ TEST_SRC := $(wildcard tests/test_*.c)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(B)/tests/%)
 TEST_SUP := $(filter-out $(TEST_SRC),$(wildcard tests/*.c))
 TEST_SUP_OBJ := $(TEST_SUP:%.c=$(B)/%.o)
+FUZZ_NAMES := $(filter-out fuzz_input,$(patsubst fuzz/%.c,%,$(wildcard fuzz/fuzz_*.c)))
+FUZZ_SECONDS ?= 60
+FUZZ_CC  ?= clang-14
 
 .PHONY: all deps deps-test test sanitize fuzz bench bench-nn bench-losses bench-data bench-export demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
@@ -64,6 +72,18 @@ sanitize: deps-test
 	@$(MAKE) --no-print-directory B=build-san BIN=build-san/nightjar SAN=1 OPT=-O1 \
 	    build-san/nightjar $(TEST_BIN:$(B)/%=build-san/%)
 	@$(SAN_ENV) NJ_BIN=./build-san/nightjar sh tests/run.sh build-san/tests
+
+$(B)/fuzzbin/%: $(B)/fuzz/%.o $(B)/fuzz/fuzz_input.o $(B)/libnightjar.a
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -fsanitize=fuzzer $^ -o $@ $(LDLIBS)
+
+# Every fuzz target (fuzz/) for FUZZ_SECONDS each, one after the other;
+# seeds from tests/fuzz_corpus/<target>/, crashes into build-fuzz/crashes/.
+fuzz:
+	@sh tools/deps.sh fuzz
+	@$(MAKE) --no-print-directory B=build-fuzz CC=$(FUZZ_CC) FUZZ=1 OPT=-O1 \
+	    $(FUZZ_NAMES:%=build-fuzz/fuzzbin/%)
+	@sh tools/fuzz.sh build-fuzz $(FUZZ_SECONDS) $(FUZZ_NAMES)
 
 $(B)/bench/%: $(B)/bench/%.o $(B)/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)

@@ -4,6 +4,7 @@
  * arithmetic is bounded by the data section's length, so no claimed size can
  * cause an allocation or a read beyond the file. */
 #include "train/safetensors.h"
+#include "data/jsondepth.h"
 #include <cjson/cJSON.h>
 #include <errno.h>
 #include <math.h>
@@ -205,8 +206,10 @@ static cJSON *parse_header(const uint8_t *bytes, uint64_t hlen, const char *name
         while (*end == ' ' || *end == '\t' || *end == '\n' || *end == '\r') end++;
         if (*end) { cJSON_Delete(root); root = NULL; }
     }
-    if (!root) fail(err, errlen, name, "the header is not valid JSON (or nests too deeply) near byte %ld",
-                    end ? 8 + (long)(end - text) : 8L);
+    if (!root && nj_json_too_deep(text, end))
+        fail(err, errlen, name, "the header JSON is nested more than %d levels deep", CJSON_NESTING_LIMIT);
+    else if (!root) fail(err, errlen, name, "the header is not valid JSON near byte %ld",
+                         end ? 8 + (long)(end - text) : 8L);
     else if (!cJSON_IsObject(root)) { cJSON_Delete(root); root = NULL; fail(err, errlen, name, "the header is not a JSON object"); }
     free(text);
     return root;

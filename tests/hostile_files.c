@@ -1,5 +1,10 @@
 /* tests/hostile_files.c — hostile input files for the tests (hostile_files.h). */
 #include "tests/hostile_files.h"
+#include "data/dataset.h"
+#include "data/depthio.h"
+#include "data/image.h"
+#include "data/npy.h"
+#include "train/safetensors.h"
 #include "train/checkpoint.h"
 #include "train/checkpoint_format.h"
 #include "train/crc32.h"
@@ -127,4 +132,97 @@ char *hf_deep_json(const char *prefix, int depth, const char *suffix)
     memset(s + pl + depth, ']', (size_t)depth);
     memcpy(s + pl + 2 * (size_t)depth, suffix, sl + 1);
     return s;
+}
+
+/* ---- the readers ---------------------------------------------------------- */
+
+int hf_read_npy(const char *p, char *err, size_t n)
+{
+    float *v;
+    int shape[NJ_NPY_MAX_DIMS], nd;
+    int rc = nj_npy_read(p, &v, shape, &nd, err, n);
+    if (!rc) free(v);
+    return rc ? -1 : 0;
+}
+
+static int read_depth(const char *p, nj_depth_format f, char *err, size_t n)
+{
+    float *v;
+    int w, h;
+    int rc = nj_depth_read(p, f, 1000.0f, &v, &w, &h, err, n);
+    if (!rc) free(v);
+    return rc;
+}
+int hf_read_pfm(const char *p, char *err, size_t n) { return read_depth(p, NJ_DEPTH_PFM, err, n); }
+int hf_read_png16(const char *p, char *err, size_t n) { return read_depth(p, NJ_DEPTH_PNG16, err, n); }
+
+int hf_read_image(const char *p, char *err, size_t n)
+{
+    nj_image im;
+    int rc = nj_image_load(p, &im, err, n);
+    if (!rc) nj_image_free(&im);
+    return rc;
+}
+
+int hf_read_checkpoint(const char *p, char *err, size_t n)
+{
+    nj_model m;
+    int rc = nj_checkpoint_load(p, &m, NULL, NULL, err, n);
+    if (!rc) nj_model_free(&m);
+    return rc;
+}
+
+int hf_read_safetensors(const char *p, char *err, size_t n)
+{
+    nj_safetensors st;
+    int rc = nj_safetensors_read(&st, p, err, n);
+    if (!rc) nj_safetensors_free(&st);
+    return rc;
+}
+
+int hf_read_safetensors_init(const char *p, char *err, size_t n)
+{
+    if (hf_read_safetensors(p, err, n)) return -1;
+    nj_model_config c;
+    nj_model_config_default(&c);
+    c.stages = 1;
+    c.width = 0.25f;
+    c.scales = 1;
+    c.pose = 0;
+    nj_model m;
+    if (nj_model_init(&m, &c, err, n)) return -1;
+    int rc = nj_safetensors_init_model(p, &m, err, n);
+    nj_model_free(&m);
+    return rc;
+}
+
+int hf_read_dataset(const char *p, char *err, size_t n)
+{
+    nj_problems pr;
+    nj_problems_init(&pr);
+    nj_dataset ds;
+    int probs = nj_dataset_parse(p, &ds, &pr);
+    if (probs) snprintf(err, n, "%s", pr.msg[0]);
+    nj_dataset_free(&ds);
+    nj_problems_free(&pr);
+    return probs ? -1 : 0;
+}
+
+int hf_read_config(const char *p, char *err, size_t n)
+{
+    nj_train_config c;
+    nj_train_config_default(&c);
+    return nj_train_config_load(&c, p, err, n);
+}
+
+hf_reader hf_reader_for(const char *t)
+{
+    static const struct { const char *name; hf_reader fn; } map[] = {
+        {"fuzz_npy", hf_read_npy}, {"fuzz_pfm", hf_read_pfm}, {"fuzz_png16", hf_read_png16},
+        {"fuzz_image", hf_read_image}, {"fuzz_checkpoint", hf_read_checkpoint},
+        {"fuzz_safetensors", hf_read_safetensors_init}, {"fuzz_dataset_json", hf_read_dataset},
+        {"fuzz_config_json", hf_read_config}};
+    for (size_t i = 0; i < sizeof map / sizeof map[0]; i++)
+        if (!strcmp(map[i].name, t)) return map[i].fn;
+    return NULL;
 }

@@ -29,4 +29,20 @@ int hf_safetensors(const char *path, const char *json, uint64_t claimed, size_t 
  * prefix, depth opening brackets, depth closing ones, suffix. */
 char *hf_deep_json(const char *prefix, int depth, const char *suffix);
 
+/* The readers of outside input as one function type: 0 when the file was
+ * read (everything is freed again), -1 with the reader's message in err. */
+typedef int (*hf_reader)(const char *path, char *err, size_t errlen);
+int hf_read_npy(const char *path, char *err, size_t errlen);
+int hf_read_pfm(const char *path, char *err, size_t errlen);
+int hf_read_png16(const char *path, char *err, size_t errlen);     /* depth, scale 1000 */
+int hf_read_image(const char *path, char *err, size_t errlen);     /* probe + decode */
+int hf_read_checkpoint(const char *path, char *err, size_t errlen);
+int hf_read_safetensors(const char *path, char *err, size_t errlen);
+/* nj_safetensors_read, then loading into the tiny model of hf_tiny_checkpoint. */
+int hf_read_safetensors_init(const char *path, char *err, size_t errlen);
+int hf_read_dataset(const char *path, char *err, size_t errlen);   /* first problem line */
+int hf_read_config(const char *path, char *err, size_t errlen);
+/* The reader a fuzz target exercises ("fuzz_npy" → hf_read_npy, ...), or NULL. */
+hf_reader hf_reader_for(const char *fuzz_target);
+
 #endif

@@ -49,74 +49,7 @@
 #define UNDER_ASAN 0
 #endif
 
-typedef int (*reader_fn)(const char *path, char *err, size_t errlen);
-
 static char dir[256];
-
-/* ---- readers as one function type --------------------------------------- */
-
-static int rd_npy(const char *p, char *err, size_t n)
-{
-    float *v;
-    int shape[NJ_NPY_MAX_DIMS], nd;
-    int rc = nj_npy_read(p, &v, shape, &nd, err, n);
-    if (!rc) free(v);
-    return rc;
-}
-
-static int rd_depth(const char *p, nj_depth_format f, char *err, size_t n)
-{
-    float *v;
-    int w, h;
-    int rc = nj_depth_read(p, f, 1000.0f, &v, &w, &h, err, n);
-    if (!rc) free(v);
-    return rc;
-}
-static int rd_pfm(const char *p, char *err, size_t n) { return rd_depth(p, NJ_DEPTH_PFM, err, n); }
-static int rd_png16(const char *p, char *err, size_t n) { return rd_depth(p, NJ_DEPTH_PNG16, err, n); }
-
-static int rd_image(const char *p, char *err, size_t n)
-{
-    nj_image im;
-    int rc = nj_image_load(p, &im, err, n);
-    if (!rc) nj_image_free(&im);
-    return rc;
-}
-
-static int rd_ckpt(const char *p, char *err, size_t n)
-{
-    nj_model m;
-    int rc = nj_checkpoint_load(p, &m, NULL, NULL, err, n);
-    if (!rc) nj_model_free(&m);
-    return rc;
-}
-
-static int rd_st(const char *p, char *err, size_t n)
-{
-    nj_safetensors st;
-    int rc = nj_safetensors_read(&st, p, err, n);
-    if (!rc) nj_safetensors_free(&st);
-    return rc;
-}
-
-static int rd_dataset(const char *p, char *err, size_t n)
-{
-    nj_problems pr;
-    nj_problems_init(&pr);
-    nj_dataset ds;
-    int probs = nj_dataset_parse(p, &ds, &pr);
-    if (probs) snprintf(err, n, "%s", pr.msg[0]);
-    nj_dataset_free(&ds);
-    nj_problems_free(&pr);
-    return probs ? -1 : 0;
-}
-
-static int rd_config(const char *p, char *err, size_t n)
-{
-    nj_train_config c;
-    nj_train_config_default(&c);
-    return nj_train_config_load(&c, p, err, n);
-}
 
 /* ---- running one case ---------------------------------------------------- */
 
@@ -133,7 +66,7 @@ static void limit_memory(void)
 }
 
 /* Runs fn on path in a child; the child sends back the message. */
-static int run_child(reader_fn fn, const char *path, char *msg, size_t len, int *signaled)
+static int run_child(hf_reader fn, const char *path, char *msg, size_t len, int *signaled)
 {
     int fd[2];
     if (pipe(fd)) return -1;
@@ -158,7 +91,7 @@ static int run_child(reader_fn fn, const char *path, char *msg, size_t len, int 
     return WIFEXITED(st) ? WEXITSTATUS(st) : -1;
 }
 
-static void refused(const char *name, reader_fn fn, const char *path, const char *want)
+static void refused(const char *name, hf_reader fn, const char *path, const char *want)
 {
     char msg[1200];
     int sig = 0, rc = run_child(fn, path, msg, sizeof msg, &sig);
@@ -182,22 +115,22 @@ static void npy_cases(void)
 {
     const char *p = file("huge.npy");
     hf_npy(p, "{'descr': '<f4', 'fortran_order': False, 'shape': (40000, 40000), }", 16);
-    refused("hostile npy: 40000x40000 claimed, 16 data bytes", rd_npy, p, "truncated");
+    refused("hostile npy: 40000x40000 claimed, 16 data bytes", hf_read_npy, p, "truncated");
     p = file("huge2.npy");
     hf_npy(p, "{'descr': '<f8', 'fortran_order': False, 'shape': (100000, 100000, 100000), }", 16);
-    refused("hostile npy: 10^15 elements claimed", rd_npy, p, "2^31");
+    refused("hostile npy: 10^15 elements claimed", hf_read_npy, p, "2^31");
     p = file("neg.npy");
     hf_npy(p, "{'descr': '<f4', 'fortran_order': False, 'shape': (-1, 3), }", 12);
-    refused("hostile npy: negative dimension", rd_npy, p, "negative dimension");
+    refused("hostile npy: negative dimension", hf_read_npy, p, "negative dimension");
     p = file("rank.npy");
     hf_npy(p, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 1, 1, 1, 1), }", 4);
-    refused("hostile npy: rank 6", rd_npy, p, "more than 4 dimensions");
+    refused("hostile npy: rank 6", hf_read_npy, p, "more than 4 dimensions");
     p = file("trunc.npy");
     hf_npy(p, "{'descr': '<f4', 'fortran_order': False, 'shape': (2, 3), }", 20);
-    refused("hostile npy: truncated data", rd_npy, p, "truncated");
+    refused("hostile npy: truncated data", hf_read_npy, p, "truncated");
     p = file("hlen.npy");
     hf_write(p, "\x93NUMPY\x02\x00\xff\xff\x0f\x00{", 13);
-    refused("hostile npy: header length past the end", rd_npy, p, "header length");
+    refused("hostile npy: header length past the end", hf_read_npy, p, "header length");
 }
 
 static void ckpt_case(const uint8_t *good, size_t len, const char *name, const char *fname, size_t at,
@@ -210,7 +143,7 @@ static void ckpt_case(const uint8_t *good, size_t len, const char *name, const c
     const char *p = file(fname);
     hf_write(p, b, len);
     free(b);
-    refused(name, rd_ckpt, p, want);
+    refused(name, hf_read_checkpoint, p, want);
 }
 
 /* The checkpoint with its configuration replaced by `cfg` (CRC fixed). */
@@ -227,7 +160,7 @@ static void ckpt_config_case(const uint8_t *good, size_t len, const char *cfg, c
     const char *p = file("hugemodel.ckpt");
     hf_write(p, b, out);
     free(b);
-    refused("hostile checkpoint: stored config describes a huge model (width 8, 6 stages)", rd_ckpt, p, want);
+    refused("hostile checkpoint: stored config describes a huge model (width 8, 6 stages)", hf_read_checkpoint, p, want);
 }
 
 static void checkpoint_cases(void)
@@ -253,7 +186,7 @@ static void checkpoint_cases(void)
                      "stored architecture needs");
     const char *p = file("trunc.ckpt");
     hf_write(p, good, len / 2);
-    refused("hostile checkpoint: truncated to half", rd_ckpt, p, "checksum mismatch");
+    refused("hostile checkpoint: truncated to half", hf_read_checkpoint, p, "checksum mismatch");
     free(good);
 }
 
@@ -261,28 +194,28 @@ static void image_cases(void)
 {
     const char *p = file("huge.png");
     hf_png_header(p, 100000, 100000, 8, 2);
-    refused("hostile png frame: 100000x100000 header", rd_image, p, "refusing sides above");
+    refused("hostile png frame: 100000x100000 header", hf_read_image, p, "refusing sides above");
     p = file("wide.png");
     hf_png_header(p, 16000, 4000, 8, 2);
-    refused("hostile png frame: 16000x4000 in a 70-byte file", rd_image, p, "more than a");
+    refused("hostile png frame: 16000x4000 in a 70-byte file", hf_read_image, p, "more than a");
     p = file("huge16.png");
     hf_png_header(p, 100000, 100000, 16, 0);
-    refused("hostile png16 depth: 100000x100000 header", rd_png16, p, "refusing sides above");
+    refused("hostile png16 depth: 100000x100000 header", hf_read_png16, p, "refusing sides above");
     p = file("wide16.png");
     hf_png_header(p, 16000, 4000, 16, 0);
-    refused("hostile png16 depth: 16000x4000 in a 70-byte file", rd_png16, p, "more than a");
+    refused("hostile png16 depth: 16000x4000 in a 70-byte file", hf_read_png16, p, "more than a");
     p = file("notpng.png");
     hf_write(p, "GIF89a\x01\x00\x01\x00\x00\x00\x00;", 14);
-    refused("hostile frame: a GIF named .png is not decoded", rd_image, p, "not a PNG or JPEG");
+    refused("hostile frame: a GIF named .png is not decoded", hf_read_image, p, "not a PNG or JPEG");
     p = file("huge.pfm");
     hf_write(p, "Pf\n16384 16384\n-1.0\n\0\0\0\0", 24);
-    refused("hostile pfm: 16384x16384 claimed", rd_pfm, p, "too large");
+    refused("hostile pfm: 16384x16384 claimed", hf_read_pfm, p, "too large");
     p = file("big.pfm");
     hf_write(p, "Pf\n8000 8000\n-1.0\n\0\0\0\0", 22);
-    refused("hostile pfm: 8000x8000 claimed, 4 data bytes", rd_pfm, p, "needs");
+    refused("hostile pfm: 8000x8000 claimed, 4 data bytes", hf_read_pfm, p, "needs");
     p = file("neg.pfm");
     hf_write(p, "Pf\n-5 3\n-1.0\n", 13);
-    refused("hostile pfm: negative size", rd_pfm, p, "not in 1..");
+    refused("hostile pfm: negative size", hf_read_pfm, p, "not in 1..");
 }
 
 static void json_cases(void)
@@ -291,44 +224,44 @@ static void json_cases(void)
     const char *p = file("deep-dataset.json");
     hf_write(p, t, strlen(t));
     free(t);
-    refused("hostile dataset json: nested 10000 deep", rd_dataset, p, "nested more than");
+    refused("hostile dataset json: nested 10000 deep", hf_read_dataset, p, "nested more than");
     t = hf_deep_json("{\"run\": ", 10000, "}");
     p = file("deep-config.json");
     hf_write(p, t, strlen(t));
     free(t);
-    refused("hostile config json: nested 10000 deep", rd_config, p, "nested more than");
+    refused("hostile config json: nested 10000 deep", hf_read_config, p, "nested more than");
     t = hf_deep_json("{\"a\": ", 10000, "}");
     p = file("deep.safetensors");
     hf_safetensors(p, t, UINT64_MAX, 0);
     free(t);
-    refused("hostile safetensors: header nested 10000 deep", rd_st, p, "nested more than");
+    refused("hostile safetensors: header nested 10000 deep", hf_read_safetensors, p, "nested more than");
 }
 
 static void safetensors_cases(void)
 {
     const char *p = file("hlen.safetensors");
     hf_safetensors(p, "{}", (uint64_t)1 << 60, 0);
-    refused("hostile safetensors: header length 2^60", rd_st, p, "100 MB limit");
+    refused("hostile safetensors: header length 2^60", hf_read_safetensors, p, "100 MB limit");
     p = file("hlen2.safetensors");
     hf_safetensors(p, "{}", 1000, 0);
-    refused("hostile safetensors: header length past the end", rd_st, p, "runs past the end");
+    refused("hostile safetensors: header length past the end", hf_read_safetensors, p, "runs past the end");
     p = file("shape.safetensors");
     hf_safetensors(p, "{\"w\": {\"dtype\": \"F32\", \"shape\": [100000, 100000, 100000], \"data_offsets\": [0, 8]}}",
                    UINT64_MAX, 8);
-    refused("hostile safetensors: 10^15 elements claimed", rd_st, p, "more elements than the file holds");
+    refused("hostile safetensors: 10^15 elements claimed", hf_read_safetensors, p, "more elements than the file holds");
     p = file("neg.safetensors");
     hf_safetensors(p, "{\"w\": {\"dtype\": \"F32\", \"shape\": [-2], \"data_offsets\": [0, 8]}}", UINT64_MAX, 8);
-    refused("hostile safetensors: negative dimension", rd_st, p, "not a non-negative integer");
+    refused("hostile safetensors: negative dimension", hf_read_safetensors, p, "not a non-negative integer");
     p = file("offs.safetensors");
     hf_safetensors(p, "{\"w\": {\"dtype\": \"F32\", \"shape\": [2], \"data_offsets\": [0, 800000000]}}", UINT64_MAX,
                    8);
-    refused("hostile safetensors: offsets past the data", rd_st, p, "outside");
+    refused("hostile safetensors: offsets past the data", hf_read_safetensors, p, "outside");
     p = file("overlap.safetensors");
     hf_safetensors(p,
                    "{\"a\": {\"dtype\": \"F32\", \"shape\": [2], \"data_offsets\": [0, 8]},"
                    " \"b\": {\"dtype\": \"F32\", \"shape\": [1], \"data_offsets\": [4, 8]}}",
                    UINT64_MAX, 8);
-    refused("hostile safetensors: overlapping tensors", rd_st, p, "overlap");
+    refused("hostile safetensors: overlapping tensors", hf_read_safetensors, p, "overlap");
 }
 
 /* ---- through the command line ------------------------------------------- */

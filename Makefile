@@ -64,9 +64,8 @@ test: deps-test $(BIN) $(TEST_BIN)
 	@NJ_BIN=./$(BIN) sh tests/run.sh $(B)/tests
 
 # The whole suite under ASan+UBSan in build-san/ (end-to-end training reduced
-# by NJ_TEST_REDUCED=1; tests/sanitize.env documents the runtime options).
-SAN_ENV := NJ_TEST_REDUCED=1 ASAN_OPTIONS=detect_leaks=1:abort_on_error=0:strict_string_checks=1 \
-           LSAN_OPTIONS=suppressions=$(CURDIR)/tests/lsan.supp:print_suppressions=0 \
+# by NJ_TEST_REDUCED=1).  Leak checking is on and needs no suppressions.
+SAN_ENV := NJ_TEST_REDUCED=1 ASAN_OPTIONS=detect_leaks=1:strict_string_checks=1 \
            UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
 sanitize: deps-test
 	@$(MAKE) --no-print-directory B=build-san BIN=build-san/nightjar SAN=1 OPT=-O1 \

@@ -264,6 +264,36 @@ static void safetensors_cases(void)
     refused("hostile safetensors: overlapping tensors", hf_read_safetensors, p, "overlap");
 }
 
+/* The checkpoint reader bounds a file's claims with nj_model_count: it must
+ * equal what nj_model_init builds, for every kind of architecture. */
+static void model_count(void)
+{
+    int bad = 0, n = 0;
+    char err[256];
+    for (int stages = 1; stages <= 6; stages++)
+        for (int norm = 0; norm < 3; norm++)
+            for (int pose = 0; pose < 2; pose++) {
+                nj_model_config c;
+                nj_model_config_default(&c);
+                c.stages = stages;
+                c.scales = stages < 4 ? stages : 4;
+                c.width = stages > 4 ? 0.25f : 0.5f;
+                c.norm = norm == 0 ? NJ_NORM_BATCH : norm == 1 ? NJ_NORM_GROUP : NJ_NORM_NONE;
+                c.pose = pose;
+                c.pose_stages = stages;
+                c.pose_width = 0.75f;
+                nj_model m;
+                if (nj_model_init(&m, &c, err, sizeof err)) { bad++; continue; }
+                uint64_t p, b;
+                nj_model_count(&c, &p, &b);
+                bad += p != nj_params_numel(&m.params) || b != nj_params_numel(&m.buffers);
+                n++;
+                nj_model_free(&m);
+            }
+    check(bad == 0 && n == 36, "nj_model_count equals the built model's parameters and buffers (36 architectures)",
+          "%d of %d differ", bad, n);
+}
+
 /* ---- through the command line ------------------------------------------- */
 
 static void cli_case(const char *name, const char *args, const char *want_file, const char *want)
@@ -318,6 +348,7 @@ int main(void)
     if (ref_mkdtemp(dir, sizeof dir, "hostile")) { check(0, "temp folder", "%s", dir); return test_exit(); }
     if (UNDER_ASAN) printf("# AddressSanitizer build: no RLIMIT_AS (the refusals are still checked)\n");
     npy_cases();
+    model_count();
     checkpoint_cases();
     image_cases();
     json_cases();

@@ -11,7 +11,20 @@ CFLAGS   ?= $(OPT) $(ARCH) -g
 CFLAGS   += -std=c11 -Wall -Wextra -fopenmp -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE \
             -I. -I/usr/include/stb -MMD -MP
 LDLIBS   += -lopenblas -lcjson -lstb -lm -fopenmp
-B        := build
+B        ?= build
+# the program the tests run (make sanitize builds its own in build-san/)
+BIN      ?= nightjar
+# SAN=1: AddressSanitizer + UndefinedBehaviorSanitizer, every error fatal
+# FUZZ=1: objects for libFuzzer targets (clang), with ASan+UBSan
+ifeq ($(FUZZ),1)
+SANFLAGS := -fsanitize=fuzzer-no-link,address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
+CFLAGS   += $(SANFLAGS)
+endif
+ifeq ($(SAN),1)
+SANFLAGS := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
+CFLAGS   += $(SANFLAGS)
+LDLIBS   += $(SANFLAGS)
+endif
 
 LIB_SRC  := $(wildcard nn/*.c losses/*.c data/*.c) $(filter-out train/main.c,$(wildcard train/*.c))
 LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
@@ -19,8 +32,11 @@ TEST_SRC := $(wildcard tests/test_*.c)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(B)/tests/%)
 TEST_SUP := $(filter-out $(TEST_SRC),$(wildcard tests/*.c))
 TEST_SUP_OBJ := $(TEST_SUP:%.c=$(B)/%.o)
+FUZZ_NAMES := $(filter-out fuzz_input,$(patsubst fuzz/%.c,%,$(wildcard fuzz/fuzz_*.c)))
+FUZZ_SECONDS ?= 60
+FUZZ_CC  ?= clang-14
 
-.PHONY: all deps deps-test test bench bench-nn bench-losses bench-data bench-export demo clean help
+.PHONY: all deps deps-test test sanitize fuzz bench bench-nn bench-losses bench-data bench-export demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
 .SECONDARY:
 all: deps nightjar
@@ -38,14 +54,35 @@ $(B)/libnightjar.a: $(LIB_OBJ)
 	@rm -f $@
 	ar rcs $@ $^
 
-nightjar: $(B)/train/main.o $(B)/libnightjar.a
+$(BIN): $(B)/train/main.o $(B)/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)
 
 $(B)/tests/%: $(B)/tests/%.o $(TEST_SUP_OBJ) $(B)/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)
 
-test: deps-test nightjar $(TEST_BIN)
-	@sh tests/run.sh $(B)/tests
+test: deps-test $(BIN) $(TEST_BIN)
+	@NJ_BIN=./$(BIN) sh tests/run.sh $(B)/tests
+
+# The whole suite under ASan+UBSan in build-san/ (end-to-end training reduced
+# by NJ_TEST_REDUCED=1).  Leak checking is on and needs no suppressions.
+SAN_ENV := NJ_TEST_REDUCED=1 ASAN_OPTIONS=detect_leaks=1:strict_string_checks=1 \
+           UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
+sanitize: deps-test
+	@$(MAKE) --no-print-directory B=build-san BIN=build-san/nightjar SAN=1 OPT=-O1 \
+	    build-san/nightjar $(TEST_BIN:$(B)/%=build-san/%)
+	@$(SAN_ENV) NJ_BIN=./build-san/nightjar sh tests/run.sh build-san/tests
+
+$(B)/fuzzbin/%: $(B)/fuzz/%.o $(B)/fuzz/fuzz_input.o $(B)/libnightjar.a
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) -fsanitize=fuzzer $^ -o $@ $(LDLIBS)
+
+# Every fuzz target (fuzz/) for FUZZ_SECONDS each, one after the other;
+# seeds from tests/fuzz_corpus/<target>/, crashes into build-fuzz/crashes/.
+fuzz:
+	@sh tools/deps.sh fuzz
+	@$(MAKE) --no-print-directory B=build-fuzz CC=$(FUZZ_CC) FUZZ=1 OPT=-O1 \
+	    $(FUZZ_NAMES:%=build-fuzz/fuzzbin/%)
+	@sh tools/fuzz.sh build-fuzz $(FUZZ_SECONDS) $(FUZZ_NAMES)
 
 $(B)/bench/%: $(B)/bench/%.o $(B)/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)
@@ -68,11 +105,13 @@ demo: deps nightjar
 	@sh tools/demo.sh
 
 clean:
-	rm -rf $(B) nightjar
+	rm -rf $(B) build-san build-fuzz nightjar
 
 help:
 	@echo "make            build ./nightjar"
 	@echo "make test       build and run the whole test suite"
+	@echo "make sanitize   the whole test suite under ASan+UBSan (build-san/)"
+	@echo "make fuzz       every fuzz target for FUZZ_SECONDS (default 60) each"
 	@echo "make demo       the main job end to end on generated data"
 	@echo "make bench      speed figures (never part of the tests)"
 	@echo "make clean      remove build output"

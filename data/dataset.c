@@ -3,6 +3,7 @@
  * pointer; every missing or ill-typed key is one problem line naming the
  * JSON file and the sequence. */
 #include "data/dataset.h"
+#include "data/jsondepth.h"
 #include <cjson/cJSON.h>
 #include <errno.h>
 #include <math.h>
@@ -56,7 +57,9 @@ static void bad_json(const char *path, const char *text, const char *at, nj_prob
     int k = 0;
     for (const char *c = at; *c && *c != '\n' && k < 20; c++) near[k++] = *c;
     near[k] = 0;
-    if (k) nj_problem(pr, "%s:%d:%d: bad JSON near '%s'", path, line, col, near);
+    if (nj_json_too_deep(text, at))
+        nj_problem(pr, "%s:%d:%d: bad JSON: nested more than %d levels deep", path, line, col, CJSON_NESTING_LIMIT);
+    else if (k) nj_problem(pr, "%s:%d:%d: bad JSON near '%s'", path, line, col, near);
     else nj_problem(pr, "%s:%d:%d: bad JSON (unexpected end of text)", path, line, col);
 }
 

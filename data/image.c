@@ -1,6 +1,8 @@
 /* data/image.c — decoding PNG/JPEG into planar float RGB with size limits. */
 #include "data/image.h"
 #include <errno.h>
+#include <limits.h>
+#include <stdint.h>
 #include <stb_image.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -23,7 +25,31 @@ void nj_image_free(nj_image *im)
     im->w = im->h = 0;
 }
 
-static int check_limits(const char *path, int w, int h, char *err, size_t errlen)
+/* PNG or JPEG by content: stb_image would also decode GIF, BMP, PSD, TGA,
+ * HDR, PIC and PNM, which nightjar never reads; refusing them keeps those
+ * decoders away from untrusted files.  For a PNG, *w and *h receive the
+ * IHDR size (checked by us before stb_image parses anything); -1 for JPEG. */
+static int check_signature(const char *path, int *w, int *h, char *err, size_t errlen)
+{
+    static const unsigned char png[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
+    unsigned char b[24] = {0};
+    FILE *f = fopen(path, "rb");
+    size_t n = f ? fread(b, 1, sizeof b, f) : 0;
+    if (f) fclose(f);
+    *w = *h = -1;
+    if (n >= 3 && b[0] == 0xff && b[1] == 0xd8 && b[2] == 0xff) return 0;
+    if (n == sizeof b && !memcmp(b, png, 8) && !memcmp(b + 12, "IHDR", 4)) {
+        uint32_t pw = (uint32_t)b[16] << 24 | (uint32_t)b[17] << 16 | (uint32_t)b[18] << 8 | b[19];
+        uint32_t ph = (uint32_t)b[20] << 24 | (uint32_t)b[21] << 16 | (uint32_t)b[22] << 8 | b[23];
+        *w = pw > INT_MAX ? INT_MAX : (int)pw;
+        *h = ph > INT_MAX ? INT_MAX : (int)ph;
+        return 0;
+    }
+    snprintf(err, errlen, "%s: unreadable image (not a PNG or JPEG file)", path);
+    return -1;
+}
+
+static int check_limits(const char *path, int w, int h, long long bytes, char *err, size_t errlen)
 {
     if (w <= 0 || h <= 0) {
         snprintf(err, errlen, "%s: image has an empty size %dx%d", path, w, h);
@@ -37,6 +63,14 @@ static int check_limits(const char *path, int w, int h, char *err, size_t errlen
     if ((long)w * (long)h > NJ_IMAGE_MAX_PIXELS) {
         snprintf(err, errlen, "%s: image is %dx%d (%.1f MP); refusing more than %ld MP",
                  path, w, h, (double)w * h / 1e6, NJ_IMAGE_MAX_PIXELS / 1000000);
+        return -1;
+    }
+    /* deflate expands at most 1032:1 and a PNG pixel takes at least 1 bit, so
+     * no PNG (nor JPEG) of `bytes` bytes decodes to more than ~8256·bytes
+     * pixels: a larger header is a lie, refused before anything is allocated. */
+    if ((double)w * h > NJ_IMAGE_PIXELS_PER_BYTE * (double)bytes + (1 << 20)) {
+        snprintf(err, errlen, "%s: header claims %dx%d pixels, more than a %lld-byte file can hold",
+                 path, w, h, bytes);
         return -1;
     }
     return 0;
@@ -53,12 +87,14 @@ int nj_image_probe(const char *path, int *w, int *h, char *err, size_t errlen)
         snprintf(err, errlen, "%s: not a regular file", path);
         return -1;
     }
+    if (check_signature(path, w, h, err, errlen)) return -1;
+    if (*w >= 0 && check_limits(path, *w, *h, (long long)st.st_size, err, errlen)) return -1;
     int comp = 0;
     if (!stbi_info(path, w, h, &comp)) {
         snprintf(err, errlen, "%s: unreadable image (%s)", path, stbi_failure_reason());
         return -1;
     }
-    return check_limits(path, *w, *h, err, errlen);
+    return check_limits(path, *w, *h, (long long)st.st_size, err, errlen);
 }
 
 /* Interleaved 8-bit RGB → planar float in [0,1]. */

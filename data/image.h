@@ -3,8 +3,9 @@
  * An nj_image is float, planar RGB (channel-major: element (c, y, x) at
  * data[(c*h + y)*w + x]), values in [0, 1] — the layout of one NCHW batch
  * item.  Files are decoded with stb_image (PNG, JPEG; 8-bit; grey becomes
- * RGB, alpha is dropped).  Sizes are checked from the file header before any
- * pixel is decoded.
+ * RGB, alpha is dropped; other formats stb_image knows are refused by their
+ * signature).  Sizes are checked from the file header before any pixel is
+ * decoded: sides, megapixels, and pixels per byte of the file.
  *
  * Resizing is separable.  Along an axis that shrinks it is an area filter
  * (each output pixel is the coverage-weighted mean of the input pixels its
@@ -23,6 +24,9 @@
 
 #define NJ_IMAGE_MAX_SIDE 16384
 #define NJ_IMAGE_MAX_PIXELS (64L * 1000 * 1000)
+/* Upper bound of pixels per file byte for PNG and JPEG (deflate's 1032:1
+ * at 1 bit per pixel, rounded up); headers claiming more are refused. */
+#define NJ_IMAGE_PIXELS_PER_BYTE 8300.0
 
 typedef struct nj_image {
     int w, h;

@@ -68,13 +68,19 @@ static int parse_header(FILE *f, int *w, int *h, int *le, char *why, size_t wl)
     return 0;
 }
 
-static int read_body(FILE *f, long fsize, int w, int h, int le, float *out, char *why, size_t wl)
+/* The data section must be exactly w·h floats (checked before allocating). */
+static int check_length(FILE *f, long fsize, int w, int h, char *why, size_t wl)
 {
     long need = (long)w * h * 4, have = fsize - ftell(f);
     if (have != need) {
         snprintf(why, wl, "PFM %dx%d needs %ld data bytes but has %ld", w, h, need, have);
         return -1;
     }
+    return 0;
+}
+
+static int read_body(FILE *f, int w, int h, int le, float *out, char *why, size_t wl)
+{
     for (int y = h - 1; y >= 0; y--)
         if (fread(out + (size_t)y * w, 4, (size_t)w, f) != (size_t)w) {
             snprintf(why, wl, "read error in the PFM data");
@@ -95,9 +101,10 @@ int nj_pfm_read(const char *path, float **data, int *w, int *h, char *err, size_
     struct stat st;
     char why[160] = "cannot stat";
     int le = 1, rc = fstat(fileno(f), &st) ? -1 : parse_header(f, w, h, &le, why, sizeof why);
+    if (!rc) rc = check_length(f, (long)st.st_size, *w, *h, why, sizeof why);
     float *out = rc ? NULL : malloc((size_t)*w * *h * sizeof(float));
     if (!rc && !out) { snprintf(why, sizeof why, "out of memory"); rc = -1; }
-    if (!rc) rc = read_body(f, (long)st.st_size, *w, *h, le, out, why, sizeof why);
+    if (!rc) rc = read_body(f, *w, *h, le, out, why, sizeof why);
     fclose(f);
     if (rc) {
         free(out);

@@ -66,4 +66,10 @@ int e2e_count(const char *text, const char *needle)
     return n;
 }
 
-int e2e_have_binary(void) { return access("./nightjar", X_OK) == 0; }
+const char *e2e_bin(void)
+{
+    const char *b = getenv("NJ_BIN");
+    return b && b[0] ? b : "./nightjar";
+}
+
+int e2e_have_binary(void) { return access(e2e_bin(), X_OK) == 0; }

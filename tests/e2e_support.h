@@ -17,7 +17,10 @@ int e2e_write(const char *path, const char *text);
 double e2e_json_number(const char *path, const char *key);
 /* Number of lines of `text` containing `needle`. */
 int e2e_count(const char *text, const char *needle);
-/* 1 when ./nightjar exists (tests run from the repository root). */
+/* The program under test: $NJ_BIN when set (make sanitize points it at the
+ * sanitizer build), else ./nightjar (tests run from the repository root). */
+const char *e2e_bin(void);
+/* 1 when e2e_bin() exists and is executable. */
 int e2e_have_binary(void);
 
 #endif

@@ -75,8 +75,8 @@ static void find_paths(const char *argv0)
 {
     const char *slash = strrchr(argv0, '/');
     int len = slash ? (int)(slash - argv0) : 1;
-    snprintf(bin, sizeof bin, "./nightjar");
-    if (access(bin, X_OK) != 0) snprintf(bin, sizeof bin, "%.*s/../../nightjar", len, slash ? argv0 : ".");
+    snprintf(bin, sizeof bin, "%s", e2e_bin());
+    if (!getenv("NJ_BIN") && access(bin, X_OK) != 0) snprintf(bin, sizeof bin, "%.*s/../../nightjar", len, slash ? argv0 : ".");
     tdu_ref_path(argv0, "export_driver.c", driver, sizeof driver);
     snprintf(refdir, sizeof refdir, "%.*s", (int)(strrchr(driver, '/') - driver), driver);
 }

@@ -9,7 +9,13 @@
  * Ground truth is the renderer's exact depth; the metrics are the eval
  * command's (checked against NumPy in test_metrics / test_predict_cli).
  * Not yet checked here (too slow to reach in a test's budget, see the issue
- * notes): monocular AbsRel below both baselines, stereo AbsRel below 0.2. */
+ * notes): monocular AbsRel below both baselines, stereo AbsRel below 0.2.
+ *
+ * NJ_TEST_REDUCED=1 (make sanitize) runs the same pipeline small enough for
+ * sanitizers: 4 sequences of 24 frames, 64×32 training with a half-width
+ * 4-stage model for 1 minute per case, logging every 2 steps.  It checks the
+ * same things except that the stereo model need only beat the untrained
+ * network (not yet the constant baseline) after that minute. */
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/torch_ref.h"
@@ -20,6 +26,13 @@
 
 /* Minutes of training per case: long enough to learn, short for the suite. */
 #define TRAIN_MINUTES "2.5"
+#define REDUCED_MINUTES "1"
+
+static int reduced(void)
+{
+    const char *r = getenv("NJ_TEST_REDUCED");
+    return r && r[0] && strcmp(r, "0") != 0;
+}
 
 static const char *MONO_CONFIG =
     "{ \"run\": { \"name\": \"e2e-mono\", \"seed\": 2, \"threads\": 2, \"log_every\": 10,\n"
@@ -36,6 +49,23 @@ static const char *STEREO_CONFIG =
     "  \"model\": { \"pose\": false },\n"
     "  \"loss\": { \"max_depth\": 40 },\n"
     "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 50 } }\n";
+
+static const char *MONO_REDUCED =
+    "{ \"run\": { \"name\": \"e2e-mono\", \"seed\": 2, \"threads\": 2, \"log_every\": 2,\n"
+    "           \"validate_every\": 20, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
+    "  \"data\": { \"width\": 64, \"height\": 32, \"batch\": 2, \"frame_offsets\": [1],\n"
+    "            \"video\": true, \"stereo\": false, \"duplicate_threshold\": 0.003 },\n"
+    "  \"model\": { \"width\": 0.5, \"stages\": 4 },\n"
+    "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 10 } }\n";
+
+static const char *STEREO_REDUCED =
+    "{ \"run\": { \"name\": \"e2e-stereo\", \"seed\": 2, \"threads\": 2, \"log_every\": 2,\n"
+    "           \"validate_every\": 0, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
+    "  \"data\": { \"width\": 64, \"height\": 32, \"batch\": 2, \"frame_offsets\": [],\n"
+    "            \"video\": false, \"stereo\": true },\n"
+    "  \"model\": { \"pose\": false, \"width\": 0.5, \"stages\": 4 },\n"
+    "  \"loss\": { \"max_depth\": 40 },\n"
+    "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 10 } }\n";
 
 /* Mean "loss" of the first and last `k` step lines of a run's log. */
 static int loss_ends(const char *log, int k, double *first, double *last)
@@ -62,14 +92,14 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
     snprintf(cfg, sizeof cfg, "%s/%s.json", dir, tag);
     e2e_write(cfg, config_text);
     snprintf(log, sizeof log, "%s/%s-train.txt", dir, tag);
-    snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/%s --minutes %s",
-             cfg, data, dir, tag, TRAIN_MINUTES);
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/%s --minutes %s", e2e_bin(),
+             cfg, data, dir, tag, reduced() ? REDUCED_MINUTES : TRAIN_MINUTES);
     int rc = e2e_run(cmd, log);
     char name[128];
     snprintf(name, sizeof name, "%s training runs to its time budget", tag);
     if (!check(rc == 0, name, "exit %d (log %s)", rc, log)) return -1;
     snprintf(log, sizeof log, "%s/%s-eval.txt", dir, tag);
-    snprintf(cmd, sizeof cmd, "./nightjar eval --model %s/%s/final.ckpt --data %s --split test --out %s/%s.metrics.json %s",
+    snprintf(cmd, sizeof cmd, "%s eval --model %s/%s/final.ckpt --data %s --split test --out %s/%s.metrics.json %s", e2e_bin(),
              dir, tag, data, dir, tag, eval_extra);
     rc = e2e_run(cmd, log);
     snprintf(name, sizeof name, "%s model evaluates", tag);
@@ -81,14 +111,15 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
 static void mono(const char *dir)
 {
     char cmd[2048], data[1024], log[1024], metrics[1024];
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/mono --seed 11 --sequences 6 --frames 100 --size 240x144", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/mono --seed 11 %s", e2e_bin(), dir,
+             reduced() ? "--sequences 4 --frames 24 --size 96x64" : "--sequences 6 --frames 100 --size 240x144");
     snprintf(log, sizeof log, "%s/synth-mono.txt", dir);
     if (!check(e2e_run(cmd, log) == 0, "synth renders the monocular data", "see %s", log)) return;
     snprintf(data, sizeof data, "%s/mono/dataset.json", dir);
-    if (train_and_eval(dir, "mono", MONO_CONFIG, data, "")) return;
+    if (train_and_eval(dir, "mono", reduced() ? MONO_REDUCED : MONO_CONFIG, data, "")) return;
     double first = 0, last = 0;
     snprintf(log, sizeof log, "%s/mono/log.jsonl", dir);
-    if (check(loss_ends(log, 10, &first, &last) == 0, "monocular training log has step lines", "%s", log))
+    if (check(loss_ends(log, reduced() ? 5 : 10, &first, &last) == 0, "monocular training log has step lines", "%s", log))
         check(last < 0.9 * first, "monocular training lowers the loss", "first %.4f last %.4f", first, last);
     char *text = e2e_slurp(log, NULL);
     char *val = text ? strstr(text, "\"type\":\"val\"") : NULL;
@@ -109,19 +140,24 @@ static void mono(const char *dir)
 static void stereo(const char *dir)
 {
     char cmd[2048], data[1024], log[1024], metrics[1024];
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/stereo --seed 12 --sequences 6 --frames 100 --size 320x192 --stereo", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/stereo --seed 12 --stereo %s", e2e_bin(), dir,
+             reduced() ? "--sequences 4 --frames 24 --size 128x64" : "--sequences 6 --frames 100 --size 320x192");
     snprintf(log, sizeof log, "%s/synth-stereo.txt", dir);
     if (!check(e2e_run(cmd, log) == 0, "synth renders the stereo data", "see %s", log)) return;
     snprintf(data, sizeof data, "%s/stereo/dataset.json", dir);
-    if (train_and_eval(dir, "stereo", STEREO_CONFIG, data, "--max-depth 20")) return;
+    if (train_and_eval(dir, "stereo", reduced() ? STEREO_REDUCED : STEREO_CONFIG, data, "--max-depth 20")) return;
     snprintf(metrics, sizeof metrics, "%s/stereo.metrics.json", dir);
     char *text = e2e_slurp(metrics, NULL);
     check(text && strstr(text, "\"metric\""), "stereo model is evaluated metric (no scaling)", "%s", metrics);
     free(text);
     double m = e2e_json_number(metrics, "absrel"), c = e2e_json_number(metrics, "baseline_constant.absrel");
     double u = e2e_json_number(metrics, "baseline_untrained.absrel");
-    check(m < c && m < u, "stereo-only metric depth beats the median-scaled constant and untrained baselines",
-          "model %.4f, constant %.4f, untrained %.4f (within 20 m)", m, c, u);
+    if (reduced())
+        check(m < u, "stereo-only metric depth beats the untrained network (reduced run)",
+              "model %.4f, constant %.4f, untrained %.4f (within 20 m)", m, c, u);
+    else
+        check(m < c && m < u, "stereo-only metric depth beats the median-scaled constant and untrained baselines",
+              "model %.4f, constant %.4f, untrained %.4f (within 20 m)", m, c, u);
 }
 
 int main(void)

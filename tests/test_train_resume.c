@@ -63,7 +63,7 @@ static pid_t start_training(const char *out, int resume)
         char log[600];
         snprintf(log, sizeof log, "%s.log", out);
         if (!freopen(log, "a", stdout) || !freopen(log, "a", stderr)) _exit(127);
-        execl("./nightjar", "nightjar", "train", "--config", cfg, "--data", data, "--out", out,
+        execl(e2e_bin(), "nightjar", "train", "--config", cfg, "--data", data, "--out", out,
               resume ? "--resume" : "--threads", resume ? "--threads" : "2", resume ? "2" : NULL, (char *)NULL);
         _exit(127);
     }
@@ -120,12 +120,12 @@ static void truncated_checkpoint(void)
 {
     char out[512], path[600], log[600], cmd[2048];
     snprintf(out, sizeof out, "%s/trunc", dir);
-    snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s --steps 6 --threads 2", cfg, data, out);
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s --steps 6 --threads 2", e2e_bin(), cfg, data, out);
     snprintf(log, sizeof log, "%s.log", out);
     if (!check(e2e_run(cmd, log) == 0, "6-step run for the truncation test", "see %s", log)) return;
     snprintf(path, sizeof path, "%s/step-00000006.ckpt", out);
     if (truncate(path, 1000) != 0) { check(0, "truncate newest checkpoint", "%s", path); return; }
-    snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s --steps 9 --threads 2 --resume", cfg, data, out);
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s --steps 9 --threads 2 --resume", e2e_bin(), cfg, data, out);
     int rc = e2e_run(cmd, log);
     char *text = e2e_slurp(log, NULL);
     check(rc == 0 && text && strstr(text, "skipping unreadable checkpoint") && strstr(text, "resuming at step 3"),
@@ -175,7 +175,7 @@ static void bad_input(void)
             else if (!strncmp(s, "OUT", 3)) { d += sprintf(d, "%s", dir); s += 3; }
             else *d++ = *s++, *d = 0;
         }
-        snprintf(cmd, sizeof cmd, "./nightjar train %s", args);
+        snprintf(cmd, sizeof cmd, "%s train %s", e2e_bin(), args);
         snprintf(log, sizeof log, "%s/bad%zu.txt", dir, i);
         int rc = e2e_run(cmd, log);
         char *text = e2e_slurp(log, NULL), name[160];
@@ -195,10 +195,10 @@ int main(void)
     snprintf(cfg, sizeof cfg, "%s/resume.json", dir);
     snprintf(data, sizeof data, "%s/data/dataset.json", dir);
     e2e_write(cfg, CONFIG);
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 96x64", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 96x64", e2e_bin(), dir);
     snprintf(log, sizeof log, "%s/synth.txt", dir);
     if (check(e2e_run(cmd, log) == 0, "synth renders the resume data", "see %s", log)) {
-        snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/ref --threads 2", cfg, data, dir);
+        snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/ref --threads 2", e2e_bin(), cfg, data, dir);
         snprintf(log, sizeof log, "%s/ref.log", dir);
         snprintf(ref, sizeof ref, "%s/ref/final.ckpt", dir);
         double t0 = now_s();

@@ -2,15 +2,18 @@
 # nightjar dependency helper: makes sure the Debian packages a make target needs
 # are installed. As root it runs apt-get; otherwise it prints the exact command
 # and exits non-zero so the build stops with a clear instruction.
-#   usage: tools/deps.sh build|test|all
+#   usage: tools/deps.sh build|test|fuzz|all
 set -u
 BUILD_PKGS="gcc make libopenblas-dev libstb-dev libcjson-dev"
+FUZZ_PKGS="clang-14 libclang-rt-14-dev libomp-14-dev"
 TEST_PKGS="python3 python3-torch python3-numpy python3-scipy python3-skimage python3-opencv python3-onnx gcc-aarch64-linux-gnu libc6-dev-arm64-cross qemu-user chromium tidy"
 
 case "${1:-build}" in
   build) want="$BUILD_PKGS" ;;
-  test|all) want="$BUILD_PKGS $TEST_PKGS" ;;
-  *) echo "deps.sh: unknown target '$1' (expected build, test or all)" >&2; exit 2 ;;
+  test) want="$BUILD_PKGS $TEST_PKGS" ;;
+  fuzz) want="$BUILD_PKGS $FUZZ_PKGS" ;;
+  all) want="$BUILD_PKGS $TEST_PKGS $FUZZ_PKGS" ;;
+  *) echo "deps.sh: unknown target '$1' (expected build, test, fuzz or all)" >&2; exit 2 ;;
 esac
 
 if ! command -v dpkg-query >/dev/null 2>&1; then

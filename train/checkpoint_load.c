@@ -2,8 +2,10 @@
  * checkpoint_format.h).  Everything is validated before anything big is
  * allocated: magic and version, then the CRC-32 over the whole file, then
  * every claimed length against the bytes actually left in the file, then
- * the tensor table against the architecture rebuilt from the stored
- * configuration; only then are the tensor values read. */
+ * the data size against the architecture the stored configuration describes
+ * (counted by nj_model_count, not built: a small file cannot make the reader
+ * allocate a huge model), then the tensor table against the architecture
+ * rebuilt from it; only then are the tensor values read. */
 #include "train/checkpoint.h"
 #include "train/checkpoint_format.h"
 #include "train/crc32.h"
@@ -292,6 +294,13 @@ static int read_body(reader *r, nj_model *m, nj_train_config *cfg, nj_train_stat
     uint32_t n = 0;
     if (read_config(r, cfg) || read_state(r, st) || read_table(r, &e, &n)) return -1;
     char why[256];
+    uint64_t np, nb;
+    nj_model_count(&cfg->model, &np, &nb);
+    if (r->left != 4 * (3 * np + nb)) {   /* before allocating what the config claims */
+        free(e);
+        return fail(r, "the stored architecture needs %llu bytes of tensors but the file holds %llu",
+                    (unsigned long long)(4 * (3 * np + nb)), (unsigned long long)r->left);
+    }
     if (nj_model_init(m, &cfg->model, why, sizeof why)) {
         free(e);
         return fail(r, "stored architecture: %s", why);

@@ -3,6 +3,7 @@
  * and column, unknown keys with a suggestion, wrong types, out-of-range
  * values, then the cross-field checks), and writing it back. */
 #include "train/config_fields.h"
+#include "data/jsondepth.h"
 #include <cjson/cJSON.h>
 #include <errno.h>
 #include <math.h>
@@ -300,7 +301,10 @@ static int syntax_error(reader *r, const char *text, const char *at)
     int k = 0;
     for (const char *p = at; *p && *p != '\n' && k < 20; p++) near[k++] = *p;
     near[k] = 0;
-    if (k) snprintf(r->err, r->errlen, "%s:%d:%d: bad JSON near '%s'", r->origin, line, col, near);
+    if (nj_json_too_deep(text, at))
+        snprintf(r->err, r->errlen, "%s:%d:%d: bad JSON: nested more than %d levels deep", r->origin, line, col,
+                 CJSON_NESTING_LIMIT);
+    else if (k) snprintf(r->err, r->errlen, "%s:%d:%d: bad JSON near '%s'", r->origin, line, col, near);
     else snprintf(r->err, r->errlen, "%s:%d:%d: bad JSON (unexpected end of text)", r->origin, line, col);
     return -1;
 }

@@ -145,6 +145,40 @@ static int build_pose(builder *b)
     return 0;
 }
 
+/* Scalars of one unit (see add_unit): parameters and batch-norm buffers. */
+static void count_unit(int cin, int cout, int k, nj_norm_kind norm, uint64_t *params, uint64_t *buffers)
+{
+    *params += (uint64_t)cout * cin * k * k + cout + (norm != NJ_NORM_NONE ? 2u * cout : 0);
+    *buffers += norm == NJ_NORM_BATCH ? 2u * cout : 0;
+}
+
+void nj_model_count(const nj_model_config *c, uint64_t *params, uint64_t *buffers)
+{
+    *params = *buffers = 0;
+    if (c->stages < 1 || c->stages > NJ_MAX_STAGES || c->scales < 1 || c->scales > c->stages) return;
+    int ch[NJ_MAX_STAGES], cin = 3;
+    for (int i = 0; i < c->stages; i++) {
+        ch[i] = width_of(16 << i, c->width);
+        count_unit(cin, ch[i], 3, c->norm, params, buffers);
+        count_unit(ch[i], ch[i], 3, c->norm, params, buffers);
+        cin = ch[i];
+    }
+    for (int i = c->stages - 1; i >= 0; i--) {
+        count_unit(cin, ch[i], 3, c->norm, params, buffers);
+        count_unit(ch[i] + (i > 0 ? ch[i - 1] : 0), ch[i], 3, c->norm, params, buffers);
+        cin = ch[i];
+    }
+    for (int s = 0; s < c->scales; s++) count_unit(ch[s], 1, 3, NJ_NORM_NONE, params, buffers);
+    if (!c->pose || c->pose_stages < 1 || c->pose_stages > NJ_MAX_STAGES) return;
+    cin = 6;
+    for (int i = 0; i < c->pose_stages; i++) {
+        int cout = width_of(16 << i, c->pose_width);
+        count_unit(cin, cout, i == 0 ? 7 : (i == 1 ? 5 : 3), c->norm, params, buffers);
+        cin = cout;
+    }
+    count_unit(cin, 6, 1, NJ_NORM_NONE, params, buffers);
+}
+
 int nj_model_init(nj_model *m, const nj_model_config *cfg, char *err, size_t errlen)
 {
     memset(m, 0, sizeof *m);

@@ -20,6 +20,7 @@
 #define NJ_MODEL_H
 #include "nn/param.h"
 #include "nn/ops.h"
+#include <stdint.h>
 
 #define NJ_MAX_STAGES 6
 #define NJ_MAX_UNITS 48
@@ -66,6 +67,10 @@ void nj_model_config_default(nj_model_config *cfg);
 /* Builds and initialises the model; returns 0 or -1 with a message in err. */
 int nj_model_init(nj_model *m, const nj_model_config *cfg, char *err, size_t errlen);
 void nj_model_free(nj_model *m);
+/* Scalars the architecture would hold — parameters and batch-norm buffers —
+ * computed without building it (readers bound a file's claims with it
+ * before allocating).  Both 0 for an invalid stage/scale count. */
+void nj_model_count(const nj_model_config *cfg, uint64_t *params, uint64_t *buffers);
 
 /* Depth net forward on N×3×H×W images in [0, 1]; disp[s] receives the
  * sigmoid disparity at scale s for s < cfg.scales. */

@@ -221,7 +221,7 @@ static int make_dirs(const char *dir, char *err, size_t errlen)
         char c = p[i];
         p[i] = 0;
         if (mkdir(p, 0777) != 0 && errno != EEXIST) {
-            snprintf(err, errlen, "%s: cannot create folder: %s", p, strerror(errno));
+            snprintf(err, errlen, "%.900s: cannot create folder: %s", p, strerror(errno));
             return -1;
         }
         p[i] = c;

@@ -8,7 +8,7 @@ static void usage(FILE *f)
 {
     fprintf(f,
         "usage: nightjar train --config FILE.json [--data DATASET.json] [--out RUN_DIR]\n"
-        "                      [--minutes N | --hours N] [--steps N] [--resume] [--init CKPT]\n"
+        "                      [--minutes N | --hours N] [--steps N] [--resume] [--init CKPT|FILE.safetensors]\n"
         "                      [--threads N] [--seed N]\n"
         "Trains the depth (and pose) network by self-supervised view synthesis.\n"
         "  --config   training configuration (see configs/)\n"
@@ -16,7 +16,8 @@ static void usage(FILE *f)
         "  --out      run folder (default checkpoints/<run name>)\n"
         "  --minutes, --hours  time budget; --steps  step budget\n"
         "  --resume   continue the run in --out from its newest readable checkpoint\n"
-        "  --init     start from another run's weights (same architecture)\n");
+        "  --init     start from another run's weights (same architecture): a checkpoint,\n"
+        "             or an export made with --format safetensors\n");
 }
 
 typedef struct {

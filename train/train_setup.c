@@ -2,6 +2,7 @@
  * validated data, sample lists, the model (fresh, from --init, or resumed),
  * the optimiser and the batch loader. */
 #include "train/trainer.h"
+#include "train/safetensors.h"
 #include "train/runfiles.h"
 #include <math.h>
 #include <stdio.h>
@@ -54,6 +55,14 @@ static int open_data(nj_trainer *t, char *err, size_t errlen)
     return 0;
 }
 
+/* --init: a checkpoint, or an export in safetensors format (by extension). */
+static int init_weights(const char *path, nj_model *m, char *err, size_t errlen)
+{
+    size_t n = strlen(path);
+    if (n > 12 && !strcmp(path + n - 12, ".safetensors")) return nj_safetensors_init_model(path, m, err, errlen);
+    return nj_checkpoint_init_from(path, m, err, errlen);
+}
+
 static int fresh_model(nj_trainer *t, char *err, size_t errlen)
 {
     nj_model_config mc = t->cfg.model;
@@ -61,7 +70,7 @@ static int fresh_model(nj_trainer *t, char *err, size_t errlen)
     mc.seed = t->cfg.seed;
     if (nj_model_init(&t->model, &mc, err, errlen)) return -1;
     t->model_ready = 1;
-    if (t->cfg.init[0] && nj_checkpoint_init_from(t->cfg.init, &t->model, err, errlen)) return -1;
+    if (t->cfg.init[0] && init_weights(t->cfg.init, &t->model, err, errlen)) return -1;
     memset(&t->st, 0, sizeof t->st);
     nj_rng_seed(&t->rng, (uint64_t)t->cfg.seed * 0x9E3779B97F4A7C15ull + 7);
     t->st.rng[0] = t->rng.s[0];

@@ -32,6 +32,8 @@ typedef struct {
     nj_rng rng;
     char *err;
     size_t errlen;
+    int dry;                 /* count parameters only (nj_model_count) */
+    size_t nparams, nbuffers;
 } builder;
 
 /* Adds conv (+norm) (+act); returns the unit index or -1. */
@@ -45,6 +47,12 @@ static int add_unit(builder *b, const char *name, int group, int cin, int cout, 
     }
     nj_unit *u = &m->units[m->nunits];
     memset(u, 0, sizeof *u);
+    if (b->dry) {
+        b->nparams += (size_t)cout * cin * k * k + cout + (norm != NJ_NORM_NONE ? 2 * (size_t)cout : 0);
+        b->nbuffers += norm == NJ_NORM_BATCH ? 2 * (size_t)cout : 0;
+        u->cin = cin; u->cout = cout; u->k = k; u->stride = stride;
+        return m->nunits++;
+    }
     char nm[64];
     snprintf(nm, sizeof nm, "%s.w", name);
     u->w = nj_params_add(&m->params, nm, group, cout, cin, k, k);
@@ -112,6 +120,7 @@ static int build_depth(builder *b)
          * photometric gradient points the right way.  Starting near (large
          * flow) was measured to train inverted depth even with true poses. */
         nj_unit *u = &m->units[m->head[s]];
+        if (b->dry) continue;
         for (size_t k = 0; k < nj_param_numel(u->w); k++) u->w->data[k] *= 0.1f;
         nj_init_const(u->b, logf(c->head_init / (1.0f - c->head_init)));
     }
@@ -138,11 +147,24 @@ static int build_pose(builder *b)
      * the predicted flow overshoot by pixels and the depth net learns from
      * aliased gradients (measured: inverted depth). */
     nj_unit *u = &m->units[out];
+    m->pose_units[c->pose_stages] = out;
+    if (b->dry) return 0;
     for (size_t k = 0; k < nj_param_numel(u->w); k++) u->w->data[k] *= 0.01f;
     nj_init_const(u->b, 0.0f);
-    m->pose_units[c->pose_stages] = out;
     m->npose = c->pose_stages + 1;
     return 0;
+}
+
+size_t nj_model_count(const nj_model_config *cfg, size_t *buffers)
+{
+    static nj_model m;                /* large; only the unit table is used */
+    memset(&m, 0, sizeof m);
+    m.cfg = *cfg;
+    char err[128];
+    builder b = {.m = &m, .err = err, .errlen = sizeof err, .dry = 1};
+    if (build_depth(&b) || (cfg->pose && build_pose(&b))) return 0;
+    if (buffers) *buffers = b.nbuffers;
+    return b.nparams;
 }
 
 int nj_model_init(nj_model *m, const nj_model_config *cfg, char *err, size_t errlen)

@@ -66,6 +66,10 @@ void nj_model_config_default(nj_model_config *cfg);
 /* Builds and initialises the model; returns 0 or -1 with a message in err. */
 int nj_model_init(nj_model *m, const nj_model_config *cfg, char *err, size_t errlen);
 void nj_model_free(nj_model *m);
+/* Number of parameters (and, in *buffers when non-NULL, batch-norm buffer
+ * values) the model of `cfg` has, without allocating it; 0 for an invalid
+ * architecture.  Not thread-safe. */
+size_t nj_model_count(const nj_model_config *cfg, size_t *buffers);
 
 /* Depth net forward on N×3×H×W images in [0, 1]; disp[s] receives the
  * sigmoid disparity at scale s for s < cfg.scales. */

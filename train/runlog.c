@@ -57,10 +57,17 @@ int nj_runlog_json(nj_runlog *l, const char *json)
     if (n <= 0 || n >= (int)sizeof line) return -1;
     if (l->fd < 0) return -1;
     off_t before = lseek(l->fd, 0, SEEK_END);
-    ssize_t w = write(l->fd, line, (size_t)n);
-    if (w != n) {
-        int e = w < 0 ? errno : ENOSPC;          /* a short write means the device is full */
-        if (w > 0 && before >= 0 && ftruncate(l->fd, before) != 0) { /* best effort: keep whole lines */ }
+    size_t done = 0;
+    int e = 0;
+    while (done < (size_t)n && !e) {          /* one write(); the loop only finishes a short one */
+        ssize_t k = write(l->fd, line + done, (size_t)n - done);
+        if (k > 0) done += (size_t)k;
+        else if (k == 0) e = ENOSPC;
+        else if (errno != EINTR) e = errno;
+    }
+    if (e) {
+        /* cut the partial line off again so the log stays parseable */
+        if (done > 0 && before >= 0 && ftruncate(l->fd, before) != 0) { /* nothing more to do */ }
         return log_failed(l, e);
     }
     if (fdatasync(l->fd) != 0 && errno != EINVAL && errno != EROFS) return log_failed(l, errno);

@@ -281,7 +281,8 @@ int nj_trainer_run(nj_trainer *t)
              "\"resumes\":%d,\"nan_recoveries\":%d}", t->st.step, ended, now_elapsed(t),
              t->st.resumes, t->st.nan_recoveries);
     nj_runlog_json(&t->log, line);
-    if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
+    if (nj_runlog_error(&t->log)) nj_runlog_say(&t->log, "report not written: the run log is incomplete");
+    else if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
     else nj_runlog_say(&t->log, "report: %s/report.html", t->dir);
     nj_trainer_memory_log(t);
     char health[64];

@@ -45,6 +45,17 @@ int rs_run(char *const argv[], const char *log, const rs_limits *lim)
     return rs_wait(rs_spawn(argv, log, lim));
 }
 
+int rs_run_peak(char *const argv[], const char *log, const rs_limits *lim, double *peak_mib)
+{
+    pid_t pid = rs_spawn(argv, log, lim);
+    int st;
+    struct rusage ru;
+    *peak_mib = 0;
+    if (pid < 0 || wait4(pid, &st, 0, &ru) != pid) return -1;
+    *peak_mib = ru.ru_maxrss / 1024.0;
+    return WIFEXITED(st) ? WEXITSTATUS(st) : 128 + WTERMSIG(st);
+}
+
 static int ends_with(const char *s, const char *tail)
 {
     size_t n = strlen(s), k = strlen(tail);

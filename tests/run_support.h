@@ -20,6 +20,9 @@ pid_t rs_spawn(char *const argv[], const char *log, const rs_limits *lim);
 int rs_wait(pid_t pid);
 /* rs_spawn + rs_wait. */
 int rs_run(char *const argv[], const char *log, const rs_limits *lim);
+/* rs_run, also giving the child's peak resident set in MiB (getrusage
+ * through wait4: ru_maxrss). */
+int rs_run_peak(char *const argv[], const char *log, const rs_limits *lim, double *peak_mib);
 
 /* Loads every *.ckpt file in dir with the checkpoint loader.  Returns the
  * number that failed (0: all readable); *count gets the number of files; the

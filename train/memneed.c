@@ -31,6 +31,12 @@ double nj_mem_rss(int peak)
     return v > 0 ? v : 0;
 }
 
+double nj_mem_vm(int peak)
+{
+    double v = proc_kb("/proc/self/status", peak ? "VmPeak" : "VmSize");
+    return v > 0 ? v : 0;
+}
+
 /* A number in a sysfs file ("max" → HUGE_VAL); -1 when unreadable. */
 static double sys_number(const char *path)
 {

@@ -27,11 +27,14 @@ typedef struct nj_mem_need {
     double avail;            /* bytes the process may still take (smallest limit) */
     const char *limit;       /* which limit that is */
     double arena_per_step;   /* the arena estimate alone, for comparison with the measured peak */
+    double start_vm;         /* address space at the estimate (VmSize) */
 } nj_mem_need;
 
 /* Resident set now (peak = 0: VmRSS) or at its high-water mark (peak = 1:
  * VmHWM), in bytes, from /proc/self/status; 0 when unknown. */
 double nj_mem_rss(int peak);
+/* Address space now (peak = 0: VmSize) or its peak (VmPeak), in bytes. */
+double nj_mem_vm(int peak);
 /* Bytes the process may still allocate: the smallest of MemAvailable, the
  * RLIMIT_AS soft limit minus the current address space (minus `virt_extra`
  * the run will reserve beyond its resident need) and the cgroup memory limit

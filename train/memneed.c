@@ -97,6 +97,6 @@ double nj_mem_available(double virt_extra, const char **limit)
         if (room < best) { best = room > 0 ? room : 0; *limit = "RLIMIT_AS (ulimit -v)"; }
     }
     double cg = cgroup_room();
-    if (cg < best) { best = cg > 0 ? cg : 0; *limit = "cgroup memory.max"; }
+    if (cg < best) { best = cg > 0 ? cg : 0; *limit = "the cgroup memory limit"; }
     return best;
 }

@@ -5,6 +5,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 int nj_atomic_open(nj_atomic_file *a, const char *path, char *err, size_t errlen)
@@ -35,6 +36,7 @@ int nj_atomic_open(nj_atomic_file *a, const char *path, char *err, size_t errlen
         a->tmp = NULL;
         return -1;
     }
+    errno = 0;
     return 0;
 }
 
@@ -53,17 +55,32 @@ static void sync_parent(const char *path)
     }
 }
 
+void nj_atomic_test_pause(FILE *f)
+{
+    const char *s = getenv("NJ_TEST_WRITE_PAUSE_MS");
+    long ms = s ? strtol(s, NULL, 10) : 0;
+    if (ms <= 0) return;
+    if (f) fflush(f);
+    struct timespec ts = {ms / 1000, (ms % 1000) * 1000000L};
+    nanosleep(&ts, NULL);
+}
+
 int nj_atomic_close(nj_atomic_file *a, int ok, char *err, size_t errlen)
 {
-    int e = 0;
-    if (ok && (fflush(a->f) != 0 || fsync(fileno(a->f)) != 0)) { ok = 0; e = errno; }
+    /* a caller reporting failure (ok = 0) after a failed stdio write leaves
+     * the reason in errno (stdio sets it; nj_atomic_open cleared it) */
+    int caller_failed = !ok, e = ok ? 0 : errno;
+    if (ok && fflush(a->f) != 0) { ok = 0; e = errno; }
+    if (ok) nj_atomic_test_pause(NULL);
+    if (ok && fsync(fileno(a->f)) != 0) { ok = 0; e = errno; }
     if (fclose(a->f) != 0 && ok) { ok = 0; e = errno; }
     a->f = NULL;
     if (ok && rename(a->tmp, a->path) != 0) { ok = 0; e = errno; }
     if (!ok) {
         unlink(a->tmp);
-        if (e) snprintf(err, errlen, "%s: write failed: %s", a->path, strerror(e));
-        else if (err && errlen && !err[0]) snprintf(err, errlen, "%s: write failed", a->path);
+        int keep = caller_failed && err && errlen && err[0];   /* the caller's own message */
+        if (!keep && e) snprintf(err, errlen, "%s: write failed: %s", a->path, strerror(e));
+        else if (!keep) snprintf(err, errlen, "%s: write failed", a->path);
     } else {
         sync_parent(a->path);
     }

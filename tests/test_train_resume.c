@@ -7,6 +7,7 @@
  *  - command-line and config errors give one line and a non-zero exit. */
 #include "tests/check.h"
 #include "tests/e2e_support.h"
+#include "tests/run_support.h"
 #include "tests/torch_ref.h"
 #include "train/checkpoint.h"
 #include "train/runfiles.h"
@@ -31,27 +32,6 @@ static const char *CONFIG =
     "  \"optim\": { \"lr\": 3e-4, \"warmup_steps\": 4 } }\n";
 
 static char dir[256], cfg[512], data[512];
-
-/* Max |a − b| over all parameters and buffers of two checkpoints. */
-static double weight_diff(const char *a, const char *b, char *err, size_t len)
-{
-    nj_model ma, mb;
-    if (nj_checkpoint_load(a, &ma, NULL, NULL, err, len)) return INFINITY;
-    if (nj_checkpoint_load(b, &mb, NULL, NULL, err, len)) { nj_model_free(&ma); return INFINITY; }
-    double worst = 0;
-    nj_params *pa[2] = {&ma.params, &ma.buffers}, *pb[2] = {&mb.params, &mb.buffers};
-    for (int s = 0; s < 2; s++)
-        for (int i = 0; i < pa[s]->count && i < pb[s]->count; i++) {
-            size_t k = nj_param_numel(pa[s]->items[i]);
-            for (size_t j = 0; j < k; j++) {
-                double d = fabs((double)pa[s]->items[i]->data[j] - pb[s]->items[i]->data[j]);
-                if (!(d <= worst)) worst = d;
-            }
-        }
-    nj_model_free(&ma);
-    nj_model_free(&mb);
-    return worst;
-}
 
 static int file_exists(const char *p) { struct stat st; return stat(p, &st) == 0; }
 
@@ -111,7 +91,7 @@ static void kill_and_resume(const char *ref, double ref_seconds)
     check(rc == 0 && kills > 0, "training killed with SIGKILL and resumed completes",
           "exit %d after %d kills (log %s.log)", rc, kills, out);
     snprintf(final, sizeof final, "%s/final.ckpt", out);
-    double d = weight_diff(ref, final, err, sizeof err);
+    double d = rs_weight_diff(ref, final, err, sizeof err);
     check(d <= 1e-6, "weights after kill -9 + resume equal an uninterrupted run (same threads)",
           "max |difference| %.3g after %d kills %s", d, kills, isinf(d) ? err : "");
 }

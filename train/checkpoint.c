@@ -131,6 +131,7 @@ static void write_all(writer *w, const char *json, const nj_model *m, const nj_t
     put(w, state, sizeof state);
     put_u32(w, (uint32_t)(3 * m->params.count + m->buffers.count));
     put_tensors(w, m, 0);
+    nj_atomic_test_pause(w->f);       /* tests only: a half-written temporary file */
     put_tensors(w, m, 1);
     uint8_t crc[4];
     nj_le_put32(crc, nj_crc32_value(&w->crc));

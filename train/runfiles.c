@@ -70,3 +70,34 @@ void nj_run_prune(const char *dir, int keep)
         unlink(path);
     }
 }
+
+/* "NAME.XXXXXX.tmp" (data/atomic.c) where NAME is one of the run's files. */
+static int is_run_temp(const char *name)
+{
+    size_t n = strlen(name);
+    if (n < 12 || strcmp(name + n - 4, ".tmp") || name[n - 11] != '.') return 0;
+    char base[256];
+    if (n - 11 >= sizeof base) return 0;
+    memcpy(base, name, n - 11);
+    base[n - 11] = 0;
+    long step;
+    char tail[8];
+    return !strcmp(base, "best.ckpt") || !strcmp(base, "final.ckpt") || !strcmp(base, "report.html") ||
+           (sscanf(base, "step-%ld.ck%7s", &step, tail) == 2 && !strcmp(tail, "pt"));
+}
+
+int nj_run_clean_temps(const char *dir)
+{
+    DIR *d = opendir(dir);
+    if (!d) return 0;
+    int n = 0;
+    struct dirent *e;
+    while ((e = readdir(d))) {
+        if (!is_run_temp(e->d_name)) continue;
+        char path[4096];
+        snprintf(path, sizeof path, "%s/%s", dir, e->d_name);
+        if (unlink(path) == 0) n++;
+    }
+    closedir(d);
+    return n;
+}

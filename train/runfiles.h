@@ -16,5 +16,10 @@ void nj_run_step_path(const char *dir, long step, char *out, size_t len);
 int nj_run_list_steps(const char *dir, long *out, int max);
 /* Deletes numbered checkpoints beyond the newest `keep`. */
 void nj_run_prune(const char *dir, int keep);
+/* Deletes temporary files that an interrupted atomic write of the run's own
+ * files left behind (NAME.XXXXXX.tmp for a step-*.ckpt, best.ckpt,
+ * final.ckpt or report.html).  Only one process may train in a run folder.
+ * Returns the number removed. */
+int nj_run_clean_temps(const char *dir);
 
 #endif

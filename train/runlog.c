@@ -23,13 +23,13 @@ static void cut_torn_line(int fd)
 
 int nj_runlog_open(nj_runlog *l, const char *dir, char *err, size_t errlen)
 {
-    char path[4096];
-    snprintf(path, sizeof path, "%s/log.jsonl", dir);
-    l->fd = open(path, O_RDWR | O_CREAT | O_APPEND, 0644);
+    snprintf(l->path, sizeof l->path, "%s/log.jsonl", dir);
+    l->error[0] = 0;
+    l->fd = open(l->path, O_RDWR | O_CREAT | O_APPEND, 0644);
     l->tty = isatty(STDOUT_FILENO);
     l->line_open = 0;
     if (l->fd < 0) {
-        snprintf(err, errlen, "%s: cannot open the run log: %s", path, strerror(errno));
+        snprintf(err, errlen, "%s: cannot open the run log: %s", l->path, strerror(errno));
         return -1;
     }
     cut_torn_line(l->fd);
@@ -44,14 +44,37 @@ void nj_runlog_close(nj_runlog *l)
     l->fd = -1;
 }
 
+static int log_failed(nj_runlog *l, int e)
+{
+    if (!l->error[0]) snprintf(l->error, sizeof l->error, "%s: write failed: %s", l->path, strerror(e));
+    return -1;
+}
+
 int nj_runlog_json(nj_runlog *l, const char *json)
 {
     char line[4096];
     int n = snprintf(line, sizeof line, "%s\n", json);
     if (n <= 0 || n >= (int)sizeof line) return -1;
-    if (write(l->fd, line, (size_t)n) != n) return -1;
-    return fdatasync(l->fd);
+    if (l->fd < 0) return -1;
+    off_t before = lseek(l->fd, 0, SEEK_END);
+    size_t done = 0;
+    int e = 0;
+    while (done < (size_t)n && !e) {          /* one write(); the loop only finishes a short one */
+        ssize_t k = write(l->fd, line + done, (size_t)n - done);
+        if (k > 0) done += (size_t)k;
+        else if (k == 0) e = ENOSPC;
+        else if (errno != EINTR) e = errno;
+    }
+    if (e) {
+        /* cut the partial line off again so the log stays parseable */
+        if (done > 0 && before >= 0 && ftruncate(l->fd, before) != 0) { /* nothing more to do */ }
+        return log_failed(l, e);
+    }
+    if (fdatasync(l->fd) != 0 && errno != EINVAL && errno != EROFS) return log_failed(l, errno);
+    return 0;
 }
+
+const char *nj_runlog_error(const nj_runlog *l) { return l->error[0] ? l->error : NULL; }
 
 void nj_runlog_progress(nj_runlog *l, const char *text)
 {

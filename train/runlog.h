@@ -11,13 +11,21 @@ typedef struct nj_runlog {
     int fd;
     int tty;
     int line_open;          /* an updating progress line is on screen */
+    char path[1100];        /* RUN_DIR/log.jsonl */
+    char error[1400];       /* first write failure ("PATH: write failed: why"), "" if none */
 } nj_runlog;
 
 /* Opens (appends to) dir/log.jsonl.  Returns 0 or -1 with a message. */
 int nj_runlog_open(nj_runlog *l, const char *dir, char *err, size_t errlen);
 void nj_runlog_close(nj_runlog *l);
-/* Appends one JSON object line (text without the newline). Returns 0 or -1. */
+/* Appends one JSON object line (text without the newline) with a single
+ * write() and fdatasync.  On failure (disk full, I/O error) a partly written
+ * line is cut off again, so the file stays parseable, and the first failure
+ * is kept (nj_runlog_error).  Returns 0 or -1. */
 int nj_runlog_json(nj_runlog *l, const char *json);
+/* The first failed log write as a one-line message naming the file and the
+ * system's reason, or NULL while every write has succeeded. */
+const char *nj_runlog_error(const nj_runlog *l);
 /* Progress: replaces the updating line on a TTY, else prints a plain line. */
 void nj_runlog_progress(nj_runlog *l, const char *text);
 /* A message on its own line (ends any updating line first). */

@@ -149,6 +149,10 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
 int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
 {
     if (nj_run_mkdir(t->dir, err, errlen) || open_data(t, err, errlen)) return -1;
+    int stale = nj_run_clean_temps(t->dir);
+    if (stale) printf("removed %d unfinished temporary file%s of an interrupted write in %s\n",
+                      stale, stale == 1 ? "" : "s", t->dir);
+    if (nj_trainer_memory_precheck(t, err, errlen)) return -1;
     if (resume ? resume_model(t, err, errlen) : fresh_model(t, err, errlen)) return -1;
     if (!nj_model_size_ok(&t->model, t->cfg.height, t->cfg.width)) {
         snprintf(err, errlen, "training size %dx%d must be a multiple of %d and at least %d on each side",
@@ -156,6 +160,7 @@ int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
         return -1;
     }
     nj_params_freeze_group(&t->model.params, NJ_GROUP_ENCODER, t->cfg.freeze_encoder);
+    if (nj_trainer_memory_check(t, err, errlen)) return -1;
     nj_adam_init(&t->opt, t->cfg.lr);
     t->opt.weight_decay = t->cfg.weight_decay;
     t->opt.step = t->st.adam_step;

@@ -202,7 +202,7 @@ static int validate(nj_trainer *t)
     if (photo < t->st.best_val) {
         t->st.best_val = photo;
         if (nj_trainer_save(t, "best.ckpt", err, sizeof err)) {
-            nj_runlog_say(&t->log, "cannot save best.ckpt: %s", err);
+            nj_trainer_write_failed(t, err);
             return -1;
         }
     }
@@ -268,7 +268,7 @@ int nj_trainer_run(nj_trainer *t)
     double tlog = now_elapsed(t);
     long slog = t->st.step;
     const char *ended = "budget reached";
-    while (!budget_reached(t) && !stop_signal) {
+    while (!budget_reached(t) && !stop_signal && !nj_runlog_error(&t->log)) {
         const nj_batch *b = nj_loader_next(t->loader, err, sizeof err);
         if (!b) { nj_runlog_say(&t->log, "data: %s", err); code = 1; ended = "data error"; break; }
         nj_step_result r;
@@ -295,7 +295,7 @@ int nj_trainer_run(nj_trainer *t)
         if (t->cfg.validate_every > 0 && t->st.step % t->cfg.validate_every == 0 && validate(t)) { code = 1; break; }
         if (checkpoint_due(t)) {
             if (nj_trainer_save(t, NULL, err, sizeof err)) {
-                nj_runlog_say(&t->log, "checkpoint failed, stopping (the previous checkpoint is intact): %s", err);
+                nj_trainer_write_failed(t, err);
                 code = 1; ended = "checkpoint write failed";
                 break;
             }
@@ -304,11 +304,15 @@ int nj_trainer_run(nj_trainer *t)
         }
     }
     if (stop_signal) ended = stop_signal == SIGINT ? "interrupted (SIGINT)" : "stopped (SIGTERM)";
+    if (code == 0 && nj_runlog_error(&t->log)) {
+        nj_trainer_write_failed(t, nj_runlog_error(&t->log));
+        code = 1; ended = "log write failed";
+    }
     if (code == 0) {
         if (t->nval > 0 && t->cfg.validate_every > 0) validate(t);
         if (nj_trainer_save(t, NULL, err, sizeof err) || nj_trainer_save(t, "final.ckpt", err, sizeof err)) {
-            nj_runlog_say(&t->log, "saving failed: %s", err);
-            code = 1;
+            nj_trainer_write_failed(t, err);
+            code = 1; ended = "final checkpoint write failed";
         }
     }
     char line[512];
@@ -316,8 +320,10 @@ int nj_trainer_run(nj_trainer *t)
              "\"resumes\":%d,\"nan_recoveries\":%d}", t->st.step, ended, now_elapsed(t),
              t->st.resumes, t->st.nan_recoveries);
     nj_runlog_json(&t->log, line);
-    if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
+    if (nj_runlog_error(&t->log)) nj_runlog_say(&t->log, "report not written: the run log is incomplete");
+    else if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
     else nj_runlog_say(&t->log, "report: %s/report.html", t->dir);
+    nj_trainer_memory_log(t);
     char health[64];
     nj_runlog_say(&t->log, "training ended at step %ld: %s; health: %s", t->st.step, ended,
                   nj_health_summary(&t->health, health, sizeof health));

@@ -9,6 +9,7 @@
 #include "train/config.h"
 #include "train/health.h"
 #include "train/model.h"
+#include "train/memneed.h"
 #include "train/metrics.h"
 #include "train/runlog.h"
 
@@ -37,6 +38,7 @@ typedef struct nj_trainer {
     int fault_left;            /* the next COUNT losses are replaced by NaN */
     float last_val;
     double t10;                /* elapsed seconds at step 10 (schedule estimate) */
+    nj_mem_need mem;           /* memory need, estimated at setup (train_memory.c) */
 } nj_trainer;
 
 /* `./nightjar train ...` */
@@ -54,6 +56,22 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen);
  * none, -1 on error. */
 int nj_trainer_load_latest(nj_trainer *t, char *err, size_t errlen);
 uint64_t nj_dataset_hash(const nj_dataset *ds);
+
+/* Memory (train_memory.c).  Before the model is built: the resident base,
+ * the parameters' share and what the process may take; refuses (-1 with a
+ * one-line message) when the parameters alone cannot fit. */
+int nj_trainer_memory_precheck(nj_trainer *t, char *err, size_t errlen);
+/* After the model is built, before the step arena and the loaders: probes the
+ * step arena, prints "memory need: X MiB (available Y MiB)" and refuses (-1,
+ * one-line message naming the limit) when the need exceeds what is available. */
+int nj_trainer_memory_check(nj_trainer *t, char *err, size_t errlen);
+/* Appends {"type":"memory",...} (estimate, peak RSS, arena estimate and peak)
+ * to the run log and says the peak. */
+void nj_trainer_memory_log(nj_trainer *t);
+
+/* A write of the run failed (message "PATH: why"): says so in one line on
+ * stderr with the last good checkpoint (train_io.c).  The caller stops. */
+void nj_trainer_write_failed(nj_trainer *t, const char *why);
 
 /* The loop (trainer.c).  Returns the process exit code. */
 int nj_trainer_run(nj_trainer *t);

@@ -336,7 +336,7 @@ static void test_damaged(const char *good)
         return;
     }
     uint32_t clen = get_le32(b + 8);
-    size_t state_at = 12 + clen, count_at = state_at + 4 + 100, entry_at = count_at + 4;
+    size_t state_at = 12 + clen, count_at = state_at + 4 + get_le32(b + state_at), entry_at = count_at + 4;
     size_t name_len = b[entry_at], kind_at = entry_at + 1 + name_len, dims_at = kind_at + 2;
 
     static const struct { const char *label; double frac; long abs; const char *want; } cuts[] = {

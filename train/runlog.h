@@ -11,11 +11,16 @@ typedef struct nj_runlog {
     int fd;
     int tty;
     int line_open;          /* an updating progress line is on screen */
+    int quiet;              /* nj_runlog_quiet: writes nothing */
+    char held[512];         /* quiet: the last message passed to nj_runlog_say */
 } nj_runlog;
 
 /* Opens (appends to) dir/log.jsonl.  Returns 0 or -1 with a message. */
 int nj_runlog_open(nj_runlog *l, const char *dir, char *err, size_t errlen);
 void nj_runlog_close(nj_runlog *l);
+/* A log that writes nothing (the non-zero ranks of a data-parallel run): the
+ * JSON lines and progress are dropped, the last message is kept in `held`. */
+void nj_runlog_quiet(nj_runlog *l);
 /* Appends one JSON object line (text without the newline). Returns 0 or -1. */
 int nj_runlog_json(nj_runlog *l, const char *json);
 /* Progress: replaces the updating line on a TTY, else prints a plain line. */

@@ -35,6 +35,8 @@ typedef struct nj_trainer {
     int bad_steps;             /* consecutive non-finite steps */
     float last_val;
     double t10;                /* elapsed seconds at step 10 (schedule estimate) */
+    int rank, ranks;           /* data-parallel processes (trainer_dist.h); 0 of 1 alone */
+    float *fused;              /* gradient all-reduce buffer (ranks > 1) */
 } nj_trainer;
 
 /* `./nightjar train ...` */

@@ -127,9 +127,10 @@ static void batchnorm_backward(nj_graph *g, const nj_op *op)
 }
 
 /* Synchronised batch statistics: mean and biased variance per channel over
- * every replica's batch (two passes, as channel_stats, each one sum of C + 1
- * values).  Returns 2C doubles (means, variances) in the arena and the total
- * count in *M, or NULL with the graph failed. */
+ * every replica's batch, from per-replica sums of x and x² in double (one
+ * sum of 2C + 1 values per layer: each is a synchronisation point).
+ * Returns 2C doubles (means, variances) in the arena and the total count in
+ * *M, or NULL with the graph failed. */
 static double *synced_stats(nj_graph *g, const nj_tensor *x, double *M)
 {
     const int C = x->c;
@@ -138,29 +139,25 @@ static double *synced_stats(nj_graph *g, const nj_tensor *x, double *M)
     if (!st) return NULL;
     #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
     for (int c = 0; c < C; c++) {
-        double s = 0;
+        double s = 0, q = 0;
         for (int n = 0; n < x->n; n++) {
             const float *p = x->data + ((size_t)n * x->c + c) * hw;
-            for (size_t i = 0; i < hw; i++) s += p[i];
+            for (size_t i = 0; i < hw; i++) {
+                s += p[i];
+                q += (double)p[i] * p[i];
+            }
         }
         st[c] = s;
-    }
-    st[C] = (double)x->n * (double)hw;
-    if (nj_graph_replica_sum(g, st, C + 1, "batchnorm statistics")) return NULL;
-    *M = st[C];
-    #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
-    for (int c = 0; c < C; c++) {
-        const double mu = st[c] / *M;
-        double q = 0;
-        for (int n = 0; n < x->n; n++) {
-            const float *p = x->data + ((size_t)n * x->c + c) * hw;
-            for (size_t i = 0; i < hw; i++) q += (p[i] - mu) * (p[i] - mu);
-        }
-        st[c] = mu;
         st[C + c] = q;
     }
-    if (nj_graph_replica_sum(g, st + C, C, "batchnorm statistics")) return NULL;
-    for (int c = 0; c < C; c++) st[C + c] /= *M;
+    st[2 * C] = (double)x->n * (double)hw;
+    if (nj_graph_replica_sum(g, st, 2 * C + 1, "batchnorm statistics")) return NULL;
+    *M = st[2 * C];
+    for (int c = 0; c < C; c++) {
+        const double mu = st[c] / *M, var = st[C + c] / *M - mu * mu;
+        st[c] = mu;
+        st[C + c] = var > 0 ? var : 0;
+    }
     return st;
 }
 

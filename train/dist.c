@@ -12,8 +12,7 @@
 
 static int g_rank = 0, g_size = 1, g_started = 0;
 static char g_host[256];
-static double g_sum_seconds;
-static long g_sum_calls;
+static nj_dist_stats g_stats;
 
 int nj_dist_built(void)
 {
@@ -33,11 +32,7 @@ const char *nj_dist_host(void)
     return g_host;
 }
 
-double nj_dist_sum_seconds(long *calls)
-{
-    if (calls) *calls = g_sum_calls;
-    return g_sum_seconds;
-}
+void nj_dist_get_stats(nj_dist_stats *s) { *s = g_stats; }
 
 #ifdef NJ_MPI
 
@@ -93,15 +88,20 @@ int nj_dist_sum_f32(float *buf, size_t n)
         int k = (int)(n - off < CHUNK ? n - off : CHUNK);
         rc = MPI_Allreduce(MPI_IN_PLACE, buf + off, k, MPI_FLOAT, MPI_SUM, MPI_COMM_WORLD);
     }
-    g_sum_seconds += now() - t0;
-    g_sum_calls++;
+    g_stats.sum_f32_seconds += now() - t0;
+    g_stats.sum_f32_calls++;
+    g_stats.sum_f32_values += (double)n;
     return rc == MPI_SUCCESS ? 0 : -1;
 }
 
 int nj_dist_sum_f64(double *buf, int n)
 {
     if (g_size <= 1) return 0;
-    return MPI_Allreduce(MPI_IN_PLACE, buf, n, MPI_DOUBLE, MPI_SUM, MPI_COMM_WORLD) == MPI_SUCCESS ? 0 : -1;
+    double t0 = now();
+    int rc = MPI_Allreduce(MPI_IN_PLACE, buf, n, MPI_DOUBLE, MPI_SUM, MPI_COMM_WORLD);
+    g_stats.sum_f64_seconds += now() - t0;
+    g_stats.sum_f64_calls++;
+    return rc == MPI_SUCCESS ? 0 : -1;
 }
 
 int nj_dist_max_i64(int64_t *buf, int n)

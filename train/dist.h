@@ -40,8 +40,15 @@ int nj_dist_bcast(void *buf, size_t bytes);
 /* Every process's `bytes` bytes, by rank, into all (size × bytes). */
 int nj_dist_allgather(const void *mine, void *all, size_t bytes);
 
-/* Seconds spent in nj_dist_sum_f32 (the fused gradient all-reduce) so far,
- * and the number of calls — for `make bench`. */
-double nj_dist_sum_seconds(long *calls);
+/* Time spent in collectives so far (including waiting for the slowest
+ * process): the float sums (the fused gradient all-reduce) and the double
+ * sums (batch-norm statistics, loss normalisers), with call counts and the
+ * float values summed — for the end-of-run summary and `make bench`. */
+typedef struct nj_dist_stats {
+    double sum_f32_seconds, sum_f64_seconds;
+    long sum_f32_calls, sum_f64_calls;
+    double sum_f32_values;
+} nj_dist_stats;
+void nj_dist_get_stats(nj_dist_stats *s);
 
 #endif

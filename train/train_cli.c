@@ -141,8 +141,10 @@ int nj_train_main(int argc, char **argv)
         return 1;
     }
     print_start(&t);
+    long first = t.st.step;
     int code = nj_trainer_run(&t);
     if (code && t.ranks > 1) nj_trainer_dist_fail(&t, code);
+    nj_trainer_dist_summary(&t, t.st.step - first);
     nj_runlog_close(&t.log);
     nj_trainer_teardown(&t);
     nj_dist_finalize();

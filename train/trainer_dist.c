@@ -220,6 +220,18 @@ int nj_trainer_dist_stop(nj_trainer *t, int stop)
     return (int)v[0];
 }
 
+void nj_trainer_dist_summary(const nj_trainer *t, long steps)
+{
+    nj_dist_stats s;
+    nj_dist_get_stats(&s);
+    if (t->rank != 0 || t->ranks <= 1 || s.sum_f32_calls <= 0 || steps <= 0) return;
+    printf("data-parallel: %d processes; gradient all-reduce %.2f ms/step (one call of %.2f MB); batch-norm and "
+           "loss sums %.2f ms/step (%.0f calls/step)\n", t->ranks, 1e3 * s.sum_f32_seconds / s.sum_f32_calls,
+           4e-6 * s.sum_f32_values / s.sum_f32_calls, 1e3 * s.sum_f64_seconds / steps,
+           (double)s.sum_f64_calls / steps);
+    fflush(stdout);
+}
+
 void nj_trainer_dist_fail(nj_trainer *t, int code)
 {
     fflush(stdout);

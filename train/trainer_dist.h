@@ -52,6 +52,9 @@ int nj_trainer_dist_stop(nj_trainer *t, int stop);
  * launcher sends SIGTERM to every process when one of them dies — and that
  * the run's checkpoints stay valid for --resume.  Nothing when alone. */
 void nj_trainer_dist_signal_note(void);
+/* Rank 0 of several, after the run: one line with the time per step spent
+ * in the gradient all-reduce (and its size) and in the in-step sums. */
+void nj_trainer_dist_summary(const nj_trainer *t, long steps);
 /* Command layer, after a failed run on several ranks: prints this rank's
  * last message (rank 0's are already on screen) and ends the whole job. */
 void nj_trainer_dist_fail(nj_trainer *t, int code) __attribute__((noreturn));

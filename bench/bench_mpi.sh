@@ -48,15 +48,17 @@ two=$(run two 2 1 2) || exit 1
 params=$(sed -n 's/.*model: \([0-9]*\) parameters.*/\1/p' "$dir/one.txt")
 summary=$(grep '^data-parallel:' "$dir/two.txt")
 ar=$(echo "$summary" | sed -n 's/.*all-reduce \([0-9.]*\) ms\/step.*/\1/p')
-sync=$(echo "$summary" | sed -n 's/.*loss sums \([0-9.]*\) ms\/step (\([0-9]*\) calls.*/\1 ms\/step in \2 calls/p')
+sync=$(echo "$summary" | sed -n 's/.*loss sums \([0-9.]*\) ms\/step.*/\1/p')
+calls=$(echo "$summary" | sed -n 's/.*(\([0-9]*\) calls\/step).*/\1/p')
 printf '  %-26s %10s samples/s\n' "1 rank  x 2 threads" "$one" "2 ranks x 1 thread" "$two"
-echo "  2 ranks: gradient all-reduce $ar ms/step ($params parameters); in-step sums (batch norm, loss) $sync"
-python3 - "$params" "$one" <<'PY'
+echo "  2 ranks: gradient all-reduce $ar ms/step ($params parameters); in-step sums (batch norm, loss)" \
+     "$sync ms/step in $calls calls (both include waiting for the other rank)"
+python3 - "$params" "$one" "$calls" <<'PY'
 import sys
-p, sps = int(sys.argv[1]), float(sys.argv[2])
+p, sps, calls = int(sys.argv[1]), float(sys.argv[2]), int(sys.argv[3])
 vol = p * 4 * 2                      # bytes through each link per step (ring all-reduce)
 t_comm = vol * 8 / 10e9              # 10 Gbit/s
-t_sync = 56 * 3 * 50e-6              # 56 small sums/step, 3 rounds (log2 8) of ~50 us latency each
+t_sync = calls * 3 * 50e-6           # small sums/step, 3 rounds (log2 8) of ~50 us latency each
 t_step = 4 / sps                     # one server: batch 4 per step at the rate measured above
 eff = t_step / (t_step + t_comm + t_sync)
 print("  8-server projection (10 Gbit/s): %d params x 4 B x 2 = %.1f MB/step -> %.1f ms; small sums ~%.1f ms;"

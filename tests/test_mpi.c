@@ -3,7 +3,8 @@
  *  - mpirun -np 2 with batch 2 per rank gives, after K steps, the weights
  *    (and batch-norm running statistics) and logged losses of one process
  *    with batch 4 (the plain ./nightjar), within 1e-5 relative; only rank 0
- *    writes; the checkpoint records the process count;
+ *    writes; the checkpoint records the process count; the MPI build run
+ *    without mpirun gives the plain build's weights bit for bit;
  *  - a 2-rank checkpoint at step K/2 resumed with 2 ranks ends equal to the
  *    uninterrupted 2-rank run;
  *  - SIGKILL to rank 1 mid-run: non-zero exit with a message, the newest
@@ -138,6 +139,15 @@ static int same_as_big_batch(void)
           isinf(d) ? err : "");
     printf("   (relative L2 difference %.3g; worst single tensor max|diff|/max|w| %.3g; 3 steps move the model "
            "by %.3g)\n", d, tw, three);
+    char alone[512];
+    snprintf(alone, sizeof alone, "%s/alone", dir);
+    snprintf(log, sizeof log, "%s.log", alone);
+    rc = train("OMP_NUM_THREADS=1 build/mpi/nightjar", cfg4, alone, "", log);
+    snprintf(b, sizeof b, "%s/final.ckpt", alone);
+    snprintf(a, sizeof a, "%s/final.ckpt", single);
+    d = rc == 0 ? rel_diff(a, b, NULL, err, sizeof err) : INFINITY;
+    check(d == 0, "mpi: the MPI build started without mpirun trains exactly like the plain build",
+          "exit %d, relative difference %.3g (see %s)", rc, d, log);
     double l1[64], l2[64];
     int n1 = logged_losses(single, l1, 64), n2 = logged_losses(dual, l2, 64), same = n1 == K && n2 == K;
     for (int i = 0; same && i < K; i++) same = fabs(l1[i] - l2[i]) <= 1e-5 * fabs(l1[i]) + 1e-9;

@@ -6,8 +6,14 @@
  *  - with upstream gradients G split between the replicas (so their losses
  *    add up to the single graph's), dx equals the single graph's dx slice and
  *    the replicas' gamma/beta gradients add up to the single graph's;
- *  - inference mode never calls the sum, and the single-graph path is
- *    untouched by replicas being absent. */
+ *  - inference mode never calls the sum;
+ *  - the view-synthesis loss (auto-masking with tie-break noise, pixels
+ *    leaving the view): the replicas' mean loss equals the single graph's,
+ *    each replica's disparity gradient is its slice of the single graph's
+ *    times the replica count (its loss is count × its share), the masks are
+ *    the single graph's slices and every RNG ends in the single graph's state. */
+#include "losses/pose.h"
+#include "losses/view_synthesis.h"
 #include "nn/graph.h"
 #include "nn/ops.h"
 #include "nn/rng.h"
@@ -27,9 +33,14 @@ typedef struct hub {
     int calls;
 } hub;
 
-typedef struct replica {
+/* What the sum callback needs; first member of each replica's struct. */
+typedef struct member {
     hub *h;
     int rank;
+} member;
+
+typedef struct replica {
+    member who;
     const float *x, *gamma, *beta, *G;    /* whole-batch inputs */
     float y[HALF * C * HW], dx[HALF * C * HW], dgamma[C], dbeta[C];
     float run_mean[C], run_var[C];
@@ -39,7 +50,7 @@ typedef struct replica {
 /* In-place sum over the two replicas: publish, add in rank order, write back. */
 static int hub_sum(double *buf, int n, void *ctx)
 {
-    replica *r = ctx;
+    member *r = ctx;
     hub *h = r->h;
     double *tmp = malloc(sizeof(double) * (size_t)n);
     if (!tmp) return -1;
@@ -75,9 +86,9 @@ static void *replica_main(void *arg)
 {
     replica *r = arg;
     nj_graph *g = nj_graph_new(1 << 20);
-    nj_replicas rep = {.rank = r->rank, .count = 2, .sum = hub_sum, .ctx = r};
+    nj_replicas rep = {.rank = r->who.rank, .count = 2, .sum = hub_sum, .ctx = &r->who};
     nj_graph_set_replicas(g, &rep);
-    size_t off = (size_t)r->rank * HALF * C * HW;
+    size_t off = (size_t)r->who.rank * HALF * C * HW;
     r->failed = !g || run_bn(g, HALF, r->x + off, r->gamma, r->beta, r->G + off, r->y, r->dx, r->dgamma,
                              r->dbeta, r->run_mean, r->run_var);
     nj_graph_free(g);
@@ -92,6 +103,113 @@ static double max_rel(const float *a, const float *b, size_t n)
         if (fabs(a[i]) > m) m = fabs(a[i]);
     }
     return d / m;
+}
+
+/* ---- the view-synthesis loss ---- */
+
+enum { LH = 16, LW = 24, LHW = LH * LW };
+
+typedef struct loss_inputs {
+    float tgt[N * 3 * LHW], src[N * 3 * LHW], disp[N * LHW], tx[N];
+    nj_camera cams[N];
+} loss_inputs;
+
+typedef struct loss_result {
+    float total, dgrad[N * LHW], mask[N * LHW];
+    nj_rng rng;
+    int failed;
+} loss_result;
+
+/* Loss of items [first, first + n) with auto-masking and tie-break noise
+ * from an RNG seeded 77; the disparity gradient and mask into res. */
+static void run_loss(nj_graph *g, const loss_inputs *li, int first, int n, loss_result *res)
+{
+    nj_tensor *tgt = nj_tensor_from(g, n, 3, LH, LW, li->tgt + (size_t)first * 3 * LHW, 0);
+    nj_tensor *src = nj_tensor_from(g, n, 3, LH, LW, li->src + (size_t)first * 3 * LHW, 0);
+    nj_tensor *disp = nj_tensor_from(g, n, 1, LH, LW, li->disp + (size_t)first * LHW, 1);
+    nj_vs_config cfg;
+    nj_vs_config_default(&cfg);
+    cfg.automask = 1;
+    cfg.tie_break = 1e-3f;       /* large enough to decide some ties */
+    nj_rng_seed(&res->rng, 77);
+    nj_vs_input in = {.target = tgt, .sources = {src}, .poses = {nj_pose_stereo(g, n, li->tx + first)},
+                      .nsources = 1, .cams = li->cams + first, .disp = {disp}, .nscales = 1, .rng = &res->rng};
+    nj_vs_output out;
+    res->failed = nj_view_synthesis_loss(g, &cfg, &in, &out) || nj_backward(g, out.total);
+    if (res->failed) return;
+    res->total = out.total->data[0];
+    memcpy(res->dgrad, disp->grad, sizeof(float) * (size_t)n * LHW);
+    memcpy(res->mask, out.automask->data, sizeof(float) * (size_t)n * LHW);
+}
+
+typedef struct loss_replica {
+    member who;
+    const loss_inputs *li;
+    loss_result res;
+} loss_replica;
+
+static void *loss_replica_main(void *arg)
+{
+    loss_replica *r = arg;
+    nj_graph *g = nj_graph_new(8 << 20);
+    nj_replicas rep = {.rank = r->who.rank, .count = 2, .sum = hub_sum, .ctx = &r->who};
+    if (g) nj_graph_set_replicas(g, &rep);
+    if (g) run_loss(g, r->li, r->who.rank * HALF, HALF, &r->res);
+    else r->res.failed = 1;
+    nj_graph_free(g);
+    return NULL;
+}
+
+static void test_loss(void)
+{
+    static loss_inputs li;
+    static loss_result ref;
+    static loss_replica lr[2];
+    nj_rng rng;
+    nj_rng_seed(&rng, 31);
+    for (int i = 0; i < N * 3 * LHW; i++) {
+        li.tgt[i] = (float)nj_rng_uniform(&rng);
+        int row = (i / LW) % LH;
+        li.src[i] = row < 4 ? li.tgt[i] : (float)nj_rng_uniform(&rng);   /* static rows: auto-masked */
+    }
+    for (int i = 0; i < N * LHW; i++) li.disp[i] = (float)(0.01 + 0.2 * nj_rng_uniform(&rng));
+    for (int k = 0; k < N; k++) {
+        li.tx[k] = -0.05f * (k + 1);      /* items leave the view by different amounts */
+        li.cams[k] = (nj_camera){20.0f, 20.0f, (LW - 1) / 2.0f, (LH - 1) / 2.0f};
+    }
+    nj_graph *g = nj_graph_new(8 << 20);
+    if (g) run_loss(g, &li, 0, N, &ref);
+    nj_graph_free(g);
+    if (!check(g && !ref.failed, "replicas: view-synthesis loss reference", "loss failed")) return;
+    hub h;
+    memset(&h, 0, sizeof h);
+    pthread_barrier_init(&h.bar, NULL, 2);
+    pthread_t th[2];
+    for (int k = 0; k < 2; k++) {
+        lr[k].who = (member){&h, k};
+        lr[k].li = &li;
+        pthread_create(&th[k], NULL, loss_replica_main, &lr[k]);
+    }
+    for (int k = 0; k < 2; k++) pthread_join(th[k], NULL);
+    pthread_barrier_destroy(&h.bar);
+    if (!check(!lr[0].res.failed && !lr[1].res.failed, "replicas: view-synthesis loss on two replicas", "failed"))
+        return;
+    const size_t half = (size_t)HALF * LHW;
+    double mean = 0.5 * ((double)lr[0].res.total + lr[1].res.total);
+    double el = fabs(mean - ref.total) / fabs(ref.total);
+    float twice[N * LHW];
+    for (size_t i = 0; i < (size_t)N * LHW; i++) twice[i] = 2 * ref.dgrad[i];
+    double eg = fmax(max_rel(twice, lr[0].res.dgrad, half), max_rel(twice + half, lr[1].res.dgrad, half));
+    int masks = !memcmp(ref.mask, lr[0].res.mask, half * 4) && !memcmp(ref.mask + half, lr[1].res.mask, half * 4);
+    int rngs = !memcmp(&ref.rng, &lr[0].res.rng, sizeof ref.rng) && !memcmp(&ref.rng, &lr[1].res.rng, sizeof ref.rng);
+    double used0 = 0, used1 = 0;
+    for (size_t i = 0; i < half; i++) { used0 += lr[0].res.mask[i]; used1 += lr[1].res.mask[i]; }
+    printf("   (pixels used: %g and %g of %zu per replica)\n", used0, used1, half);
+    check(el <= 1e-5 && used0 != used1, "replicas: mean of the replicas' losses == the whole batch's loss",
+          "relative error %.3g (pixels used %g vs %g: must differ for the check to mean something)", el, used0, used1);
+    check(eg <= 1e-5, "replicas: disparity gradients == 2 x the whole batch's slices", "max rel %.3g", eg);
+    check(masks && rngs, "replicas: auto-masks (with tie-break noise) and RNG end states == the whole batch's",
+          "masks %s, rng %s", masks ? "same" : "differ", rngs ? "same" : "differ");
 }
 
 int main(void)
@@ -118,7 +236,7 @@ int main(void)
     pthread_t th[2];
     for (int k = 0; k < 2; k++) {
         memset(&r[k], 0, sizeof r[k]);
-        r[k] = (replica){.h = &h, .rank = k, .x = x, .gamma = gamma, .beta = beta, .G = G};
+        r[k] = (replica){.who = {&h, k}, .x = x, .gamma = gamma, .beta = beta, .G = G};
         for (int c = 0; c < C; c++) { r[k].run_mean[c] = 0; r[k].run_var[c] = 1; }
         pthread_create(&th[k], NULL, replica_main, &r[k]);
     }
@@ -153,7 +271,7 @@ int main(void)
 
     /* inference mode: no sums */
     nj_graph *gi = nj_graph_new(1 << 20);
-    replica dummy = {.h = &h, .rank = 0};
+    member dummy = {&h, 0};
     nj_replicas rep = {.rank = 0, .count = 2, .sum = hub_sum, .ctx = &dummy};
     nj_graph_set_replicas(gi, &rep);
     nj_graph_set_training(gi, 0);
@@ -164,5 +282,6 @@ int main(void)
     check(yi && h.calls == before && nj_graph_replicas(gi) == NULL, "replicas: inference mode never synchronises",
           "%d sums", h.calls - before);
     nj_graph_free(gi);
+    test_loss();
     return test_exit();
 }

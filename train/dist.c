@@ -123,10 +123,11 @@ int nj_dist_bcast(void *buf, size_t bytes)
 
 int nj_dist_allgather(const void *mine, void *all, size_t bytes)
 {
-    if (g_size <= 1 || bytes > CHUNK) {
-        if (g_size <= 1) memcpy(all, mine, bytes);
-        return g_size <= 1 ? 0 : -1;
+    if (g_size <= 1) {
+        memcpy(all, mine, bytes);
+        return 0;
     }
+    if (bytes > CHUNK) return -1;     /* only small records are gathered */
     return MPI_Allgather(mine, (int)bytes, MPI_BYTE, all, (int)bytes, MPI_BYTE, MPI_COMM_WORLD) == MPI_SUCCESS ? 0 : -1;
 }
 

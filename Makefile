@@ -1,5 +1,12 @@
 # nightjar — build, test, demo, bench.  `make help` lists the targets.
 CC       ?= gcc
+# `make MPI=1`: ./nightjar with data-parallel training over Open MPI (mpicc;
+# objects in build/mpi).  The default build has no MPI.
+ifeq ($(MPI),1)
+CC       := mpicc
+B        := build/mpi
+MPIFLAGS := -DNJ_MPI
+endif
 # Tuned for the build machine by default; `make PORTABLE=1` builds for any x86-64.
 ifeq ($(PORTABLE),1)
 ARCH     := -march=x86-64 -mtune=generic
@@ -9,7 +16,7 @@ endif
 OPT      ?= -O2
 CFLAGS   ?= $(OPT) $(ARCH) -g
 CFLAGS   += -std=c11 -Wall -Wextra -fopenmp -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE \
-            -I. -I/usr/include/stb -MMD -MP
+            -I. -I/usr/include/stb -MMD -MP $(MPIFLAGS)
 LDLIBS   += -lopenblas -lcjson -lstb -lm -fopenmp
 B        ?= build
 # the program the tests run (make sanitize builds its own in build-san/)
@@ -25,6 +32,7 @@ SANFLAGS := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-fra
 CFLAGS   += $(SANFLAGS)
 LDLIBS   += $(SANFLAGS)
 endif
+FLAVOUR  := $(if $(MPIFLAGS),mpi,plain)
 
 LIB_SRC  := $(wildcard nn/*.c losses/*.c data/*.c) $(filter-out train/main.c,$(wildcard train/*.c))
 LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
@@ -36,7 +44,8 @@ FUZZ_NAMES := $(filter-out fuzz_input,$(patsubst fuzz/%.c,%,$(wildcard fuzz/fuzz
 FUZZ_SECONDS ?= 60
 FUZZ_CC  ?= clang-14
 
-.PHONY: all deps deps-test test sanitize fuzz bench bench-nn bench-losses bench-data bench-export demo clean help
+.PHONY: all deps deps-test test sanitize fuzz mpi-test-build bench bench-nn bench-losses bench-data \
+        bench-export bench-mpi demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
 .SECONDARY:
 all: deps nightjar
@@ -54,13 +63,29 @@ $(B)/libnightjar.a: $(LIB_OBJ)
 	@rm -f $@
 	ar rcs $@ $^
 
-$(BIN): $(B)/train/main.o $(B)/libnightjar.a
+# build/flavour names the build ./nightjar was linked from (plain or mpi), so
+# switching between `make` and `make MPI=1` relinks it.
+# (The sub-make for build/mpi/nightjar leaves it alone: NJ_KEEP_FLAVOUR.)
+ifndef NJ_KEEP_FLAVOUR
+$(shell mkdir -p build; [ "$$(cat build/flavour 2>/dev/null)" = "$(FLAVOUR)" ] || echo $(FLAVOUR) > build/flavour)
+endif
+$(BIN): $(B)/train/main.o $(B)/libnightjar.a build/flavour
+	$(CC) $(CFLAGS) $(filter %.o %.a,$^) -o $@ $(LDLIBS)
+
+# The MPI build the tests and bench-mpi use, without touching ./nightjar:
+# build/mpi/nightjar (only when mpicc exists; tests/test_mpi.c says why it
+# skips otherwise).
+build/mpi/nightjar: build/mpi/train/main.o build/mpi/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)
+mpi-test-build:
+	@if command -v mpicc >/dev/null 2>&1; then $(MAKE) --no-print-directory MPI=1 NJ_KEEP_FLAVOUR=1 build/mpi/nightjar; \
+	else echo "mpicc not found: the MPI tests will be skipped (tools/deps.sh test installs Open MPI)"; fi
 
 $(B)/tests/%: $(B)/tests/%.o $(TEST_SUP_OBJ) $(B)/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)
 
 test: deps-test $(BIN) $(TEST_BIN)
+	@$(MAKE) --no-print-directory mpi-test-build
 	@NJ_BIN=./$(BIN) sh tests/run.sh $(B)/tests
 
 # The whole suite under ASan+UBSan in build-san/ (end-to-end training reduced
@@ -99,7 +124,11 @@ bench-data: deps $(B)/bench/bench_data
 bench-export: deps nightjar $(B)/bench/bench_export
 	@$(B)/bench/bench_export
 
-bench: bench-nn bench-losses bench-data bench-export
+bench-mpi: deps nightjar
+	@$(MAKE) --no-print-directory mpi-test-build
+	@sh bench/bench_mpi.sh
+
+bench: bench-nn bench-losses bench-data bench-export bench-mpi
 
 demo: deps nightjar
 	@sh tools/demo.sh
@@ -116,5 +145,6 @@ help:
 	@echo "make bench      speed figures (never part of the tests)"
 	@echo "make clean      remove build output"
 	@echo "make PORTABLE=1 build without -march=native"
+	@echo "make MPI=1      build ./nightjar with data-parallel training over Open MPI (mpirun)"
 
 -include $(shell find $(B) -name '*.d' 2>/dev/null)

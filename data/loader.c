@@ -1,6 +1,7 @@
 /* data/loader.c — the batch loader: step → samples order, a ring of batch
  * slots, and pthread workers that fill the slots of upcoming steps while the
- * trainer uses the current one (see loader.h). */
+ * trainer uses the current one; optionally only one shard of each batch
+ * (data-parallel training) — see loader.h. */
 #include "data/loader.h"
 #include "data/image.h"
 #include "data/loader_item.h"
@@ -103,7 +104,7 @@ static int batch_alloc(nj_batch *b, const nj_loader_config *c, int nsrc, int ste
 {
     memset(b, 0, sizeof *b);
     size_t n = (size_t)3 * c->width * c->height;
-    b->n = c->batch;
+    b->n = c->shard_count > 0 ? c->shard_count : c->batch;
     b->w = c->width;
     b->h = c->height;
     b->nsrc = nsrc;
@@ -126,13 +127,33 @@ static int batch_alloc(nj_batch *b, const nj_loader_config *c, int nsrc, int ste
 
 /* ---- workers ------------------------------------------------------------ */
 
+/* The sample indices of this loader's items of step `step` (its shard). */
+static int step_samples(const nj_loader *L, long step, int *out)
+{
+    const nj_loader_config *c = &L->cfg;
+    if (c->shard_count <= 0) {
+        nj_loader_step_samples(c->seed, step, c->batch, L->nsamples, out);
+        return 0;
+    }
+    int *all = malloc((size_t)c->batch * sizeof(int));
+    if (!all) return -1;
+    nj_loader_step_samples(c->seed, step, c->batch, L->nsamples, all);
+    memcpy(out, all + c->shard_first, (size_t)c->shard_count * sizeof(int));
+    free(all);
+    return 0;
+}
+
 static void fill(nj_loader *L, slot *sl, long step)
 {
     nj_batch *b = &sl->b;
     b->step = step;
     sl->rc = 0;
     sl->err[0] = 0;
-    nj_loader_step_samples(L->cfg.seed, step, b->n, L->nsamples, b->sample);
+    if (step_samples(L, step, b->sample)) {
+        sl->rc = -1;
+        snprintf(sl->err, sizeof sl->err, "loader: out of memory");
+        return;
+    }
     for (int i = 0; i < b->n && !sl->rc; i++)
         sl->rc = nj_loader_item(L->ds, &L->samples[b->sample[i]], &L->cfg, step, i, b, sl->err, sizeof sl->err);
 }
@@ -167,6 +188,9 @@ static int check_config(const nj_loader_config *c, int nsamples, char *err, size
         why = "training size must be positive and at most 16384";
     else if (c->batch <= 0) why = "batch must be positive";
     else if (c->workers <= 0 || c->workers > 64) why = "workers must be in 1..64";
+    else if (c->shard_count < 0 || c->shard_first < 0 || (c->shard_count > 0 &&
+             c->shard_first + c->shard_count > c->batch))
+        why = "the shard must lie within the batch";
     else if (c->prefetch <= 0 || c->prefetch > 64) why = "prefetch must be in 1..64";
     else if (c->start_step < 0) why = "start step must be non-negative";
     if (why) snprintf(err, errlen, "loader: %s", why);

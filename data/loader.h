@@ -28,10 +28,15 @@ typedef struct nj_loader_config {
     int jitter;              /* colour jitter on the network-input copies */
     float brightness, contrast, saturation, hue;   /* jitter ranges (see augment.h) */
     float flip_prob;         /* probability of a horizontal flip per item */
+    /* Data-parallel shard: the loader yields items [shard_first, shard_first +
+     * shard_count) of each step's batch of `batch` items — the same samples and
+     * augmentation those items have in an unsharded loader.  shard_count 0:
+     * the whole batch. */
+    int shard_first, shard_count;
 } nj_loader_config;
 
 /* 320x240, batch 4, seed 1, workers 1, prefetch 2, jitter on with ranges
- * 0.2/0.2/0.2/0.05, flip probability 0.5. */
+ * 0.2/0.2/0.2/0.05, flip probability 0.5, no shard. */
 void nj_loader_config_default(nj_loader_config *c);
 
 typedef struct nj_batch {

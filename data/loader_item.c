@@ -84,7 +84,7 @@ int nj_loader_item(const nj_dataset *ds, const nj_sample *s, const nj_loader_con
 {
     const nj_sequence *q = &ds->seq[s->seq];
     nj_rng r;
-    nj_rng_seed(&r, nj_loader_item_seed(c->seed, step, i));
+    nj_rng_seed(&r, nj_loader_item_seed(c->seed, step, c->shard_first + i));
     int flip = nj_rng_uniform(&r) < c->flip_prob;
     nj_jitter j = nj_jitter_draw(&r, c->brightness, c->contrast, c->saturation, c->hue);
     int partner = b->stereo && s->stereo, sw = b->w, sh = b->h;

@@ -35,8 +35,14 @@ static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs
     nj_graph_set_grad(g, grad_was);
     if (m && in->rng && cfg->tie_break > 0) {
         size_t k = nj_numel(m);
+        const nj_replicas *r = nj_graph_replicas(g);
+        /* with replicas (equal shares of the batch), shard i draws the noise a
+         * single process draws for its items, and every shard's generator ends
+         * where the single process's does */
+        if (r) nj_rng_skip_normals(in->rng, (uint64_t)k * (uint64_t)r->rank);
         for (size_t i = 0; i < k; i++)
             m->data[i] += (float)(nj_rng_normal(in->rng) * cfg->tie_break);
+        if (r) nj_rng_skip_normals(in->rng, (uint64_t)k * (uint64_t)(r->count - 1 - r->rank));
     }
     return m;
 }
@@ -84,6 +90,18 @@ static nj_tensor *make_mask(nj_graph *g, nj_tensor *reproj, nj_tensor *ident, fl
     return mask;
 }
 
+/* The photometric mean's factor 1 / (pixels used).  With replicas each
+ * shard's loss is count × (its sum) / (pixels used by all shards), so the mean
+ * of the shards' losses (and gradients) is the whole batch's. */
+static float photo_norm(nj_graph *g, float used)
+{
+    const nj_replicas *r = nj_graph_replicas(g);
+    if (!r) return 1.0f / (used > 1 ? used : 1.0f);
+    double all = used;
+    if (nj_graph_replica_sum(g, &all, 1, "view_synthesis_loss")) return 0.0f;
+    return (float)(r->count / (all > 1 ? all : 1.0));
+}
+
 static nj_tensor *scale_loss(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in,
                              int s, nj_tensor *ident, nj_tensor *img,
                              nj_vs_output *out, float *photo, float *smooth)
@@ -94,8 +112,7 @@ static nj_tensor *scale_loss(nj_graph *g, const nj_vs_config *cfg, const nj_vs_i
     if (!rmin) return NULL;
     float used = 0;
     nj_tensor *mask = make_mask(g, rmin, cfg->automask ? ident : NULL, &used);
-    nj_tensor *pl = nj_affine(g, nj_sum(g, nj_mul(g, rmin, mask), NJ_AXIS_ALL),
-                              1.0f / (used > 1 ? used : 1.0f), 0.0f);
+    nj_tensor *pl = nj_affine(g, nj_sum(g, nj_mul(g, rmin, mask), NJ_AXIS_ALL), photo_norm(g, used), 0.0f);
     nj_tensor *sl = nj_affine(g, nj_edge_smoothness(g, d, img), cfg->smooth_weight / (float)(1 << s), 0.0f);
     if (!pl || !sl) return NULL;
     *photo = pl->data[0];

@@ -4,7 +4,11 @@
  * run = (1 - momentum) * run + momentum * stat with the unbiased variance;
  * inference mode normalises with the running statistics.  Both modes have a
  * full backward for x, gamma and beta.  Threads own whole channels, so the
- * per-channel reductions of forward and backward are race-free.
+ * per-channel reductions of forward and backward are race-free.  With
+ * data-parallel replicas (nn/graph.h) training mode is synchronised batch
+ * norm: statistics and the backward's per-channel means span every
+ * process's share of the batch, so N processes on B/N items each compute
+ * what one process computes on B items.
  * nj_batchnorm_fold() merges an inference-mode batch norm into a conv. */
 #include "nn/ops.h"
 #include <math.h>
@@ -42,11 +46,10 @@ static void channel_affine(const nj_tensor *x, nj_tensor *y, int c, float alpha,
     }
 }
 
-/* Per channel: sums of gy and gy * xhat; then gamma/beta grads and, when x
- * needs it, dx = gamma * invstd * (gy - [training] (mean(gy) + xhat * mean(gy * xhat))). */
-static void channel_backward(const nj_op *op, int c)
+/* Per channel: sums of gy and gy * xhat over this process's batch. */
+static void channel_sums(const nj_op *op, int c, double *sg_out, double *sgx_out)
 {
-    const nj_tensor *x = op->in[0], *gamma = op->in[1], *beta = op->in[2], *y = op->out;
+    const nj_tensor *x = op->in[0], *y = op->out;
     const float *stats = op->aux;
     const float mean = stats[c], invstd = stats[x->c + c];
     const size_t hw = (size_t)x->h * x->w;
@@ -59,12 +62,24 @@ static void channel_backward(const nj_op *op, int c)
             sgx += gy[i] * ((p[i] - mean) * invstd);
         }
     }
+    *sg_out = sg;
+    *sgx_out = sgx;
+}
+
+/* gamma/beta grads from the local sums; when x needs it,
+ * dx = gamma * invstd * (gy - [training] (mg + xhat * mgx)) with mg, mgx the
+ * means of gy and gy * xhat over the whole (possibly distributed) batch. */
+static void channel_apply(const nj_op *op, int c, double sg, double sgx, float mg, float mgx)
+{
+    const nj_tensor *x = op->in[0], *gamma = op->in[1], *beta = op->in[2], *y = op->out;
+    const float *stats = op->aux;
+    const float mean = stats[c], invstd = stats[x->c + c];
+    const size_t hw = (size_t)x->h * x->w;
     if (gamma->grad) gamma->grad[c] += (float)sgx;
     if (beta->grad) beta->grad[c] += (float)sg;
     if (!x->grad) return;
-    const double m = (double)x->n * (double)hw;
     const float k = gamma->data[c] * invstd;
-    const float mg = op->i[0] ? (float)(sg / m) : 0.0f, mgx = op->i[0] ? (float)(sgx / m) : 0.0f;
+    if (!op->i[0]) mg = mgx = 0.0f;
     for (int n = 0; n < x->n; n++) {
         const size_t off = ((size_t)n * x->c + c) * hw;
         const float *p = x->data + off, *gy = y->grad + off;
@@ -74,12 +89,76 @@ static void channel_backward(const nj_op *op, int c)
     }
 }
 
+static void channel_backward(const nj_op *op, int c)
+{
+    const nj_tensor *x = op->in[0];
+    const double m = (double)x->n * (double)x->h * x->w;
+    double sg, sgx;
+    channel_sums(op, c, &sg, &sgx);
+    channel_apply(op, c, sg, sgx, (float)(sg / m), (float)(sgx / m));
+}
+
+/* Synchronised batch norm backward: the means of gy and gy * xhat are taken
+ * over every replica's batch (one sum of 2C + 1 values). */
+static void synced_backward(nj_graph *g, const nj_op *op)
+{
+    const nj_tensor *x = op->in[0];
+    const int C = x->c;
+    double *loc = nj_graph_alloc(g, sizeof(double) * (4 * (size_t)C + 1));
+    if (!loc) return;
+    double *all = loc + 2 * C;
+    #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
+    for (int c = 0; c < C; c++) channel_sums(op, c, &loc[c], &loc[C + c]);
+    for (int i = 0; i < 2 * C; i++) all[i] = loc[i];
+    all[2 * C] = (double)x->n * (double)x->h * x->w;
+    if (nj_graph_replica_sum(g, all, 2 * C + 1, "batchnorm backward")) return;
+    const double M = all[2 * C];
+    #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
+    for (int c = 0; c < C; c++)
+        channel_apply(op, c, loc[c], loc[C + c], (float)(all[c] / M), (float)(all[C + c] / M));
+}
+
 static void batchnorm_backward(nj_graph *g, const nj_op *op)
 {
-    (void)g;
+    if (op->i[1]) { synced_backward(g, op); return; }
     const nj_tensor *x = op->in[0];
     #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
     for (int c = 0; c < x->c; c++) channel_backward(op, c);
+}
+
+/* Synchronised batch statistics: mean and biased variance per channel over
+ * every replica's batch, from per-replica sums of x and x² in double (one
+ * sum of 2C + 1 values per layer: each is a synchronisation point).
+ * Returns 2C doubles (means, variances) in the arena and the total count in
+ * *M, or NULL with the graph failed. */
+static double *synced_stats(nj_graph *g, const nj_tensor *x, double *M)
+{
+    const int C = x->c;
+    const size_t hw = (size_t)x->h * x->w;
+    double *st = nj_graph_alloc(g, sizeof(double) * (2 * (size_t)C + 1));
+    if (!st) return NULL;
+    #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
+    for (int c = 0; c < C; c++) {
+        double s = 0, q = 0;
+        for (int n = 0; n < x->n; n++) {
+            const float *p = x->data + ((size_t)n * x->c + c) * hw;
+            for (size_t i = 0; i < hw; i++) {
+                s += p[i];
+                q += (double)p[i] * p[i];
+            }
+        }
+        st[c] = s;
+        st[C + c] = q;
+    }
+    st[2 * C] = (double)x->n * (double)hw;
+    if (nj_graph_replica_sum(g, st, 2 * C + 1, "batchnorm statistics")) return NULL;
+    *M = st[2 * C];
+    for (int c = 0; c < C; c++) {
+        const double mu = st[c] / *M, var = st[C + c] / *M - mu * mu;
+        st[c] = mu;
+        st[C + c] = var > 0 ? var : 0;
+    }
+    return st;
 }
 
 static int is_channel_vector(const nj_tensor *t, int c)
@@ -99,7 +178,7 @@ nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *
         return nj_graph_fail(g, "batchnorm: running statistics are NULL for x %dx%dx%dx%d",
                              x->n, x->c, x->h, x->w);
     const int training = nj_graph_training(g);
-    const double m = (double)x->n * x->h * x->w;
+    double m = (double)x->n * x->h * x->w;
     if (training && m < 2)
         return nj_graph_fail(g, "batchnorm: training needs more than one value per channel, x is %dx%dx%dx%d",
                              x->n, x->c, x->h, x->w);
@@ -107,11 +186,15 @@ nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *
     nj_tensor *y = nj_op_output(g, x->n, x->c, x->h, x->w, in, 3);
     float *stats = nj_graph_alloc(g, sizeof(float) * 2 * (size_t)x->c); /* mean, invstd */
     if (!y || !stats) return NULL;
+    const int synced = training && nj_graph_replicas(g) != NULL;
+    const double *gstat = synced ? synced_stats(g, x, &m) : NULL;
+    if (synced && !gstat) return NULL;
     #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
     for (int c = 0; c < x->c; c++) {
         double mean = run_mean[c], var = run_var[c];
         if (training) {
-            channel_stats(x, c, &mean, &var);
+            if (gstat) { mean = gstat[c]; var = gstat[x->c + c]; }
+            else channel_stats(x, c, &mean, &var);
             run_mean[c] = (float)(momentum * mean + (1.0 - momentum) * run_mean[c]);
             run_var[c] = (float)(momentum * var * m / (m - 1) + (1.0 - momentum) * run_var[c]);
         }
@@ -121,7 +204,7 @@ nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *
         channel_affine(x, y, c, (float)alpha, (float)(beta->data[c] - mean * alpha));
     }
     nj_op *op = nj_graph_record(g, "batchnorm", batchnorm_backward, y, in, 3);
-    if (op) { op->i[0] = training; op->f[0] = eps; op->aux = stats; }
+    if (op) { op->i[0] = training; op->i[1] = synced; op->f[0] = eps; op->aux = stats; }
     return y;
 }
 

@@ -10,6 +10,7 @@ struct nj_graph {
     nj_op *tape;
     int ntape, cap;
     int grad_on, training, failed;
+    nj_replicas replicas;            /* count 0: single process */
     char err[512];
 };
 
@@ -47,6 +48,26 @@ int nj_graph_grad_enabled(const nj_graph *g) { return g->grad_on; }
 void nj_graph_set_training(nj_graph *g, int training) { g->training = training != 0; }
 int nj_graph_training(const nj_graph *g) { return g->training; }
 int nj_graph_failed(const nj_graph *g) { return g->failed; }
+
+void nj_graph_set_replicas(nj_graph *g, const nj_replicas *r)
+{
+    memset(&g->replicas, 0, sizeof g->replicas);
+    if (r && r->count > 1 && r->sum) g->replicas = *r;
+}
+
+const nj_replicas *nj_graph_replicas(const nj_graph *g)
+{
+    return g->replicas.count > 1 && g->training ? &g->replicas : NULL;
+}
+
+int nj_graph_replica_sum(nj_graph *g, double *buf, int n, const char *what)
+{
+    const nj_replicas *r = nj_graph_replicas(g);
+    if (!r || n <= 0) return 0;
+    if (r->sum(buf, n, r->ctx) == 0) return 0;
+    nj_graph_fail(g, "%s: summing over %d processes failed", what, r->count);
+    return -1;
+}
 const char *nj_graph_error(const nj_graph *g) { return g->err; }
 nj_arena *nj_graph_arena(nj_graph *g) { return g->arena; }
 int nj_graph_ops(const nj_graph *g) { return g->ntape; }

@@ -49,6 +49,27 @@ int nj_graph_grad_enabled(const nj_graph *g);
 void nj_graph_set_training(nj_graph *g, int training);
 int nj_graph_training(const nj_graph *g);
 
+/* Data-parallel replicas.  When one step's batch is split over several
+ * processes (train/dist.h), the ops whose result couples batch items —
+ * batch-norm statistics (synchronised batch norm) and loss normalisers —
+ * combine their per-process partial sums with `sum`, so every process gets
+ * the value a single process would compute on the whole batch.  Replicas take
+ * part only in training mode: inference-mode graphs (validation on one
+ * process) never communicate.  `sum` adds n doubles in place over all
+ * replicas and returns 0, or -1 (the op then fails the graph). */
+typedef struct nj_replicas {
+    int rank, count;                 /* this process's shard, number of shards */
+    int (*sum)(double *buf, int n, void *ctx);
+    void *ctx;
+} nj_replicas;
+/* Installs (a copy of) r, or removes it with NULL or r->count <= 1. */
+void nj_graph_set_replicas(nj_graph *g, const nj_replicas *r);
+/* The replicas in effect: NULL unless set, count > 1 and in training mode. */
+const nj_replicas *nj_graph_replicas(const nj_graph *g);
+/* Sums buf over the replicas in effect (no-op without).  Returns 0, or -1
+ * with the graph failed naming `what`. */
+int nj_graph_replica_sum(nj_graph *g, double *buf, int n, const char *what);
+
 int nj_graph_failed(const nj_graph *g);
 const char *nj_graph_error(const nj_graph *g);
 /* Records the first error (printf-style); later ones are ignored. Returns NULL

@@ -41,3 +41,8 @@ double nj_rng_normal(nj_rng *r)
     if (u1 < 1e-300) u1 = 1e-300;
     return sqrt(-2.0 * log(u1)) * cos(6.283185307179586 * u2);
 }
+
+void nj_rng_skip_normals(nj_rng *r, uint64_t n)
+{
+    for (uint64_t i = 0; i < 2 * n; i++) nj_rng_next(r);   /* two uniforms per normal */
+}

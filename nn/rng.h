@@ -15,5 +15,7 @@ double nj_rng_uniform(nj_rng *r);
 uint32_t nj_rng_below(nj_rng *r, uint32_t n);
 /* Standard normal (Box–Muller). */
 double nj_rng_normal(nj_rng *r);
+/* Advances r past n nj_rng_normal() draws without computing them. */
+void nj_rng_skip_normals(nj_rng *r, uint64_t n);
 
 #endif

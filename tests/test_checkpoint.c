@@ -136,6 +136,7 @@ static void sample_state(nj_train_state *st, double best)
     st->dataset_hash = 0x8000000000000001ull;
     st->schedule_steps = 50000;
     st->lr_scale = 0.25f;
+    st->ranks = 5;
 }
 
 static int same_state(const nj_train_state *a, const nj_train_state *b)
@@ -146,7 +147,7 @@ static int same_state(const nj_train_state *a, const nj_train_state *b)
            a->nan_recoveries == b->nan_recoveries && a->resumes == b->resumes &&
            !memcmp(&a->elapsed_seconds, &b->elapsed_seconds, sizeof a->elapsed_seconds) &&
            a->dataset_hash == b->dataset_hash && a->schedule_steps == b->schedule_steps &&
-           !memcmp(&a->lr_scale, &b->lr_scale, sizeof a->lr_scale);
+           !memcmp(&a->lr_scale, &b->lr_scale, sizeof a->lr_scale) && a->ranks == b->ranks;
 }
 
 /* Same names, shapes, groups and bit-identical arrays (moments when `moments`). */
@@ -259,11 +260,11 @@ static void test_python_reader(const char *path, const nj_model *a)
     char args[600], out[1024], name[80] = "";
     snprintf(args, sizeof args, "'%s'", path);
     int py = python_output(ckpt_script, args, out, sizeof out);
-    int crc_ok = 0, nt = 0;
+    int crc_ok = 0, nt = 0, ranks = 0;
     long nfloats = 0, step = 0;
     double psum = 0, vsum = 0, best = 0, lr_scale = 0;
-    int got = py == 0 ? sscanf(out, "%d %d %ld %lf %lf %ld %lf %lf %79s", &crc_ok, &nt, &nfloats, &psum, &vsum, &step,
-                               &best, &lr_scale, name) : 0;
+    int got = py == 0 ? sscanf(out, "%d %d %ld %lf %lf %ld %lf %lf %d %79s", &crc_ok, &nt, &nfloats, &psum, &vsum,
+                               &step, &best, &lr_scale, &ranks, name) : 0;
     double want_p = 0, want_v = 0;
     long want_n = 0;
     for (int i = 0; i < a->params.count; i++) {
@@ -275,7 +276,7 @@ static void test_python_reader(const char *path, const nj_model *a)
         want_n += 3 * (long)nj_param_numel(p);
     }
     for (int i = 0; i < a->buffers.count; i++) want_n += (long)nj_param_numel(a->buffers.items[i]);
-    int ok = got == 9 && crc_ok == 1 && nt == 3 * a->params.count + a->buffers.count && nfloats == want_n &&
+    int ok = got == 10 && ranks == 5 && crc_ok == 1 && nt == 3 * a->params.count + a->buffers.count && nfloats == want_n &&
              fabs(psum - want_p) <= 1e-9 * (1 + fabs(want_p)) && fabs(vsum - want_v) <= 1e-9 * (1 + fabs(want_v)) &&
              step == 123456789012L && best == 0.0625 && lr_scale == 0.25 && !strcmp(name, "ckpt-test");
     check(ok, "checkpoint_layout_read_by_python_struct_zlib", "python said '%s' (rc %d); want %d tensors, %ld floats, "
@@ -326,6 +327,35 @@ static size_t find(const unsigned char *hay, size_t n, const char *needle)
     return n;
 }
 
+/* A file with the 100-byte state block written before `ranks` existed still
+ * loads, as a one-process run with the same state. */
+static void test_legacy_state(const char *good)
+{
+    size_t n;
+    unsigned char *b = read_bytes(good, &n);
+    char path[256], err[1024] = "";
+    if (!b || n < 200) { check(0, "checkpoint_legacy_setup", "cannot read %s", good); free(b); return; }
+    size_t state_at = 12 + get_le32(b + 8), slen = get_le32(b + state_at), rest = state_at + 4 + slen;
+    unsigned char *old = malloc(n);
+    memcpy(old, b, state_at + 4 + 100);
+    put_le32(old + state_at, 100);
+    memcpy(old + state_at + 4 + 100, b + rest, n - rest);
+    size_t m = n - (slen - 100);
+    put_le32(old + m - 4, nj_crc32(old, m - 4));
+    snprintf(path, sizeof path, "%s/legacy_state.ckpt", top);
+    write_bytes(path, old, m);
+    nj_model model;
+    nj_train_state st, want;
+    sample_state(&want, 0.0625);
+    int rc = nj_checkpoint_load(path, &model, NULL, &st, err, sizeof err);
+    if (rc == 0) nj_model_free(&model);
+    want.ranks = 1;
+    check(slen == 104 && rc == 0 && same_state(&st, &want), "checkpoint_reads_state_block_without_ranks_as_one_process",
+          "state %zu bytes, rc %d %s, ranks %d", slen, rc, err, rc == 0 ? st.ranks : -1);
+    free(old);
+    free(b);
+}
+
 static void test_damaged(const char *good)
 {
     size_t n;
@@ -336,7 +366,7 @@ static void test_damaged(const char *good)
         return;
     }
     uint32_t clen = get_le32(b + 8);
-    size_t state_at = 12 + clen, count_at = state_at + 4 + 100, entry_at = count_at + 4;
+    size_t state_at = 12 + clen, count_at = state_at + 4 + get_le32(b + state_at), entry_at = count_at + 4;
     size_t name_len = b[entry_at], kind_at = entry_at + 1 + name_len, dims_at = kind_at + 2;
 
     static const struct { const char *label; double frac; long abs; const char *want; } cuts[] = {
@@ -516,6 +546,7 @@ int main(int argc, char **argv)
     test_round_trip(path, &a, &cfg);
     test_python_reader(path, &a);
     test_damaged(path);
+    test_legacy_state(path);
     test_save_refusals(path, &a, &cfg);
 
     nj_model s;

@@ -2,6 +2,8 @@
  *  - the same seed gives the same batches (with 1 or 2 workers), another seed
  *    different ones, and a loader started at step s (resume) repeats step s;
  *  - every sample appears once per epoch;
+ *  - shards (data-parallel ranks) yield exactly their slice of each batch:
+ *    same samples, flips, jitter and pixels as the unsharded loader;
  *  - clean images equal the decoded, resized files; intrinsics are scaled;
  *  - colour jitter changes only the network input, identically for all
  *    frames of a sample;
@@ -114,6 +116,49 @@ static void test_determinism(const nj_dataset *ds, const nj_sample *s, int n)
     check(br[0].step == 4 && same_batch(&ba[4], &br[0]), "loader_resume_repeats_step", "start_step 4 differs from step 4");
     drop(ba, STEPS); drop(bb, STEPS); drop(bc, STEPS); drop(br, 1);
     nj_loader_destroy(a); nj_loader_destroy(b); nj_loader_destroy(c); nj_loader_destroy(r);
+}
+
+/* Item i of a equals item j of b (sample, flip, camera, clean and jittered pixels). */
+static int same_item(const nj_batch *a, int i, const nj_batch *b, int j)
+{
+    size_t n = (size_t)3 * a->w * a->h;
+    return a->sample[i] == b->sample[j] && a->flipped[i] == b->flipped[j] &&
+           !memcmp(&a->camera[i], &b->camera[j], sizeof(nj_camera)) &&
+           !memcmp(a->target + i * n, b->target + j * n, n * 4) &&
+           !memcmp(a->target_in + i * n, b->target_in + j * n, n * 4) &&
+           !memcmp(a->sources_in + i * n * a->nsrc, b->sources_in + j * n * b->nsrc, n * a->nsrc * 4);
+}
+
+static void test_shards(const nj_dataset *ds, const nj_sample *s, int n)
+{
+    enum { STEPS = 4 };
+    nj_loader_config c;
+    char err[512];
+    nj_loader_config_default(&c);
+    c.width = 64;
+    c.height = 48;
+    c.batch = 3;
+    c.seed = 11;
+    c.start_step = 2;
+    nj_loader *full = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    c.shard_first = 0;
+    c.shard_count = 1;
+    nj_loader *s0 = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    c.shard_first = 1;
+    c.shard_count = 2;
+    nj_loader *s1 = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    c.shard_first = 2;
+    nj_loader *bad = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    check(!bad && strstr(err, "shard"), "loader_shard_outside_batch_refused", "err '%s'", err);
+    if (!full || !s0 || !s1) { check(0, "loader_shard_create", "create failed"); return; }
+    nj_batch *bf = take(full, STEPS), *b0 = take(s0, STEPS), *b1 = take(s1, STEPS);
+    int ok = 1;
+    for (int t = 0; t < STEPS; t++)
+        ok &= b0[t].n == 1 && b1[t].n == 2 && same_item(&bf[t], 0, &b0[t], 0) && same_item(&bf[t], 1, &b1[t], 0) &&
+              same_item(&bf[t], 2, &b1[t], 1);
+    check(ok, "loader_shards_are_slices_of_the_batch", "a shard's item differs from the unsharded batch's");
+    drop(bf, STEPS); drop(b0, STEPS); drop(b1, STEPS);
+    nj_loader_destroy(full); nj_loader_destroy(s0); nj_loader_destroy(s1);
 }
 
 static void test_epoch(int n)
@@ -346,6 +391,7 @@ int main(void)
     if (!check(!nj_synth_run(&sc, err, sizeof err) && !open_dataset(json, &ds, &s, &n), "loader_dataset_ready", "%s", err))
         return test_exit();
     test_determinism(&ds, s, n);
+    test_shards(&ds, s, n);
     test_epoch(n);
     test_clean_and_camera(&ds, s, n);
     test_jitter_identical();

@@ -76,6 +76,7 @@ static void encode_state(const nj_train_state *st, uint8_t *b)
     nj_le_put32(b + 88, (uint32_t)st->nan_recoveries);
     nj_le_put32(b + 92, (uint32_t)st->resumes);
     nj_le_put32(b + 96, lr_bits);
+    nj_le_put32(b + 100, (uint32_t)(st->ranks > 0 ? st->ranks : 1));
 }
 
 static void put_entry(writer *w, const nj_param *p, nj_ckpt_kind kind)

@@ -27,6 +27,8 @@ typedef struct nj_train_state {
     uint64_t dataset_hash;
     long schedule_steps;        /* horizon of the LR schedule, fixed once known */
     float lr_scale;             /* 1, halved at each NaN recovery */
+    int ranks;                  /* processes of a data-parallel run (1: single); the
+                                   sample order depends on it (train/dist.h) */
 } nj_train_state;
 
 /* Writes model (params, buffers, Adam moments), config and state to `path`

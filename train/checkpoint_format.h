@@ -5,11 +5,13 @@
  *   8 bytes   magic "NJCKPT01" ("NJCKPT" + two-digit format version)
  *   u32       C = length of the configuration text
  *   C bytes   the configuration as JSON (nj_train_config_to_json, no terminator)
- *   u32       S = length of the state block (NJ_CKPT_STATE_BYTES in format 01)
+ *   u32       S = length of the state block (NJ_CKPT_STATE_BYTES; the reader also
+ *             accepts NJ_CKPT_STATE_BYTES_V1, the block before `ranks` existed)
  *   S bytes   state: i64 step, i64 epoch, u64 rng[0], u64 rng[1], u64 loader_seed,
  *             i64 loader_cursor, f64 best_val, i64 adam_step, f64 elapsed_seconds,
  *             u64 dataset_hash, i64 schedule_steps, i32 nan_recoveries,
- *             i32 resumes, f32 lr_scale
+ *             i32 resumes, f32 lr_scale, i32 ranks (processes of a data-parallel
+ *             run; 1 when absent)
  *   u32       T = number of tensors
  *   T entries u8 name length L (1..63), L bytes name, u8 kind (nj_ckpt_kind),
  *             u8 group, u32 n, u32 c, u32 h, u32 w
@@ -25,7 +27,8 @@
 
 #define NJ_CKPT_MAGIC "NJCKPT"          /* followed by the version digits */
 #define NJ_CKPT_VERSION "01"
-#define NJ_CKPT_STATE_BYTES 100
+#define NJ_CKPT_STATE_BYTES 104
+#define NJ_CKPT_STATE_BYTES_V1 100
 #define NJ_CKPT_ENTRY_MIN 20            /* entry with a one-byte name */
 #define NJ_CKPT_MAX_CONFIG (1u << 20)
 #define NJ_CKPT_MAX_TENSORS 65536u

@@ -92,7 +92,7 @@ static int check_envelope(reader *r)
     struct stat sb;
     if (fstat(fileno(r->f), &sb) || !S_ISREG(sb.st_mode)) return fail(r, "not a regular file");
     uint64_t size = (uint64_t)sb.st_size;
-    const uint64_t min = 8 + 4 + 4 + NJ_CKPT_STATE_BYTES + 4 + 4;
+    const uint64_t min = 8 + 4 + 4 + NJ_CKPT_STATE_BYTES_V1 + 4 + 4;
     char magic[8];
     if (size < 8 || fread(magic, 1, 8, r->f) != 8)
         return fail(r, "too short to be a nightjar checkpoint (%llu bytes)", (unsigned long long)size);
@@ -149,8 +149,9 @@ static int read_state(reader *r, nj_train_state *st)
     uint32_t n;
     uint8_t b[NJ_CKPT_STATE_BYTES];
     if (get_u32(r, &n, "the state length")) return -1;
-    if (n != NJ_CKPT_STATE_BYTES)
-        return fail(r, "the state block claims %u bytes, format %s has %d", n, NJ_CKPT_VERSION, NJ_CKPT_STATE_BYTES);
+    if (n != NJ_CKPT_STATE_BYTES && n != NJ_CKPT_STATE_BYTES_V1)
+        return fail(r, "the state block claims %u bytes, format %s has %d (or %d)", n, NJ_CKPT_VERSION,
+                    NJ_CKPT_STATE_BYTES, NJ_CKPT_STATE_BYTES_V1);
     if (get(r, b, n, "the state")) return -1;
     uint64_t q[11];
     for (int i = 0; i < 11; i++) q[i] = nj_le_get64(b + 8 * i);
@@ -169,6 +170,8 @@ static int read_state(reader *r, nj_train_state *st)
     st->resumes = (int)nj_le_get32(b + 92);
     uint32_t lr_bits = nj_le_get32(b + 96);
     memcpy(&st->lr_scale, &lr_bits, 4);
+    st->ranks = n >= NJ_CKPT_STATE_BYTES ? (int)nj_le_get32(b + 100) : 1;
+    if (st->ranks < 1 || st->ranks > 1 << 20) return fail(r, "the state claims %d processes", st->ranks);
     return 0;
 }
 

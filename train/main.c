@@ -1,6 +1,7 @@
 /* train/main.c — the ./nightjar command: dispatches subcommands. */
 #include "data/check.h"
 #include "data/synth.h"
+#include "train/dist.h"
 #include "train/trainer.h"
 #include "train/version.h"
 #include <cblas.h>
@@ -58,6 +59,8 @@ static int cmd_version(int argc, char **argv)
     (void)argc; (void)argv;
     printf("nightjar %s\n", NJ_VERSION);
     printf("openblas: %s\n", openblas_get_config());
+    printf("mpi: %s\n", nj_dist_built() ? "built in: data-parallel training with mpirun -np N ./nightjar train ..."
+                                         : "not built in (make MPI=1 adds data-parallel training over Open MPI)");
     return 0;
 }
 

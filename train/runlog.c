@@ -36,6 +36,15 @@ int nj_runlog_open(nj_runlog *l, const char *dir, char *err, size_t errlen)
     return 0;
 }
 
+void nj_runlog_quiet(nj_runlog *l)
+{
+    l->fd = -1;
+    l->tty = 0;
+    l->line_open = 0;
+    l->quiet = 1;
+    l->held[0] = 0;
+}
+
 void nj_runlog_close(nj_runlog *l)
 {
     if (l->line_open) { fputc('\n', stdout); l->line_open = 0; }
@@ -53,6 +62,7 @@ static int log_failed(nj_runlog *l, int e)
 int nj_runlog_json(nj_runlog *l, const char *json)
 {
     char line[4096];
+    if (l->quiet) return 0;
     int n = snprintf(line, sizeof line, "%s\n", json);
     if (n <= 0 || n >= (int)sizeof line) return -1;
     if (l->fd < 0) return -1;
@@ -78,6 +88,7 @@ const char *nj_runlog_error(const nj_runlog *l) { return l->error[0] ? l->error 
 
 void nj_runlog_progress(nj_runlog *l, const char *text)
 {
+    if (l->quiet) return;
     if (l->tty) {
         printf("\r\033[K%s", text);
         l->line_open = 1;
@@ -89,9 +100,14 @@ void nj_runlog_progress(nj_runlog *l, const char *text)
 
 void nj_runlog_say(nj_runlog *l, const char *fmt, ...)
 {
-    if (l->line_open) { fputc('\n', stdout); l->line_open = 0; }
     va_list ap;
     va_start(ap, fmt);
+    if (l->quiet) {
+        vsnprintf(l->held, sizeof l->held, fmt, ap);
+        va_end(ap);
+        return;
+    }
+    if (l->line_open) { fputc('\n', stdout); l->line_open = 0; }
     vprintf(fmt, ap);
     va_end(ap);
     fputc('\n', stdout);

@@ -13,11 +13,16 @@ typedef struct nj_runlog {
     int line_open;          /* an updating progress line is on screen */
     char path[1100];        /* RUN_DIR/log.jsonl */
     char error[1400];       /* first write failure ("PATH: write failed: why"), "" if none */
+    int quiet;              /* nj_runlog_quiet: writes nothing */
+    char held[512];         /* quiet: the last message passed to nj_runlog_say */
 } nj_runlog;
 
 /* Opens (appends to) dir/log.jsonl.  Returns 0 or -1 with a message. */
 int nj_runlog_open(nj_runlog *l, const char *dir, char *err, size_t errlen);
 void nj_runlog_close(nj_runlog *l);
+/* A log that writes nothing (the non-zero ranks of a data-parallel run): the
+ * JSON lines and progress are dropped, the last message is kept in `held`. */
+void nj_runlog_quiet(nj_runlog *l);
 /* Appends one JSON object line (text without the newline) with a single
  * write() and fdatasync.  On failure (disk full, I/O error) a partly written
  * line is cut off again, so the file stays parseable, and the first failure

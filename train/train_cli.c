@@ -1,5 +1,7 @@
 /* train/train_cli.c — `nightjar train`: options, config, run. */
 #include "train/trainer.h"
+#include "train/dist.h"
+#include "train/trainer_dist.h"
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -17,7 +19,10 @@ static void usage(FILE *f)
         "  --minutes, --hours  time budget; --steps  step budget\n"
         "  --resume   continue the run in --out from its newest readable checkpoint\n"
         "  --init     start from another run's weights (same architecture): a checkpoint,\n"
-        "             or an export made with --format safetensors\n");
+        "             or an export made with --format safetensors\n"
+        "Data-parallel on several processes or servers (a `make MPI=1` build):\n"
+        "  mpirun -np N ./nightjar train ...   batch (config) is per process; the global\n"
+        "  batch is N x batch; --threads (or OMP_NUM_THREADS) is per process.\n");
 }
 
 typedef struct {
@@ -95,14 +100,21 @@ static void apply_overrides(nj_train_config *c, const train_args *a)
 static void print_start(const nj_trainer *t)
 {
     const nj_model *m = &t->model;
+    if (t->rank != 0) return;
     double df = nj_depth_flops(m, t->cfg.height, t->cfg.width);
     double pf = m->cfg.pose ? nj_pose_flops(m, t->cfg.height, t->cfg.width) : 0;
     printf("nightjar train: run %s in %s\n", t->cfg.name, t->dir);
     printf("  data: %s (%d training samples, %d validation samples)\n", t->cfg.dataset, t->ntrain, t->nval);
     printf("  model: %zu parameters; depth net %.3f GFLOPs, pose net %.3f GFLOPs per pair at %dx%d\n",
            nj_params_numel(&m->params), df * 1e-9, pf * 1e-9, t->cfg.width, t->cfg.height);
-    printf("  %s at step %ld; batch %d; threads %d\n", t->st.step ? "resuming" : "starting", t->st.step,
-           t->cfg.batch, nj_threads_init(t->cfg.threads));
+    int threads = nj_threads_init(t->cfg.threads);
+    if (t->ranks > 1)
+        printf("  %s at step %ld; %d processes x batch %d = global batch %d; threads %d per process (rank 0)\n",
+               t->st.step ? "resuming" : "starting", t->st.step, t->ranks, t->cfg.batch, t->ranks * t->cfg.batch,
+               threads);
+    else
+        printf("  %s at step %ld; batch %d; threads %d\n", t->st.step ? "resuming" : "starting", t->st.step,
+               t->cfg.batch, threads);
     fflush(stdout);
 }
 
@@ -120,16 +132,22 @@ int nj_train_main(int argc, char **argv)
     if (nj_train_config_check(&t.cfg, err, sizeof err)) { fprintf(stderr, "nightjar train: %s\n", err); return 2; }
     if (a.out) snprintf(t.dir, sizeof t.dir, "%s", a.out);
     else snprintf(t.dir, sizeof t.dir, "checkpoints/%s", t.cfg.name);
+    if (nj_dist_init(NULL, NULL, err, sizeof err)) { fprintf(stderr, "nightjar train: %s\n", err); return 1; }
     nj_threads_init(t.cfg.threads);
     if (nj_trainer_setup(&t, a.resume, err, sizeof err)) {
-        fprintf(stderr, "nightjar train: %s\n", err);
+        if (err[0]) fprintf(stderr, "nightjar train: %s\n", err);
         nj_trainer_teardown(&t);
         if (t.log.fd >= 0) nj_runlog_close(&t.log);
+        nj_dist_finalize();
         return 1;
     }
     print_start(&t);
+    long first = t.st.step;
     int code = nj_trainer_run(&t);
+    if (code && t.ranks > 1) nj_trainer_dist_fail(&t, code);
+    nj_trainer_dist_summary(&t, t.st.step - first);
     nj_runlog_close(&t.log);
     nj_trainer_teardown(&t);
+    nj_dist_finalize();
     return code;
 }

@@ -4,6 +4,8 @@
 #include "train/trainer.h"
 #include "train/safetensors.h"
 #include "train/runfiles.h"
+#include "train/dist.h"
+#include "train/trainer_dist.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -79,11 +81,13 @@ static int fresh_model(nj_trainer *t, char *err, size_t errlen)
     t->st.best_val = INFINITY;
     t->st.lr_scale = 1.0f;
     t->st.dataset_hash = nj_dataset_hash(&t->ds);
+    t->st.ranks = t->ranks;
     if (t->cfg.max_steps > 0) t->st.schedule_steps = t->cfg.max_steps;
     return 0;
 }
 
-int nj_trainer_load_latest(nj_trainer *t, char *err, size_t errlen)
+/* The newest readable checkpoint of the run, read by this process. */
+static int load_latest_local(nj_trainer *t, char *err, size_t errlen)
 {
     long steps[256];
     int n = nj_run_list_steps(t->dir, steps, 256);
@@ -108,9 +112,18 @@ int nj_trainer_load_latest(nj_trainer *t, char *err, size_t errlen)
     return 1;
 }
 
+/* Several ranks: rank 0 reads, then shares the model and state. */
+int nj_trainer_load_latest(nj_trainer *t, char *err, size_t errlen)
+{
+    if (t->ranks <= 1) return load_latest_local(t, err, errlen);
+    int64_t r = t->rank == 0 ? load_latest_local(t, err, errlen) : INT64_MIN;
+    if (nj_dist_max_i64(&r, 1)) return -1;
+    return r == 0 && nj_trainer_dist_share(t, err, errlen) ? -1 : (int)r;
+}
+
 static int resume_model(nj_trainer *t, char *err, size_t errlen)
 {
-    int r = nj_trainer_load_latest(t, err, errlen);
+    int r = load_latest_local(t, err, errlen);
     if (r < 0) return -1;
     if (r == 1) {
         snprintf(err, errlen, "%s: nothing to resume (no readable step-*.ckpt)", t->dir);
@@ -119,6 +132,12 @@ static int resume_model(nj_trainer *t, char *err, size_t errlen)
     if (t->st.dataset_hash != nj_dataset_hash(&t->ds)) {
         snprintf(err, errlen, "%s: the data differs from the run being resumed (file list hash mismatch)",
                  t->cfg.dataset);
+        return -1;
+    }
+    if (t->st.ranks != t->ranks) {
+        snprintf(err, errlen, "%s: the run was trained by %d process%s and is resumed by %d; the sample order "
+                 "depends on the number, so resume with the same count (mpirun -np %d)", t->dir, t->st.ranks,
+                 t->st.ranks == 1 ? "" : "es", t->ranks, t->st.ranks);
         return -1;
     }
     t->st.resumes++;
@@ -131,7 +150,9 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
     nj_loader_config_default(&lc);
     lc.width = t->cfg.width;
     lc.height = t->cfg.height;
-    lc.batch = t->cfg.batch;
+    lc.batch = t->cfg.batch * t->ranks;     /* the global batch; this rank loads its shard */
+    lc.shard_first = t->rank * t->cfg.batch;
+    lc.shard_count = t->ranks > 1 ? t->cfg.batch : 0;
     lc.seed = t->st.loader_seed;
     lc.start_step = t->st.step;
     lc.workers = 1;
@@ -146,14 +167,9 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
     return t->loader ? 0 : -1;
 }
 
-int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
+/* Optimiser, graph, log and loader of a run whose model is in place. */
+static int finish_setup(nj_trainer *t, char *err, size_t errlen)
 {
-    if (nj_run_mkdir(t->dir, err, errlen) || open_data(t, err, errlen)) return -1;
-    int stale = nj_run_clean_temps(t->dir);
-    if (stale) printf("removed %d unfinished temporary file%s of an interrupted write in %s\n",
-                      stale, stale == 1 ? "" : "s", t->dir);
-    if (nj_trainer_memory_precheck(t, err, errlen)) return -1;
-    if (resume ? resume_model(t, err, errlen) : fresh_model(t, err, errlen)) return -1;
     if (!nj_model_size_ok(&t->model, t->cfg.height, t->cfg.width)) {
         snprintf(err, errlen, "training size %dx%d must be a multiple of %d and at least %d on each side",
                  t->cfg.width, t->cfg.height, 1 << t->model.cfg.stages, 2 << t->model.cfg.stages);
@@ -166,7 +182,9 @@ int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
     t->opt.step = t->st.adam_step;
     t->g = nj_graph_new((size_t)64 << 20);
     if (!t->g) { snprintf(err, errlen, "out of memory creating the training graph"); return -1; }
-    if (nj_runlog_open(&t->log, t->dir, err, errlen)) return -1;
+    nj_trainer_dist_graph(t);
+    if (t->rank != 0) nj_runlog_quiet(&t->log);
+    else if (nj_runlog_open(&t->log, t->dir, err, errlen)) return -1;
     nj_health_init(&t->health, t->cfg.video);
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);
@@ -175,6 +193,28 @@ int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
     t->last_ckpt = t->st.elapsed_seconds;
     t->last_ckpt_step = t->st.step;
     return nj_trainer_start_loader(t, err, errlen);
+}
+
+int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen)
+{
+    /* with several ranks: rank 0 alone touches the run folder and decides the
+     * model and state; the others follow (trainer_dist.h) */
+    if (nj_trainer_dist_begin(t, err, errlen)) return -1;
+    int root = t->rank == 0;
+    int rc = root ? nj_run_mkdir(t->dir, err, errlen) : 0;
+    if (!rc) rc = open_data(t, err, errlen);
+    if (!rc && root) {
+        int stale = nj_run_clean_temps(t->dir);
+        if (stale) printf("removed %d unfinished temporary file%s of an interrupted write in %s\n",
+                          stale, stale == 1 ? "" : "s", t->dir);
+    }
+    if (!rc) rc = nj_trainer_memory_precheck(t, err, errlen);
+    if (nj_trainer_dist_agree(t, rc, "opening the data", err, errlen) || nj_trainer_dist_check_data(t, err, errlen))
+        return -1;
+    rc = root ? (resume ? resume_model(t, err, errlen) : fresh_model(t, err, errlen)) : 0;
+    if (nj_trainer_dist_agree(t, rc, "preparing the model", err, errlen) || nj_trainer_dist_share(t, err, errlen))
+        return -1;
+    return nj_trainer_dist_agree(t, finish_setup(t, err, errlen), "starting the run", err, errlen);
 }
 
 void nj_trainer_teardown(nj_trainer *t)
@@ -187,6 +227,8 @@ void nj_trainer_teardown(nj_trainer *t)
     t->model_ready = 0;
     free(t->train);
     free(t->val);
+    free(t->fused);
     t->train = t->val = NULL;
+    t->fused = NULL;
     nj_dataset_free(&t->ds);
 }

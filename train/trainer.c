@@ -5,6 +5,7 @@
 #include "train/report.h"
 #include "train/runfiles.h"
 #include "train/step.h"
+#include "train/trainer_dist.h"
 #include <math.h>
 #include <signal.h>
 #include <stdio.h>
@@ -15,7 +16,11 @@
 /* Set by SIGINT/SIGTERM; the loop finishes its step, saves and exits. */
 static volatile sig_atomic_t stop_signal;
 
-static void on_signal(int sig) { stop_signal = sig; }
+static void on_signal(int sig)
+{
+    stop_signal = sig;
+    nj_trainer_dist_signal_note();
+}
 
 static double now_elapsed(const nj_trainer *t)
 {
@@ -27,10 +32,11 @@ static double now_elapsed(const nj_trainer *t)
 int nj_trainer_save(nj_trainer *t, const char *name, char *err, size_t errlen)
 {
     char path[NJ_PATH_MAX + 64];
+    if (t->rank != 0) return 0;             /* rank 0 writes for the whole job */
     t->st.adam_step = t->opt.step;
     t->st.rng[0] = t->rng.s[0];
     t->st.rng[1] = t->rng.s[1];
-    t->st.loader_cursor = t->st.step * t->cfg.batch;
+    t->st.loader_cursor = t->st.step * t->cfg.batch * t->ranks;
     t->st.elapsed_seconds = now_elapsed(t);
     if (name) snprintf(path, sizeof path, "%s/%s", t->dir, name);
     else nj_run_step_path(t->dir, t->st.step, path, sizeof path);
@@ -137,7 +143,7 @@ static void log_step(nj_trainer *t, const nj_step_result *r, float lr, double ip
              "{\"type\":\"step\",\"step\":%ld,\"epoch\":%.3f,\"loss\":%.6g,\"photometric\":%.6g,"
              "\"smoothness\":%.6g,\"lr\":%.6g,\"images_per_s\":%.3f,\"mask_kept\":%.4f,"
              "\"saturated\":%.4f,\"translation\":%.6g,\"elapsed_s\":%.1f,\"health\":\"%s\"}",
-             t->st.step, (double)t->st.step * t->cfg.batch / epoch_len, r->loss, r->photometric,
+             t->st.step, (double)t->st.step * t->cfg.batch * t->ranks / epoch_len, r->loss, r->photometric,
              r->smoothness, lr, ips, r->mask_fraction, r->saturated, r->translation, el,
              nj_health_summary(&t->health, health, sizeof health));
     nj_runlog_json(&t->log, line);
@@ -151,11 +157,11 @@ static void progress(nj_trainer *t, const nj_step_result *r, float lr, double ip
         double left = t->cfg.minutes * 60 - el;
         snprintf(eta, sizeof eta, " eta %dm%02ds", (int)(left / 60), (int)fmod(left > 0 ? left : 0, 60));
     } else if (t->cfg.max_steps > 0 && ips > 0) {
-        double left = (double)(t->cfg.max_steps - t->st.step) * t->cfg.batch / ips;
+        double left = (double)(t->cfg.max_steps - t->st.step) * t->cfg.batch * t->ranks / ips;
         snprintf(eta, sizeof eta, " eta %dm%02ds", (int)(left / 60), (int)fmod(left, 60));
     }
     snprintf(text, sizeof text, "step %ld epoch %.2f loss %.4f photo %.4f smooth %.5f lr %.2g %.1f img/s%s",
-             t->st.step, (double)t->st.step * t->cfg.batch / epoch_len, r->loss, r->photometric,
+             t->st.step, (double)t->st.step * t->cfg.batch * t->ranks / epoch_len, r->loss, r->photometric,
              r->smoothness, lr, ips, eta);
     nj_runlog_progress(&t->log, text);
 }
@@ -176,7 +182,7 @@ static void check_health(nj_trainer *t, const nj_step_result *r)
 
 static int validate(nj_trainer *t)
 {
-    if (t->nval == 0) return 0;
+    if (t->nval == 0 || t->rank != 0) return 0;
     nj_val_result v;
     char err[512], line[512], depth[256] = "";
     if (nj_trainer_validate(t, 64, &v, err, sizeof err)) {
@@ -216,6 +222,14 @@ static int budget_reached(const nj_trainer *t)
     return t->cfg.minutes > 0 && now_elapsed(t) >= t->cfg.minutes * 60.0;
 }
 
+/* Budget or signal; with several ranks, agreed by all (trainer_dist.h). */
+static int should_stop(nj_trainer *t)
+{
+    int agreed = nj_trainer_dist_stop(t, stop_signal ? 2 : budget_reached(t) ? 1 : 0);
+    if (agreed == 2 && !stop_signal) stop_signal = SIGTERM;
+    return agreed != 0;
+}
+
 static int checkpoint_due(const nj_trainer *t)
 {
     if (t->cfg.checkpoint_steps > 0 && t->st.step - t->last_ckpt_step >= t->cfg.checkpoint_steps) return 1;
@@ -243,6 +257,10 @@ static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float 
         return -1;
     }
     inject_fault(t, r);
+    if (nj_trainer_dist_average(t, r)) {
+        nj_runlog_say(&t->log, "step %ld: averaging the gradients over the ranks failed", t->st.step);
+        return -1;
+    }
     double gn = grad_norm(&t->model.params);
     if (!isfinite(r->loss) || !isfinite(gn)) return handle_bad_step(t, isfinite(r->loss) ? "gradient" : "loss") < 0 ? -1 : 1;
     t->bad_steps = 0;
@@ -268,7 +286,7 @@ int nj_trainer_run(nj_trainer *t)
     double tlog = now_elapsed(t);
     long slog = t->st.step;
     const char *ended = "budget reached";
-    while (!budget_reached(t) && !stop_signal && !nj_runlog_error(&t->log)) {
+    while (!should_stop(t) && !nj_runlog_error(&t->log)) {
         const nj_batch *b = nj_loader_next(t->loader, err, sizeof err);
         if (!b) { nj_runlog_say(&t->log, "data: %s", err); code = 1; ended = "data error"; break; }
         nj_step_result r;
@@ -286,7 +304,7 @@ int nj_trainer_run(nj_trainer *t)
         double el = now_elapsed(t);
         fix_schedule(t);
         if (t->st.step % (t->cfg.log_every > 0 ? t->cfg.log_every : 1) == 0 || !logged) {
-            double ips = el > tlog ? (double)(t->st.step - slog) * t->cfg.batch / (el - tlog) : 0;
+            double ips = el > tlog ? (double)(t->st.step - slog) * t->cfg.batch * t->ranks / (el - tlog) : 0;
             check_health(t, &r);
             log_step(t, &r, lr, ips, epoch_len);
             progress(t, &r, lr, ips, epoch_len);
@@ -320,8 +338,12 @@ int nj_trainer_run(nj_trainer *t)
              "\"resumes\":%d,\"nan_recoveries\":%d}", t->st.step, ended, now_elapsed(t),
              t->st.resumes, t->st.nan_recoveries);
     nj_runlog_json(&t->log, line);
-    if (nj_runlog_error(&t->log)) nj_runlog_say(&t->log, "report not written: the run log is incomplete");
-    else if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
+    if (t->rank != 0) {
+    } else if (nj_runlog_error(&t->log)) {
+        nj_runlog_say(&t->log, "report not written: the run log is incomplete");
+    } else if (nj_report_write(t->dir, NULL, err, sizeof err)) {
+        nj_runlog_say(&t->log, "report not written: %s", err);
+    }
     else nj_runlog_say(&t->log, "report: %s/report.html", t->dir);
     nj_trainer_memory_log(t);
     char health[64];

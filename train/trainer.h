@@ -39,6 +39,8 @@ typedef struct nj_trainer {
     float last_val;
     double t10;                /* elapsed seconds at step 10 (schedule estimate) */
     nj_mem_need mem;           /* memory need, estimated at setup (train_memory.c) */
+    int rank, ranks;           /* data-parallel processes (trainer_dist.h); 0 of 1 alone */
+    float *fused;              /* gradient all-reduce buffer (ranks > 1) */
 } nj_trainer;
 
 /* `./nightjar train ...` */

@@ -2,7 +2,7 @@
 ".ckpt" layout documented in train/checkpoint_format.h, using Python's struct,
 json and zlib modules.
 usage: crc_ckpt.py FILE  → prints one line:
-  CRC_OK NTENSORS NFLOATS PARAM_SUM ADAM_V_SUM STEP BEST_VAL LR_SCALE RUN_NAME
+  CRC_OK NTENSORS NFLOATS PARAM_SUM ADAM_V_SUM STEP BEST_VAL LR_SCALE RANKS RUN_NAME
 where CRC_OK is 1 when zlib.crc32 of everything before the trailing 4 bytes
 equals them (little-endian), sums are float64 sums of the float32 values of
 the tensors of kind 0 (parameters) and 3 (Adam second moments)."""
@@ -21,8 +21,8 @@ config = json.loads(data[pos:pos + clen].decode("utf-8"))
 pos += clen
 (slen,) = struct.unpack_from("<I", data, pos)
 pos += 4
-state = struct.unpack_from("<qqQQQqdqdQqiif", data, pos)
-assert slen == struct.calcsize("<qqQQQqdqdQqiif") == 100, "state size"
+state = struct.unpack_from("<qqQQQqdqdQqiifi", data, pos)
+assert slen == struct.calcsize("<qqQQQqdqdQqiifi") == 104, "state size"
 pos += slen
 (ntensors,) = struct.unpack_from("<I", data, pos)
 pos += 4
@@ -45,4 +45,4 @@ for name, kind, count in table:
         sums[kind] += sum(values)
 assert pos == len(data) - 4, "data length"
 print(crc_ok, ntensors, nfloats, repr(sums[0]), repr(sums[3]), state[0], repr(state[6]), repr(state[13]),
-      config["run"]["name"])
+      state[14], config["run"]["name"])

@@ -9,6 +9,7 @@
  * and ∂μx/∂x_q = 1/9, ∂σx²/∂x_q = 2(x_q − μx)/9, ∂σxy/∂x_q = (y_q − μy)/9.
  */
 #include "losses/photometric.h"
+#include "nn/prof.h"
 #include <string.h>
 
 static inline int reflect(int i, int n) { return i < 0 ? -i : (i >= n ? 2 * n - 2 - i : i); }
@@ -101,9 +102,11 @@ nj_tensor *nj_ssim(nj_graph *g, nj_tensor *a, nj_tensor *b)
     if (!s) return NULL;
     int planes = a->n * a->c;
     size_t ps = (size_t)a->h * a->w;
+    double t0 = nj_prof_start();
     #pragma omp parallel for schedule(static)
     for (int p = 0; p < planes; p++)
         plane_forward(a->data + p * ps, b->data + p * ps, s->data + p * ps, a->h, a->w);
+    nj_prof_stop(NJ_PROF_SSIM, t0);
     nj_graph_record(g, "ssim", ssim_backward, s, in, 2);
     return s;
 }

@@ -16,6 +16,7 @@
  * dW only through the rounding of the partial sums.
  */
 #include "nn/ops.h"
+#include "nn/prof.h"
 #include <cblas.h>
 #include <omp.h>
 #include <string.h>
@@ -350,6 +351,7 @@ nj_tensor *nj_conv2d(nj_graph *g, nj_tensor *x, nj_tensor *w, nj_tensor *b,
     nj_tensor *in[3] = {x, w, b};
     nj_tensor *y = nj_op_output(g, G.n, G.cout, G.oh, G.ow, in, 3);
     if (!y) return NULL;
+    double t0 = nj_prof_start();
     int threads = omp_get_max_threads(), items = G.n * G.nbands;
     size_t tile = tile_floats(&G);
     float *scratch = NULL;
@@ -359,6 +361,7 @@ nj_tensor *nj_conv2d(nj_graph *g, nj_tensor *x, nj_tensor *w, nj_tensor *b,
         float *s = scratch ? scratch + (size_t)omp_get_thread_num() * tile : NULL;
         forward_item(&G, x, w, b, y, it / G.nbands, it % G.nbands, s);
     }
+    nj_prof_stop(NJ_PROF_CONV_FWD, t0);
     nj_op *op = nj_graph_record(g, "conv2d", conv2d_backward, y, in, 3);
     if (op) {
         op->i[0] = stride;

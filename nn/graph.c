@@ -1,5 +1,6 @@
 /* nn/graph.c — tape recording and reverse replay (see graph.h). */
 #include "nn/graph.h"
+#include "nn/prof.h"
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -139,8 +140,14 @@ nj_op *nj_graph_record(nj_graph *g, const char *name, nj_backward_fn bw,
 
 static int replay(nj_graph *g)
 {
-    for (int k = g->ntape - 1; k >= 0 && !g->failed; k--)
+    for (int k = g->ntape - 1; k >= 0 && !g->failed; k--) {
+        double t0 = nj_prof_start();
         g->tape[k].backward(g, &g->tape[k]);
+        if (t0 > 0) {
+            int kind = nj_prof_kind_of(g->tape[k].name);
+            if (kind >= 0) nj_prof_stop((nj_prof_kind)kind, t0);
+        }
+    }
     return g->failed ? -1 : 0;
 }
 

@@ -20,7 +20,7 @@ TEST_BIN := $(TEST_SRC:tests/%.c=$(B)/tests/%)
 TEST_SUP := $(filter-out $(TEST_SRC),$(wildcard tests/*.c))
 TEST_SUP_OBJ := $(TEST_SUP:%.c=$(B)/%.o)
 
-.PHONY: all deps deps-test test bench bench-nn bench-losses bench-data bench-export demo clean help
+.PHONY: all deps deps-test test bench bench-recipe bench-nn bench-losses bench-data bench-export demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
 .SECONDARY:
 all: deps nightjar
@@ -62,7 +62,11 @@ bench-data: deps $(B)/bench/bench_data
 bench-export: deps nightjar $(B)/bench/bench_export
 	@$(B)/bench/bench_export
 
-bench: bench-nn bench-losses bench-data bench-export
+# nightjar vs an independent PyTorch implementation of the same recipe (issue #7)
+bench-recipe: deps-test nightjar $(B)/bench/bench_data
+	@/usr/bin/python3 bench/side_by_side.py
+
+bench: bench-recipe bench-nn bench-losses bench-data bench-export
 
 demo: deps nightjar
 	@sh tools/demo.sh

@@ -134,6 +134,7 @@ static void scatter_row(const conv_geom *G, const float *dcol, int kx, float *dx
     }
     if (s == 1) {
         float *d = dx + off;
+        #pragma omp simd
         for (int ox = lo; ox < hi; ox++) d[ox] += dcol[ox];
     } else {
         for (int ox = lo; ox < hi; ox++) dx[ox * s + off] += dcol[ox];

@@ -26,6 +26,6 @@ int nj_prof_kind_of(const char *name)
 {
     if (!strcmp(name, "conv2d")) return NJ_PROF_CONV_BWD;
     if (!strcmp(name, "reproject") || !strcmp(name, "sample_bilinear")) return NJ_PROF_WARP;
-    if (!strcmp(name, "ssim")) return NJ_PROF_SSIM;
+    if (!strcmp(name, "ssim") || !strcmp(name, "photometric_error")) return NJ_PROF_SSIM;
     return -1;
 }

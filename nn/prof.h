@@ -13,7 +13,7 @@ typedef enum {
     NJ_PROF_CONV_FWD = 0,
     NJ_PROF_CONV_BWD,
     NJ_PROF_WARP,       /* reprojection and bilinear sampling, forward and backward */
-    NJ_PROF_SSIM,       /* SSIM forward and backward */
+    NJ_PROF_SSIM,       /* SSIM (and the fused photometric error built on it), forward and backward */
     NJ_PROF_KINDS
 } nj_prof_kind;
 

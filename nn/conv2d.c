@@ -297,9 +297,12 @@ static void conv2d_backward(nj_graph *g, const nj_op *op)
     if (!x->grad && !w->grad) return;
     int threads = omp_get_max_threads(), par = use_threads(&G);
     size_t tile = tile_floats(&G), wsize = (size_t)G.cout * G.k;
-    float *scratch = NULL, *parts = NULL;
-    if (tile && !(scratch = nj_graph_alloc(g, sizeof(float) * tile * (size_t)threads))) return;
-    if (w->grad && !(parts = nj_graph_calloc(g, sizeof(float) * wsize * (size_t)threads))) return;
+    size_t nparts = w->grad ? (wsize * (size_t)threads + 15) / 16 * 16 : 0;
+    /* one scratch block: dW partials (zeroed) then the im2col tiles */
+    float *block = nj_graph_scratch(g, sizeof(float) * (nparts + tile * (size_t)threads));
+    if (!block) return;
+    float *parts = nparts ? block : NULL, *scratch = tile ? block + nparts : NULL;
+    if (parts) memset(parts, 0, sizeof(float) * nparts);
     if (x->grad && !G.direct) {
         backward_phase(&G, op, 0, scratch, parts, par);
         backward_phase(&G, op, 1, scratch, parts, par);
@@ -356,7 +359,7 @@ nj_tensor *nj_conv2d(nj_graph *g, nj_tensor *x, nj_tensor *w, nj_tensor *b,
     int threads = omp_get_max_threads(), items = G.n * G.nbands;
     size_t tile = tile_floats(&G);
     float *scratch = NULL;
-    if (tile && !(scratch = nj_graph_alloc(g, sizeof(float) * tile * (size_t)threads))) return NULL;
+    if (tile && !(scratch = nj_graph_scratch(g, sizeof(float) * tile * (size_t)threads))) return NULL;
     #pragma omp parallel for schedule(dynamic, 1) if (use_threads(&G))
     for (int it = 0; it < items; it++) {
         float *s = scratch ? scratch + (size_t)omp_get_thread_num() * tile : NULL;

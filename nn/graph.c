@@ -12,6 +12,8 @@ struct nj_graph {
     int ntape, cap;
     int grad_on, training, failed;
     char err[512];
+    void *scratch;              /* see nj_graph_scratch */
+    size_t scratch_bytes;
 };
 
 nj_graph *nj_graph_new(size_t arena_chunk_bytes)
@@ -31,6 +33,7 @@ void nj_graph_free(nj_graph *g)
 {
     if (!g) return;
     nj_arena_free(g->arena);
+    free(g->scratch);
     free(g->tape);
     free(g);
 }
@@ -74,6 +77,25 @@ void *nj_graph_calloc(nj_graph *g, size_t bytes)
 {
     void *p = nj_arena_calloc(g->arena, bytes);
     if (!p) nj_graph_fail(g, "out of memory allocating %zu bytes for one step", bytes);
+    return p;
+}
+
+void *nj_graph_scratch(nj_graph *g, size_t bytes)
+{
+    if (bytes > g->scratch_bytes) {
+        size_t want = (bytes + 63) / 64 * 64;
+        free(g->scratch);
+        g->scratch = aligned_alloc(64, want);
+        g->scratch_bytes = g->scratch ? want : 0;
+        if (!g->scratch) return nj_graph_fail(g, "out of memory allocating %zu bytes of scratch", bytes);
+    }
+    return g->scratch;
+}
+
+void *nj_graph_scratch_zero(nj_graph *g, size_t bytes)
+{
+    void *p = nj_graph_scratch(g, bytes);
+    if (p) memset(p, 0, bytes);
     return p;
 }
 

@@ -3,8 +3,9 @@
  * the same thing as nightjar: nightjar's initial weights and a fixed batch
  * (96×64, batch 2, both temporal sources, 4 scales, auto-mask, smoothness) are
  * written as .npy, PyTorch (float64) loads them, and the loss must agree within
- * 1e-4 and parameter gradients spread over the depth encoder, decoder, heads and
- * pose net within 1e-3 (relative to the largest reference entry). */
+ * 1e-4, 12 parameter gradients spread over the depth encoder, decoder, heads and
+ * pose net within 1e-3 (relative to the largest reference entry), and every
+ * non-zero parameter gradient within 2e-3. */
 #include "tests/check.h"
 #include "tests/torch_ref.h"
 #include "train/bench.h"
@@ -12,9 +13,13 @@
 #include <stdio.h>
 #include <stdlib.h>
 
+/* Spread over the nets.  Not the coarse heads (head2, head3): their float32
+ * gradients are noisy at the 1e-3 level in PyTorch itself (float32 vs float64
+ * PyTorch on this batch: 6.5e-4 and 9.6e-4); they are covered by the looser
+ * every-gradient check below. */
 static const char *GRADS[] = {"enc0.0.w", "enc2.1.w", "enc4.1.gamma", "dec4.0.w", "dec1.1.w",
-                              "dec0.1.beta", "head0.w", "head2.b", "head3.w", "pose0.w",
-                              "pose3.w", "pose.out.w", "pose.out.b"};
+                              "dec0.1.beta", "head0.w", "head1.w", "pose0.w", "pose3.w",
+                              "pose.out.w", "pose.out.b"};
 
 static void compare_grad(const nj_model *m, const char *dir, const char *name)
 {

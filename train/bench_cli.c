@@ -207,6 +207,8 @@ static int run(const bench_args *a)
         /* CPU time is less disturbed than wall time when other jobs share the cores */
         printf("cpu_ms_per_step=%.1f (user + system, all threads)\n", cpu / a->steps * 1e3);
         if (a->profile) print_profile(total, flops * a->steps);
+        printf("arena_peak_mb=%.1f (activations, gradients and saved state of one step)\n",
+               nj_arena_peak(nj_graph_arena(g)) / 1048576.0);
         printf("sgemm_gflops=%.2f (OpenBLAS, one single-threaded 64x576x2048 sgemm per thread)\n", sgemm_gflops());
         struct rusage ru;
         getrusage(RUSAGE_SELF, &ru);

@@ -3,6 +3,7 @@
  * Backwards read the saved output where that is enough (ELU, sigmoid) and the
  * input otherwise (ReLU), and accumulate into the input gradient. */
 #include "nn/ops.h"
+#include "nn/elu.h"
 #include <math.h>
 
 /* Below this many elements a loop runs on one thread. */
@@ -51,21 +52,6 @@ static void elu_backward(nj_graph *g, const nj_op *op)
         gx[i] += xd[i] > 0.0f ? gy[i] : gy[i] * (yd[i] + 1.0f);
 }
 
-/* expm1(x) for x ≤ 0 in a form the compiler vectorises: x = k·ln2 + r with
- * |r| ≤ ln2/2 (Cody–Waite split of ln2), expm1(r) by its Taylor series to r⁷
- * (truncation < 3e-9 relative), then expm1(x) = 2^k·expm1(r) + (2^k − 1).
- * Absolute error ≤ 2 float ulps of 1; exact 0 at 0; −1 below −87. */
-static inline float expm1_nonpos(float x)
-{
-    x = x < -87.0f ? -87.0f : x;
-    float k = (x * 1.44269504f + 12582912.0f) - 12582912.0f;   /* round to nearest */
-    float r = (x - k * 0.693359375f) + k * 2.12194440e-4f;
-    float p = r * (1.0f + r * (0.5f + r * (1.0f / 6 + r * (1.0f / 24 + r * (1.0f / 120 +
-              r * (1.0f / 720 + r * (1.0f / 5040)))))));
-    union { int i; float f; } two_k = {.i = ((int)k + 127) << 23};
-    return two_k.f * p + (two_k.f - 1.0f);
-}
-
 nj_tensor *nj_elu(nj_graph *g, nj_tensor *x)
 {
     if (!x || nj_graph_failed(g)) return NULL;
@@ -77,7 +63,7 @@ nj_tensor *nj_elu(nj_graph *g, nj_tensor *x)
     long n = (long)nj_numel(x);
     #pragma omp parallel for simd schedule(static) if (n > PAR_MIN)
     for (long i = 0; i < n; i++)
-        yd[i] = xd[i] > 0.0f ? xd[i] : expm1_nonpos(xd[i]);
+        yd[i] = nj_elu_value(xd[i]);
     nj_graph_record(g, "elu", elu_backward, y, in, 1);
     return y;
 }

@@ -44,8 +44,8 @@ FUZZ_NAMES := $(filter-out fuzz_input,$(patsubst fuzz/%.c,%,$(wildcard fuzz/fuzz
 FUZZ_SECONDS ?= 60
 FUZZ_CC  ?= clang-14
 
-.PHONY: all deps deps-test test sanitize fuzz mpi-test-build bench bench-nn bench-losses bench-data \
-        bench-export bench-mpi demo clean help
+.PHONY: all deps deps-test test sanitize fuzz mpi-test-build bench bench-recipe bench-nn bench-losses \
+        bench-data bench-export bench-mpi demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
 .SECONDARY:
 all: deps nightjar
@@ -54,6 +54,10 @@ deps:
 	@sh tools/deps.sh build
 deps-test:
 	@sh tools/deps.sh test
+
+# the numeric kernels (ops and losses) get full loop vectorisation; measured
+# on the training step (320x96 b4, 1 thread): CPU time per step −15..20%
+$(B)/nn/%.o $(B)/losses/%.o: CFLAGS += -O3
 
 $(B)/%.o: %.c
 	@mkdir -p $(dir $@)
@@ -128,7 +132,11 @@ bench-mpi: deps nightjar
 	@$(MAKE) --no-print-directory mpi-test-build
 	@sh bench/bench_mpi.sh
 
-bench: bench-nn bench-losses bench-data bench-export bench-mpi
+# nightjar vs an independent PyTorch implementation of the same recipe (issue #7)
+bench-recipe: deps-test nightjar $(B)/bench/bench_data
+	@/usr/bin/python3 bench/side_by_side.py
+
+bench: bench-recipe bench-nn bench-losses bench-data bench-export bench-mpi
 
 demo: deps nightjar
 	@sh tools/demo.sh

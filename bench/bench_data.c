@@ -2,7 +2,10 @@
  * synthetic dataset (1 sequence, 60 frames, 640×480, stereo) into a scratch
  * folder, then times the loader producing batches of 4 at 320×240 (area
  * downscale, flip, colour jitter, 2 temporal sources + stereo partner) with
- * 1 and 2 worker threads, consuming as fast as it can.  Not a test. */
+ * 1 and 2 worker threads, consuming as fast as it can.  Not a test.
+ * `bench_data WxH [WxH ...]` loads at those sizes instead (used by make
+ * bench's side-by-side table) and prints "loader_samples_per_s_WxH=X" (1 worker)
+ * for each. */
 #include "data/loader.h"
 #include "data/synth.h"
 #include <omp.h>
@@ -11,11 +14,15 @@
 
 enum { STEPS = 40 };
 
+static int size_w = 320, size_h = 240;
+
 static double samples_per_second(const nj_dataset *ds, const nj_sample *s, int n, int workers)
 {
     nj_loader_config c;
     char err[512];
     nj_loader_config_default(&c);
+    c.width = size_w;
+    c.height = size_h;
     c.workers = workers;
     c.prefetch = 2 * workers;
     nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
@@ -28,8 +35,13 @@ static double samples_per_second(const nj_dataset *ds, const nj_sample *s, int n
     return STEPS * c.batch / dt;
 }
 
-int main(void)
+int main(int argc, char **argv)
 {
+    for (int i = 1; i < argc; i++)
+        if (sscanf(argv[i], "%dx%d", &size_w, &size_h) != 2 || size_w < 8 || size_h < 8) {
+            fprintf(stderr, "usage: bench_data [WxH ...]\n");
+            return 2;
+        }
     char dir[] = "/tmp/nj_bench_data_XXXXXX", json[64], err[512], cmd[96];
     if (!mkdtemp(dir)) return 1;
     nj_synth_config sc;
@@ -57,9 +69,17 @@ int main(void)
     if (n > 0) {
         printf("synth: %.2f s for 120 frames at 640x480 (%.1f frames/s)\n", render, 120 / render);
         printf("check-data: %.2f s for 120 images (%.0f images/s)\n", check, 120 / check);
-        for (int w = 1; w <= 2; w++)
-            printf("loader, %d worker%s: %.1f samples/s (batch 4 at 320x240, 4 images per sample)\n", w,
-                   w == 1 ? "" : "s", samples_per_second(&ds, s, n, w));
+        for (int a = argc > 1 ? 1 : 0; a < (argc > 1 ? argc : 1); a++) {
+            if (a > 0) sscanf(argv[a], "%dx%d", &size_w, &size_h);
+            double one = 0;
+            for (int w = 1; w <= 2; w++) {
+                double r = samples_per_second(&ds, s, n, w);
+                if (w == 1) one = r;
+                printf("loader, %d worker%s: %.1f samples/s (batch 4 at %dx%d, 4 images per sample)\n", w,
+                       w == 1 ? "" : "s", r, size_w, size_h);
+            }
+            printf("loader_samples_per_s_%dx%d=%.1f\n", size_w, size_h, one);
+        }
     }
     free(s);
     nj_dataset_free(&ds);

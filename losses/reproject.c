@@ -1,5 +1,6 @@
 /* losses/reproject.c — back-project, transform, project; with backward. */
 #include "losses/reproject.h"
+#include "nn/prof.h"
 #include <string.h>
 
 typedef struct {
@@ -103,6 +104,7 @@ nj_tensor *nj_reproject(nj_graph *g, nj_tensor *depth, nj_tensor *T,
     nj_tensor *ok = valid ? nj_tensor_new(g, N, 1, H, W, 0) : NULL;
     if (!out || (valid && !ok)) return NULL;
     size_t plane = (size_t)H * W;
+    double t0 = nj_prof_start();
     #pragma omp parallel for collapse(2) schedule(static)
     for (int n = 0; n < N; n++)
         for (int v = 0; v < H; v++) {
@@ -110,6 +112,7 @@ nj_tensor *nj_reproject(nj_graph *g, nj_tensor *depth, nj_tensor *T,
             reproject_row(depth, T->data + 12 * n, cams[n], n, v, xo, xo + plane,
                           ok ? ok->data + n * plane + (size_t)v * W : NULL);
         }
+    nj_prof_stop(NJ_PROF_WARP, t0);
     if (valid) *valid = ok;
     nj_op *op = nj_graph_record(g, "reproject", reproject_backward, out, in, 2);
     if (op) {

@@ -1,5 +1,6 @@
 /* losses/sample.c — bilinear sampling with border clamp, forward and backward. */
 #include "losses/sample.h"
+#include "nn/prof.h"
 #include <math.h>
 
 /* Corner indices and weights of one sample; dx/dy are 0 where clamped. */
@@ -112,7 +113,9 @@ nj_tensor *nj_sample_bilinear(nj_graph *g, nj_tensor *img, nj_tensor *coords)
     nj_tensor *in[2] = {img, coords};
     nj_tensor *out = nj_op_output(g, img->n, img->c, coords->h, coords->w, in, 2);
     if (!out) return NULL;
+    double t0 = nj_prof_start();
     sample_forward(img, coords, out);
+    nj_prof_stop(NJ_PROF_WARP, t0);
     nj_graph_record(g, "sample_bilinear", sample_backward, out, in, 2);
     return out;
 }

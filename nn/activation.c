@@ -3,6 +3,7 @@
  * Backwards read the saved output where that is enough (ELU, sigmoid) and the
  * input otherwise (ReLU), and accumulate into the input gradient. */
 #include "nn/ops.h"
+#include "nn/elu.h"
 #include <math.h>
 
 /* Below this many elements a loop runs on one thread. */
@@ -46,7 +47,7 @@ static void elu_backward(nj_graph *g, const nj_op *op)
     const float *xd = x->data, *yd = y->data, *gy = y->grad;
     float *gx = x->grad;
     long n = (long)nj_numel(x);
-    #pragma omp parallel for schedule(static) if (n > PAR_MIN)
+    #pragma omp parallel for simd schedule(static) if (n > PAR_MIN)
     for (long i = 0; i < n; i++)
         gx[i] += xd[i] > 0.0f ? gy[i] : gy[i] * (yd[i] + 1.0f);
 }
@@ -60,9 +61,9 @@ nj_tensor *nj_elu(nj_graph *g, nj_tensor *x)
     const float *xd = x->data;
     float *yd = y->data;
     long n = (long)nj_numel(x);
-    #pragma omp parallel for schedule(static) if (n > PAR_MIN)
+    #pragma omp parallel for simd schedule(static) if (n > PAR_MIN)
     for (long i = 0; i < n; i++)
-        yd[i] = xd[i] > 0.0f ? xd[i] : expm1f(xd[i]);
+        yd[i] = nj_elu_value(xd[i]);
     nj_graph_record(g, "elu", elu_backward, y, in, 1);
     return y;
 }

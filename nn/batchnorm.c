@@ -9,8 +9,12 @@
  * norm: statistics and the backward's per-channel means span every
  * process's share of the batch, so N processes on B/N items each compute
  * what one process computes on B items.
+ * nj_batchnorm_elu() is ELU(batchnorm(x)) as one op: one output tensor instead
+ * of two, the ELU's derivative taken from the output inside the batch-norm
+ * backward (values bit-identical to the two separate ops).
  * nj_batchnorm_fold() merges an inference-mode batch norm into a conv. */
 #include "nn/ops.h"
+#include "nn/elu.h"
 #include <math.h>
 
 /* Below this many elements a loop runs on one thread. */
@@ -34,32 +38,45 @@ static void channel_stats(const nj_tensor *x, int c, double *mean, double *var)
     *var = q / m;
 }
 
-/* y = x * alpha + shift on channel c of every sample. */
-static void channel_affine(const nj_tensor *x, nj_tensor *y, int c, float alpha, float shift)
+/* y = x * alpha + shift (then ELU when elu) on channel c of every sample. */
+static void channel_affine(const nj_tensor *x, nj_tensor *y, int c, float alpha, float shift, int elu)
 {
     const size_t hw = (size_t)x->h * x->w;
     for (int n = 0; n < x->n; n++) {
         const size_t off = ((size_t)n * x->c + c) * hw;
         const float *p = x->data + off;
         float *q = y->data + off;
-        for (size_t i = 0; i < hw; i++) q[i] = p[i] * alpha + shift;
+        if (elu) {
+            #pragma omp simd
+            for (size_t i = 0; i < hw; i++) q[i] = nj_elu_value(p[i] * alpha + shift);
+        } else {
+            for (size_t i = 0; i < hw; i++) q[i] = p[i] * alpha + shift;
+        }
     }
 }
 
 /* Per channel: sums of gy and gy * xhat over this process's batch. */
 static void channel_sums(const nj_op *op, int c, double *sg_out, double *sgx_out)
 {
-    const nj_tensor *x = op->in[0], *y = op->out;
+    const nj_tensor *x = op->in[0];
     const float *stats = op->aux;
     const float mean = stats[c], invstd = stats[x->c + c];
     const size_t hw = (size_t)x->h * x->w;
     double sg = 0, sgx = 0;
     for (int n = 0; n < x->n; n++) {
         const size_t off = ((size_t)n * x->c + c) * hw;
-        const float *p = x->data + off, *gy = y->grad + off;
-        for (size_t i = 0; i < hw; i++) {
-            sg += gy[i];
-            sgx += gy[i] * ((p[i] - mean) * invstd);
+        const float *p = x->data + off, *yd = op->out->data + off, *gy = op->out->grad + off;
+        if (op->i[1]) {
+            for (size_t i = 0; i < hw; i++) {
+                const float gz = nj_elu_grad_from_output(yd[i], gy[i]);
+                sg += gz;
+                sgx += gz * ((p[i] - mean) * invstd);
+            }
+        } else {
+            for (size_t i = 0; i < hw; i++) {
+                sg += gy[i];
+                sgx += gy[i] * ((p[i] - mean) * invstd);
+            }
         }
     }
     *sg_out = sg;
@@ -71,7 +88,7 @@ static void channel_sums(const nj_op *op, int c, double *sg_out, double *sgx_out
  * means of gy and gy * xhat over the whole (possibly distributed) batch. */
 static void channel_apply(const nj_op *op, int c, double sg, double sgx, float mg, float mgx)
 {
-    const nj_tensor *x = op->in[0], *gamma = op->in[1], *beta = op->in[2], *y = op->out;
+    const nj_tensor *x = op->in[0], *gamma = op->in[1], *beta = op->in[2];
     const float *stats = op->aux;
     const float mean = stats[c], invstd = stats[x->c + c];
     const size_t hw = (size_t)x->h * x->w;
@@ -82,10 +99,17 @@ static void channel_apply(const nj_op *op, int c, double sg, double sgx, float m
     if (!op->i[0]) mg = mgx = 0.0f;
     for (int n = 0; n < x->n; n++) {
         const size_t off = ((size_t)n * x->c + c) * hw;
-        const float *p = x->data + off, *gy = y->grad + off;
+        const float *p = x->data + off, *yd = op->out->data + off, *gy = op->out->grad + off;
         float *gx = x->grad + off;
-        for (size_t i = 0; i < hw; i++)
-            gx[i] += k * (gy[i] - mg - (p[i] - mean) * invstd * mgx);
+        if (op->i[1]) {
+            #pragma omp simd
+            for (size_t i = 0; i < hw; i++)
+                gx[i] += k * (nj_elu_grad_from_output(yd[i], gy[i]) - mg - (p[i] - mean) * invstd * mgx);
+        } else {
+            #pragma omp simd
+            for (size_t i = 0; i < hw; i++)
+                gx[i] += k * (gy[i] - mg - (p[i] - mean) * invstd * mgx);
+        }
     }
 }
 
@@ -120,7 +144,7 @@ static void synced_backward(nj_graph *g, const nj_op *op)
 
 static void batchnorm_backward(nj_graph *g, const nj_op *op)
 {
-    if (op->i[1]) { synced_backward(g, op); return; }
+    if (op->i[2]) { synced_backward(g, op); return; }
     const nj_tensor *x = op->in[0];
     #pragma omp parallel for schedule(static) if ((long)nj_numel(x) > PAR_MIN)
     for (int c = 0; c < x->c; c++) channel_backward(op, c);
@@ -166,8 +190,8 @@ static int is_channel_vector(const nj_tensor *t, int c)
     return t->n == 1 && t->c == c && t->h == 1 && t->w == 1;
 }
 
-nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *beta,
-                        float *run_mean, float *run_var, float momentum, float eps)
+static nj_tensor *batchnorm_op(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *beta,
+                               float *run_mean, float *run_var, float momentum, float eps, int elu)
 {
     if (!x || !gamma || !beta || nj_graph_failed(g)) return NULL;
     if (!is_channel_vector(gamma, x->c) || !is_channel_vector(beta, x->c))
@@ -201,11 +225,23 @@ nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *
         const double invstd = 1.0 / sqrt(var + eps), alpha = gamma->data[c] * invstd;
         stats[c] = (float)mean;
         stats[x->c + c] = (float)invstd;
-        channel_affine(x, y, c, (float)alpha, (float)(beta->data[c] - mean * alpha));
+        channel_affine(x, y, c, (float)alpha, (float)(beta->data[c] - mean * alpha), elu);
     }
-    nj_op *op = nj_graph_record(g, "batchnorm", batchnorm_backward, y, in, 3);
-    if (op) { op->i[0] = training; op->i[1] = synced; op->f[0] = eps; op->aux = stats; }
+    nj_op *op = nj_graph_record(g, elu ? "batchnorm_elu" : "batchnorm", batchnorm_backward, y, in, 3);
+    if (op) { op->i[0] = training; op->i[1] = elu; op->i[2] = synced; op->f[0] = eps; op->aux = stats; }
     return y;
+}
+
+nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *beta,
+                        float *run_mean, float *run_var, float momentum, float eps)
+{
+    return batchnorm_op(g, x, gamma, beta, run_mean, run_var, momentum, eps, 0);
+}
+
+nj_tensor *nj_batchnorm_elu(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *beta,
+                            float *run_mean, float *run_var, float momentum, float eps)
+{
+    return batchnorm_op(g, x, gamma, beta, run_mean, run_var, momentum, eps, 1);
 }
 
 void nj_batchnorm_fold(float *w, float *b, int cout, int per_out,

@@ -16,6 +16,7 @@
  * dW only through the rounding of the partial sums.
  */
 #include "nn/ops.h"
+#include "nn/prof.h"
 #include <cblas.h>
 #include <omp.h>
 #include <string.h>
@@ -133,6 +134,7 @@ static void scatter_row(const conv_geom *G, const float *dcol, int kx, float *dx
     }
     if (s == 1) {
         float *d = dx + off;
+        #pragma omp simd
         for (int ox = lo; ox < hi; ox++) d[ox] += dcol[ox];
     } else {
         for (int ox = lo; ox < hi; ox++) dx[ox * s + off] += dcol[ox];
@@ -295,9 +297,12 @@ static void conv2d_backward(nj_graph *g, const nj_op *op)
     if (!x->grad && !w->grad) return;
     int threads = omp_get_max_threads(), par = use_threads(&G);
     size_t tile = tile_floats(&G), wsize = (size_t)G.cout * G.k;
-    float *scratch = NULL, *parts = NULL;
-    if (tile && !(scratch = nj_graph_alloc(g, sizeof(float) * tile * (size_t)threads))) return;
-    if (w->grad && !(parts = nj_graph_calloc(g, sizeof(float) * wsize * (size_t)threads))) return;
+    size_t nparts = w->grad ? (wsize * (size_t)threads + 15) / 16 * 16 : 0;
+    /* one scratch block: dW partials (zeroed) then the im2col tiles */
+    float *block = nj_graph_scratch(g, sizeof(float) * (nparts + tile * (size_t)threads));
+    if (!block) return;
+    float *parts = nparts ? block : NULL, *scratch = tile ? block + nparts : NULL;
+    if (parts) memset(parts, 0, sizeof(float) * nparts);
     if (x->grad && !G.direct) {
         backward_phase(&G, op, 0, scratch, parts, par);
         backward_phase(&G, op, 1, scratch, parts, par);
@@ -350,15 +355,17 @@ nj_tensor *nj_conv2d(nj_graph *g, nj_tensor *x, nj_tensor *w, nj_tensor *b,
     nj_tensor *in[3] = {x, w, b};
     nj_tensor *y = nj_op_output(g, G.n, G.cout, G.oh, G.ow, in, 3);
     if (!y) return NULL;
+    double t0 = nj_prof_start();
     int threads = omp_get_max_threads(), items = G.n * G.nbands;
     size_t tile = tile_floats(&G);
     float *scratch = NULL;
-    if (tile && !(scratch = nj_graph_alloc(g, sizeof(float) * tile * (size_t)threads))) return NULL;
+    if (tile && !(scratch = nj_graph_scratch(g, sizeof(float) * tile * (size_t)threads))) return NULL;
     #pragma omp parallel for schedule(dynamic, 1) if (use_threads(&G))
     for (int it = 0; it < items; it++) {
         float *s = scratch ? scratch + (size_t)omp_get_thread_num() * tile : NULL;
         forward_item(&G, x, w, b, y, it / G.nbands, it % G.nbands, s);
     }
+    nj_prof_stop(NJ_PROF_CONV_FWD, t0);
     nj_op *op = nj_graph_record(g, "conv2d", conv2d_backward, y, in, 3);
     if (op) {
         op->i[0] = stride;

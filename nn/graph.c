@@ -1,5 +1,6 @@
 /* nn/graph.c — tape recording and reverse replay (see graph.h). */
 #include "nn/graph.h"
+#include "nn/prof.h"
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -12,6 +13,8 @@ struct nj_graph {
     int grad_on, training, failed;
     nj_replicas replicas;            /* count 0: single process */
     char err[512];
+    void *scratch;              /* see nj_graph_scratch */
+    size_t scratch_bytes;
 };
 
 nj_graph *nj_graph_new(size_t arena_chunk_bytes)
@@ -31,6 +34,7 @@ void nj_graph_free(nj_graph *g)
 {
     if (!g) return;
     nj_arena_free(g->arena);
+    free(g->scratch);
     free(g->tape);
     free(g);
 }
@@ -97,6 +101,25 @@ void *nj_graph_calloc(nj_graph *g, size_t bytes)
     return p;
 }
 
+void *nj_graph_scratch(nj_graph *g, size_t bytes)
+{
+    if (bytes > g->scratch_bytes) {
+        size_t want = (bytes + 63) / 64 * 64;
+        free(g->scratch);
+        g->scratch = aligned_alloc(64, want);
+        g->scratch_bytes = g->scratch ? want : 0;
+        if (!g->scratch) return nj_graph_fail(g, "out of memory allocating %zu bytes of scratch", bytes);
+    }
+    return g->scratch;
+}
+
+void *nj_graph_scratch_zero(nj_graph *g, size_t bytes)
+{
+    void *p = nj_graph_scratch(g, bytes);
+    if (p) memset(p, 0, bytes);
+    return p;
+}
+
 nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad)
 {
     if (n <= 0 || c <= 0 || h <= 0 || w <= 0)
@@ -160,8 +183,14 @@ nj_op *nj_graph_record(nj_graph *g, const char *name, nj_backward_fn bw,
 
 static int replay(nj_graph *g)
 {
-    for (int k = g->ntape - 1; k >= 0 && !g->failed; k--)
+    for (int k = g->ntape - 1; k >= 0 && !g->failed; k--) {
+        double t0 = nj_prof_start();
         g->tape[k].backward(g, &g->tape[k]);
+        if (t0 > 0) {
+            int kind = nj_prof_kind_of(g->tape[k].name);
+            if (kind >= 0) nj_prof_stop((nj_prof_kind)kind, t0);
+        }
+    }
     return g->failed ? -1 : 0;
 }
 

@@ -82,6 +82,17 @@ nj_arena *nj_graph_arena(nj_graph *g);
 void *nj_graph_alloc(nj_graph *g, size_t bytes);
 void *nj_graph_calloc(nj_graph *g, size_t bytes);
 
+/* Temporary memory for the op now running (forward or backward), 64-byte
+ * aligned, uninitialised: valid only until the next nj_graph_scratch call, so
+ * one op may hold one scratch block at a time.  One buffer owned by the
+ * graph, reused by every op; it grows (a system allocation) only for a
+ * request larger than any before, i.e. during the first step.  Keeps per-op
+ * working memory (im2col tiles, per-thread partial sums) out of the step's
+ * peak.  On exhaustion the graph fails and NULL is returned. */
+void *nj_graph_scratch(nj_graph *g, size_t bytes);
+/* Same, zero-filled. */
+void *nj_graph_scratch_zero(nj_graph *g, size_t bytes);
+
 /* A new tensor in the arena.  Data uninitialised; a zeroed grad buffer is
  * attached when with_grad is non-zero and gradients are enabled. */
 nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad);

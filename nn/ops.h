@@ -86,6 +86,10 @@ nj_tensor *nj_mean(nj_graph *g, nj_tensor *x, int axes);
  * variance for run_var (as PyTorch does).  In inference mode it uses run_*. */
 nj_tensor *nj_batchnorm(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *beta,
                         float *run_mean, float *run_var, float momentum, float eps);
+/* ELU(batchnorm(x)) as one op (same arguments and modes): values and gradients
+ * bit-identical to nj_elu(nj_batchnorm(...)), one activation buffer fewer. */
+nj_tensor *nj_batchnorm_elu(nj_graph *g, nj_tensor *x, nj_tensor *gamma, nj_tensor *beta,
+                            float *run_mean, float *run_var, float momentum, float eps);
 /* Group normalisation (Wu & He 2018): C split into `groups` groups, statistics
  * per sample and group; gamma, beta 1×C×1×1. */
 nj_tensor *nj_groupnorm(nj_graph *g, nj_tensor *x, int groups,

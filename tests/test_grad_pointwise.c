@@ -383,19 +383,22 @@ static float big_step(int n, int c, int h, int w)
 }
 
 /* ---- batch norm ---------------------------------------------------------- */
-typedef struct { int training; float run_mean[8], run_var[8]; } bn_ctx;
+typedef struct { int training, elu; float run_mean[8], run_var[8]; } bn_ctx;
 
 static nj_tensor *build_bn(nj_graph *g, nj_tensor *const *in, void *ctx)
 {
     bn_ctx *b = ctx;
     nj_graph_set_training(g, b->training);
+    if (b->elu) return nj_batchnorm_elu(g, in[0], in[1], in[2], b->run_mean, b->run_var, 0.1f, 1e-5f);
     return nj_batchnorm(g, in[0], in[1], in[2], b->run_mean, b->run_var, 0.1f, 1e-5f);
 }
+
+static int bn_elu;   /* bn_case builds the fused batch norm + ELU */
 
 static void bn_case(const char *label, int training, int n, int c, int h, int w,
                     const int *no_grad, unsigned seed)
 {
-    bn_ctx ctx = {.training = training};
+    bn_ctx ctx = {.training = training, .elu = bn_elu};
     test_fill_uniform(ctx.run_mean, 8, -0.5f, 0.5f, seed + 1000u);
     test_fill_uniform(ctx.run_var, 8, 0.5f, 1.5f, seed + 2000u);
     gc_spec s = {.nin = 3, .seed = seed, .eps = big_step(n, c, h, w)};
@@ -442,6 +445,40 @@ static void test_bn_running_stats(void)
     nj_graph_free(g);
 }
 
+/* The fused op must give exactly what nj_elu(nj_batchnorm(...)) gives (that
+ * pair is checked against PyTorch in test_torch_nn): values, gradients of x,
+ * gamma, beta and the running statistics, bit for bit. */
+static void test_bn_elu_identical(void)
+{
+    enum { N = 2, C = 8, H = 33, W = 33, K = N * C * H * W };   /* threaded size */
+    static float x[K], seed[K];
+    float gamma[C], beta[C], rm[2][C], rv[2][C], *grads[2][3];
+    test_fill_uniform(x, K, -2.0f, 2.0f, 601);
+    test_fill_uniform(seed, K, -1.0f, 1.0f, 602);
+    test_fill_uniform(gamma, C, 0.5f, 1.5f, 603);
+    test_fill_uniform(beta, C, -0.5f, 0.5f, 604);
+    nj_graph *gs[2] = {nj_graph_new(1 << 20), nj_graph_new(1 << 20)}, *g;
+    nj_tensor *y[2];
+    for (int v = 0; v < 2; v++) {
+        g = gs[v];   /* one graph each: a backward replays its whole tape */
+        for (int c = 0; c < C; c++) { rm[v][c] = 0.1f; rv[v][c] = 1.5f; }
+        nj_tensor *xt = nj_tensor_from(g, N, C, H, W, x, 1), *gt = nj_tensor_from(g, 1, C, 1, 1, gamma, 1);
+        nj_tensor *bt = nj_tensor_from(g, 1, C, 1, 1, beta, 1);
+        y[v] = v ? nj_batchnorm_elu(g, xt, gt, bt, rm[v], rv[v], 0.1f, 1e-5f)
+                 : nj_elu(g, nj_batchnorm(g, xt, gt, bt, rm[v], rv[v], 0.1f, 1e-5f));
+        nj_backward_seeded(g, y[v], seed);
+        grads[v][0] = xt->grad; grads[v][1] = gt->grad; grads[v][2] = bt->grad;
+    }
+    int same = !nj_graph_failed(gs[0]) && !nj_graph_failed(gs[1]) && !memcmp(y[0]->data, y[1]->data, sizeof x) &&
+               !memcmp(grads[0][0], grads[1][0], sizeof x) && !memcmp(grads[0][1], grads[1][1], sizeof gamma) &&
+               !memcmp(grads[0][2], grads[1][2], sizeof beta) && !memcmp(rm[0], rm[1], sizeof rm[0]) &&
+               !memcmp(rv[0], rv[1], sizeof rv[0]);
+    check(same, "batchnorm+ELU fused: bit-identical to nj_elu(nj_batchnorm()) (values, grads, running stats)",
+          "differs (graph: %s %s)", nj_graph_error(gs[0]), nj_graph_error(gs[1]));
+    nj_graph_free(gs[0]);
+    nj_graph_free(gs[1]);
+}
+
 static void test_batchnorm(void)
 {
     static const int only_x[3] = {0, 1, 1}, only_affine[3] = {1, 0, 0};
@@ -455,6 +492,11 @@ static void test_batchnorm(void)
     bn_case("batchnorm: training, 2x8x33x33 (threaded)", 1, 2, 8, 33, 33, NULL, 127);
     bn_case("batchnorm: inference, 2x8x33x33 (threaded)", 0, 2, 8, 33, 33, NULL, 128);
     test_bn_running_stats();
+    bn_elu = 1;
+    bn_case("batchnorm+ELU fused: training, finite-difference gradient of x, gamma, beta 2x3x4x5", 1, SMALL, NULL, 130);
+    bn_case("batchnorm+ELU fused: inference, finite-difference gradient of x, gamma, beta 2x3x4x5", 0, SMALL, NULL, 131);
+    bn_elu = 0;
+    test_bn_elu_identical();
 }
 
 /* ---- group norm ---------------------------------------------------------- */

@@ -150,7 +150,9 @@ static int same_as_big_batch(void)
           "exit %d, relative difference %.3g (see %s)", rc, d, log);
     double l1[64], l2[64];
     int n1 = logged_losses(single, l1, 64), n2 = logged_losses(dual, l2, 64), same = n1 == K && n2 == K;
-    for (int i = 0; same && i < K; i++) same = fabs(l1[i] - l2[i]) <= 1e-5 * fabs(l1[i]) + 1e-9;
+    /* 1e-3: float rounding may flip the auto-mask of a few pixels (each ~1e-4 of
+     * the mean); a rank logging only its own half-batch loss differs by far more */
+    for (int i = 0; same && i < K; i++) same = fabs(l1[i] - l2[i]) <= 1e-3 * fabs(l1[i]) + 1e-9;
     check(same, "mpi: rank 0 alone logs, and logs the whole batch's loss (equal to the single process's)",
           "%d and %d step lines (want %d); first losses %.6g vs %.6g", n1, n2, K, n1 ? l1[0] : 0, n2 ? l2[0] : 0);
     nj_train_state st;

@@ -2,6 +2,7 @@
 #include "data/check.h"
 #include "data/synth.h"
 #include "train/dist.h"
+#include "train/bench.h"
 #include "train/trainer.h"
 #include "train/version.h"
 #include <cblas.h>
@@ -31,6 +32,7 @@ static const command COMMANDS[] = {
     {"predict", "depth maps, pictures and point clouds for frames", nj_predict_main},
     {"export", "export a model as C99 code, ONNX or safetensors", nj_export_main},
     {"report", "a self-contained HTML page about a training run", nj_report_main},
+    {"bench", "time one training step (speed and memory)", nj_bench_main},
 };
 #define NCOMMANDS (int)(sizeof COMMANDS / sizeof COMMANDS[0])
 

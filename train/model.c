@@ -216,6 +216,9 @@ static nj_tensor *P(nj_graph *g, nj_model *m, nj_param *p)
 static nj_tensor *unit_forward(nj_graph *g, nj_model *m, const nj_unit *u, nj_tensor *x)
 {
     nj_tensor *y = nj_conv2d(g, x, P(g, m, u->w), P(g, m, u->b), u->stride, u->pad, u->pad_mode);
+    if (u->norm == NJ_NORM_BATCH && u->act == NJ_ACT_ELU)   /* fused: one activation buffer fewer */
+        return nj_batchnorm_elu(g, y, P(g, m, u->gamma), P(g, m, u->beta), u->run_mean->data,
+                                u->run_var->data, m->cfg.bn_momentum, 1e-5f);
     if (u->norm == NJ_NORM_BATCH)
         y = nj_batchnorm(g, y, P(g, m, u->gamma), P(g, m, u->beta), u->run_mean->data,
                          u->run_var->data, m->cfg.bn_momentum, 1e-5f);

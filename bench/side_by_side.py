@@ -1,0 +1,99 @@
+#!/usr/bin/env python3
+"""bench/side_by_side.py — `make bench`'s nightjar-vs-PyTorch table (issue #7).
+
+Runs, in one go and alternating the two implementations, the training step of the same recipe
+(nightjar: ./nightjar bench --profile; PyTorch: bench/torch_recipe.py --bench) at
+  320x96 batch 4 with 1 and 2 threads, and 416x128 batch 4 with 2 threads,
+each as its own process (so peak RSS is per implementation and configuration): median ms/step
+over STEPS steps after WARMUP warm-up steps.  nightjar's conv GFLOP/s (conv FLOPs over the time
+spent inside conv forward + backward) is shown next to OpenBLAS sgemm GFLOP/s measured in the same
+process, and the data loader's samples/s at each size (build/bench/bench_data WxH).
+
+Usage: /usr/bin/python3 bench/side_by_side.py [--steps N] [--warmup N] [--no-loader]
+Targets: step <= 0.45x PyTorch's, peak RSS <= 1/3, 1->2 threads >= 1.8x, conv >= 60% of sgemm.
+"""
+import argparse
+import os
+import re
+import subprocess
+import sys
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+CONFIGS = [("320x96", 4, 1), ("320x96", 4, 2), ("416x128", 4, 2)]
+
+
+def fields(text):
+    out = {}
+    for k, v in re.findall(r"\b([a-z_]+)=([-0-9.]+)", text):
+        out[k] = float(v)
+    return out
+
+
+def run(cmd, env=None):
+    p = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, env=env)
+    if p.returncode != 0:
+        sys.exit("side_by_side: %s failed (%d):\n%s%s" % (" ".join(cmd), p.returncode, p.stdout, p.stderr))
+    return p.stdout
+
+
+def nightjar(size, batch, threads, a):
+    out = run(["./nightjar", "bench", "--size", size, "--batch", str(batch), "--threads", str(threads),
+               "--steps", str(a.steps), "--warmup", str(a.warmup), "--profile"])
+    prof = [l for l in out.splitlines() if l.startswith("profile")]
+    return fields(out), prof[0] if prof else ""
+
+
+def torch(size, batch, threads, a):
+    env = dict(os.environ, OMP_NUM_THREADS=str(threads))
+    out = run(["/usr/bin/python3", "bench/torch_recipe.py", "--bench", "--size", size, "--batch", str(batch),
+               "--threads", str(threads), "--steps", str(a.steps), "--warmup", str(a.warmup)], env)
+    return fields(out)
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--steps", type=int, default=10)
+    ap.add_argument("--warmup", type=int, default=3)
+    ap.add_argument("--no-loader", action="store_true")
+    a = ap.parse_args()
+    rows = []
+    for k, (size, batch, threads) in enumerate(CONFIGS):
+        # alternate which implementation goes first, so slow drifts in machine load hit both
+        if k % 2 == 0:
+            nj, prof = nightjar(size, batch, threads, a)
+            th = torch(size, batch, threads, a)
+        else:
+            th = torch(size, batch, threads, a)
+            nj, prof = nightjar(size, batch, threads, a)
+        print("%s b%d t%d: nightjar %.1f ms, PyTorch %.1f ms | nightjar %s" %
+              (size, batch, threads, nj["ms_per_step"], th["ms_per_step"], prof), flush=True)
+        rows.append((size, batch, threads, nj, th))
+    loader = {}
+    if not a.no_loader:
+        sizes = sorted({c[0] for c in CONFIGS})
+        out = run(["build/bench/bench_data"] + sizes)
+        for size in sizes:
+            m = re.search(r"loader_samples_per_s_%s=([0-9.]+)" % size, out)
+            loader[size] = float(m.group(1)) if m else 0.0
+    print()
+    print("| config | nightjar ms/step | PyTorch ms/step | ratio (target <= 0.45) | nightjar peak RSS MB | "
+          "PyTorch peak RSS MB | ratio (target <= 0.33) | nightjar conv GFLOP/s | sgemm GFLOP/s | "
+          "conv/sgemm (target >= 0.60) | step GFLOP/s | nightjar samples/s | loader samples/s (1 worker) |")
+    print("|---|---|---|---|---|---|---|---|---|---|---|---|---|")
+    for size, batch, threads, nj, th in rows:
+        print("| %s b%d %dT | %.1f | %.1f | %.2f | %.0f | %.0f | %.2f | %.1f | %.1f | %.2f | %.1f | %.1f | %s |" % (
+            size, batch, threads, nj["ms_per_step"], th["ms_per_step"], nj["ms_per_step"] / th["ms_per_step"],
+            nj["peak_rss_mb"], th["peak_rss_mb"], nj["peak_rss_mb"] / th["peak_rss_mb"],
+            nj.get("conv_gflops", 0), nj["sgemm_gflops"], nj.get("conv_gflops", 0) / nj["sgemm_gflops"],
+            nj["gflops"], 1000.0 * batch / nj["ms_per_step"],
+            "%.1f" % loader[size] if size in loader else "-"))
+    one = [r for r in rows if r[0] == "320x96" and r[2] == 1][0]
+    two = [r for r in rows if r[0] == "320x96" and r[2] == 2][0]
+    print()
+    print("1 -> 2 threads at 320x96 b4: nightjar %.2fx (target >= 1.8), PyTorch %.2fx" % (
+        one[3]["ms_per_step"] / two[3]["ms_per_step"], one[4]["ms_per_step"] / two[4]["ms_per_step"]))
+    print("(2-core machine; figures taken while other jobs share the cores are noisy — compare ratios, re-run quiet)")
+
+
+if __name__ == "__main__":
+    main()

@@ -20,6 +20,25 @@ void nj_vs_config_default(nj_vs_config *cfg)
     cfg->max_depth = 100.0f;
     cfg->automask = 1;
     cfg->tie_break = 1e-5f;
+    cfg->saturation_guard = 0.0f;
+}
+
+/* Logit magnitude beyond which the saturation guard pushes back. */
+#define GUARD_LOGIT 6.0f
+
+/* Saturation guard: weight · mean(relu(−log d − G) + relu(−log(1 − d) − G)),
+ * G = GUARD_LOGIT.  A sigmoid disparity driven deep into a bound (the sky
+ * towards 0) has a vanishing derivative, and every region sharing its
+ * features is trapped there with it.  −log d ≈ −logit for small d, so the
+ * guard's gradient does not vanish: it holds logits near ±G, where the
+ * photometric gradient still reaches them (σ' ≥ 0.0025). */
+static nj_tensor *saturation_guard(nj_graph *g, const nj_vs_config *cfg, nj_tensor *d)
+{
+    const float tiny = 1e-30f;
+    nj_tensor *lo = nj_relu(g, nj_affine(g, nj_log(g, nj_clamp(g, d, tiny, 1.0f)), -1.0f, -GUARD_LOGIT));
+    nj_tensor *far = nj_clamp(g, nj_affine(g, d, -1.0f, 1.0f), tiny, 1.0f);
+    nj_tensor *hi = nj_relu(g, nj_affine(g, nj_log(g, far), -1.0f, -GUARD_LOGIT));
+    return nj_affine(g, nj_mean(g, nj_add(g, lo, hi), NJ_AXIS_ALL), cfg->saturation_guard, 0.0f);
 }
 
 /* Minimum over sources of the un-warped (identity) error, with tie-break noise. */
@@ -159,6 +178,7 @@ int nj_view_synthesis_loss(nj_graph *g, const nj_vs_config *cfg,
     for (int s = 0; s < in->nscales; s++) {
         float photo = 0, smooth = 0;
         nj_tensor *l = scale_loss(g, cfg, in, s, ident, pyr[s], out, &photo, &smooth);
+        if (cfg->saturation_guard > 0) l = nj_add(g, l, saturation_guard(g, cfg, in->disp[s]));
         total = total ? nj_add(g, total, l) : l;
         out->photometric += photo / (float)in->nscales;
         out->smoothness += smooth / (float)in->nscales;

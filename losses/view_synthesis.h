@@ -27,6 +27,7 @@ typedef struct nj_vs_config {
     float min_depth, max_depth;
     int automask;          /* 1: auto-mask static pixels */
     float tie_break;       /* std-dev of the identity errors' noise, 1e-5; 0 = none */
+    float saturation_guard;/* weight of the saturation guard (below), 0 = none */
 } nj_vs_config;
 
 typedef struct nj_vs_input {

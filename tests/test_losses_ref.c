@@ -107,12 +107,14 @@ static void test_rotation(nj_graph *g)
     ref_rmtree(dir);
 }
 
-/* The whole loss against an independent PyTorch implementation. */
-static void test_vsloss(nj_graph *g)
+/* The whole loss against an independent PyTorch implementation; with guard
+ * > 0 (mode "vsloss_guard") some disparities are saturated and the
+ * saturation guard is on. */
+static void test_vsloss(nj_graph *g, const char *mode, float guard)
 {
-    const char *name = "view synthesis loss vs independent PyTorch implementation";
-    char dir[4096];
-    if (losses_ref_run("vsloss", dir, sizeof dir, name)) return;
+    char name[128], dir[4096];
+    snprintf(name, sizeof name, "%s vs independent PyTorch implementation", mode);
+    if (losses_ref_run(mode, dir, sizeof dir, name)) return;
     nj_graph_reset(g);
     nj_vs_input in;
     memset(&in, 0, sizeof in);
@@ -142,6 +144,7 @@ static void test_vsloss(nj_graph *g)
     nj_vs_config cfg;
     nj_vs_config_default(&cfg);
     cfg.tie_break = 0;          /* the reference has no random tie-break */
+    cfg.saturation_guard = guard;
     nj_vs_output out;
     if (nj_view_synthesis_loss(g, &cfg, &in, &out) || nj_backward(g, out.total)) {
         check(0, name, "%s", nj_graph_error(g));
@@ -149,20 +152,21 @@ static void test_vsloss(nj_graph *g)
         return;
     }
     nj_tensor *mask = losses_ref_tensor(g, dir, "mask0", 0);
-    compare("view synthesis auto-mask vs PyTorch", out.automask->data, mask->data, nj_numel(mask), 0);
-    compare("view synthesis loss value vs PyTorch", out.total->data, total->data, 1, 1e-4);
+    char tn[160];
+    snprintf(tn, sizeof tn, "%s auto-mask vs PyTorch", mode);
+    compare(tn, out.automask->data, mask->data, nj_numel(mask), 0);
+    snprintf(tn, sizeof tn, "%s value vs PyTorch", mode);
+    compare(tn, out.total->data, total->data, 1, 1e-4);
     for (int s = 0; s < 4; s++) {
-        char tn[96];
         snprintf(nm, sizeof nm, "gdisp%d", s);
         nj_tensor *r = losses_ref_tensor(g, dir, nm, 0);
-        snprintf(tn, sizeof tn, "view synthesis d(loss)/d(disparity scale %d) vs PyTorch", s);
+        snprintf(tn, sizeof tn, "%s d(loss)/d(disparity scale %d) vs PyTorch", mode, s);
         compare(tn, in.disp[s]->grad, r->data, nj_numel(r), 1e-4);
     }
     for (int i = 0; i < 2; i++) {
-        char tn[96];
         snprintf(nm, sizeof nm, "gpose%d", i);
         nj_tensor *r = losses_ref_tensor(g, dir, nm, 0);
-        snprintf(tn, sizeof tn, "view synthesis d(loss)/d(pose %d) vs PyTorch", i);
+        snprintf(tn, sizeof tn, "%s d(loss)/d(pose %d) vs PyTorch", mode, i);
         compare(tn, pv[i]->grad, r->data, nj_numel(r), 1e-4);
     }
     ref_rmtree(dir);
@@ -264,7 +268,8 @@ int main(void)
     test_ssim(g);
     test_sample(g);
     test_rotation(g);
-    test_vsloss(g);
+    test_vsloss(g, "vsloss", 0.0f);
+    test_vsloss(g, "vsloss_guard", 0.05f);
     test_motorcycle(g);
     test_camera(g);
     nj_graph_free(g);

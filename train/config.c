@@ -54,6 +54,7 @@ const nj_config_field nj_config_fields[] = {
     TEXT("loss", "automask", NJ_F_BOOL, loss.automask),
     F("loss", "automask_from_step", NJ_F_LONG, automask_from, 0, 1e12, 0, 0),
     F("loss", "tie_break", NJ_F_FLOAT, loss.tie_break, 0, 1, 0, 0),
+    F("loss", "saturation_guard", NJ_F_FLOAT, loss.saturation_guard, 0, 100, 0, 0),
     F("optim", "lr", NJ_F_FLOAT, lr, 0, 1, 1, 0),
     F("optim", "lr_min", NJ_F_FLOAT, lr_min, 0, 1, 0, 0),
     F("optim", "warmup_steps", NJ_F_INT, warmup_steps, 0, 1e9, 0, 0),

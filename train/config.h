@@ -17,7 +17,8 @@
  *              "head_init": 0.1, "pose_stages": 5, "pose_width": 1.0, "pose_scale": 0.05,
  *              "pose": true, "bn_momentum": 0.1 },
  *   "loss":  { "ssim_weight": 0.85, "smoothness": 0.001, "min_depth": 0.1, "max_depth": 100,
- *              "automask": true, "automask_from_step": 0, "tie_break": 1e-5 },
+ *              "automask": true, "automask_from_step": 0, "tie_break": 1e-5,
+ *              "saturation_guard": 0 },
  *   "optim": { "lr": 1e-4, "lr_min": 1e-6, "warmup_steps": 100, "schedule": "cosine" | "step",
  *              "step_every": 1000, "step_gamma": 0.5, "weight_decay": 0, "grad_clip": 1.0,
  *              "init": "", "freeze_encoder": false }

@@ -128,7 +128,10 @@ def _rodrigues(v, torch):
     return eye + s * K + (1 - c) * (K @ K)
 
 
-def mode_vsloss(out):
+def mode_vsloss(out, guard=0.0):
+    """The whole loss; with guard > 0 some disparities sit deep in both sigmoid
+    bounds and the saturation guard, weight * mean(relu(-log d - 6) +
+    relu(-log(1 - d) - 6)) per scale, is part of the total."""
     import torch
     import torch.nn.functional as F
     rng = np.random.default_rng(17)
@@ -140,6 +143,11 @@ def mode_vsloss(out):
     posevec = [np.concatenate([rng.uniform(-0.05, 0.05, (N, 3)), rng.uniform(-0.3, 0.3, (N, 3))],
                               axis=1).astype(np.float32) for _ in range(nsrc)]
     disps = [rng.uniform(0.05, 0.4, (N, 1, H >> s, W >> s)).astype(np.float32) for s in range(S)]
+    if guard > 0:
+        for d in disps:
+            pick = rng.random(d.shape)
+            d[pick < 0.2] = np.exp(rng.uniform(-12, -3, (pick < 0.2).sum()))
+            d[pick > 0.9] = 1 - np.exp(rng.uniform(-12, -3, (pick > 0.9).sum()))
     cams = np.array([[30.0, 28.0, 15.5, 11.0], [26.0, 27.0, 16.0, 12.5]], np.float32)
     for i, s in enumerate(sources):
         save(out, "source%d" % i, s)
@@ -190,6 +198,9 @@ def mode_vsloss(out):
         gy = (dn[..., 1:, :] - dn[..., :-1, :]).abs() * torch.exp(-(img[..., 1:, :] - img[..., :-1, :]).abs().mean(1, keepdim=True))
         smooth = (gx.mean() + gy.mean()) * smooth_w / (2 ** s)
         total = total + photo + smooth
+        if guard > 0:
+            g = torch.relu(-torch.log(D[s]) - 6) + torch.relu(-torch.log(1 - D[s]) - 6)
+            total = total + guard * g.mean()
         masks.append(mask)
     total = total / S
     total.backward()
@@ -232,7 +243,8 @@ def main():
         sys.exit("usage: losses_ref.py MODE:OUTDIR")
     mode, out = sys.argv[1].split(":", 1)
     modes = {"ssim": mode_ssim, "sample": mode_sample, "rotation": mode_rotation,
-             "vsloss": mode_vsloss, "camera": mode_camera, "motorcycle": mode_motorcycle}
+             "vsloss": mode_vsloss,
+             "vsloss_guard": lambda out: mode_vsloss(out, 0.05), "camera": mode_camera, "motorcycle": mode_motorcycle}
     if mode not in modes:
         sys.exit("losses_ref.py: unknown mode %s" % mode)
     modes[mode](out)

@@ -83,6 +83,7 @@ help:
 	@echo "make test       build and run the whole test suite"
 	@echo "make demo       the main job end to end on generated data"
 	@echo "make bench      speed figures (never part of the tests)"
+	@echo "make bench-recipe  nightjar vs PyTorch training step, side by side"
 	@echo "make clean      remove build output"
 	@echo "make PORTABLE=1 build without -march=native"
 

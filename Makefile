@@ -151,6 +151,7 @@ help:
 	@echo "make fuzz       every fuzz target for FUZZ_SECONDS (default 60) each"
 	@echo "make demo       the main job end to end on generated data"
 	@echo "make bench      speed figures (never part of the tests)"
+	@echo "make bench-recipe  nightjar vs PyTorch training step, side by side"
 	@echo "make clean      remove build output"
 	@echo "make PORTABLE=1 build without -march=native"
 	@echo "make MPI=1      build ./nightjar with data-parallel training over Open MPI (mpirun)"

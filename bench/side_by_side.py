@@ -50,6 +50,12 @@ def torch(size, batch, threads, a):
     return fields(out)
 
 
+def cpu_cell(nj, th):
+    """CPU time per step (all threads): steadier than wall time on a busy machine."""
+    a, b = nj.get("cpu_ms_per_step"), th.get("cpu_ms_per_step")
+    return "%.0f / %.0f (%.2f)" % (a, b, a / b) if a and b else "-"
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--steps", type=int, default=10)
@@ -78,15 +84,16 @@ def main():
     print()
     print("| config | nightjar ms/step | PyTorch ms/step | ratio (target <= 0.45) | nightjar peak RSS MB | "
           "PyTorch peak RSS MB | ratio (target <= 0.33) | nightjar conv GFLOP/s | sgemm GFLOP/s | "
-          "conv/sgemm (target >= 0.60) | step GFLOP/s | nightjar samples/s | loader samples/s (1 worker) |")
-    print("|---|---|---|---|---|---|---|---|---|---|---|---|---|")
+          "conv/sgemm (target >= 0.60) | step GFLOP/s | nightjar samples/s | loader samples/s (1 worker) | "
+          "CPU ms/step nightjar / PyTorch (ratio) |")
+    print("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|")
     for size, batch, threads, nj, th in rows:
         print("| %s b%d %dT | %.1f | %.1f | %.2f | %.0f | %.0f | %.2f | %.1f | %.1f | %.2f | %.1f | %.1f | %s |" % (
             size, batch, threads, nj["ms_per_step"], th["ms_per_step"], nj["ms_per_step"] / th["ms_per_step"],
             nj["peak_rss_mb"], th["peak_rss_mb"], nj["peak_rss_mb"] / th["peak_rss_mb"],
             nj.get("conv_gflops", 0), nj["sgemm_gflops"], nj.get("conv_gflops", 0) / nj["sgemm_gflops"],
             nj["gflops"], 1000.0 * batch / nj["ms_per_step"],
-            "%.1f" % loader[size] if size in loader else "-"))
+            "%.1f" % loader[size] if size in loader else "-", cpu_cell(nj, th)))
     one = [r for r in rows if r[0] == "320x96" and r[2] == 1][0]
     two = [r for r in rows if r[0] == "320x96" and r[2] == 2][0]
     print()

@@ -287,6 +287,8 @@ def mode_bench(a):
     cams = torch.tensor([[0.58 * w, 1.92 * h, 0.5 * w, 0.5 * h]] * a.batch)
     times = []
     for i in range(a.warmup + a.steps):
+        if i == a.warmup:
+            cpu0 = time.process_time()
         t0 = time.perf_counter()
         opt.zero_grad(set_to_none=False)
         loss = recipe_loss(depth, pose, target, sources, cams, tie_break=True)
@@ -295,10 +297,12 @@ def mode_bench(a):
         opt.step()
         if i >= a.warmup:
             times.append(time.perf_counter() - t0)
+    cpu = (time.process_time() - cpu0) / a.steps
     rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
     print("torch %s, %dx%d batch %d, %d threads; step_ms min %.1f median %.1f max %.1f; last loss %.5f"
           % (torch.__version__, w, h, a.batch, torch.get_num_threads(), min(times) * 1e3,
              statistics.median(times) * 1e3, max(times) * 1e3, loss.item()))
+    print("cpu_ms_per_step=%.1f (user + system, all threads)" % (cpu * 1e3))
     print("ms_per_step=%.1f peak_rss_mb=%.1f" % (statistics.median(times) * 1e3, rss))
 
 

@@ -113,6 +113,7 @@ int main(void)
     nj_graph_free(g);
     nj_bench_batch_free(&bb);
     nj_model_free(&m);
+    /* NJ_KEEP=1 keeps the folder (weights, batch, PyTorch results) for inspection */
     if (!getenv("NJ_KEEP")) ref_rmtree(dir); else printf("kept %s\n", dir);
     return test_exit();
 }

@@ -74,12 +74,7 @@ static void photometric_backward(nj_graph *g, const nj_op *op)
 nj_tensor *nj_photometric_error(nj_graph *g, nj_tensor *a, nj_tensor *b, float alpha)
 {
     if (!a || !b || nj_graph_failed(g)) return NULL;
-    if (!nj_same_shape(a, b))
-        return nj_graph_fail(g, "photometric_error: shapes differ (%dx%dx%dx%d vs %dx%dx%dx%d)",
-                             a->n, a->c, a->h, a->w, b->n, b->c, b->h, b->w);
-    if (a->h < 2 || a->w < 2)
-        return nj_graph_fail(g, "photometric_error: images must be at least 2x2 for SSIM's reflection padding, got %dx%d",
-                             a->h, a->w);
+    if (!nj_ssim_pair_ok(g, a, b, "photometric_error")) return NULL;
     nj_tensor *in[2] = {a, b};
     nj_tensor *pe = nj_op_output(g, a->n, 1, a->h, a->w, in, 2);
     float *S = pe ? nj_graph_alloc(g, sizeof(float) * nj_numel(a)) : NULL;

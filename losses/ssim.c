@@ -28,12 +28,7 @@ static void ssim_backward(nj_graph *g, const nj_op *op)
 nj_tensor *nj_ssim(nj_graph *g, nj_tensor *a, nj_tensor *b)
 {
     if (!a || !b || nj_graph_failed(g)) return NULL;
-    if (!nj_same_shape(a, b))
-        return nj_graph_fail(g, "ssim: shapes differ (%dx%dx%dx%d vs %dx%dx%dx%d)",
-                             a->n, a->c, a->h, a->w, b->n, b->c, b->h, b->w);
-    if (a->h < 2 || a->w < 2)
-        return nj_graph_fail(g, "ssim: images must be at least 2x2 for reflection padding, got %dx%d",
-                             a->h, a->w);
+    if (!nj_ssim_pair_ok(g, a, b, "ssim")) return NULL;
     nj_tensor *in[2] = {a, b};
     nj_tensor *s = nj_op_output(g, a->n, a->c, a->h, a->w, in, 2);
     size_t ps = (size_t)a->h * a->w, sf = nj_ssim_scratch_floats(a->h, a->w);

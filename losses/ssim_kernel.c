@@ -4,6 +4,19 @@
 #include "losses/photometric.h"
 #include <string.h>
 
+int nj_ssim_pair_ok(nj_graph *g, const nj_tensor *a, const nj_tensor *b, const char *op)
+{
+    if (!nj_same_shape(a, b))
+        nj_graph_fail(g, "%s: shapes differ (%dx%dx%dx%d vs %dx%dx%dx%d)", op,
+                      a->n, a->c, a->h, a->w, b->n, b->c, b->h, b->w);
+    else if (a->h < 2 || a->w < 2)
+        nj_graph_fail(g, "%s: images must be at least 2x2 for SSIM's reflection padding, got %dx%d",
+                      op, a->h, a->w);
+    else
+        return 1;
+    return 0;
+}
+
 static inline int reflect(int i, int n) { return i < 0 ? -i : (i >= n ? 2 * n - 2 - i : i); }
 
 size_t nj_ssim_scratch_floats(int H, int W)

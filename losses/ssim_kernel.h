@@ -14,7 +14,12 @@
  * and the padded gradient folds back onto the plane through the reflection. */
 #ifndef NJ_SSIM_KERNEL_H
 #define NJ_SSIM_KERNEL_H
+#include "nn/graph.h"
 #include <stddef.h>
+
+/* Checks a pair of images for an SSIM-based op named `op`: same shape, at
+ * least 2×2 (reflection padding).  Returns 1, or 0 with the graph failed. */
+int nj_ssim_pair_ok(nj_graph *g, const nj_tensor *a, const nj_tensor *b, const char *op);
 
 /* Floats of scratch one call needs for an H×W plane. */
 size_t nj_ssim_scratch_floats(int H, int W);

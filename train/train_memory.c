@@ -15,6 +15,7 @@
 #include "train/memneed.h"
 #include "train/step.h"
 #include <math.h>
+#include <omp.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -59,10 +60,12 @@ int nj_trainer_memory_precheck(nj_trainer *t, char *err, size_t errlen)
     t->mem.virt_extra = VIRT_EXTRA;
     t->mem.avail = nj_mem_available(t->mem.virt_extra, &t->mem.limit);
     t->mem.total = t->mem.base + t->mem.params;
-    if (t->mem.params > t->mem.avail) {
+    /* every step also holds one weight-gradient partial per thread (conv2d.c) */
+    double floor = t->mem.params + 4.0 * (double)np * omp_get_max_threads();
+    if (floor > t->mem.avail) {
         snprintf(err, errlen, "memory need: more than %.0f MiB for the parameters alone (available %.0f MiB, "
                  "limited by %s): refusing to start; reduce model.width or model.stages",
-                 t->mem.total / MIB, (t->mem.base + t->mem.avail) / MIB, t->mem.limit);
+                 (t->mem.base + floor) / MIB, (t->mem.base + t->mem.avail) / MIB, t->mem.limit);
         return -1;
     }
     return 0;

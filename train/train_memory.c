@@ -150,7 +150,6 @@ static double arena_at(nj_trainer *t, int n, int train)
     if (a < 0 || b < 0 || c < 0) return -1;
     double p = (double)side * side, pc = (double)t->cfg.width * t->cfg.height;
     double c1 = (b - a) / p, c2 = (c - a) / p - 2 * c1, c0 = a - (2 * c1 + c2) * p;
-    if (getenv("NJ_DBG")) fprintf(stderr, "probe train=%d: a=%.0f b=%.0f c=%.0f c0=%.0f c1P=%.0f c2P=%.0f\n", train, a, b, c, c0, c1 * p, c2 * p);
     if (c2 < 0) c2 = 0;
     double est = c0 + c1 * n * pc + c2 * pc;
     return est > 0 ? est : a;

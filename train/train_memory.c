@@ -104,9 +104,9 @@ static void probe_batch_free(nj_batch *b)
     free(b->camera); free(b->stereo_tx); free(b->has_partner);
 }
 
-/* Arena bytes of one step (train: forward + backward; else inference). */
-static char probe_error[256];
+static char probe_error[256];          /* why the last failed probe step failed */
 
+/* Arena bytes of one step (train: forward + backward; else inference), -1 on failure. */
 static double probe(nj_trainer *t, int n, int h, int w, int train)
 {
     nj_batch b;

@@ -9,6 +9,8 @@
  *    big allocated (child peak RSS < 300 MiB), no checkpoint.
  *  - Under RLIMIT_AS (ulimit -v) of 1 GiB a run needing more is refused with
  *    one line naming RLIMIT_AS, instead of failing an allocation mid-run.
+ *  - A model whose parameters alone exceed that limit is refused before it
+ *    is built (the parameter count needs no allocation).
  *  - The parameter count used before the model exists equals the built
  *    model's, for several architectures. */
 #include "tests/check.h"
@@ -30,6 +32,12 @@ static const char *CONFIG =
     "  \"model\": { \"width\": 0.5, \"stages\": 4, \"scales\": 4, \"pose_width\": 0.5, \"pose_stages\": 4 },\n"
     "  \"optim\": { \"lr\": 3e-4, \"warmup_steps\": 4 } }\n";
 
+/* About 700 million parameters: gigabytes before any activation. */
+static const char *WIDE_CONFIG =
+    "{ \"run\": { \"name\": \"wide\", \"threads\": 1, \"max_steps\": 1, \"validate_every\": 0 },\n"
+    "  \"data\": { \"width\": 128, \"height\": 128, \"batch\": 2, \"frame_offsets\": [1], \"video\": true },\n"
+    "  \"model\": { \"width\": 8, \"stages\": 6, \"scales\": 4 } }\n";
+
 static char dir[256], data[512];
 
 static void write_config(const char *path, int w, int h, int batch)
@@ -45,11 +53,15 @@ static int train(const char *cfg, const char *out, const char *log, const rs_lim
     return rs_run_peak(argv, log, lim, peak);
 }
 
-/* X and Y of the "memory need: X MiB (available Y MiB)" line; 0 when absent. */
+/* X and Y of the "memory need: [more than ]X MiB (available Y MiB" line; 0 when absent. */
 static int need_line(const char *text, double *need, double *avail)
 {
     const char *p = text ? strstr(text, "memory need: ") : NULL;
-    return p && sscanf(p, "memory need: %lf MiB (available %lf MiB)", need, avail) == 2;
+    if (!p) return 0;
+    p += strlen("memory need: ");
+    if (!strncmp(p, "more than ", 10)) p += 10;
+    const char *a = strstr(p, "(available ");
+    return a && sscanf(p, "%lf MiB", need) == 1 && sscanf(a, "(available %lf MiB", avail) == 1;
 }
 
 static void real_run(void)
@@ -148,6 +160,9 @@ int main(void)
         write_config(cfg, 256, 128, 8);
         rs_limits lim = {.as = 1LL << 30};
         refused("under RLIMIT_AS 1 GiB a larger need is refused with one line naming the limit", cfg, &lim, "RLIMIT_AS");
+        snprintf(cfg, sizeof cfg, "%s/wide.json", dir);
+        e2e_write(cfg, WIDE_CONFIG);
+        refused("a model too wide for RLIMIT_AS 1 GiB is refused before it is built", cfg, &lim, "parameters alone");
     }
     if (!test_failures()) ref_rmtree(dir);
     else printf("# kept %s for inspection\n", dir);

@@ -53,7 +53,7 @@ static pid_t start_training(const char *out, int resume)
 static int wait_status(pid_t pid)
 {
     int st;
-    waitpid(pid, &st, 0);
+    if (waitpid(pid, &st, 0) != pid) return -1;     /* already reaped by await_step */
     return WIFEXITED(st) ? WEXITSTATUS(st) : 128 + WTERMSIG(st);
 }
 
@@ -63,16 +63,23 @@ static void sleep_ms(long ms)
     nanosleep(&ts, NULL);
 }
 
-static double now_s(void)
+/* Waits until the run in `out` has checkpointed step `target` (or ended). */
+static void await_step(pid_t pid, const char *out, long target)
 {
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return ts.tv_sec + ts.tv_nsec * 1e-9;
+    long steps[1];
+    for (int w = 0; w < 120000; w++) {
+        if (nj_run_list_steps(out, steps, 1) > 0 && steps[0] >= target) return;
+        if (waitpid(pid, NULL, WNOHANG) == pid) return;
+        sleep_ms(2);
+    }
 }
 
 /* Three SIGKILLs at random moments (some land inside checkpoint writes: one
- * is written every 3 steps), each followed by --resume, then a clean finish. */
-static void kill_and_resume(const char *ref, double ref_seconds)
+ * is written every 3 steps), each followed by --resume, then a clean finish.
+ * Kill r comes a random 0–300 ms after the run has checkpointed a random step
+ * of the r-th third of the budget: progress, not wall time, so the kills land
+ * inside the run however loaded the machine is. */
+static void kill_and_resume(const char *ref)
 {
     char out[512], final[600], err[512];
     snprintf(out, sizeof out, "%s/killed", dir);
@@ -80,7 +87,8 @@ static void kill_and_resume(const char *ref, double ref_seconds)
     int kills = 0, rc = -1;
     pid_t pid = start_training(out, 0);
     for (int round = 0; round < 3; round++) {
-        sleep_ms((long)(ref_seconds * 1000 * (0.15 + 0.5 * rand() / (double)RAND_MAX)));
+        await_step(pid, out, 3 + round * 18 + rand() % 15);
+        sleep_ms(rand() % 300);
         kill(pid, SIGKILL);
         rc = wait_status(pid);
         if (rc == 128 + SIGKILL) kills++;
@@ -181,9 +189,8 @@ int main(void)
         snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/ref --threads 2", e2e_bin(), cfg, data, dir);
         snprintf(log, sizeof log, "%s/ref.log", dir);
         snprintf(ref, sizeof ref, "%s/ref/final.ckpt", dir);
-        double t0 = now_s();
         if (check(e2e_run(cmd, log) == 0, "uninterrupted reference run", "see %s", log))
-            kill_and_resume(ref, now_s() - t0);
+            kill_and_resume(ref);
         truncated_checkpoint();
         interrupted();
         bad_input();

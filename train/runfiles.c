@@ -48,12 +48,16 @@ int nj_run_list_steps(const char *dir, long *out, int max)
     if (!d) return 0;
     int n = 0;
     struct dirent *e;
-    while ((e = readdir(d)) && n < max) {
+    while ((e = readdir(d))) {
         long step;
         char tail[8];
-        if (sscanf(e->d_name, "step-%ld.ck%7s", &step, tail) == 2 && !strcmp(tail, "pt") &&
-            strlen(e->d_name) == strlen("step-00000000.ckpt"))
-            out[n++] = step;
+        if (!(sscanf(e->d_name, "step-%ld.ck%7s", &step, tail) == 2 && !strcmp(tail, "pt") &&
+              strlen(e->d_name) == strlen("step-00000000.ckpt")))
+            continue;
+        if (n < max) { out[n++] = step; continue; }
+        int low = 0;                      /* full: keep the newest `max` (readdir order is arbitrary) */
+        for (int i = 1; i < n; i++) if (out[i] < out[low]) low = i;
+        if (n > 0 && step > out[low]) out[low] = step;
     }
     closedir(d);
     qsort(out, (size_t)n, sizeof *out, cmp_desc);

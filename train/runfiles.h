@@ -11,8 +11,8 @@
 /* Creates `dir` (and parents).  Returns 0 or -1 with a message. */
 int nj_run_mkdir(const char *dir, char *err, size_t errlen);
 void nj_run_step_path(const char *dir, long step, char *out, size_t len);
-/* Numbered checkpoints in dir, newest first (steps into out, at most max).
- * Returns the count. */
+/* The newest `max` numbered checkpoints in dir, newest first (steps into
+ * out).  Returns the count. */
 int nj_run_list_steps(const char *dir, long *out, int max);
 /* Deletes numbered checkpoints beyond the newest `keep`. */
 void nj_run_prune(const char *dir, int keep);

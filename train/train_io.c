@@ -11,7 +11,7 @@ void nj_trainer_write_failed(nj_trainer *t, const char *why)
 {
     long steps[1];
     char last[NJ_PATH_MAX + 32] = "none written yet";
-    if (nj_run_list_steps(t->dir, steps, 1) == 1) nj_run_step_path(t->dir, steps[0], last, sizeof last);
+    if (nj_run_list_steps(t->dir, steps, 1) > 0) nj_run_step_path(t->dir, steps[0], last, sizeof last);
     if (t->log.line_open) { fputc('\n', stdout); t->log.line_open = 0; }
     fflush(stdout);
     fprintf(stderr, "nightjar train: %s; stopping at step %ld (last good checkpoint: %s)\n", why, t->st.step, last);

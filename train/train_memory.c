@@ -15,6 +15,7 @@
 #include "train/memneed.h"
 #include "train/step.h"
 #include <math.h>
+#include <omp.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -26,6 +27,10 @@
  * Measured (VmPeak − VmSize at the estimate − resident need): 280–440 MiB
  * for 1–4 threads, about the same for a 4 MiB and a 160 MiB step arena. */
 #define VIRT_EXTRA (512.0 * MIB)
+/* Resident memory first touched after the estimate whatever the size: thread
+ * stacks, BLAS work buffers, building the report.  Measured 6–9 MiB on a run
+ * with 16k parameters and a 4 MiB arena. */
+#define RUNTIME_EXTRA (8.0 * MIB)
 
 static double loader_bytes(const nj_trainer *t, int batch, int jitter)
 {
@@ -56,10 +61,12 @@ int nj_trainer_memory_precheck(nj_trainer *t, char *err, size_t errlen)
     t->mem.virt_extra = VIRT_EXTRA;
     t->mem.avail = nj_mem_available(t->mem.virt_extra, &t->mem.limit);
     t->mem.total = t->mem.base + t->mem.params;
-    if (t->mem.params > t->mem.avail) {
+    /* every step also holds one weight-gradient partial per thread (conv2d.c) */
+    double floor = t->mem.params + 4.0 * (double)np * omp_get_max_threads();
+    if (floor > t->mem.avail) {
         snprintf(err, errlen, "memory need: more than %.0f MiB for the parameters alone (available %.0f MiB, "
                  "limited by %s): refusing to start; reduce model.width or model.stages",
-                 t->mem.total / MIB, (t->mem.base + t->mem.avail) / MIB, t->mem.limit);
+                 (t->mem.base + floor) / MIB, (t->mem.base + t->mem.avail) / MIB, t->mem.limit);
         return -1;
     }
     return 0;
@@ -98,9 +105,9 @@ static void probe_batch_free(nj_batch *b)
     free(b->camera); free(b->stereo_tx); free(b->has_partner);
 }
 
-/* Arena bytes of one step (train: forward + backward; else inference). */
-static char probe_error[256];
+static char probe_error[256];          /* why the last failed probe step failed */
 
+/* Arena bytes of one step (train: forward + backward; else inference), -1 on failure. */
 static double probe(nj_trainer *t, int n, int h, int w, int train)
 {
     nj_batch b;
@@ -144,7 +151,6 @@ static double arena_at(nj_trainer *t, int n, int train)
     if (a < 0 || b < 0 || c < 0) return -1;
     double p = (double)side * side, pc = (double)t->cfg.width * t->cfg.height;
     double c1 = (b - a) / p, c2 = (c - a) / p - 2 * c1, c0 = a - (2 * c1 + c2) * p;
-    if (getenv("NJ_DBG")) fprintf(stderr, "probe train=%d: a=%.0f b=%.0f c=%.0f c0=%.0f c1P=%.0f c2P=%.0f\n", train, a, b, c, c0, c1 * p, c2 * p);
     if (c2 < 0) c2 = 0;
     double est = c0 + c1 * n * pc + c2 * pc;
     return est > 0 ? est : a;
@@ -166,7 +172,7 @@ int nj_trainer_memory_check(nj_trainer *t, char *err, size_t errlen)
     m->loader = loader_bytes(t, t->cfg.batch, 1) + (validates ? loader_bytes(t, t->cfg.batch, 0) : 0);
     m->report = gallery + 16.0 * (double)nj_params_numel(&t->model.params) +
                 loader_bytes(t, GALLERY_FRAMES, 0);
-    m->total = m->base + m->params + m->arena + m->loader + m->report;
+    m->total = m->base + m->params + m->arena + m->loader + m->report + RUNTIME_EXTRA;
     if (m->total - m->base > m->avail) {
         snprintf(err, errlen, "memory need: %.0f MiB (available %.0f MiB, limited by %s): refusing to start; "
                  "reduce data.batch, data.width/height or model.width",

@@ -49,6 +49,36 @@ static int check_signature(const char *path, int *w, int *h, char *err, size_t e
     return -1;
 }
 
+/* Every PNG chunk must fit inside the file: stb_image grows its buffer to a
+ * chunk's claimed length before reading it, so a 159-byte file claiming a
+ * 2 GB IDAT made it allocate 2 GB (found by fuzz_png16). */
+static int check_png_chunks(const char *path, long long size, char *err, size_t errlen)
+{
+    FILE *f = fopen(path, "rb");
+    if (!f || fseek(f, 8, SEEK_SET)) {
+        if (f) fclose(f);
+        snprintf(err, errlen, "%s: cannot read the PNG chunks", path);
+        return -1;
+    }
+    long long at = 8;
+    unsigned char b[8];
+    int rc = 0;
+    while (at + 8 <= size && fread(b, 1, 8, f) == 8) {
+        long long len = (long long)b[0] << 24 | b[1] << 16 | b[2] << 8 | b[3];
+        if (at + 12 + len > size) {
+            snprintf(err, errlen, "%s: PNG chunk '%.4s' claims %lld bytes, past the end of the file", path,
+                     (const char *)b + 4, len);
+            rc = -1;
+            break;
+        }
+        if (!memcmp(b + 4, "IEND", 4)) break;
+        at += 12 + len;
+        if (fseek(f, (long)at, SEEK_SET)) break;
+    }
+    fclose(f);
+    return rc;
+}
+
 static int check_limits(const char *path, int w, int h, long long bytes, char *err, size_t errlen)
 {
     if (w <= 0 || h <= 0) {
@@ -89,6 +119,7 @@ int nj_image_probe(const char *path, int *w, int *h, char *err, size_t errlen)
     }
     if (check_signature(path, w, h, err, errlen)) return -1;
     if (*w >= 0 && check_limits(path, *w, *h, (long long)st.st_size, err, errlen)) return -1;
+    if (*w >= 0 && check_png_chunks(path, (long long)st.st_size, err, errlen)) return -1;
     int comp = 0;
     if (!stbi_info(path, w, h, &comp)) {
         snprintf(err, errlen, "%s: unreadable image (%s)", path, stbi_failure_reason());

@@ -66,7 +66,7 @@ static int check_png_chunks(const char *path, long long size, char *err, size_t 
     while (at + 8 <= size && fread(b, 1, 8, f) == 8) {
         long long len = (long long)b[0] << 24 | b[1] << 16 | b[2] << 8 | b[3];
         if (at + 12 + len > size) {
-            snprintf(err, errlen, "%s: PNG chunk '%.4s' claims %lld bytes, past the end of the file", path,
+            snprintf(err, errlen, "%s: corrupt image (PNG chunk '%.4s' claims %lld bytes, past the end of the file)", path,
                      (const char *)b + 4, len);
             rc = -1;
             break;

@@ -88,7 +88,7 @@ def main():
           "CPU ms/step nightjar / PyTorch (ratio) |")
     print("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|")
     for size, batch, threads, nj, th in rows:
-        print("| %s b%d %dT | %.1f | %.1f | %.2f | %.0f | %.0f | %.2f | %.1f | %.1f | %.2f | %.1f | %.1f | %s |" % (
+        print("| %s b%d %dT | %.1f | %.1f | %.2f | %.0f | %.0f | %.2f | %.1f | %.1f | %.2f | %.1f | %.1f | %s | %s |" % (
             size, batch, threads, nj["ms_per_step"], th["ms_per_step"], nj["ms_per_step"] / th["ms_per_step"],
             nj["peak_rss_mb"], th["peak_rss_mb"], nj["peak_rss_mb"] / th["peak_rss_mb"],
             nj.get("conv_gflops", 0), nj["sgemm_gflops"], nj.get("conv_gflops", 0) / nj["sgemm_gflops"],

@@ -22,3 +22,10 @@ const char *fuzz_input_path(const uint8_t *data, size_t size)
     }
     return path;
 }
+
+void fuzz_touch_floats(const float *v, size_t n)
+{
+    volatile float sink = 0;
+    for (size_t i = 0; i < n; i++) sink += v[i];
+    (void)sink;
+}

@@ -23,8 +23,8 @@ static void cut_torn_line(int fd)
 
 int nj_runlog_open(nj_runlog *l, const char *dir, char *err, size_t errlen)
 {
+    memset(l, 0, sizeof *l);
     snprintf(l->path, sizeof l->path, "%s/log.jsonl", dir);
-    l->error[0] = 0;
     l->fd = open(l->path, O_RDWR | O_CREAT | O_APPEND, 0644);
     l->tty = isatty(STDOUT_FILENO);
     l->line_open = 0;

@@ -8,7 +8,7 @@ Same architecture and loss as nightjar's defaults (train/model.h, losses/view_sy
              sigmoid disparity heads (3x3 conv, reflection padding) at the 4 finest scales.
              Input standardised as (x - 0.45) / 0.225.
   pose net   the two standardised frames on channels, stride-2 convs 7x7, 5x5, 3x3, 3x3, 3x3
-             (zero padding, widths 16..256) + BN + ELU, 1x1 conv to 6, spatial mean, x 0.05:
+             (zero padding, widths 16..256) + BN + ELU, 1x1 conv to 6, spatial mean, x 0.5:
              axis-angle rotation (Rodrigues) and translation, first camera -> second.
   loss       per scale: disparity upsampled (bilinear, half-pixel centres) to full size,
              depth = 1 / (1/100 + (1/0.1 - 1/100) * disp), both sources warped into the target
@@ -120,7 +120,7 @@ class PoseNet(nn.Module):
         x = torch.cat([standardise(first), standardise(second)], 1)
         for u in self.convs:
             x = u(x)
-        return self.out(x).mean((2, 3)) * 0.05
+        return self.out(x).mean((2, 3)) * 0.5  # model.pose_scale default (train/model.c)
 
 
 def nightjar_names(depth, pose):

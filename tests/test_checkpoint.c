@@ -14,7 +14,7 @@
  *  - saving refuses NaN weights and leaves the previous file intact, leaves
  *    no temporary files, and reports a missing folder;
  *  - nj_checkpoint_init_from copies weights and buffers (not Adam moments)
- *    and names the first differing tensor when the architecture differs. */
+ *    and the pose output scale they were trained with, and names the first differing tensor when the architecture differs. */
 #include "tests/check.h"
 #include "tests/test_data_util.h"
 #include "train/checkpoint.h"
@@ -510,6 +510,15 @@ static void test_init_from(const char *ckpt, const nj_model *a, const char *ster
           moments_kept);
     nj_model_free(&t);
     nj_model_free(&fresh);
+
+    /* a config with another pose output scale: the checkpoint's wins */
+    mc.pose_scale = a->cfg.pose_scale * 3.0f;
+    if (build(&t, &mc, 555)) return;
+    rc = nj_checkpoint_init_from(ckpt, &t, err, sizeof err);
+    check(rc == 0 && t.cfg.pose_scale == a->cfg.pose_scale, "checkpoint_init_from_takes_the_checkpoint_pose_scale",
+          "rc %d, pose_scale %g (checkpoint %g, config %g)", rc, t.cfg.pose_scale, a->cfg.pose_scale, mc.pose_scale);
+    nj_model_free(&t);
+    mc = a->cfg;
 
     mc.width = 0.5f;
     init_case("wider_model", ckpt, &mc, "tensor \"enc0.0.w\" is 4x3x3x3 in the checkpoint but 8x3x3x3 in the model");

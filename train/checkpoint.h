@@ -43,7 +43,8 @@ int nj_checkpoint_load(const char *path, nj_model *m, nj_train_config *cfg,
                        nj_train_state *st, char *err, size_t errlen);
 /* Copies parameter values (and buffers) of a loaded checkpoint into an
  * existing model of the same architecture (for --init).  Error if any name
- * or shape differs. */
+ * or shape differs.  The model also takes the checkpoint's pose output scale
+ * (m->cfg.pose_scale), which its pose weights were trained for. */
 int nj_checkpoint_init_from(const char *path, nj_model *m, char *err, size_t errlen);
 
 #endif

@@ -14,7 +14,7 @@
  *              "augment": { "brightness": 0.2, "contrast": 0.2, "saturation": 0.2,
  *                           "hue": 0.05, "flip": 0.5 } },
  *   "model": { "stages": 5, "width": 1.0, "scales": 4, "norm": "batch" | "group" | "none",
- *              "head_init": 0.1, "pose_stages": 5, "pose_width": 1.0, "pose_scale": 0.05,
+ *              "head_init": 0.1, "pose_stages": 5, "pose_width": 1.0, "pose_scale": 0.5,
  *              "pose": true, "bn_momentum": 0.1 },
  *   "loss":  { "ssim_weight": 0.85, "smoothness": 0.001, "min_depth": 0.1, "max_depth": 100,
  *              "automask": true, "automask_from_step": 0, "tie_break": 1e-5,

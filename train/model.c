@@ -16,7 +16,7 @@ void nj_model_config_default(nj_model_config *cfg)
     cfg->pose = 1;
     cfg->pose_stages = 5;
     cfg->pose_width = 1.0f;
-    cfg->pose_scale = 0.05f;
+    cfg->pose_scale = 0.5f;
     cfg->bn_momentum = 0.1f;
     cfg->seed = 1;
 }

@@ -38,7 +38,7 @@ typedef struct nj_model_config {
     int pose;              /* 1: build the pose net */
     int pose_stages;       /* stride-2 convs in the pose net (default 5) */
     float pose_width;
-    float pose_scale;      /* output multiplier (default 0.05) */
+    float pose_scale;      /* output multiplier (default 0.5) */
     float bn_momentum;     /* default 0.1 */
     unsigned seed;         /* initialisation seed */
 } nj_model_config;

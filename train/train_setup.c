@@ -73,6 +73,11 @@ static int fresh_model(nj_trainer *t, char *err, size_t errlen)
     if (nj_model_init(&t->model, &mc, err, errlen)) return -1;
     t->model_ready = 1;
     if (t->cfg.init[0] && init_weights(t->cfg.init, &t->model, err, errlen)) return -1;
+    if (t->model.cfg.pose_scale != mc.pose_scale) {
+        printf("model.pose_scale %g taken from %s (its pose weights were trained with it; the config says %g)\n",
+               t->model.cfg.pose_scale, t->cfg.init, mc.pose_scale);
+        t->cfg.model.pose_scale = t->model.cfg.pose_scale;
+    }
     memset(&t->st, 0, sizeof t->st);
     nj_rng_seed(&t->rng, (uint64_t)t->cfg.seed * 0x9E3779B97F4A7C15ull + 7);
     t->st.rng[0] = t->rng.s[0];

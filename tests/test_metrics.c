@@ -96,6 +96,31 @@ static void test_hand_accumulate(void)
  *   ate = sqrt(5)/5 = 0.4472…, rms = sqrt(5/5) = 1.
  * A camera moving 1 m forward per frame: c2w_i = [I | (0, 0, i)], motions
  * rel = [I | (0, 0, −1)] (a point 1 m closer after each step) → positions (0, 0, i). */
+/* Hand-worked rotation angles: a turn of 0.3 rad about z against none, and
+ * two turns about x (0.5 and −0.25 rad) that differ by 0.75 rad. */
+static void test_hand_rotation(void)
+{
+    const double c = cos(0.3), s = sin(0.3);
+    const double Rz[12] = {c, -s, 0, 1, s, c, 0, 2, 0, 0, 1, 3}, I[12] = {1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1, 0};
+    double Ra[12] = {1, 0, 0, 0, 0, cos(0.5), -sin(0.5), 0, 0, sin(0.5), cos(0.5), 0};
+    double Rb[12] = {1, 0, 0, 0, 0, cos(-0.25), -sin(-0.25), 0, 0, sin(-0.25), cos(-0.25), 0};
+    check(close_to(nj_rotation_angle(Rz), 0.3, 1e-12) && close_to(nj_rotation_error(Rz, I), 0.3, 1e-12) &&
+              close_to(nj_rotation_error(Ra, Rb), 0.75, 1e-12) && nj_rotation_error(Rz, Rz) < 1e-7,
+          "hand: rotation angle and rotation error", "%g %g %g", nj_rotation_angle(Rz), nj_rotation_error(Rz, I),
+          nj_rotation_error(Ra, Rb));
+    /* small angles keep their precision (acos of the trace would lose half the digits) */
+    const double e = 1e-5;
+    double Ry[12] = {cos(e), 0, sin(e), 0, 0, 1, 0, 0, -sin(e), 0, cos(e), 0};
+    check(close_to(nj_rotation_error(I, Ry), e, 1e-15) && close_to(nj_rotation_angle(Ry), e, 1e-15),
+          "hand: a rotation of 1e-5 rad is measured to 1e-15", "%.17g", nj_rotation_error(I, Ry));
+    /* camera j = camera i moved 1 m along its own z: points of i appear 1 m nearer in j */
+    const double ci[12] = {1, 0, 0, 5, 0, 1, 0, 6, 0, 0, 1, 7}, cj[12] = {1, 0, 0, 5, 0, 1, 0, 6, 0, 0, 1, 8};
+    double m[12];
+    nj_motion_from_c2w(ci, cj, m);
+    check(m[3] == 0 && m[7] == 0 && m[11] == -1 && nj_rotation_angle(m) == 0, "hand: motion between two camera poses",
+          "t = (%g, %g, %g)", m[3], m[7], m[11]);
+}
+
 static void test_hand_ate(void)
 {
     double gt[15] = {0}, pred[15] = {0}, scale, rmse;
@@ -157,7 +182,8 @@ static void make_depth(nj_rng *r, float *gt, float *pred)
 }
 
 /* Snippet poses: GT camera-to-world by a random walk; the "prediction" is the
- * true motion rel_i = c2w_{i+1}⁻¹ c2w_i with its translation shrunk and noised. */
+ * true motion rel_i = c2w_{i+1}⁻¹ c2w_i with its translation shrunk and noised
+ * and its rotation multiplied by a random one. */
 static void make_poses(nj_rng *r, float *c2w, float *rel)
 {
     for (int s = 0; s < SNIPS; s++) {
@@ -185,6 +211,13 @@ static void make_poses(nj_rng *r, float *c2w, float *rel)
                 for (int k = 0; k < 3; k++) acc += P[i + 1][4 * k + a] * (P[i][4 * k + 3] - P[i + 1][4 * k + 3]);
                 T[4 * a + 3] = 0.3 * acc + 0.05 * nj_rng_normal(r);
             }
+            double Q[9], RT[9];                    /* a wrong rotation: R ← R·Q */
+            random_rotation(r, Q);
+            for (int a = 0; a < 3; a++)
+                for (int b = 0; b < 3; b++)
+                    RT[3 * a + b] = T[4 * a] * Q[b] + T[4 * a + 1] * Q[3 + b] + T[4 * a + 2] * Q[6 + b];
+            for (int a = 0; a < 3; a++)
+                for (int b = 0; b < 3; b++) T[4 * a + b] = RT[3 * a + b];
             for (int k = 0; k < 12; k++) rel[(s * 4 + i) * 12 + k] = (float)T[k];
         }
     }
@@ -282,6 +315,32 @@ static void test_numpy(const char *argv0)
     }
     check(aok, "numpy: 5-frame snippet ATE, RMS and scale", "worst ATE difference %g", worst);
     free(ref);
+    ref = NULL;
+    tdu_ref_path(argv0, "rpe_ref.py", script, sizeof script);
+    snprintf(args, sizeof args, "'%s'", dir);
+    snprintf(path, sizeof path, "%s/rpe.npy", dir);
+    ok = tdu_python(script, args) == 0 && nj_npy_read(path, &ref, shape, &nd, err, sizeof err) == 0;
+    if (check(ok && nd == 1 && shape[0] == 3 * SNIPS * 4, "scipy: rotation reference ran", "%s", err)) {
+        int rok = 1;
+        worst = 0;
+        for (int s = 0; s < SNIPS; s++)
+            for (int i = 0; i < 4; i++) {
+                double ci[12], cj[12], rl[12], gm[12];
+                for (int k = 0; k < 12; k++) {
+                    ci[k] = c2w[(s * 5 + i) * 12 + k];
+                    cj[k] = c2w[(s * 5 + i + 1) * 12 + k];
+                    rl[k] = rel[(s * 4 + i) * 12 + k];
+                }
+                nj_motion_from_c2w(ci, cj, gm);
+                const float *e = ref + 3 * (s * 4 + i);
+                double re = nj_rotation_error(rl, gm), ra = nj_rotation_angle(gm), rp = nj_rotation_angle(rl);
+                rok &= close_to(re, e[0], 1e-5) && close_to(ra, e[1], 1e-5) && close_to(rp, e[2], 1e-5);
+                if (fabs(re - e[0]) > worst) worst = fabs(re - e[0]);
+            }
+        check(rok, "scipy: rotation error and angles of frame-pair motions (Rotation.magnitude)",
+              "worst rotation error difference %g rad", worst);
+    }
+    free(ref);
     tdu_rmtree(dir);
 }
 
@@ -292,6 +351,7 @@ int main(int argc, char **argv)
     test_hand_scaling();
     test_hand_accumulate();
     test_hand_ate();
+    test_hand_rotation();
     test_numpy(argv[0]);
     return test_exit();
 }

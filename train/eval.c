@@ -42,7 +42,11 @@ typedef struct eval_run {
     /* pose */
     int snippets, pose_sequences;
     double ate_mean, ate_m2, rmse_sum, scale_sum;
+    int pairs;                 /* consecutive frame pairs with a rotation error */
+    double rot_err_sum, rot_true_sum;   /* radians */
 } eval_run;
+
+#define RAD2DEG(x) ((x) * 57.29577951308232)
 
 static void usage(FILE *f)
 {
@@ -58,7 +62,8 @@ static void usage(FILE *f)
         "                     fitted to the lower image region) instead of median scaling;\n"
         "                     images where no ground plane is found are left out (counted)\n"
         "  Where the split has ground-truth poses and the model a pose net: trajectory error\n"
-        "  on 5-frame snippets with least-squares scale alignment (Zhou et al. 2017).\n"
+        "  on 5-frame snippets with least-squares scale alignment (Zhou et al. 2017), and the\n"
+        "  rotation error of each consecutive frame pair next to the true rotation.\n"
         "  Exit status: 0 done, 1 failure, 2 bad usage.\n");
 }
 
@@ -321,6 +326,19 @@ static void add_snippets(eval_run *r, const double *c2w, const double *rel, int 
     }
 }
 
+/* Rotation error of every consecutive pair (the pose net's motion against the
+ * true one), with the true rotation alongside for scale. */
+static void add_rotation_errors(eval_run *r, const double *c2w, const double *rel, int n)
+{
+    for (int i = 0; i + 1 < n; i++) {
+        double gt[12];
+        nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt);
+        r->rot_err_sum += nj_rotation_error(rel + 12 * i, gt);
+        r->rot_true_sum += nj_rotation_angle(gt);
+        r->pairs++;
+    }
+}
+
 static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size_t errlen)
 {
     double *c2w = NULL, *rel = NULL;
@@ -346,6 +364,7 @@ static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size
         cur.data = NULL;
     }
     add_snippets(r, c2w, rel, n);
+    add_rotation_errors(r, c2w, rel, n);
     r->pose_sequences++;
     rc = 0;
 done:
@@ -420,6 +439,10 @@ static void print_table(const eval_run *r)
         printf("pose: ATE %.4f +/- %.4f (Zhou et al. 2017 protocol), RMS %.4f, over %d snippets of %d frames\n",
                r->ate_mean, sqrt(r->ate_m2 / r->snippets), r->rmse_sum / r->snippets, r->snippets,
                NJ_ATE_SNIPPET);
+    if (r->pairs)
+        printf("pose: rotation error %.3f deg per frame pair (true rotation %.3f deg; an error as large as "
+               "the true rotation means none was learned), over %d pairs\n",
+               RAD2DEG(r->rot_err_sum / r->pairs), RAD2DEG(r->rot_true_sum / r->pairs), r->pairs);
 }
 
 static void add_depth_json(cJSON *o, const nj_metrics_acc *acc, int with_scale)
@@ -472,6 +495,9 @@ static cJSON *report_json(const eval_run *r)
         cJSON_AddNumberToObject(p, "scale_mean", r->scale_sum / r->snippets);
         cJSON_AddNumberToObject(p, "snippets", r->snippets);
         cJSON_AddNumberToObject(p, "snippet_frames", NJ_ATE_SNIPPET);
+        cJSON_AddNumberToObject(p, "rotation_error_deg", RAD2DEG(r->rot_err_sum / r->pairs));
+        cJSON_AddNumberToObject(p, "rotation_true_deg", RAD2DEG(r->rot_true_sum / r->pairs));
+        cJSON_AddNumberToObject(p, "pairs", r->pairs);
         cJSON_AddStringToObject(p, "protocol",
                                 "Zhou et al. 2017: first frames aligned, least-squares scale, "
                                 "ate = sqrt(sum |e|^2) / n; rmse = sqrt(sum |e|^2 / n)");

@@ -83,4 +83,15 @@ void nj_positions_from_motions(const double *rel, int n, double *xyz);
  * the prediction does not move at all the scale is 0. */
 double nj_ate(const double *gt, const double *pred, int n, double *scale, double *rmse);
 
+/* Rotation part of the relative pose error between consecutive frames (the
+ * translation part needs the unknown monocular scale; ATE above covers it).
+ * An unlearned rotation shows as an error as large as the true rotation. */
+/* The motion that maps points of camera i into camera j, from their
+ * camera-to-world poses: [R_jᵀ R_i | R_jᵀ (t_i − t_j)]. */
+void nj_motion_from_c2w(const double *ci, const double *cj, double rel[12]);
+/* Rotation angle (radians, 0..π) of a 3×4 [R | t]. */
+double nj_rotation_angle(const double *a);
+/* Angle (radians) of R_aᵀ R_b: how far the rotations of two motions differ. */
+double nj_rotation_error(const double *a, const double *b);
+
 #endif

@@ -96,31 +96,6 @@ static void test_hand_accumulate(void)
  *   ate = sqrt(5)/5 = 0.4472…, rms = sqrt(5/5) = 1.
  * A camera moving 1 m forward per frame: c2w_i = [I | (0, 0, i)], motions
  * rel = [I | (0, 0, −1)] (a point 1 m closer after each step) → positions (0, 0, i). */
-/* Hand-worked rotation angles: a turn of 0.3 rad about z against none, and
- * two turns about x (0.5 and −0.25 rad) that differ by 0.75 rad. */
-static void test_hand_rotation(void)
-{
-    const double c = cos(0.3), s = sin(0.3);
-    const double Rz[12] = {c, -s, 0, 1, s, c, 0, 2, 0, 0, 1, 3}, I[12] = {1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1, 0};
-    double Ra[12] = {1, 0, 0, 0, 0, cos(0.5), -sin(0.5), 0, 0, sin(0.5), cos(0.5), 0};
-    double Rb[12] = {1, 0, 0, 0, 0, cos(-0.25), -sin(-0.25), 0, 0, sin(-0.25), cos(-0.25), 0};
-    check(close_to(nj_rotation_angle(Rz), 0.3, 1e-12) && close_to(nj_rotation_error(Rz, I), 0.3, 1e-12) &&
-              close_to(nj_rotation_error(Ra, Rb), 0.75, 1e-12) && nj_rotation_error(Rz, Rz) < 1e-7,
-          "hand: rotation angle and rotation error", "%g %g %g", nj_rotation_angle(Rz), nj_rotation_error(Rz, I),
-          nj_rotation_error(Ra, Rb));
-    /* small angles keep their precision (acos of the trace would lose half the digits) */
-    const double e = 1e-5;
-    double Ry[12] = {cos(e), 0, sin(e), 0, 0, 1, 0, 0, -sin(e), 0, cos(e), 0};
-    check(close_to(nj_rotation_error(I, Ry), e, 1e-15) && close_to(nj_rotation_angle(Ry), e, 1e-15),
-          "hand: a rotation of 1e-5 rad is measured to 1e-15", "%.17g", nj_rotation_error(I, Ry));
-    /* camera j = camera i moved 1 m along its own z: points of i appear 1 m nearer in j */
-    const double ci[12] = {1, 0, 0, 5, 0, 1, 0, 6, 0, 0, 1, 7}, cj[12] = {1, 0, 0, 5, 0, 1, 0, 6, 0, 0, 1, 8};
-    double m[12];
-    nj_motion_from_c2w(ci, cj, m);
-    check(m[3] == 0 && m[7] == 0 && m[11] == -1 && nj_rotation_angle(m) == 0, "hand: motion between two camera poses",
-          "t = (%g, %g, %g)", m[3], m[7], m[11]);
-}
-
 static void test_hand_ate(void)
 {
     double gt[15] = {0}, pred[15] = {0}, scale, rmse;
@@ -149,6 +124,31 @@ static void test_hand_ate(void)
     for (int i = 0; i < 5; i++) ok &= a[3 * i] == 0 && a[3 * i + 1] == 0 && a[3 * i + 2] == i && b[3 * i + 2] == i;
     check(ok && nj_ate(a, b, 5, NULL, NULL) < 1e-12, "hand: positions from poses and from motions",
           "z %g %g %g", b[2], b[5], b[14]);
+}
+
+/* Hand-worked rotation angles: a turn of 0.3 rad about z against none, and
+ * two turns about x (0.5 and −0.25 rad) that differ by 0.75 rad. */
+static void test_hand_rotation(void)
+{
+    const double c = cos(0.3), s = sin(0.3);
+    const double Rz[12] = {c, -s, 0, 1, s, c, 0, 2, 0, 0, 1, 3}, I[12] = {1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1, 0};
+    double Ra[12] = {1, 0, 0, 0, 0, cos(0.5), -sin(0.5), 0, 0, sin(0.5), cos(0.5), 0};
+    double Rb[12] = {1, 0, 0, 0, 0, cos(-0.25), -sin(-0.25), 0, 0, sin(-0.25), cos(-0.25), 0};
+    check(close_to(nj_rotation_angle(Rz), 0.3, 1e-12) && close_to(nj_rotation_error(Rz, I), 0.3, 1e-12) &&
+              close_to(nj_rotation_error(Ra, Rb), 0.75, 1e-12) && nj_rotation_error(Rz, Rz) < 1e-7,
+          "hand: rotation angle and rotation error", "%g %g %g", nj_rotation_angle(Rz), nj_rotation_error(Rz, I),
+          nj_rotation_error(Ra, Rb));
+    /* small angles keep their precision (acos of the trace would lose half the digits) */
+    const double e = 1e-5;
+    double Ry[12] = {cos(e), 0, sin(e), 0, 0, 1, 0, 0, -sin(e), 0, cos(e), 0};
+    check(close_to(nj_rotation_error(I, Ry), e, 1e-15) && close_to(nj_rotation_angle(Ry), e, 1e-15),
+          "hand: a rotation of 1e-5 rad is measured to 1e-15", "%.17g", nj_rotation_error(I, Ry));
+    /* camera j = camera i moved 1 m along its own z: points of i appear 1 m nearer in j */
+    const double ci[12] = {1, 0, 0, 5, 0, 1, 0, 6, 0, 0, 1, 7}, cj[12] = {1, 0, 0, 5, 0, 1, 0, 6, 0, 0, 1, 8};
+    double m[12];
+    nj_motion_from_c2w(ci, cj, m);
+    check(m[3] == 0 && m[7] == 0 && m[11] == -1 && nj_rotation_angle(m) == 0, "hand: motion between two camera poses",
+          "t = (%g, %g, %g)", m[3], m[7], m[11]);
 }
 
 /* ---- random data against numpy ------------------------------------------------- */

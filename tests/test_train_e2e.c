@@ -116,26 +116,23 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
     return check(rc == 0, name, "exit %d (log %s)", rc, log) ? 0 : -1;
 }
 
-/* The validation AbsRel values of a run's log, in step order (count returned). */
-static int val_absrels(const char *log, double *v, int max)
+/* The validation AbsRel values of a run's log text, in step order (count returned). */
+static int val_absrels(const char *text, double *v, int max)
 {
-    char *text = e2e_slurp(log, NULL);
-    if (!text) return 0;
     int n = 0;
-    for (char *p = text; (p = strstr(p, "\"type\":\"val\"")) && n < max; p++) {
-        char *a = strstr(p, "\"absrel\":"), *nl = strchr(p, '\n');
+    for (const char *p = text; p && (p = strstr(p, "\"type\":\"val\"")) && n < max; p++) {
+        const char *a = strstr(p, "\"absrel\":"), *nl = strchr(p, '\n');
         if (a && (!nl || a < nl)) v[n++] = atof(a + 9);
     }
-    free(text);
     return n;
 }
 
 /* "Validation never drifts back up": the run ends within 5% of its best
  * validation AbsRel. */
-static void no_drift(const char *log)
+static void no_drift(const char *text)
 {
     double v[256], best = INFINITY;
-    int n = val_absrels(log, v, 256);
+    int n = val_absrels(text, v, 256);
     for (int i = 0; i < n; i++) best = v[i] < best ? v[i] : best;
     check(n >= 3 && v[n - 1] <= 1.05 * best, "monocular validation AbsRel ends at (within 5% of) its best: no drift back up",
           "%d validations, best %.4f, last %.4f", n, best, n ? v[n - 1] : NAN);
@@ -159,8 +156,8 @@ static void mono(const char *dir)
     char *nl = val ? strchr(val, '\n') : NULL, *abs = val ? strstr(val, "\"absrel\":") : NULL;
     check(abs && (!nl || abs < nl), "validation logs depth metrics where the val split has ground truth",
           "first val line: %.200s", val ? val : "(none)");
+    if (!reduced()) no_drift(text);
     free(text);
-    if (!reduced()) no_drift(log);
     snprintf(log, sizeof log, "%s/mono/report.html", dir);
     text = e2e_slurp(log, NULL);
     check(text && strstr(text, "Validation AbsRel vs step"), "the run wrote its report with depth-metric curves",

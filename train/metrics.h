@@ -85,8 +85,9 @@ double nj_ate(const double *gt, const double *pred, int n, double *scale, double
 
 /* Rotation part of the relative pose error between consecutive frames (the
  * translation part needs the unknown monocular scale; ATE above covers it).
- * An unlearned rotation shows as an error as large as the true rotation. */
-/* The motion that maps points of camera i into camera j, from their
+ * An unlearned rotation shows as an error as large as the true rotation.
+ *
+ * The motion that maps points of camera i into camera j, from their
  * camera-to-world poses: [R_jᵀ R_i | R_jᵀ (t_i − t_j)]. */
 void nj_motion_from_c2w(const double *ci, const double *cj, double rel[12]);
 /* Rotation angle (radians, 0..π) of a 3×4 [R | t]. */

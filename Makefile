@@ -58,6 +58,8 @@ deps-test:
 # the numeric kernels (ops and losses) get full loop vectorisation; measured
 # on the training step (320x96 b4, 1 thread): CPU time per step −15..20%
 $(B)/nn/%.o $(B)/losses/%.o: CFLAGS += -O3
+# the direct conv kernels rely on fused multiply-adds (ISO C mode turns contraction off)
+$(B)/nn/conv_direct.o: CFLAGS += -ffp-contract=fast
 
 $(B)/%.o: %.c
 	@mkdir -p $(dir $@)

@@ -24,7 +24,8 @@ Same architecture and loss as nightjar's defaults (train/model.h, losses/view_sy
 Modes (run with Debian's /usr/bin/python3):
   --equiv DIR    load nightjar's initial weights and batch from DIR (written by
                  tests/test_bench_equiv.c), compute the loss and gradients in float64, write
-                 DIR/torch_loss.npy and DIR/torch_grad_<param>.npy for every parameter.
+                 DIR/torch_loss.npy and DIR/torch_grad_<param>.npy for every parameter; the
+                 same in float32 as DIR/torch32_loss.npy and DIR/torch32_grad_<param>.npy.
   --bench        time the training step: --size WxH --batch N --threads N --steps N --warmup N;
                  ends with the line "ms_per_step=X peak_rss_mb=Y".
 """
@@ -245,21 +246,29 @@ def load(dir, name):
     return torch.from_numpy(np.load(os.path.join(dir, name + ".npy")))
 
 
-def mode_equiv(dir):
-    torch.set_num_threads(1)
-    depth, pose = DepthNet().double(), PoseNet().double()
+def equiv_pass(dir, dtype, prefix):
+    """Loss and parameter gradients of nightjar's weights and batch in `dtype`."""
+    depth, pose = DepthNet().to(dtype), PoseNet().to(dtype)
     pairs = nightjar_names(depth, pose)
     with torch.no_grad():
         for p, name in pairs:
             p.copy_(load(dir, name).view(p.shape))
-    target = load(dir, "target").double()
-    sources = [load(dir, "source%d" % j).double() for j in range(2)]
-    cams = load(dir, "cams").double()
+    target = load(dir, "target").to(dtype)
+    sources = [load(dir, "source%d" % j).to(dtype) for j in range(2)]
+    cams = load(dir, "cams").to(dtype)
     loss = recipe_loss(depth, pose, target, sources, cams, tie_break=False)
     loss.backward()
-    np.save(os.path.join(dir, "torch_loss.npy"), np.array([loss.item()], np.float32))
+    np.save(os.path.join(dir, prefix + "_loss.npy"), np.array([loss.item()], np.float32))
     for p, name in pairs:
-        np.save(os.path.join(dir, "torch_grad_%s.npy" % name), p.grad.numpy().astype(np.float32))
+        np.save(os.path.join(dir, "%s_grad_%s.npy" % (prefix, name)), p.grad.numpy().astype(np.float32))
+
+
+def mode_equiv(dir):
+    """float64 (the reference: torch_*) and float32 (torch32_*: how far PyTorch's
+    own float32 result lies from it, the noise floor of a float32 comparison)."""
+    torch.set_num_threads(1)
+    equiv_pass(dir, torch.float64, "torch")
+    equiv_pass(dir, torch.float32, "torch32")
 
 
 def frames(n, h, w):

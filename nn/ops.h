@@ -11,7 +11,7 @@
  * batch, channels or pixels.  OpenBLAS is kept single-threaded (nj_threads_init)
  * and called from inside those OpenMP regions, so cores are never oversubscribed.
  *
- * Implementation files (one concept each): conv2d.c, upsample.c, resize.c,
+ * Implementation files (one concept each): conv2d.c (+ conv_direct.c), upsample.c, resize.c,
  * concat.c, pool.c, pad.c, activation.c, binary.c, unary.c, reduce.c,
  * batchnorm.c, groupnorm.c, slice.c.
  */
@@ -29,7 +29,9 @@ int nj_threads_init(int threads);
 /* x: N×Cin×H×W, w: Cout×Cin×K×K (square or not: kh=w->h, kw=w->w),
  * b: 1×Cout×1×1 or NULL.  stride 1 or 2, `pad` pixels on each side, zero or
  * reflection padding (reflection needs pad < H and pad < W).
- * Output: N×Cout×((H+2p-kh)/s+1)×((W+2p-kw)/s+1).  im2col + sgemm. */
+ * Output: N×Cout×((H+2p-kh)/s+1)×((W+2p-kw)/s+1).  Register-blocked direct
+ * kernels for stride-1 convs on wide maps and 1-channel heads (nn/conv_direct.c),
+ * im2col + sgemm otherwise. */
 nj_tensor *nj_conv2d(nj_graph *g, nj_tensor *x, nj_tensor *w, nj_tensor *b,
                      int stride, int pad, nj_pad_mode mode);
 /* Nearest-neighbour ×2: N×C×H×W → N×C×2H×2W. */

@@ -5,7 +5,15 @@
  * written as .npy, PyTorch (float64) loads them, and the loss must agree within
  * 1e-4, 12 parameter gradients spread over the depth encoder, decoder, heads and
  * pose net within 1e-3 (relative to the largest reference entry), and every
- * non-zero parameter gradient within 2e-3. */
+ * non-zero parameter gradient within 2e-3.
+ *
+ * The float32 noise floor: the loss has discrete choices (the minimum over
+ * source frames, the auto-mask's comparison), so a float32 computation that
+ * rounds differently flips a few pixels and moves some gradients by ~1e-3.
+ * PyTorch's own float32 result on this batch lies 3e-4 … 1.4e-3 from its
+ * float64 one (enc2.1.w 1.1e-3, dec2.1.w 1.4e-3).  The script writes both, and
+ * a gradient's limit is 1e-3 or twice PyTorch's own float32 deviation,
+ * whichever is larger; both figures are printed. */
 #include "tests/check.h"
 #include "tests/torch_ref.h"
 #include "train/bench.h"
@@ -21,6 +29,18 @@ static const char *GRADS[] = {"enc0.0.w", "enc2.1.w", "enc4.1.gamma", "dec4.0.w"
                               "dec0.1.beta", "head0.w", "head1.w", "pose0.w", "pose3.w",
                               "pose.out.w", "pose.out.b"};
 
+/* PyTorch float32's relative deviation from its float64 result for `name`, or -1. */
+static double torch32_noise(const char *dir, const char *name, const float *ref64, size_t n)
+{
+    char ref[128], err[256];
+    int shape[4];
+    snprintf(ref, sizeof ref, "torch32_grad_%s", name);
+    float *t = ref_load(dir, ref, shape, err, sizeof err);
+    double e = t && (size_t)shape[0] * shape[1] * shape[2] * shape[3] == n ? ref_rel_err(t, ref64, n) : -1;
+    free(t);
+    return e;
+}
+
 static void compare_grad(const nj_model *m, const char *dir, const char *name)
 {
     char ref[128], label[160], err[256];
@@ -35,8 +55,11 @@ static void compare_grad(const nj_model *m, const char *dir, const char *name)
         check(0, label, "PyTorch gradient has %d×%d×%d×%d entries, nightjar %zu", shape[0], shape[1],
               shape[2], shape[3], n);
     } else {
-        double e = ref_rel_err(p->grad, t, n);
-        check(e <= 1e-3, label, "relative error %.3g > 1e-3", e);
+        double e = ref_rel_err(p->grad, t, n), noise = torch32_noise(dir, name, t, n);
+        double limit = fmax(1e-3, 2 * noise);
+        check(noise >= 0 && e <= limit, label,
+              "relative error %.3g > %.3g (PyTorch float32 vs float64: %.3g)", e, limit, noise);
+        printf("#  %s: nightjar float32 %.3g, PyTorch float32 %.3g from PyTorch float64\n", name, e, noise);
     }
     free(t);
 }

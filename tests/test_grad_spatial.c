@@ -69,6 +69,20 @@ static void test_conv_grads(void)
         {"conv 7x7 stride 2 reflect multi-band batch 2", 2, 24, 46, 14, 2, 7, 7, 2, 3,
          NJ_PAD_REFLECT, 1, 0.25f},
         {"conv 1x1 direct multi-band", 1, 1100, 20, 6, 2, 1, 1, 1, 0, NJ_PAD_ZERO, 0, 0.25f},
+        /* stride-1 convs that take the register-blocked kernels (nn/conv_direct.c):
+         * ≥ 40 output columns, or ≤ 4 output channels; channel counts that use
+         * every block size (16, 8, 4, 1), reflection/zero padding, several bands */
+        {"conv direct 3x3 zero cout 5 (blocks 4+1) batch 2", 2, 3, 6, 45, 5, 3, 3, 1, 1,
+         NJ_PAD_ZERO, 1, 0.25f},
+        {"conv direct 3x3 reflect cout 24 (blocks 16+8) multi-band", 1, 2, 21, 40, 24, 3, 3, 1, 1,
+         NJ_PAD_REFLECT, 0, 0.25f},
+        {"conv direct 3x3 reflect cout 17 rows 2", 1, 2, 2, 41, 17, 3, 3, 1, 1,
+         NJ_PAD_REFLECT, 1, 0.25f},
+        {"conv direct head 3x3 reflect cout 1 narrow", 2, 4, 7, 12, 1, 3, 3, 1, 1,
+         NJ_PAD_REFLECT, 1, 0},
+        {"conv direct 3x3 zero pad 2", 1, 2, 5, 40, 4, 3, 3, 1, 2, NJ_PAD_ZERO, 1, 0.25f},
+        {"conv direct 5x5 reflect pad 2 (dW by sgemm)", 1, 2, 6, 41, 3, 5, 5, 1, 2,
+         NJ_PAD_REFLECT, 1, 0.25f},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) check_conv(&cases[i]);
 }
@@ -293,6 +307,8 @@ static void test_threads_and_accumulation(void)
         {"3x3 stride 2 batch 1", 1, 16, 160, 40, 8, 3, 3, 2, 1, NJ_PAD_ZERO, 1, 0},
         {"3x3 reflect one-row bands", 1, 128, 24, 64, 4, 3, 3, 1, 1, NJ_PAD_REFLECT, 0, 0},
         {"1x1 direct batch 1", 1, 32, 48, 64, 16, 1, 1, 1, 0, NJ_PAD_ZERO, 1, 0},
+        {"direct 3x3 zero batch 3 cout 40", 3, 24, 37, 70, 40, 3, 3, 1, 1, NJ_PAD_ZERO, 1, 0},
+        {"direct head 3x3 reflect cout 1", 4, 16, 50, 96, 1, 3, 3, 1, 1, NJ_PAD_REFLECT, 1, 0},
     };
     int saved = omp_get_max_threads();
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {

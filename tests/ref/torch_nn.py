@@ -124,6 +124,27 @@ def conv_cases(wr):
                 lambda t, s=s, pad=pad, mode=mode: conv(t["x"], t["w"], t.get("b"), s, pad, mode))
 
 
+def direct_conv_cases(wr):
+    """Stride-1 convs that take nightjar's direct kernels (>= 40 output columns or
+    <= 4 output channels): every channel-block size, both paddings, several bands."""
+    specs = [  # n, cin, h, w, cout, k, pad, mode, bias
+        (2, 3, 11, 45, 17, 3, 1, "zero", True),
+        (2, 5, 37, 67, 24, 3, 1, "reflect", False),
+        (3, 16, 9, 41, 1, 3, 1, "reflect", True),
+        (2, 4, 8, 50, 5, 3, 0, "zero", True),
+        (2, 3, 7, 47, 6, 5, 2, "reflect", True),
+        (2, 6, 3, 44, 40, 3, 1, "reflect", True),
+        (2, 2, 6, 13, 3, 3, 1, "zero", False),
+    ]
+    for n, cin, h, w, cout, k, pad, mode, bias in specs:
+        name = "conv2d direct k%d s1 %s pad%d %dx%d cout %d" % (k, mode, pad, h, w, cout)
+        inputs = {"x": normal((n, cin, h, w)), "w": normal((cout, cin, k, k), 0.3)}
+        if bias:
+            inputs["b"] = normal((1, cout, 1, 1), 0.5)
+        wr.case(name, "conv2d", {"stride": 1, "pad": pad, "mode": mode}, inputs,
+                lambda t, pad=pad, mode=mode: conv(t["x"], t["w"], t.get("b"), 1, pad, mode))
+
+
 def resample_cases(wr):
     x = normal((2, odd(1, 5), odd(3, 7), odd(3, 9)))
     wr.case("upsample2 nearest", "upsample2", {}, {"x": x},
@@ -258,6 +279,7 @@ def main():
     reduce_cases(wr)
     norm_cases(wr)
     encdec_case(wr)
+    direct_conv_cases(wr)
     wr.finish()
 
 

@@ -20,20 +20,34 @@
 /* Below this many elements a loop runs on one thread. */
 enum { PAR_MIN = 1 << 14 };
 
-/* Mean and biased variance of channel c over N, H, W (two passes, double). */
+/* Σ p[i] and Σ (p[i] − mu)² over n elements, in double (vectorised: the
+ * lanes hold partial sums, so the order differs from a serial loop only at
+ * double rounding). */
+static void row_sums(const float *p, size_t n, double mu, double *s, double *q)
+{
+    double a = 0, b = 0;
+    #pragma omp simd reduction(+:a, b)
+    for (size_t i = 0; i < n; i++) {
+        const double d = (double)p[i] - mu;
+        a += p[i];
+        b += d * d;
+    }
+    *s += a;
+    *q += b;
+}
+
+/* Mean and biased variance of channel c over N, H, W (two passes: the mean,
+ * then squared deviations from it). */
 static void channel_stats(const nj_tensor *x, int c, double *mean, double *var)
 {
     const size_t hw = (size_t)x->h * x->w;
-    double s = 0, q = 0;
-    for (int n = 0; n < x->n; n++) {
-        const float *p = x->data + ((size_t)n * x->c + c) * hw;
-        for (size_t i = 0; i < hw; i++) s += p[i];
-    }
+    double s = 0, q = 0, unused = 0;
+    for (int n = 0; n < x->n; n++)
+        row_sums(x->data + ((size_t)n * x->c + c) * hw, hw, 0.0, &s, &unused);
     const double m = (double)x->n * (double)hw, mu = s / m;
-    for (int n = 0; n < x->n; n++) {
-        const float *p = x->data + ((size_t)n * x->c + c) * hw;
-        for (size_t i = 0; i < hw; i++) q += (p[i] - mu) * (p[i] - mu);
-    }
+    double s2 = 0;
+    for (int n = 0; n < x->n; n++)
+        row_sums(x->data + ((size_t)n * x->c + c) * hw, hw, mu, &s2, &q);
     *mean = mu;
     *var = q / m;
 }
@@ -55,6 +69,30 @@ static void channel_affine(const nj_tensor *x, nj_tensor *y, int c, float alpha,
     }
 }
 
+/* Σ gz and Σ gz·xhat over n elements, gz = gy (through the ELU when elu), in
+ * double (vectorised). */
+static void grad_sums(const float *p, const float *yd, const float *gy, size_t n, int elu,
+                      float mean, float invstd, double *sg, double *sgx)
+{
+    double a = 0, b = 0;
+    if (elu) {
+        #pragma omp simd reduction(+:a, b)
+        for (size_t i = 0; i < n; i++) {
+            const float gz = nj_elu_grad_from_output(yd[i], gy[i]);
+            a += gz;
+            b += gz * ((p[i] - mean) * invstd);
+        }
+    } else {
+        #pragma omp simd reduction(+:a, b)
+        for (size_t i = 0; i < n; i++) {
+            a += gy[i];
+            b += gy[i] * ((p[i] - mean) * invstd);
+        }
+    }
+    *sg += a;
+    *sgx += b;
+}
+
 /* Per channel: sums of gy and gy * xhat over this process's batch. */
 static void channel_sums(const nj_op *op, int c, double *sg_out, double *sgx_out)
 {
@@ -65,19 +103,8 @@ static void channel_sums(const nj_op *op, int c, double *sg_out, double *sgx_out
     double sg = 0, sgx = 0;
     for (int n = 0; n < x->n; n++) {
         const size_t off = ((size_t)n * x->c + c) * hw;
-        const float *p = x->data + off, *yd = op->out->data + off, *gy = op->out->grad + off;
-        if (op->i[1]) {
-            for (size_t i = 0; i < hw; i++) {
-                const float gz = nj_elu_grad_from_output(yd[i], gy[i]);
-                sg += gz;
-                sgx += gz * ((p[i] - mean) * invstd);
-            }
-        } else {
-            for (size_t i = 0; i < hw; i++) {
-                sg += gy[i];
-                sgx += gy[i] * ((p[i] - mean) * invstd);
-            }
-        }
+        grad_sums(x->data + off, op->out->data + off, op->out->grad + off, hw, op->i[1], mean,
+                  invstd, &sg, &sgx);
     }
     *sg_out = sg;
     *sgx_out = sgx;

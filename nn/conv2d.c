@@ -224,7 +224,7 @@ static void forward_item(const conv_geom *G, const nj_tensor *x, const nj_tensor
 }
 
 static void backward_item(const conv_geom *G, const nj_op *op, int n, int band,
-                          float *scratch, float *dw, int want_dx)
+                          float *scratch, float *dw)
 {
     const nj_tensor *x = op->in[0], *w = op->in[1], *y = op->out;
     int oy0 = band * G->band, oy1 = oy0 + G->band < G->oh ? oy0 + G->band : G->oh;
@@ -236,7 +236,7 @@ static void backward_item(const conv_geom *G, const nj_op *op, int n, int band,
         cblas_sgemm(CblasRowMajor, CblasNoTrans, CblasTrans, G->cout, G->k, pt,
                     1.0f, dy, ohw, col, ld, 1.0f, dw, G->k);
     }
-    if (!x->grad || !want_dx) return;
+    if (!x->grad) return;
     if (G->direct) {
         cblas_sgemm(CblasRowMajor, CblasTrans, CblasNoTrans, G->k, pt, G->cout,
                     1.0f, w->data, G->k, dy, ohw, 1.0f, x->grad + xoff + (size_t)oy0 * G->ow, hw);
@@ -249,7 +249,7 @@ static void backward_item(const conv_geom *G, const nj_op *op, int n, int band,
 
 /* Runs the bands of parity `phase` (or all bands when phase < 0) of every sample. */
 static void backward_phase(const conv_geom *G, const nj_op *op, int phase,
-                           float *scratch, float *dw_parts, int par, int want_dx)
+                           float *scratch, float *dw_parts, int par)
 {
     int step = phase < 0 ? 1 : 2, first = phase < 0 ? 0 : phase;
     int per = (G->nbands - first + step - 1) / step, items = G->n * per;
@@ -261,7 +261,7 @@ static void backward_phase(const conv_geom *G, const nj_op *op, int phase,
         int t = omp_get_thread_num();
         backward_item(G, op, it / per, first + step * (it % per),
                       scratch ? scratch + (size_t)t * tile : NULL,
-                      dw_parts ? dw_parts + (size_t)t * wsize : NULL, want_dx);
+                      dw_parts ? dw_parts + (size_t)t * wsize : NULL);
     }
 }
 
@@ -292,28 +292,29 @@ static void reduce_dw(const float *parts, int nparts, size_t wsize, float *dw, i
 /* The direct-kernel description of a stride-1 geometry, or 0 when im2col suits it better. */
 static int direct_kernel(const conv_geom *G, nj_dconv *D)
 {
-    if (G->stride != 1 || G->direct) return 0;
-    *D = (nj_dconv){G->n, G->cin, G->h, G->w, G->cout, G->kh, G->kw, G->pad, G->reflect, G->oh, G->ow};
+    if (G->direct) return 0;
+    *D = (nj_dconv){G->n, G->cin, G->h, G->w, G->cout, G->kh, G->kw, G->stride, G->pad, G->reflect,
+                    G->oh, G->ow};
     return nj_dconv_suits(D);
 }
 
-/* dW (unless want_dw is 0) and dx (unless want_dx is 0) by im2col + sgemm, band by band. */
-static void backward_gemm(nj_graph *g, const conv_geom *G, const nj_op *op, int want_dx, int want_dw)
+/* dW and dx by im2col + sgemm, band by band. */
+static void backward_gemm(nj_graph *g, const conv_geom *G, const nj_op *op)
 {
     nj_tensor *x = op->in[0], *w = op->in[1];
     int threads = omp_get_max_threads(), par = use_threads(G);
     size_t tile = tile_floats(G), wsize = (size_t)G->cout * G->k;
-    size_t nparts = w->grad && want_dw ? (wsize * (size_t)threads + 15) / 16 * 16 : 0;
+    size_t nparts = w->grad ? (wsize * (size_t)threads + 15) / 16 * 16 : 0;
     /* one scratch block: dW partials (zeroed) then the im2col tiles */
     float *block = nj_graph_scratch(g, sizeof(float) * (nparts + tile * (size_t)threads));
     if (!block) return;
     float *parts = nparts ? block : NULL, *scratch = tile ? block + nparts : NULL;
     if (parts) memset(parts, 0, sizeof(float) * nparts);
-    if (want_dx && x->grad && !G->direct) {
-        backward_phase(G, op, 0, scratch, parts, par, 1);
-        backward_phase(G, op, 1, scratch, parts, par, 1);
+    if (x->grad && !G->direct) {
+        backward_phase(G, op, 0, scratch, parts, par);
+        backward_phase(G, op, 1, scratch, parts, par);
     } else {
-        backward_phase(G, op, -1, scratch, parts, par, want_dx);
+        backward_phase(G, op, -1, scratch, parts, par);
     }
     if (parts) reduce_dw(parts, threads, wsize, w->grad, wsize * (size_t)threads > 65536);
 }
@@ -325,15 +326,17 @@ static void conv2d_backward(nj_graph *g, const nj_op *op)
     nj_dconv D;
     geom_init(&G, x, w, op->i[0], op->i[1], (nj_pad_mode)op->i[2]);
     if (b && b->grad) bias_backward(&G, op->out, b->grad);
-    int direct = direct_kernel(&G, &D), dw_direct = direct && nj_dconv_dw_direct(&D);
-    int par = use_threads(&G), threads = omp_get_max_threads();
-    if ((w->grad && !dw_direct) || (x->grad && !direct))
-        backward_gemm(g, &G, op, !direct, !dw_direct);
-    if (w->grad && dw_direct) {
+    if (!x->grad && !w->grad) return;
+    int direct = direct_kernel(&G, &D), par = use_threads(&G), threads = omp_get_max_threads();
+    if (!direct) {
+        backward_gemm(g, &G, op);
+        return;
+    }
+    if (w->grad) {
         float *s = nj_graph_scratch(g, sizeof(float) * nj_dconv_dw_scratch(&D, threads));
         if (s) nj_dconv_backward_dw(&D, x->data, op->out->grad, w->grad, s, par);
     }
-    if (!x->grad || !direct) return;
+    if (!x->grad) return;
     float *scratch = nj_graph_scratch(g, sizeof(float) * nj_dconv_dx_scratch(&D, threads));
     if (scratch) nj_dconv_backward_dx(&D, op->out->grad, w->data, x->grad, scratch, par);
 }

@@ -1,18 +1,33 @@
-/* nn/conv_direct.c — stride-1 convolution by register-blocked direct kernels
+/* nn/conv_direct.c — convolution by register-blocked direct kernels
  * (see conv_direct.h).
  *
- * Work items are (sample, band of rows).  Each thread copies its band of the
- * input, with the padding applied and zeros after the row end, into scratch;
- * the kernel then accumulates an OB-channel × NV·16-pixel block in registers
- * over every input channel and tap and stores it once.  GCC vector extensions
- * compile to AVX-512, AVX2 or SSE as the -march allows; this file is built
- * with -ffp-contract=fast so that multiply-adds fuse. */
+ * Staging.  A work item (sample, band of output rows) copies its part of the
+ * padded input into per-thread scratch as s×s phase planes (s = stride):
+ * plane (py, px) holds padded pixel (s·i + py, s·j + px) at (i, j), row stride
+ * L = ow + (kw−1)/s.  Tap (ky, kx) of output (i, j) then reads plane
+ * (ky mod s, kx mod s) at (i + ky/s, j + kx/s): a fixed offset from the flat
+ * index q = i·L + j.  The kernels run over q across row ends (the columns
+ * j ≥ ow are computed and dropped), so narrow maps waste no vector lanes.
+ *
+ * Kernel.  An OB-channel × NV·16-pixel block of outputs is accumulated in
+ * named vector variables (registers) over every input channel and tap, then
+ * stored once.  GCC vector extensions compile to AVX-512, AVX2 or SSE as the
+ * -march allows; this file is built with -ffp-contract=fast so that
+ * multiply-adds fuse.
+ *
+ * Weight gradient: per (pair of output channels, input channel), 9 taps at a
+ * time are accumulated as vectors over the band and reduced once.
+ * Input gradient: stride 1 is the same correlation applied to the output
+ * gradient, zero-extended, with the flipped kernel; stride 2 splits into the
+ * four phases of the input, each a stride-1 correlation with the taps of its
+ * parity.  Both fold the padding back (reflected or dropped). */
 #include "nn/conv_direct.h"
 #include <omp.h>
 #include <string.h>
 
 #define VL 16                       /* floats per vector */
-#define BAND_BYTES (192 * 1024)     /* target size of one thread's input band */
+#define MAX_TAPS 64
+#define BAND_BYTES (192 * 1024)     /* target size of one thread's staged input band */
 #define MIN_BANDS 4                 /* bands per sample, for balance across threads */
 #define DW_BAND_BYTES (2048 * 1024) /* the weight gradient's band (re-read per channel pair) */
 #define DW_MIN_PIXELS 2048
@@ -20,31 +35,28 @@
 typedef float vf __attribute__((vector_size(VL * sizeof(float))));
 typedef float vfu __attribute__((vector_size(VL * sizeof(float)), aligned(4), may_alias));
 
-/* The source of one correlation: C planes (plane stride ps, row stride ls) and
- * weights wt[((c·kh + ky)·kw + kx)·O + o]. */
-typedef struct band_src {
-    const float *in;
-    size_t ps;
-    int ls, c, kh, kw;
-    const float *wt;
-    int o;
-} band_src;
-
 static inline int round_up(int a, int m) { return (a + m - 1) / m * m; }
+static inline size_t round_upz(size_t a, size_t m) { return (a + m - 1) / m * m; }
 
 static inline int reflect_index(int i, int n)
 {
     return i < 0 ? -i : (i >= n ? 2 * (n - 1) - i : i);
 }
 
-/* Row stride of a band buffer whose correlation yields `cols` columns: room for
- * the widest pixel block (64) to read past the last column. */
-static int band_stride(int cols, int kw)
-{
-    return round_up(round_up(cols, 4 * VL) + kw - 1, VL);
-}
+/* ---- the correlation kernel -------------------------------------------- */
 
-/* Stores one accumulator vector: whole, or its first `left` lanes at the row end. */
+/* C channels (channel stride cs) of staged input, taps at offsets off[0..taps),
+ * weights wt[(c·taps + t)·O + o]. */
+typedef struct corr_src {
+    const float *in;
+    size_t cs;
+    const int *off;
+    int taps;
+    const float *wt;
+    int c, o;
+} corr_src;
+
+/* Stores one accumulator vector: whole, or its first `left` lanes at the end. */
 static inline void store_vec(float *d, vf a, int left)
 {
     if (left >= VL) {
@@ -57,7 +69,7 @@ static inline void store_vec(float *d, vf a, int left)
 }
 
 /* Repetition over the OB output channels (RO*) and NV pixel vectors (RV*) of
- * a block, so that every accumulator is a named variable (registers). */
+ * a block, so that every accumulator is a named variable. */
 #define RV1(M, o) M(o, 0)
 #define RV2(M, o) M(o, 0) M(o, 1)
 #define RV4(M, o) M(o, 0) M(o, 1) M(o, 2) M(o, 3)
@@ -72,25 +84,26 @@ static inline void store_vec(float *d, vf a, int left)
 
 #define ACC_INIT(o, v) vf a_##o##_##v = (vf){0} + (bias ? bias[o0 + o] : 0.0f);
 #define ACC_FMA(o, v) a_##o##_##v += wr[o] * x_##v;
-#define ACC_STORE(o, v) store_vec(out + (size_t)(o) * ops + VL * (v), a_##o##_##v, ncols - VL * (v));
-#define X_LOAD(v) vf x_##v = *(const vfu *)(row + kx + VL * (v));
+#define ACC_STORE(o, v) store_vec(out + (size_t)(o) * ops + VL * (v), a_##o##_##v, n - VL * (v));
+#define X_LOAD(v) vf x_##v = *(const vfu *)(p + VL * (v));
 
-/* out[o][x] = bias[o] + Σ_c,ky,kx wt[c,ky,kx][o0+o] · in[c][ky][x+kx] for an
- * OB × NV·VL block; `ncols` columns of out are valid from here on. */
+/* out[o][q] = bias[o] + Σ_c,t wt[c,t][o0+o] · in[c][off[t] + q] for an OB ×
+ * NV·VL block starting at q0 (in and out already offset by q0); `n` outputs
+ * are valid from here on. */
 #define KERNEL(name, RO, RV, LOADS)                                                   \
-    static void name(const band_src *S, const float *in, int o0, const float *bias,   \
-                     float *out, size_t ops, int ncols)                               \
+    static void name(const corr_src *S, const float *in, int o0, const float *bias,   \
+                     float *out, size_t ops, int n)                                   \
     {                                                                                 \
         RO(ACC_INIT, RV)                                                              \
-        for (int c = 0; c < S->c; c++)                                                \
-            for (int ky = 0; ky < S->kh; ky++) {                                      \
-                const float *row = in + (size_t)c * S->ps + (size_t)ky * S->ls;       \
-                const float *wr = S->wt + (size_t)(c * S->kh + ky) * S->kw * S->o + o0; \
-                for (int kx = 0; kx < S->kw; kx++, wr += S->o) {                      \
-                    LOADS(X_LOAD)                                                     \
-                    RO(ACC_FMA, RV)                                                   \
-                }                                                                     \
+        const float *wr = S->wt + o0;                                                 \
+        for (int c = 0; c < S->c; c++) {                                              \
+            const float *inc = in + (size_t)c * S->cs;                                \
+            for (int t = 0; t < S->taps; t++, wr += S->o) {                           \
+                const float *p = inc + S->off[t];                                     \
+                LOADS(X_LOAD)                                                         \
+                RO(ACC_FMA, RV)                                                       \
             }                                                                         \
+        }                                                                             \
         RO(ACC_STORE, RV)                                                             \
     }
 KERNEL(k16x1, RO16, RV1, LOAD1)
@@ -98,42 +111,104 @@ KERNEL(k8x2, RO8, RV2, LOAD2)
 KERNEL(k4x4, RO4, RV4, LOAD4)
 KERNEL(k1x4, RO1, RV4, LOAD4)
 
-typedef void (*kernel_fn)(const band_src *, const float *, int, const float *, float *, size_t, int);
+typedef void (*kernel_fn)(const corr_src *, const float *, int, const float *, float *, size_t, int);
 
-/* Output row `inrow` → `outrow` (plane stride ops), all S->o channels, ncols columns. */
-static void row_conv(const band_src *S, const float *inrow, const float *bias,
-                     float *outrow, size_t ops, int ncols)
+/* out[o][q] for q ∈ [0, nq), every channel o (plane stride ops). */
+static void correlate(const corr_src *S, const float *bias, float *out, size_t ops, int nq)
 {
     static const struct { int ob, px; kernel_fn f; } kinds[] = {
         {16, VL, k16x1}, {8, 2 * VL, k8x2}, {4, 4 * VL, k4x4}, {1, 4 * VL, k1x4}};
     int o0 = 0;
     for (size_t k = 0; k < sizeof kinds / sizeof kinds[0]; k++)
         for (; o0 + kinds[k].ob <= S->o; o0 += kinds[k].ob)
-            for (int x0 = 0; x0 < ncols; x0 += kinds[k].px)
-                kinds[k].f(S, inrow + x0, o0, bias, outrow + (size_t)o0 * ops + x0, ops, ncols - x0);
+            for (int q = 0; q < nq; q += kinds[k].px)
+                kinds[k].f(S, S->in + q, o0, bias, out + (size_t)o0 * ops + q, ops, nq - q);
 }
 
-/* One padded input row: X ∈ [0, ls) holds src column X − pad (reflected or zero
- * outside the row, zero beyond w + 2·pad); `iy` may lie outside [0, h). */
-static void fill_row(float *dst, const float *plane, int iy, int h, int w, int pad,
-                     int reflect, int ls)
+/* Reads past the last flat index: the widest block (4·VL) plus the largest
+ * in-row tap offset. */
+static int slack(int kw) { return 4 * VL + kw; }
+
+/* ---- staging the input -------------------------------------------------- */
+
+typedef struct stage {
+    int s, L, rows, prow;   /* stride, row stride, output rows, plane rows */
+    size_t ps, cs;          /* plane stride, channel stride (s·s planes) */
+} stage;
+
+static void stage_geom(const nj_dconv *D, int rows, stage *st)
 {
-    if (iy < 0 || iy >= h) {
-        if (!reflect) {
-            memset(dst, 0, sizeof(float) * (size_t)ls);
-            return;
-        }
-        iy = reflect_index(iy, h);
-    }
-    const float *src = plane + (size_t)iy * w;
-    for (int X = 0; X < pad; X++) dst[X] = reflect ? src[reflect_index(X - pad, w)] : 0.0f;
-    memcpy(dst + pad, src, sizeof(float) * (size_t)w);
-    for (int X = pad + w; X < w + 2 * pad; X++)
-        dst[X] = reflect ? src[reflect_index(X - pad, w)] : 0.0f;
-    memset(dst + w + 2 * pad, 0, sizeof(float) * (size_t)(ls - w - 2 * pad));
+    st->s = D->stride;
+    st->L = D->ow + (D->kw - 1) / D->stride;
+    st->rows = rows;
+    st->prow = rows + (D->kh - 1) / D->stride;
+    st->ps = round_upz((size_t)st->prow * st->L + slack(D->kw), VL);
+    st->cs = (size_t)st->s * st->s * st->ps;
 }
 
-/* Band height for `rows` rows whose buffer rows hold `row_floats` floats: fits
+/* Tap offsets: tap (ky, kx) reads plane (ky mod s, kx mod s) at (ky/s, kx/s). */
+static void stage_taps(const nj_dconv *D, const stage *st, int *off)
+{
+    int s = st->s;
+    for (int ky = 0; ky < D->kh; ky++)
+        for (int kx = 0; kx < D->kw; kx++)
+            off[ky * D->kw + kx] = (int)(((ky % s) * s + kx % s) * st->ps) + (ky / s) * st->L + kx / s;
+}
+
+/* Padded input value at padded (Y, X) of one channel plane (h×w). */
+static inline float padded_at(const nj_dconv *D, const float *plane, int Y, int X)
+{
+    int iy = Y - D->pad, ix = X - D->pad;
+    if (Y >= D->h + 2 * D->pad || X >= D->w + 2 * D->pad) return 0.0f;
+    if (iy < 0 || iy >= D->h || ix < 0 || ix >= D->w) {
+        if (!D->reflect) return 0.0f;
+        iy = reflect_index(iy, D->h);
+        ix = reflect_index(ix, D->w);
+    }
+    return plane[(size_t)iy * D->w + ix];
+}
+
+/* One stride-1 plane row: padded row Y, columns [0, L). */
+static void fill_row1(const nj_dconv *D, float *dst, const float *plane, int Y, int L)
+{
+    int iy = Y - D->pad, p = D->pad, w = D->w, wp = w + 2 * p;
+    int valid = Y < D->h + 2 * p && ((iy >= 0 && iy < D->h) || D->reflect);
+    if (!valid) {
+        memset(dst, 0, sizeof(float) * (size_t)L);
+        return;
+    }
+    const float *src = plane + (size_t)reflect_index(iy, D->h) * w;
+    int n = L < wp ? L : wp;
+    for (int X = 0; X < p && X < n; X++) dst[X] = D->reflect ? src[reflect_index(X - p, w)] : 0.0f;
+    if (n > p) memcpy(dst + p, src, sizeof(float) * (size_t)((n - p) < w ? n - p : w));
+    for (int X = p + w; X < n; X++) dst[X] = D->reflect ? src[reflect_index(X - p, w)] : 0.0f;
+    if (L > n) memset(dst + n, 0, sizeof(float) * (size_t)(L - n));
+}
+
+/* Stages output rows [oy0, oy0 + st->rows) of sample xn (cin planes) into buf. */
+static void stage_fill(const nj_dconv *D, const stage *st, const float *xn, int oy0, float *buf)
+{
+    int s = st->s, L = st->L;
+    size_t hw = (size_t)D->h * D->w, used = (size_t)st->prow * L;
+    for (int c = 0; c < D->cin; c++)
+        for (int py = 0; py < s; py++)
+            for (int px = 0; px < s; px++) {
+                float *pl = buf + c * st->cs + (size_t)(py * s + px) * st->ps;
+                const float *src = xn + c * hw;
+                for (int i = 0; i < st->prow; i++) {
+                    float *d = pl + (size_t)i * L;
+                    int Y = s * (oy0 + i) + py;
+                    if (s == 1) {
+                        fill_row1(D, d, src, Y, L);
+                    } else {
+                        for (int j = 0; j < L; j++) d[j] = padded_at(D, src, Y, s * j + px);
+                    }
+                }
+                memset(pl + used, 0, sizeof(float) * (st->ps - used));
+            }
+}
+
+/* Band height for `rows` rows whose staged rows hold `row_floats` floats: fits
  * `bytes` with `halo` extra rows, at least min_rows, and min_bands bands per
  * sample where possible.  The last band takes the remainder (fewer than 2
  * bands' worth). */
@@ -151,23 +226,42 @@ static int band_count(int rows, int band) { return rows / band > 1 ? rows / band
 
 static int last_band_rows(int rows, int band) { return rows - (band_count(rows, band) - 1) * band; }
 
+/* Floats of one thread's staged band of `rows` output rows. */
+static size_t stage_floats(const nj_dconv *D, int rows)
+{
+    stage st;
+    stage_geom(D, rows, &st);
+    return (size_t)D->cin * st.cs;
+}
+
 /* ---- forward ------------------------------------------------------------ */
 
 static int fwd_band(const nj_dconv *D)
 {
-    return band_height(D->oh, (long)D->cin * band_stride(D->ow, D->kw), BAND_BYTES, D->kh - 1, 1,
-                       MIN_BANDS);
+    long row = (long)D->cin * D->stride * D->stride * (D->ow + D->kw);
+    return band_height(D->oh, row, BAND_BYTES, (D->kh - 1) / D->stride, 1, MIN_BANDS);
+}
+
+static size_t fwd_per_thread(const nj_dconv *D, int band)
+{
+    int rows = last_band_rows(D->oh, band);
+    stage st;
+    stage_geom(D, rows, &st);
+    size_t out = (size_t)D->cout * round_upz((size_t)rows * st.L, VL);
+    return round_upz(stage_floats(D, rows) + out, VL);
+}
+
+static size_t weight_floats(const nj_dconv *D)
+{
+    return round_upz((size_t)D->cin * D->kh * D->kw * D->cout, VL);
 }
 
 size_t nj_dconv_forward_scratch(const nj_dconv *D, int threads)
 {
-    int ls = band_stride(D->ow, D->kw);
-    size_t rows = (size_t)last_band_rows(D->oh, fwd_band(D)) + D->kh - 1;
-    size_t wt = (size_t)round_up(D->cin * D->kh * D->kw * D->cout, VL);
-    return wt + (size_t)threads * round_up((int)((size_t)D->cin * rows * ls), VL);
+    return weight_floats(D) + (size_t)threads * fwd_per_thread(D, fwd_band(D));
 }
 
-/* wt[((c·kh + ky)·kw + kx)·cout + o] = w[o][c][ky][kx]. */
+/* wt[(c·taps + t)·cout + o] = w[o][c][t]. */
 static void forward_weights(const nj_dconv *D, const float *w, float *wt)
 {
     int taps = D->kh * D->kw;
@@ -180,26 +274,28 @@ static void forward_weights(const nj_dconv *D, const float *w, float *wt)
 static void forward_item(const nj_dconv *D, const float *x, const float *wt, const float *b,
                          float *y, int n, int oy0, int oy1, float *buf)
 {
-    int ls = band_stride(D->ow, D->kw), rows = oy1 - oy0 + D->kh - 1;
-    size_t ps = (size_t)rows * ls, ohw = (size_t)D->oh * D->ow;
-    const float *xn = x + (size_t)n * D->cin * D->h * D->w;
-    for (int c = 0; c < D->cin; c++)
-        for (int r = 0; r < rows; r++)
-            fill_row(buf + c * ps + (size_t)r * ls, xn + (size_t)c * D->h * D->w,
-                     oy0 + r - D->pad, D->h, D->w, D->pad, D->reflect, ls);
-    band_src S = {buf, ps, ls, D->cin, D->kh, D->kw, wt, D->cout};
-    float *yn = y + (size_t)n * D->cout * ohw;
-    for (int oy = oy0; oy < oy1; oy++)
-        row_conv(&S, buf + (size_t)(oy - oy0) * ls, b, yn + (size_t)oy * D->ow, ohw, D->ow);
+    stage st;
+    int off[MAX_TAPS];
+    stage_geom(D, oy1 - oy0, &st);
+    stage_taps(D, &st, off);
+    stage_fill(D, &st, x + (size_t)n * D->cin * D->h * D->w, oy0, buf);
+    int nq = st.rows * st.L;
+    size_t oq = round_upz((size_t)nq, VL), ohw = (size_t)D->oh * D->ow;
+    float *tmp = buf + (size_t)D->cin * st.cs;
+    corr_src S = {buf, st.cs, off, D->kh * D->kw, wt, D->cin, D->cout};
+    correlate(&S, b, tmp, oq, nq);
+    float *yn = y + (size_t)n * D->cout * ohw + (size_t)oy0 * D->ow;
+    for (int o = 0; o < D->cout; o++)
+        for (int r = 0; r < st.rows; r++)
+            memcpy(yn + o * ohw + (size_t)r * D->ow, tmp + o * oq + (size_t)r * st.L,
+                   sizeof(float) * (size_t)D->ow);
 }
 
 void nj_dconv_forward(const nj_dconv *D, const float *x, const float *w, const float *b,
                       float *y, float *scratch, int par)
 {
     int band = fwd_band(D), nb = band_count(D->oh, band), items = D->n * nb;
-    int ls = band_stride(D->ow, D->kw);
-    size_t wsz = (size_t)round_up(D->cin * D->kh * D->kw * D->cout, VL);
-    size_t per = (size_t)round_up((int)((size_t)D->cin * (last_band_rows(D->oh, band) + D->kh - 1) * ls), VL);
+    size_t wsz = weight_floats(D), per = fwd_per_thread(D, band);
     forward_weights(D, w, scratch);
     #pragma omp parallel for schedule(dynamic, 1) if (par)
     for (int it = 0; it < items; it++) {
@@ -209,114 +305,12 @@ void nj_dconv_forward(const nj_dconv *D, const float *x, const float *w, const f
     }
 }
 
-/* ---- input gradient -----------------------------------------------------
- * With xp the padded input (Hp×Wp = (oh+kh−1)×(ow+kw−1)), the gradient of xp
- * is the correlation of dy, zero-extended by kh−1 rows and kw−1 columns on
- * each side, with wt'[o][ky][kx][c] = w[o][c][kh−1−ky][kw−1−kx].  A band owns
- * dx rows [y0, y1): it computes the xp-gradient rows that land there (with the
- * top/bottom padding rows if it is the first/last band) and folds the padding
- * back — reflected or dropped.  Bands are at least pad+1 rows, so every
- * reflected row lands inside its own band and bands never write the same row. */
-
-static int dx_band(const nj_dconv *D)
-{
-    int wp = D->ow + D->kw - 1;
-    return band_height(D->h, (long)D->cout * band_stride(wp, D->kw), BAND_BYTES,
-                       2 * D->pad + D->kh - 1, D->pad + 1, MIN_BANDS);
-}
-
-static size_t dx_per_thread(const nj_dconv *D, int band)
-{
-    int wp = D->ow + D->kw - 1, ls = band_stride(wp, D->kw);
-    size_t rows = (size_t)last_band_rows(D->h, band) + 2 * D->pad;
-    size_t in = (size_t)D->cout * (rows + D->kh - 1) * ls, out = (size_t)D->cin * rows * wp;
-    return (size_t)round_up((int)(in + out), VL);
-}
-
-size_t nj_dconv_dx_scratch(const nj_dconv *D, int threads)
-{
-    size_t wt = (size_t)round_up(D->cin * D->kh * D->kw * D->cout, VL);
-    return wt + (size_t)threads * dx_per_thread(D, dx_band(D));
-}
-
-/* wt[((o·kh + ky)·kw + kx)·cin + c] = w[o][c][kh−1−ky][kw−1−kx]. */
-static void dx_weights(const nj_dconv *D, const float *w, float *wt)
-{
-    for (int o = 0; o < D->cout; o++)
-        for (int c = 0; c < D->cin; c++)
-            for (int ky = 0; ky < D->kh; ky++)
-                for (int kx = 0; kx < D->kw; kx++)
-                    wt[(((size_t)o * D->kh + ky) * D->kw + kx) * D->cin + c] =
-                        w[(((size_t)o * D->cin + c) * D->kh + D->kh - 1 - ky) * D->kw + D->kw - 1 - kx];
-}
-
-/* One row of dy zero-extended: dst[X] = dy[Y − (kh−1)][X − (kw−1)] or 0. */
-static void fill_dy_row(const nj_dconv *D, float *dst, const float *plane, int Y, int ls)
-{
-    int src = Y - (D->kh - 1);
-    memset(dst, 0, sizeof(float) * (size_t)ls);
-    if (src >= 0 && src < D->oh)
-        memcpy(dst + D->kw - 1, plane + (size_t)src * D->ow, sizeof(float) * (size_t)D->ow);
-}
-
-/* Adds one xp-gradient row (wp = w + 2·pad columns) to dx row ydst, folding the padding. */
-static void fold_row(const nj_dconv *D, const float *s, float *d)
-{
-    int p = D->pad, w = D->w;
-    for (int x = 0; x < w; x++) d[x] += s[x + p];
-    if (!D->reflect) return;
-    for (int X = 0; X < p; X++) d[reflect_index(X - p, w)] += s[X];
-    for (int X = p + w; X < w + 2 * p; X++) d[reflect_index(X - p, w)] += s[X];
-}
-
-static void dx_item(const nj_dconv *D, const float *dy, const float *wt, float *dx,
-                    int n, int y0, int y1, float *buf)
-{
-    int p = D->pad, wp = D->ow + D->kw - 1, ls = band_stride(wp, D->kw);
-    int Ya = y0 == 0 ? 0 : y0 + p, Yb = y1 == D->h ? D->h + 2 * p : y1 + p, rows = Yb - Ya;
-    int inrows = rows + D->kh - 1;
-    size_t ps = (size_t)inrows * ls, ohw = (size_t)D->oh * D->ow, ops = (size_t)rows * wp;
-    float *tmp = buf + (size_t)D->cout * ps;
-    const float *dyn = dy + (size_t)n * D->cout * ohw;
-    for (int o = 0; o < D->cout; o++)
-        for (int r = 0; r < inrows; r++)
-            fill_dy_row(D, buf + o * ps + (size_t)r * ls, dyn + o * ohw, Ya + r, ls);
-    band_src S = {buf, ps, ls, D->cout, D->kh, D->kw, wt, D->cin};
-    for (int r = 0; r < rows; r++)
-        row_conv(&S, buf + (size_t)r * ls, NULL, tmp + (size_t)r * wp, ops, wp);
-    float *dxn = dx + (size_t)n * D->cin * D->h * D->w;
-    for (int c = 0; c < D->cin; c++)
-        for (int r = 0; r < rows; r++) {
-            int yy = Ya + r - p;
-            if (yy < 0 || yy >= D->h) {
-                if (!D->reflect) continue;
-                yy = reflect_index(yy, D->h);
-            }
-            fold_row(D, tmp + c * ops + (size_t)r * wp, dxn + ((size_t)c * D->h + yy) * D->w);
-        }
-}
-
-void nj_dconv_backward_dx(const nj_dconv *D, const float *dy, const float *w, float *dx,
-                          float *scratch, int par)
-{
-    int band = dx_band(D), nb = band_count(D->h, band), items = D->n * nb;
-    size_t wsz = (size_t)round_up(D->cin * D->kh * D->kw * D->cout, VL);
-    size_t per = dx_per_thread(D, band);
-    dx_weights(D, w, scratch);
-    #pragma omp parallel for schedule(dynamic, 1) if (par)
-    for (int it = 0; it < items; it++) {
-        int k = it % nb, y0 = k * band, y1 = k == nb - 1 ? D->h : y0 + band;
-        dx_item(D, dy, scratch, dx, it / nb, y0, y1,
-                scratch + wsz + (size_t)omp_get_thread_num() * per);
-    }
-}
-
-/* ---- weight gradient (3×3) ----------------------------------------------
- * dW[o][c][ky][kx] = Σ_y,x dy[o][y][x] · xp[c][y+ky][x+kx].  Items are
- * (sample, band); for each pair of output channels and each input channel the
- * 2 × 9 taps are accumulated as vectors of partial sums over the band, then
- * reduced into the thread's own partial dW.  Partials are added in thread
- * order, so dW is the same from run to run at a given thread count. */
+/* ---- weight gradient ----------------------------------------------------
+ * dW[o][c][t] = Σ_q dy[o][q] · staged[c][off[t] + q] over a band, dy laid out
+ * like the outputs (row stride L, zeros in the dropped columns).  Items are
+ * (sample, band); each thread adds into its own partial dW, and the partials
+ * are summed in thread order, so dW is the same from run to run at a given
+ * thread count. */
 
 static inline float hsum(vf a)
 {
@@ -326,99 +320,97 @@ static inline float hsum(vf a)
     return s;
 }
 
-#define TAPS(M) M(0, 0) M(0, 1) M(0, 2) M(1, 0) M(1, 1) M(1, 2) M(2, 0) M(2, 1) M(2, 2)
-#define DW_DECL(ky, kx) vf p_##ky##_##kx = (vf){0}, q_##ky##_##kx = (vf){0};
-#define DW_FMA2(ky, kx) { vf xv = *(const vfu *)(r##ky + x + kx); \
-                          p_##ky##_##kx += g0 * xv; q_##ky##_##kx += g1 * xv; }
-#define DW_FMA1(ky, kx) { vf xv = *(const vfu *)(r##ky + x + kx); p_##ky##_##kx += g0 * xv; }
-#define DW_OUT2(ky, kx) o0[(ky) * 3 + (kx)] += hsum(p_##ky##_##kx); \
-                        o1[(ky) * 3 + (kx)] += hsum(q_##ky##_##kx);
-#define DW_OUT1(ky, kx) o0[(ky) * 3 + (kx)] += hsum(p_##ky##_##kx);
+#define TAPS9(M) M(0) M(1) M(2) M(3) M(4) M(5) M(6) M(7) M(8)
+#define DW_DECL(k) vf p##k = (vf){0}, r##k = (vf){0}; const float *x##k = in + off[k];
+#define DW_FMA2(k) { vf xv = *(const vfu *)(x##k + q); p##k += g0 * xv; r##k += g1 * xv; }
+#define DW_FMA1(k) { vf xv = *(const vfu *)(x##k + q); p##k += g0 * xv; }
+#define DW_OUT(k) s0[k] = hsum(p##k); s1[k] = hsum(r##k);
 
-/* One band: xp (rows+2 rows, stride ls) of one input channel against dy rows of
- * channels o and o+1 (d0, d1; stride dls, zero past the row end) → o0[9], o1[9]. */
-static void dw_pair(const float *xp, int ls, const float *d0, const float *d1, int dls,
-                    int rows, float *o0, float *o1)
+/* Nine taps (offsets off[0..9)) of one staged channel against dy channels d0
+ * and d1 (d1 may equal d0) over nq flat positions → s0[9], s1[9]. */
+static void dw_nine(const float *in, const int *off, const float *d0, const float *d1, int nq,
+                    int pair, float *s0, float *s1)
 {
-    TAPS(DW_DECL)
-    for (int r = 0; r < rows; r++) {
-        const float *r0 = xp + (size_t)r * ls, *r1 = r0 + ls, *r2 = r1 + ls;
-        const float *e0 = d0 + (size_t)r * dls, *e1 = d1 + (size_t)r * dls;
-        for (int x = 0; x < dls; x += VL) {
-            vf g0 = *(const vfu *)(e0 + x), g1 = *(const vfu *)(e1 + x);
-            TAPS(DW_FMA2)
+    TAPS9(DW_DECL)
+    if (pair) {
+        for (int q = 0; q < nq; q += VL) {
+            vf g0 = *(const vfu *)(d0 + q), g1 = *(const vfu *)(d1 + q);
+            TAPS9(DW_FMA2)
+        }
+    } else {
+        for (int q = 0; q < nq; q += VL) {
+            vf g0 = *(const vfu *)(d0 + q);
+            TAPS9(DW_FMA1)
         }
     }
-    TAPS(DW_OUT2)
-}
-
-static void dw_single(const float *xp, int ls, const float *d0, int dls, int rows, float *o0)
-{
-    TAPS(DW_DECL)
-    (void)q_0_0; (void)q_0_1; (void)q_0_2; (void)q_1_0; (void)q_1_1; (void)q_1_2;
-    (void)q_2_0; (void)q_2_1; (void)q_2_2;
-    for (int r = 0; r < rows; r++) {
-        const float *r0 = xp + (size_t)r * ls, *r1 = r0 + ls, *r2 = r1 + ls;
-        const float *e0 = d0 + (size_t)r * dls;
-        for (int x = 0; x < dls; x += VL) {
-            vf g0 = *(const vfu *)(e0 + x);
-            TAPS(DW_FMA1)
-        }
-    }
-    TAPS(DW_OUT1)
+    TAPS9(DW_OUT)
 }
 
 static int dw_band(const nj_dconv *D)
 {
-    int ls = band_stride(D->ow, D->kw), dls = round_up(D->ow, VL);
+    int L = D->ow + D->kw;
+    long row = (long)D->cin * D->stride * D->stride * L + (long)D->cout * L;
     /* big bands: each holds ≥ DW_MIN_PIXELS so the per-band reductions stay cheap */
     int min_rows = (DW_MIN_PIXELS + D->ow - 1) / D->ow;
-    return band_height(D->oh, (long)D->cin * ls + (long)D->cout * dls, DW_BAND_BYTES, D->kh - 1,
-                       min_rows, 1);
+    return band_height(D->oh, row, DW_BAND_BYTES, (D->kh - 1) / D->stride, min_rows, 1);
 }
 
 static size_t dw_per_thread(const nj_dconv *D, int band)
 {
-    int ls = band_stride(D->ow, D->kw), dls = round_up(D->ow, VL);
-    size_t rows = (size_t)last_band_rows(D->oh, band);
-    size_t f = (size_t)D->cin * (rows + D->kh - 1) * ls + (size_t)D->cout * rows * dls
-               + (size_t)D->cout * D->cin * 9;
-    return (size_t)round_up((int)f, VL);
+    int rows = last_band_rows(D->oh, band);
+    stage st;
+    stage_geom(D, rows, &st);
+    size_t dy = (size_t)D->cout * round_upz((size_t)rows * st.L, VL);
+    return round_upz(stage_floats(D, rows) + dy + (size_t)D->cout * D->cin * D->kh * D->kw, VL);
 }
-
-int nj_dconv_dw_direct(const nj_dconv *D) { return D->kh == 3 && D->kw == 3; }
 
 size_t nj_dconv_dw_scratch(const nj_dconv *D, int threads)
 {
     return (size_t)threads * dw_per_thread(D, dw_band(D));
 }
 
+/* Adds one staged channel's taps against dy channels o (and o+1 when pair). */
+static void dw_channel(const nj_dconv *D, const float *in, const int *off, const float *d0,
+                       const float *d1, int nq, int pair, float *p0, float *p1)
+{
+    int taps = D->kh * D->kw;
+    for (int t0 = 0; t0 < taps; t0 += 9) {
+        int o9[9], m = taps - t0 < 9 ? taps - t0 : 9;
+        float s0[9], s1[9];
+        for (int k = 0; k < 9; k++) o9[k] = off[t0 + (k < m ? k : 0)];
+        dw_nine(in, o9, d0, d1, nq, pair, s0, s1);
+        for (int k = 0; k < m; k++) {
+            p0[t0 + k] += s0[k];
+            if (pair) p1[t0 + k] += s1[k];
+        }
+    }
+}
+
 static void dw_item(const nj_dconv *D, const float *x, const float *dy, int n, int oy0, int oy1,
                     float *buf, float *part)
 {
-    int ls = band_stride(D->ow, D->kw), dls = round_up(D->ow, VL), rows = oy1 - oy0;
-    size_t ps = (size_t)(rows + D->kh - 1) * ls, ds = (size_t)rows * dls, ohw = (size_t)D->oh * D->ow;
-    float *dyb = buf + (size_t)D->cin * ps;
-    const float *xn = x + (size_t)n * D->cin * D->h * D->w, *dyn = dy + (size_t)n * D->cout * ohw;
-    for (int c = 0; c < D->cin; c++)
-        for (int r = 0; r < rows + D->kh - 1; r++)
-            fill_row(buf + c * ps + (size_t)r * ls, xn + (size_t)c * D->h * D->w,
-                     oy0 + r - D->pad, D->h, D->w, D->pad, D->reflect, ls);
-    for (int o = 0; o < D->cout; o++)
-        for (int r = 0; r < rows; r++) {
-            float *d = dyb + o * ds + (size_t)r * dls;
-            memcpy(d, dyn + o * ohw + (size_t)(oy0 + r) * D->ow, sizeof(float) * (size_t)D->ow);
-            memset(d + D->ow, 0, sizeof(float) * (size_t)(dls - D->ow));
-        }
-    size_t wc = (size_t)D->cin * 9;
-    int o = 0;
-    for (; o + 2 <= D->cout; o += 2)
+    stage st;
+    int off[MAX_TAPS], taps = D->kh * D->kw;
+    stage_geom(D, oy1 - oy0, &st);
+    stage_taps(D, &st, off);
+    stage_fill(D, &st, x + (size_t)n * D->cin * D->h * D->w, oy0, buf);
+    int nq = st.rows * st.L;
+    size_t oq = round_upz((size_t)nq, VL), ohw = (size_t)D->oh * D->ow;
+    float *dyb = buf + (size_t)D->cin * st.cs;
+    const float *dyn = dy + (size_t)n * D->cout * ohw + (size_t)oy0 * D->ow;
+    for (int o = 0; o < D->cout; o++) {
+        float *d = dyb + o * oq;
+        memset(d, 0, sizeof(float) * oq);
+        for (int r = 0; r < st.rows; r++)
+            memcpy(d + (size_t)r * st.L, dyn + o * ohw + (size_t)r * D->ow, sizeof(float) * (size_t)D->ow);
+    }
+    size_t wc = (size_t)D->cin * taps;
+    for (int o = 0; o < D->cout; o += 2) {
+        int pair = o + 1 < D->cout;
         for (int c = 0; c < D->cin; c++)
-            dw_pair(buf + c * ps, ls, dyb + o * ds, dyb + (o + 1) * ds, dls, rows,
-                    part + o * wc + c * 9, part + (o + 1) * wc + c * 9);
-    for (; o < D->cout; o++)
-        for (int c = 0; c < D->cin; c++)
-            dw_single(buf + c * ps, ls, dyb + o * ds, dls, rows, part + o * wc + c * 9);
+            dw_channel(D, buf + c * st.cs, off, dyb + o * oq, dyb + (o + pair) * oq, (int)oq, pair,
+                       part + o * wc + (size_t)c * taps, part + (o + pair) * wc + (size_t)c * taps);
+    }
 }
 
 void nj_dconv_backward_dw(const nj_dconv *D, const float *x, const float *dy, float *dw,
@@ -426,7 +418,7 @@ void nj_dconv_backward_dw(const nj_dconv *D, const float *x, const float *dy, fl
 {
     int band = dw_band(D), nb = band_count(D->oh, band), items = D->n * nb;
     int threads = par ? omp_get_max_threads() : 1;
-    size_t per = dw_per_thread(D, band), wsize = (size_t)D->cout * D->cin * 9;
+    size_t per = dw_per_thread(D, band), wsize = (size_t)D->cout * D->cin * D->kh * D->kw;
     for (int t = 0; t < threads; t++) memset(scratch + (size_t)(t + 1) * per - wsize, 0, sizeof(float) * wsize);
     #pragma omp parallel num_threads(threads) if (par)
     {
@@ -445,10 +437,189 @@ void nj_dconv_backward_dw(const nj_dconv *D, const float *x, const float *dy, fl
     }
 }
 
+/* ---- input gradient -----------------------------------------------------
+ * For stride s, input phase (py, px) — padded pixels (s·i + py, s·j + px) —
+ * receives tap (ky, kx) ≡ (py, px) mod s only:
+ *     dxp[c][i][j] = Σ_o Σ_taps w[o][c][ky][kx] · dy[o][i − a][j − b],
+ * a = (ky − py)/s, b = (kx − px)/s: a stride-1 correlation of dy, zero-
+ * extended by Ey = (kh−1)/s rows and Ex = (kw−1)/s columns, at offset
+ * (Ey − a, Ex − b).  A band owns dx rows [y0, y1): it computes the padded
+ * rows that land there (with the top/bottom padding rows if it is the
+ * first/last band) and folds the padding back.  Bands are at least pad+1
+ * rows, so every reflected row lands inside its own band and bands never
+ * write the same row. */
+
+typedef struct dx_geom {
+    int s, Ey, Ex, wq, L;   /* stride, zero extension, phase width, row stride */
+} dx_geom;
+
+static void dx_geom_init(const nj_dconv *D, dx_geom *G)
+{
+    int wp = D->w + 2 * D->pad;
+    G->s = D->stride;
+    G->Ey = (D->kh - 1) / G->s;
+    G->Ex = (D->kw - 1) / G->s;
+    G->wq = (wp + G->s - 1) / G->s;
+    G->L = G->wq + G->Ex;
+}
+
+static int ceil_div(int a, int s) { return a >= 0 ? (a + s - 1) / s : -((-a) / s); }
+
+static int dx_band(const nj_dconv *D)
+{
+    dx_geom G;
+    dx_geom_init(D, &G);
+    long row = (long)(D->cout + D->cin) * G.L / G.s;
+    return band_height(D->h, row, 2 * BAND_BYTES, G.Ey, D->pad + 1, MIN_BANDS);
+}
+
+/* Phase rows of a band of `rows` dx rows (with the padding rows), and the dy rows it reads. */
+static int dx_phase_rows(const nj_dconv *D, int rows) { return (rows + 2 * D->pad) / D->stride + 1; }
+
+static size_t dx_in_floats(const nj_dconv *D, const dx_geom *G, int rows)
+{
+    return round_upz((size_t)(dx_phase_rows(D, rows) + G->Ey) * G->L + slack(D->kw), VL);
+}
+
+static size_t dx_per_thread(const nj_dconv *D, int band)
+{
+    dx_geom G;
+    dx_geom_init(D, &G);
+    int rows = last_band_rows(D->h, band);
+    size_t out = round_upz((size_t)dx_phase_rows(D, rows) * G.L, VL);
+    return round_upz((size_t)D->cout * dx_in_floats(D, &G, rows) + (size_t)D->cin * out, VL);
+}
+
+size_t nj_dconv_dx_scratch(const nj_dconv *D, int threads)
+{
+    return weight_floats(D) + (size_t)threads * dx_per_thread(D, dx_band(D));
+}
+
+/* Per phase (py, px) in order: its taps' weights wt[(o·ntaps + t)·cin + c]; the
+ * phases' weights follow one another. */
+static void dx_weights(const nj_dconv *D, const float *w, float *wt)
+{
+    int s = D->stride;
+    for (int py = 0; py < s; py++)
+        for (int px = 0; px < s; px++)
+            for (int o = 0; o < D->cout; o++)
+                for (int ky = py; ky < D->kh; ky += s)
+                    for (int kx = px; kx < D->kw; kx += s)
+                        for (int c = 0; c < D->cin; c++)
+                            *wt++ = w[(((size_t)o * D->cin + c) * D->kh + ky) * D->kw + kx];
+}
+
+/* Tap offsets of phase (py, px); returns the tap count. */
+static int dx_taps(const nj_dconv *D, const dx_geom *G, int py, int px, int *off)
+{
+    int n = 0;
+    for (int ky = py; ky < D->kh; ky += G->s)
+        for (int kx = px; kx < D->kw; kx += G->s)
+            off[n++] = (G->Ey - (ky - py) / G->s) * G->L + (G->Ex - (kx - px) / G->s);
+    return n;
+}
+
+/* dy zero-extended, rows [i0, i0 + rows) of the extended grid, into buf (plane stride ps). */
+static void dx_fill(const nj_dconv *D, const dx_geom *G, const float *dyn, int i0, int rows,
+                    float *buf, size_t ps)
+{
+    size_t ohw = (size_t)D->oh * D->ow;
+    for (int o = 0; o < D->cout; o++) {
+        float *pl = buf + o * ps;
+        memset(pl, 0, sizeof(float) * ps);
+        for (int r = 0; r < rows; r++) {
+            int src = i0 + r - G->Ey;
+            if (src >= 0 && src < D->oh)
+                memcpy(pl + (size_t)r * G->L + G->Ex, dyn + o * ohw + (size_t)src * D->ow,
+                       sizeof(float) * (size_t)D->ow);
+        }
+    }
+}
+
+/* Adds one phase row (entries j < wq: padded column s·j + px) to dx row d. */
+static void dx_fold_row(const nj_dconv *D, const dx_geom *G, const float *src, int px, float *d)
+{
+    int s = G->s, p = D->pad, w = D->w, wp = w + 2 * p;
+    int jlo = ceil_div(p - px, s), jhi = ceil_div(w + p - px, s);
+    if (jlo < 0) jlo = 0;
+    if (jhi > G->wq) jhi = G->wq;
+    if (s == 1) {
+        float *dd = d - p;
+        #pragma omp simd
+        for (int j = jlo; j < jhi; j++) dd[j] += src[j];
+    } else {
+        for (int j = jlo; j < jhi; j++) d[s * j + px - p] += src[j];
+    }
+    if (!D->reflect) return;
+    for (int j = 0; j < jlo; j++) d[reflect_index(s * j + px - p, w)] += src[j];
+    for (int j = jhi; j < G->wq && s * j + px < wp; j++) d[reflect_index(s * j + px - p, w)] += src[j];
+}
+
+/* Adds phase rows [i0, i1) of (py, px) — tmp, row stride L — to dx, folding the padding. */
+static void dx_fold(const nj_dconv *D, const dx_geom *G, const float *tmp, size_t oq, int py, int px,
+                    int i0, int i1, float *dxn)
+{
+    for (int c = 0; c < D->cin; c++)
+        for (int i = i0; i < i1; i++) {
+            int iy = G->s * i + py - D->pad;
+            if (iy < 0 || iy >= D->h) {
+                if (!D->reflect) continue;
+                iy = reflect_index(iy, D->h);
+            }
+            dx_fold_row(D, G, tmp + c * oq + (size_t)(i - i0) * G->L, px,
+                        dxn + ((size_t)c * D->h + iy) * D->w);
+        }
+}
+
+static void dx_item(const nj_dconv *D, const float *dy, const float *wt, float *dx,
+                    int n, int y0, int y1, float *buf)
+{
+    dx_geom G;
+    dx_geom_init(D, &G);
+    int p = D->pad, Ya = y0 == 0 ? 0 : y0 + p, Yb = y1 == D->h ? D->h + 2 * p : y1 + p;
+    size_t ps = dx_in_floats(D, &G, y1 - y0), ohw = (size_t)D->oh * D->ow;
+    float *tmp = buf + (size_t)D->cout * ps;
+    const float *dyn = dy + (size_t)n * D->cout * ohw;
+    float *dxn = dx + (size_t)n * D->cin * D->h * D->w;
+    for (int py = 0; py < G.s; py++)
+        for (int px = 0; px < G.s; px++) {
+            int off[MAX_TAPS], taps = dx_taps(D, &G, py, px, off);
+            const float *wp = wt;
+            wt += (size_t)taps * D->cout * D->cin;
+            int i0 = ceil_div(Ya - py, G.s), i1 = ceil_div(Yb - py, G.s);
+            if (taps == 0 || i1 <= i0) continue;
+            dx_fill(D, &G, dyn, i0, i1 - i0 + G.Ey, buf, ps);
+            int nq = (i1 - i0) * G.L;
+            size_t oq = round_upz((size_t)nq, VL);
+            corr_src S = {buf, ps, off, taps, wp, D->cout, D->cin};
+            correlate(&S, NULL, tmp, oq, nq);
+            dx_fold(D, &G, tmp, oq, py, px, i0, i1, dxn);
+        }
+}
+
+void nj_dconv_backward_dx(const nj_dconv *D, const float *dy, const float *w, float *dx,
+                          float *scratch, int par)
+{
+    int band = dx_band(D), nb = band_count(D->h, band), items = D->n * nb;
+    size_t wsz = weight_floats(D), per = dx_per_thread(D, band);
+    dx_weights(D, w, scratch);
+    #pragma omp parallel for schedule(dynamic, 1) if (par)
+    for (int it = 0; it < items; it++) {
+        int k = it % nb, y0 = k * band, y1 = k == nb - 1 ? D->h : y0 + band;
+        dx_item(D, dy, scratch, dx, it / nb, y0, y1,
+                scratch + wsz + (size_t)omp_get_thread_num() * per);
+    }
+}
+
 int nj_dconv_suits(const nj_dconv *D)
 {
-    /* measured per layer of the default nets (320x96 and 416x128, 1 thread):
-     * faster from 40 columns up to 64 output channels, and always for the
-     * disparity heads (1 channel); im2col + sgemm wins on wide, short maps */
-    return (D->ow >= 40 && D->cout <= 64) || D->cout <= 4;
+    if (D->kh * D->kw > MAX_TAPS || (D->stride != 1 && D->stride != 2)) return 0;
+    /* measured per layer of the default nets (320x96, 1 thread, forward +
+     * backward): faster from 40 columns up to 128 output channels and for the
+     * 1-channel disparity heads at any size; at stride 2 for the pose net's
+     * 7×7 and 5×5 kernels.  im2col + sgemm wins on the small maps of the
+     * bottleneck (per-sample weight-gradient reductions dominate there) and
+     * on 3×3 stride-2 kernels (a quarter of the taps per phase). */
+    if (D->stride == 2) return D->kh * D->kw >= 25 && D->ow >= 40;
+    return (D->ow >= 40 && D->cout <= 128) || D->cout <= 4;
 }

@@ -1,14 +1,13 @@
-/* nn/conv_direct.h — stride-1 convolution without im2col (internal to nn/).
+/* nn/conv_direct.h — convolution without im2col (internal to nn/).
  *
- * A register-blocked direct kernel: a block of output channels × 16–64 output
- * pixels of one row is held in vector registers while the input channels and
- * kernel taps stream past, reading a per-thread band of the padded input.
- * The input gradient of a stride-1 convolution is itself such a correlation
- * (of the zero-extended output gradient with the flipped, transposed kernel)
- * followed by folding the padding back onto the edge rows and columns, so the
- * same kernel serves both directions.  The weight gradient of a 3×3 kernel is
- * accumulated per (output channel pair, input channel) over 9 taps in
- * registers; other kernel sizes leave it to im2col + sgemm (nn/conv2d.c).
+ * Register-blocked direct kernels for stride 1 and 2 and kernels of up to 64
+ * taps: a block of output channels × 16–64 flat output positions is held in
+ * vector registers while the input channels and taps stream past, reading a
+ * per-thread band of the padded input staged as stride×stride phase planes.
+ * The input gradient is the same correlation applied to the zero-extended
+ * output gradient (per input phase for stride 2), with the padding folded
+ * back; the weight gradient accumulates 9 taps × 2 output channels at a time
+ * in registers.  Details in conv_direct.c.
  *
  * Outputs and dx do not depend on the thread count: every element is summed by
  * one thread in a fixed order.  dW is summed from per-thread partials (fixed
@@ -18,11 +17,11 @@
 #include <stddef.h>
 
 typedef struct nj_dconv {
-    int n, cin, h, w, cout, kh, kw, pad, reflect;
+    int n, cin, h, w, cout, kh, kw, stride, pad, reflect;
     int oh, ow;
 } nj_dconv;
 
-/* 1 when the direct kernels are the faster choice for this stride-1 geometry. */
+/* 1 when the direct kernels handle this geometry and are the faster choice. */
 int nj_dconv_suits(const nj_dconv *D);
 /* Floats of scratch the forward / input-gradient pass needs for `threads` threads. */
 size_t nj_dconv_forward_scratch(const nj_dconv *D, int threads);
@@ -33,10 +32,8 @@ void nj_dconv_forward(const nj_dconv *D, const float *x, const float *w, const f
 /* dx (N×Cin×H×W) += gradient of the convolution's input given dy (N×Cout×OH×OW). */
 void nj_dconv_backward_dx(const nj_dconv *D, const float *dy, const float *w, float *dx,
                           float *scratch, int par);
-/* 1 when nj_dconv_backward_dw handles this kernel size (3×3). */
-int nj_dconv_dw_direct(const nj_dconv *D);
 size_t nj_dconv_dw_scratch(const nj_dconv *D, int threads);
-/* dw (Cout×Cin×3×3) += gradient of the weights given x and dy. */
+/* dw (Cout×Cin×kh×kw) += gradient of the weights given x and dy. */
 void nj_dconv_backward_dw(const nj_dconv *D, const float *x, const float *dy, float *dw,
                           float *scratch, int par);
 

@@ -81,8 +81,15 @@ static void test_conv_grads(void)
         {"conv direct head 3x3 reflect cout 1 narrow", 2, 4, 7, 12, 1, 3, 3, 1, 1,
          NJ_PAD_REFLECT, 1, 0},
         {"conv direct 3x3 zero pad 2", 1, 2, 5, 40, 4, 3, 3, 1, 2, NJ_PAD_ZERO, 1, 0.25f},
-        {"conv direct 5x5 reflect pad 2 (dW by sgemm)", 1, 2, 6, 41, 3, 5, 5, 1, 2,
+        {"conv direct 5x5 reflect pad 2", 1, 2, 6, 41, 3, 5, 5, 1, 2, NJ_PAD_REFLECT, 1, 0.25f},
+        /* stride 2 (phase planes) for the pose net's 7×7 and 5×5 kernels: ≥ 40 output columns */
+        {"conv direct 7x7 stride 2 zero pad 3 batch 2", 2, 2, 9, 83, 5, 7, 7, 2, 3, NJ_PAD_ZERO, 1,
+         0.25f},
+        {"conv direct 7x7 stride 2 reflect pad 3 even size", 1, 3, 10, 80, 17, 7, 7, 2, 3,
+         NJ_PAD_REFLECT, 0, 0.25f},
+        {"conv direct 5x5 stride 2 reflect pad 2 multi-band", 1, 2, 40, 81, 8, 5, 5, 2, 2,
          NJ_PAD_REFLECT, 1, 0.25f},
+        {"conv direct 5x5 stride 2 zero pad 2 odd", 1, 2, 7, 85, 3, 5, 5, 2, 2, NJ_PAD_ZERO, 1, 0.25f},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) check_conv(&cases[i]);
 }
@@ -309,6 +316,7 @@ static void test_threads_and_accumulation(void)
         {"1x1 direct batch 1", 1, 32, 48, 64, 16, 1, 1, 1, 0, NJ_PAD_ZERO, 1, 0},
         {"direct 3x3 zero batch 3 cout 40", 3, 24, 37, 70, 40, 3, 3, 1, 1, NJ_PAD_ZERO, 1, 0},
         {"direct head 3x3 reflect cout 1", 4, 16, 50, 96, 1, 3, 3, 1, 1, NJ_PAD_REFLECT, 1, 0},
+        {"direct 7x7 stride 2 reflect batch 3", 3, 6, 48, 100, 16, 7, 7, 2, 3, NJ_PAD_REFLECT, 1, 0},
     };
     int saved = omp_get_max_threads();
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {

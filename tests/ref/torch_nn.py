@@ -125,24 +125,29 @@ def conv_cases(wr):
 
 
 def direct_conv_cases(wr):
-    """Stride-1 convs that take nightjar's direct kernels (>= 40 output columns or
-    <= 4 output channels): every channel-block size, both paddings, several bands."""
-    specs = [  # n, cin, h, w, cout, k, pad, mode, bias
-        (2, 3, 11, 45, 17, 3, 1, "zero", True),
-        (2, 5, 37, 67, 24, 3, 1, "reflect", False),
-        (3, 16, 9, 41, 1, 3, 1, "reflect", True),
-        (2, 4, 8, 50, 5, 3, 0, "zero", True),
-        (2, 3, 7, 47, 6, 5, 2, "reflect", True),
-        (2, 6, 3, 44, 40, 3, 1, "reflect", True),
-        (2, 2, 6, 13, 3, 3, 1, "zero", False),
+    """Convs that take nightjar's direct kernels: stride 1 with >= 40 output columns
+    or <= 4 output channels (every channel-block size, both paddings, several
+    bands), and stride 2 with 7x7 or 5x5 kernels and >= 40 output columns."""
+    specs = [  # n, cin, h, w, cout, k, stride, pad, mode, bias
+        (2, 3, 11, 45, 17, 3, 1, 1, "zero", True),
+        (2, 5, 37, 67, 24, 3, 1, 1, "reflect", False),
+        (3, 16, 9, 41, 1, 3, 1, 1, "reflect", True),
+        (2, 4, 8, 50, 5, 3, 1, 0, "zero", True),
+        (2, 3, 7, 47, 6, 5, 1, 2, "reflect", True),
+        (2, 6, 3, 44, 40, 3, 1, 1, "reflect", True),
+        (2, 2, 6, 13, 3, 3, 1, 1, "zero", False),
+        (2, 6, 13, 91, 16, 7, 2, 3, "reflect", True),
+        (2, 3, 12, 84, 5, 7, 2, 3, "zero", False),
+        (2, 4, 33, 87, 9, 5, 2, 2, "reflect", True),
+        (3, 2, 9, 80, 4, 5, 2, 2, "zero", True),
     ]
-    for n, cin, h, w, cout, k, pad, mode, bias in specs:
-        name = "conv2d direct k%d s1 %s pad%d %dx%d cout %d" % (k, mode, pad, h, w, cout)
+    for n, cin, h, w, cout, k, st, pad, mode, bias in specs:
+        name = "conv2d direct k%d s%d %s pad%d %dx%d cout %d" % (k, st, mode, pad, h, w, cout)
         inputs = {"x": normal((n, cin, h, w)), "w": normal((cout, cin, k, k), 0.3)}
         if bias:
             inputs["b"] = normal((1, cout, 1, 1), 0.5)
-        wr.case(name, "conv2d", {"stride": 1, "pad": pad, "mode": mode}, inputs,
-                lambda t, pad=pad, mode=mode: conv(t["x"], t["w"], t.get("b"), 1, pad, mode))
+        wr.case(name, "conv2d", {"stride": st, "pad": pad, "mode": mode}, inputs,
+                lambda t, st=st, pad=pad, mode=mode: conv(t["x"], t["w"], t.get("b"), st, pad, mode))
 
 
 def resample_cases(wr):

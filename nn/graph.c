@@ -120,6 +120,23 @@ void *nj_graph_scratch_zero(nj_graph *g, size_t bytes)
     return p;
 }
 
+/* Zeroes n floats; big buffers by all threads (the forward pass allocates
+ * every gradient buffer zeroed, and on one thread that is a serial stretch). */
+static void zero_floats(float *p, size_t n)
+{
+    enum { SPAN = 1 << 16 };
+    if (n < 4 * (size_t)SPAN) {
+        memset(p, 0, sizeof(float) * n);
+        return;
+    }
+    long spans = (long)((n + SPAN - 1) / SPAN);
+    #pragma omp parallel for schedule(static)
+    for (long i = 0; i < spans; i++) {
+        size_t a = (size_t)i * SPAN, k = n - a < SPAN ? n - a : SPAN;
+        memset(p + a, 0, sizeof(float) * k);
+    }
+}
+
 nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad)
 {
     if (n <= 0 || c <= 0 || h <= 0 || w <= 0)
@@ -130,7 +147,10 @@ nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad)
     t->grad = NULL;
     size_t bytes = nj_numel(t) * sizeof(float);
     if (!(t->data = nj_graph_alloc(g, bytes))) return NULL;
-    if (with_grad && g->grad_on && !(t->grad = nj_graph_calloc(g, bytes))) return NULL;
+    if (with_grad && g->grad_on) {
+        if (!(t->grad = nj_graph_alloc(g, bytes))) return NULL;
+        zero_floats(t->grad, nj_numel(t));
+    }
     return t;
 }
 

@@ -5,11 +5,14 @@ Runs, in one go and alternating the two implementations, the training step of th
 (nightjar: ./nightjar bench --profile; PyTorch: bench/torch_recipe.py --bench) at
   320x96 batch 4 with 1 and 2 threads, and 416x128 batch 4 with 2 threads,
 each as its own process (so peak RSS is per implementation and configuration): median ms/step
-over STEPS steps after WARMUP warm-up steps.  nightjar's conv GFLOP/s (conv FLOPs over the time
+over STEPS steps after WARMUP warm-up steps, repeated for ROUNDS rounds over all configurations
+(which implementation goes first alternates); the table shows the median over rounds and each
+round's ratio.  On this shared 2-core VM single rounds were seen to swing PyTorch's 1-thread step
+between 740 and 1100 ms within minutes, hence the rounds.  nightjar's conv GFLOP/s (conv FLOPs over the time
 spent inside conv forward + backward) is shown next to OpenBLAS sgemm GFLOP/s measured in the same
 process, and the data loader's samples/s at each size (build/bench/bench_data WxH).
 
-Usage: /usr/bin/python3 bench/side_by_side.py [--steps N] [--warmup N] [--no-loader]
+Usage: /usr/bin/python3 bench/side_by_side.py [--steps N] [--warmup N] [--rounds N] [--no-loader]
 Targets: step <= 0.45x PyTorch's, peak RSS <= 1/3, 1->2 threads >= 1.8x, conv >= 60% of sgemm.
 """
 import argparse
@@ -56,24 +59,44 @@ def cpu_cell(nj, th):
     return "%.0f / %.0f (%.2f)" % (a, b, a / b) if a and b else "-"
 
 
+def median(v):
+    v = sorted(v)
+    n = len(v)
+    return v[n // 2] if n % 2 else 0.5 * (v[n // 2 - 1] + v[n // 2])
+
+
+def merge(runs):
+    """Per-field median over rounds (each run: dict of key=value figures)."""
+    keys = set.intersection(*(set(r) for r in runs))
+    return {k: median([r[k] for r in runs]) for k in keys}
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--steps", type=int, default=10)
     ap.add_argument("--warmup", type=int, default=3)
+    ap.add_argument("--rounds", type=int, default=3,
+                    help="rounds over all configurations; each figure is the median over rounds")
     ap.add_argument("--no-loader", action="store_true")
     a = ap.parse_args()
-    rows = []
-    for k, (size, batch, threads) in enumerate(CONFIGS):
-        # alternate which implementation goes first, so slow drifts in machine load hit both
-        if k % 2 == 0:
-            nj, prof = nightjar(size, batch, threads, a)
-            th = torch(size, batch, threads, a)
-        else:
-            th = torch(size, batch, threads, a)
-            nj, prof = nightjar(size, batch, threads, a)
-        print("%s b%d t%d: nightjar %.1f ms, PyTorch %.1f ms | nightjar %s" %
-              (size, batch, threads, nj["ms_per_step"], th["ms_per_step"], prof), flush=True)
-        rows.append((size, batch, threads, nj, th))
+    got = [([], [], []) for _ in CONFIGS]  # per config: nightjar runs, PyTorch runs, ratios
+    for r in range(a.rounds):
+        for k, (size, batch, threads) in enumerate(CONFIGS):
+            # alternate which implementation goes first, so slow drifts in machine load hit both
+            if (k + r) % 2 == 0:
+                nj, prof = nightjar(size, batch, threads, a)
+                th = torch(size, batch, threads, a)
+            else:
+                th = torch(size, batch, threads, a)
+                nj, prof = nightjar(size, batch, threads, a)
+            got[k][0].append(nj)
+            got[k][1].append(th)
+            got[k][2].append(nj["ms_per_step"] / th["ms_per_step"])
+            print("round %d %s b%d t%d: nightjar %.1f ms, PyTorch %.1f ms (ratio %.2f) | nightjar %s" %
+                  (r + 1, size, batch, threads, nj["ms_per_step"], th["ms_per_step"], got[k][2][-1], prof),
+                  flush=True)
+    rows = [(size, batch, threads, merge(got[k][0]), merge(got[k][1]), got[k][2])
+            for k, (size, batch, threads) in enumerate(CONFIGS)]
     loader = {}
     if not a.no_loader:
         sizes = sorted({c[0] for c in CONFIGS})
@@ -82,14 +105,17 @@ def main():
             m = re.search(r"loader_samples_per_s_%s=([0-9.]+)" % size, out)
             loader[size] = float(m.group(1)) if m else 0.0
     print()
-    print("| config | nightjar ms/step | PyTorch ms/step | ratio (target <= 0.45) | nightjar peak RSS MB | "
+    print("Medians over %d rounds of %d steps (after %d warm-up) per implementation and configuration." %
+          (a.rounds, a.steps, a.warmup))
+    print("| config | nightjar ms/step | PyTorch ms/step | ratio (target <= 0.45) | ratio per round | nightjar peak RSS MB | "
           "PyTorch peak RSS MB | ratio (target <= 0.33) | nightjar conv GFLOP/s | sgemm GFLOP/s | "
           "conv/sgemm (target >= 0.60) | step GFLOP/s | nightjar samples/s | loader samples/s (1 worker) | "
           "CPU ms/step nightjar / PyTorch (ratio) |")
-    print("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|")
-    for size, batch, threads, nj, th in rows:
-        print("| %s b%d %dT | %.1f | %.1f | %.2f | %.0f | %.0f | %.2f | %.1f | %.1f | %.2f | %.1f | %.1f | %s | %s |" % (
+    print("|---|---|---|---|---|---|---|---|---|---|---|---|---|---|---|")
+    for size, batch, threads, nj, th, ratios in rows:
+        print("| %s b%d %dT | %.1f | %.1f | %.2f | %s | %.0f | %.0f | %.2f | %.1f | %.1f | %.2f | %.1f | %.1f | %s | %s |" % (
             size, batch, threads, nj["ms_per_step"], th["ms_per_step"], nj["ms_per_step"] / th["ms_per_step"],
+            " ".join("%.2f" % x for x in ratios),
             nj["peak_rss_mb"], th["peak_rss_mb"], nj["peak_rss_mb"] / th["peak_rss_mb"],
             nj.get("conv_gflops", 0), nj["sgemm_gflops"], nj.get("conv_gflops", 0) / nj["sgemm_gflops"],
             nj["gflops"], 1000.0 * batch / nj["ms_per_step"],

@@ -234,7 +234,7 @@ int main(void)
     snprintf(data, sizeof data, "%s/data/dataset.json", dir);
     e2e_write(cfg, CONFIG);
     log_rollback();
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 64x32", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 64x32", e2e_bin(), dir);
     snprintf(log, sizeof log, "%s/synth.txt", dir);
     if (check(e2e_run(cmd, log) == 0, "synth renders the disk-full data", "see %s", log)) {
         file_size_limit();

@@ -174,10 +174,10 @@ int main(void)
     snprintf(data, sizeof data, "%s/data/dataset.json", dir);
     e2e_write(cfg, CONFIG);
     torn_line_cut();
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 64x32", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 64x32", e2e_bin(), dir);
     snprintf(log, sizeof log, "%s/synth.txt", dir);
     if (check(e2e_run(cmd, log) == 0, "synth renders the kill-test data", "see %s", log)) {
-        snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/ref --threads 1", cfg, data, dir);
+        snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/ref --threads 1", e2e_bin(), cfg, data, dir);
         snprintf(log, sizeof log, "%s/ref.txt", dir);
         snprintf(ref, sizeof ref, "%s/ref/final.ckpt", dir);
         if (check(e2e_run(cmd, log) == 0, "uninterrupted reference run", "see %s", log)) kill_loop(ref);

@@ -149,7 +149,7 @@ int main(void)
     param_count();
     char cmd[1024], log[600], cfg[600];
     snprintf(data, sizeof data, "%s/data/dataset.json", dir);
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/data --seed 4 --sequences 2 --frames 8 --size 192x96", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/data --seed 4 --sequences 2 --frames 8 --size 192x96", e2e_bin(), dir);
     snprintf(log, sizeof log, "%s/synth.txt", dir);
     if (check(e2e_run(cmd, log) == 0, "synth renders the memory-test data", "see %s", log)) {
         real_run();

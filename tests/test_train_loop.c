@@ -68,8 +68,8 @@ static int run_with_fault(const char *name, const char *fault, char *out, size_t
     char cmd[2048], log[700];
     snprintf(out, outlen, "%s/%s", dir, name);
     snprintf(log, sizeof log, "%s.log", out);
-    snprintf(cmd, sizeof cmd, "NJ_FAULT_NONFINITE=%s ./nightjar train --config %s --data %s --out %s",
-             fault, cfg, data, out);
+    snprintf(cmd, sizeof cmd, "NJ_FAULT_NONFINITE=%s %s train --config %s --data %s --out %s",
+             fault, e2e_bin(), cfg, data, out);
     int rc = e2e_run(cmd, log);
     *text = e2e_slurp(log, NULL);
     return rc;
@@ -122,7 +122,7 @@ static void automask_warmup(void)
         e2e_write(mcfg, text);
         snprintf(runs[i], sizeof runs[i], "%s/mask%d", dir, i);
         snprintf(log, sizeof log, "%s/mask%d.log", dir, i);
-        snprintf(cmd, sizeof cmd, "./nightjar train --config %s --data %s --out %s/mask%d --steps 10", mcfg, data, dir, i);
+        snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/mask%d --steps 10", e2e_bin(), mcfg, data, dir, i);
         if (!check(e2e_run(cmd, log) == 0, "auto-mask warm-up run", "config %s, log %s", mcfg, log)) return;
     }
     int same_before = 1, differ_after = 0;
@@ -201,7 +201,7 @@ int main(void)
     snprintf(cfg, sizeof cfg, "%s/nonfinite.json", dir);
     snprintf(data, sizeof data, "%s/data/dataset.json", dir);
     e2e_write(cfg, CONFIG);
-    snprintf(cmd, sizeof cmd, "./nightjar synth --out %s/data --seed 4 --sequences 2 --frames 10 --size 96x64", dir);
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/data --seed 4 --sequences 2 --frames 10 --size 96x64", e2e_bin(), dir);
     snprintf(log, sizeof log, "%s/synth.txt", dir);
     if (check(e2e_run(cmd, log) == 0, "synth renders the data", "see %s", log)) {
         automask_warmup();

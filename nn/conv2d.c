@@ -1,5 +1,7 @@
-/* nn/conv2d.c — 2-D convolution by im2col + sgemm (Chellapilla, Puri & Simard
- * 2006), forward and backward.
+/* nn/conv2d.c — 2-D convolution, forward and backward: the op, its shape
+ * checks, and the choice between the direct kernels (nn/conv_direct.c, for the
+ * geometries nj_dconv_suits picks) and im2col + sgemm (Chellapilla, Puri &
+ * Simard 2006), which this file implements for the rest.
  *
  * The output of each sample is cut into bands of whole output rows.  A band's
  * im2col tile (Cin·kh·kw rows × band pixels) is built in per-thread scratch

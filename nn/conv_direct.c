@@ -208,6 +208,15 @@ static void stage_fill(const nj_dconv *D, const stage *st, const float *xn, int 
             }
 }
 
+/* Stages output rows [oy0, oy1) of sample n: geometry, tap offsets, data. */
+static void stage_band(const nj_dconv *D, const float *x, int n, int oy0, int oy1, float *buf,
+                       stage *st, int *off)
+{
+    stage_geom(D, oy1 - oy0, st);
+    stage_taps(D, st, off);
+    stage_fill(D, st, x + (size_t)n * D->cin * D->h * D->w, oy0, buf);
+}
+
 /* Band height for `rows` rows whose staged rows hold `row_floats` floats: fits
  * `bytes` with `halo` extra rows, at least min_rows, and min_bands bands per
  * sample where possible.  The last band takes the remainder (fewer than 2
@@ -276,9 +285,7 @@ static void forward_item(const nj_dconv *D, const float *x, const float *wt, con
 {
     stage st;
     int off[MAX_TAPS];
-    stage_geom(D, oy1 - oy0, &st);
-    stage_taps(D, &st, off);
-    stage_fill(D, &st, x + (size_t)n * D->cin * D->h * D->w, oy0, buf);
+    stage_band(D, x, n, oy0, oy1, buf, &st, off);
     int nq = st.rows * st.L;
     size_t oq = round_upz((size_t)nq, VL), ohw = (size_t)D->oh * D->ow;
     float *tmp = buf + (size_t)D->cin * st.cs;
@@ -391,9 +398,7 @@ static void dw_item(const nj_dconv *D, const float *x, const float *dy, int n, i
 {
     stage st;
     int off[MAX_TAPS], taps = D->kh * D->kw;
-    stage_geom(D, oy1 - oy0, &st);
-    stage_taps(D, &st, off);
-    stage_fill(D, &st, x + (size_t)n * D->cin * D->h * D->w, oy0, buf);
+    stage_band(D, x, n, oy0, oy1, buf, &st, off);
     int nq = st.rows * st.L;
     size_t oq = round_upz((size_t)nq, VL), ohw = (size_t)D->oh * D->ow;
     float *dyb = buf + (size_t)D->cin * st.cs;

@@ -292,12 +292,12 @@ static void reduce_dw(const float *parts, int nparts, size_t wsize, float *dw, i
 }
 
 /* The direct-kernel description of a stride-1 geometry, or 0 when im2col suits it better. */
-static int direct_kernel(const conv_geom *G, nj_dconv *D)
+static int direct_kernel(const conv_geom *G, nj_dconv *D, int backward)
 {
     if (G->direct) return 0;
     *D = (nj_dconv){G->n, G->cin, G->h, G->w, G->cout, G->kh, G->kw, G->stride, G->pad, G->reflect,
                     G->oh, G->ow};
-    return nj_dconv_suits(D);
+    return nj_dconv_suits(D, backward);
 }
 
 /* dW and dx by im2col + sgemm, band by band. */
@@ -329,7 +329,7 @@ static void conv2d_backward(nj_graph *g, const nj_op *op)
     geom_init(&G, x, w, op->i[0], op->i[1], (nj_pad_mode)op->i[2]);
     if (b && b->grad) bias_backward(&G, op->out, b->grad);
     if (!x->grad && !w->grad) return;
-    int direct = direct_kernel(&G, &D), par = use_threads(&G), threads = omp_get_max_threads();
+    int direct = direct_kernel(&G, &D, 1), par = use_threads(&G), threads = omp_get_max_threads();
     if (!direct) {
         backward_gemm(g, &G, op);
         return;
@@ -349,7 +349,7 @@ static int conv_forward(nj_graph *g, const conv_geom *G, const nj_tensor *x, con
 {
     int threads = omp_get_max_threads(), items = G->n * G->nbands;
     nj_dconv D;
-    if (direct_kernel(G, &D)) {
+    if (direct_kernel(G, &D, 0)) {
         float *s = nj_graph_scratch(g, sizeof(float) * nj_dconv_forward_scratch(&D, threads));
         if (!s) return 0;
         nj_dconv_forward(&D, x->data, w->data, b ? b->data : NULL, y->data, s, use_threads(G));

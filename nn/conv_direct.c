@@ -29,7 +29,7 @@
 #define MAX_TAPS 64
 #define BAND_BYTES (192 * 1024)     /* target size of one thread's staged input band */
 #define MIN_BANDS 4                 /* bands per sample, for balance across threads */
-#define DW_BAND_BYTES (2048 * 1024) /* the weight gradient's band (re-read per channel pair) */
+#define DW_BAND_BYTES (1024 * 1024) /* the weight gradient's staged input + dy band */
 #define DW_MIN_PIXELS 2048
 
 typedef float vf __attribute__((vector_size(VL * sizeof(float))));
@@ -185,15 +185,17 @@ static void fill_row1(const nj_dconv *D, float *dst, const float *plane, int Y, 
     if (L > n) memset(dst + n, 0, sizeof(float) * (size_t)(L - n));
 }
 
-/* Stages output rows [oy0, oy0 + st->rows) of sample xn (cin planes) into buf. */
-static void stage_fill(const nj_dconv *D, const stage *st, const float *xn, int oy0, float *buf)
+/* Stages output rows [oy0, oy0 + st->rows) of channels [c0, c1) of sample xn
+ * into buf (channel c at buf + (c − c0)·cs). */
+static void stage_fill(const nj_dconv *D, const stage *st, const float *xn, int oy0, int c0, int c1,
+                       float *buf)
 {
     int s = st->s, L = st->L;
     size_t hw = (size_t)D->h * D->w, used = (size_t)st->prow * L;
-    for (int c = 0; c < D->cin; c++)
+    for (int c = c0; c < c1; c++)
         for (int py = 0; py < s; py++)
             for (int px = 0; px < s; px++) {
-                float *pl = buf + c * st->cs + (size_t)(py * s + px) * st->ps;
+                float *pl = buf + (c - c0) * st->cs + (size_t)(py * s + px) * st->ps;
                 const float *src = xn + c * hw;
                 for (int i = 0; i < st->prow; i++) {
                     float *d = pl + (size_t)i * L;
@@ -208,13 +210,14 @@ static void stage_fill(const nj_dconv *D, const stage *st, const float *xn, int 
             }
 }
 
-/* Stages output rows [oy0, oy1) of sample n: geometry, tap offsets, data. */
-static void stage_band(const nj_dconv *D, const float *x, int n, int oy0, int oy1, float *buf,
-                       stage *st, int *off)
+/* Stages output rows [oy0, oy1) of channels [c0, c1) of sample n: geometry,
+ * tap offsets, data. */
+static void stage_band(const nj_dconv *D, const float *x, int n, int oy0, int oy1, int c0, int c1,
+                       float *buf, stage *st, int *off)
 {
     stage_geom(D, oy1 - oy0, st);
     stage_taps(D, st, off);
-    stage_fill(D, st, x + (size_t)n * D->cin * D->h * D->w, oy0, buf);
+    stage_fill(D, st, x + (size_t)n * D->cin * D->h * D->w, oy0, c0, c1, buf);
 }
 
 /* Band height for `rows` rows whose staged rows hold `row_floats` floats: fits
@@ -285,7 +288,7 @@ static void forward_item(const nj_dconv *D, const float *x, const float *wt, con
 {
     stage st;
     int off[MAX_TAPS];
-    stage_band(D, x, n, oy0, oy1, buf, &st, off);
+    stage_band(D, x, n, oy0, oy1, 0, D->cin, buf, &st, off);
     int nq = st.rows * st.L;
     size_t oq = round_upz((size_t)nq, VL), ohw = (size_t)D->oh * D->ow;
     float *tmp = buf + (size_t)D->cin * st.cs;
@@ -313,11 +316,120 @@ void nj_dconv_forward(const nj_dconv *D, const float *x, const float *w, const f
 }
 
 /* ---- weight gradient ----------------------------------------------------
- * dW[o][c][t] = Σ_q dy[o][q] · staged[c][off[t] + q] over a band, dy laid out
- * like the outputs (row stride L, zeros in the dropped columns).  Items are
- * (sample, band); each thread adds into its own partial dW, and the partials
- * are summed in thread order, so dW is the same from run to run at a given
- * thread count. */
+ * dW[o][c][t] = Σ_q dy[o][q] · staged[c][off[t] + q] over the valid positions
+ * of a band.  Items are (sample, band); each thread adds into its own partial
+ * dW, and the partials are summed in thread order, so dW is the same from run
+ * to run at a given thread count.
+ *
+ * From 16 output channels on, the kernel runs along output channels: the band
+ * of dy is transposed to position-major rows of cp = cout rounded up to 16
+ * floats, and a block of 9 (channel, tap) combinations × NO·16 output channels
+ * is held in vector registers while the band's positions stream past (one
+ * broadcast input value and NO dy vectors per position; no horizontal sums).
+ * The partial is kept transposed, [combination][cp], and transposed back when
+ * the threads' partials are summed.  Below 16 output channels (the disparity
+ * heads) the kernel runs along positions: 9 taps × 2 output channels of
+ * position vectors, reduced once per band. */
+
+#define NINE(M) M(0) M(1) M(2) M(3) M(4) M(5) M(6) M(7) M(8)
+
+/* -- along output channels -- */
+
+#define GO_DECL1(i) vf a##i##_0 = (vf){0}; const float *x##i = xp[i];
+#define GO_DECL2(i) vf a##i##_0 = (vf){0}, a##i##_1 = (vf){0}; const float *x##i = xp[i];
+#define GO_FMA1(i) { float v = x##i[q]; a##i##_0 += g0 * v; }
+#define GO_FMA2(i) { float v = x##i[q]; a##i##_0 += g0 * v; a##i##_1 += g1 * v; }
+#define GO_ADD1(i) if (i < m) { *(vfu *)(pt + (size_t)(i) * cp) += a##i##_0; }
+#define GO_ADD2(i) if (i < m) { *(vfu *)(pt + (size_t)(i) * cp) += a##i##_0; \
+                                *(vfu *)(pt + (size_t)(i) * cp + VL) += a##i##_1; }
+
+/* Geometry of one band for the kernels below: rows × ow valid positions at
+ * flat index r·L + j of the staged input, dy rows of cp floats. */
+typedef struct dwo_band {
+    int rows, ow, L;
+    size_t cp;
+} dwo_band;
+
+/* pt[i][0..NO·16) += Σ_pos dyt[pos][0..NO·16) · xp[i][q(pos)] for i < m. */
+#define DWO_KERNEL(name, NOV, DECL, FMA, ADD)                                          \
+    static void name(const dwo_band *B, const float *dyt, const float *const *xp, int m, \
+                     float *pt)                                                         \
+    {                                                                                   \
+        size_t cp = B->cp;                                                              \
+        NINE(DECL)                                                                      \
+        for (int r = 0; r < B->rows; r++) {                                             \
+            const float *dr = dyt + (size_t)r * B->ow * cp;                             \
+            for (int j = 0, q = r * B->L; j < B->ow; j++, q++, dr += cp) {              \
+                vf g0 = *(const vfu *)dr, g1 = g0;                                      \
+                if (NOV > 1) g1 = *(const vfu *)(dr + VL);                              \
+                (void)g1;                                                               \
+                NINE(FMA)                                                               \
+            }                                                                           \
+        }                                                                               \
+        NINE(ADD)                                                                       \
+    }
+DWO_KERNEL(dwo_32, 2, GO_DECL2, GO_FMA2, GO_ADD2)
+DWO_KERNEL(dwo_16, 1, GO_DECL1, GO_FMA1, GO_ADD1)
+
+static size_t dwo_cp(const nj_dconv *D) { return round_upz((size_t)D->cout, VL); }
+
+/* dy rows [oy0, oy0 + rows) of sample n → dyt[pos][o] (pos = r·ow + j), zero
+ * for o ≥ cout; in blocks of 16 positions so reads and writes stay in cache. */
+static void dwo_transpose(const nj_dconv *D, const float *dy, int n, int oy0, int rows, float *dyt)
+{
+    size_t cp = dwo_cp(D), ohw = (size_t)D->oh * D->ow, np = (size_t)rows * D->ow;
+    const float *src = dy + (size_t)n * D->cout * ohw + (size_t)oy0 * D->ow;
+    for (size_t p0 = 0; p0 < np; p0 += VL) {
+        size_t pe = p0 + VL < np ? p0 + VL : np;
+        for (int o = 0; o < D->cout; o++) {
+            const float *so = src + (size_t)o * ohw;
+            for (size_t p = p0; p < pe; p++) dyt[p * cp + (size_t)o] = so[p];
+        }
+        for (size_t p = p0; p < pe; p++)
+            for (size_t o = (size_t)D->cout; o < cp; o++) dyt[p * cp + o] = 0.0f;
+    }
+}
+
+/* Adds combinations [k0, k1) of one staged band (channel c at staged +
+ * (c − c0)·cs) into the transposed gradient dwt[k][cp]. */
+static void dwo_range(const nj_dconv *D, const stage *st, const int *off, const float *staged,
+                      int c0, const float *dyt, int k0, int k1, float *dwt)
+{
+    int taps = D->kh * D->kw;
+    dwo_band B = {st->rows, D->ow, st->L, dwo_cp(D)};
+    for (size_t o0 = 0; o0 < B.cp; o0 += 2 * VL) {
+        int wide = o0 + 2 * VL <= B.cp;
+        for (int g = k0; g < k1; g += 9) {
+            const float *xp[9];
+            int m = k1 - g < 9 ? k1 - g : 9;
+            for (int i = 0; i < 9; i++) {
+                int k = g + (i < m ? i : 0);
+                xp[i] = staged + (size_t)(k / taps - c0) * st->cs + off[k % taps];
+            }
+            float *pt = dwt + (size_t)g * B.cp + o0;
+            if (wide) dwo_32(&B, dyt + o0, xp, m, pt);
+            else dwo_16(&B, dyt + o0, xp, m, pt);
+        }
+    }
+}
+
+/* One thread's share: combinations [k0, k1) over every (sample, band). */
+static void dwo_share(const nj_dconv *D, const float *x, const float *dy, int band, int k0, int k1,
+                      float *buf, float *dwt)
+{
+    int taps = D->kh * D->kw, nb = band_count(D->oh, band);
+    int c0 = k0 / taps, c1 = (k1 + taps - 1) / taps, off[MAX_TAPS];
+    for (int it = 0; it < D->n * nb; it++) {
+        int n = it / nb, k = it % nb, oy0 = k * band, oy1 = k == nb - 1 ? D->oh : oy0 + band;
+        stage st;
+        stage_band(D, x, n, oy0, oy1, c0, c1, buf, &st, off);
+        float *dyt = buf + (size_t)(c1 - c0) * st.cs;
+        dwo_transpose(D, dy, n, oy0, st.rows, dyt);
+        dwo_range(D, &st, off, buf, c0, dyt, k0, k1, dwt);
+    }
+}
+
+/* -- along positions (fewer than 16 output channels) -- */
 
 static inline float hsum(vf a)
 {
@@ -327,7 +439,6 @@ static inline float hsum(vf a)
     return s;
 }
 
-#define TAPS9(M) M(0) M(1) M(2) M(3) M(4) M(5) M(6) M(7) M(8)
 #define DW_DECL(k) vf p##k = (vf){0}, r##k = (vf){0}; const float *x##k = in + off[k];
 #define DW_FMA2(k) { vf xv = *(const vfu *)(x##k + q); p##k += g0 * xv; r##k += g1 * xv; }
 #define DW_FMA1(k) { vf xv = *(const vfu *)(x##k + q); p##k += g0 * xv; }
@@ -338,42 +449,19 @@ static inline float hsum(vf a)
 static void dw_nine(const float *in, const int *off, const float *d0, const float *d1, int nq,
                     int pair, float *s0, float *s1)
 {
-    TAPS9(DW_DECL)
+    NINE(DW_DECL)
     if (pair) {
         for (int q = 0; q < nq; q += VL) {
             vf g0 = *(const vfu *)(d0 + q), g1 = *(const vfu *)(d1 + q);
-            TAPS9(DW_FMA2)
+            NINE(DW_FMA2)
         }
     } else {
         for (int q = 0; q < nq; q += VL) {
             vf g0 = *(const vfu *)(d0 + q);
-            TAPS9(DW_FMA1)
+            NINE(DW_FMA1)
         }
     }
-    TAPS9(DW_OUT)
-}
-
-static int dw_band(const nj_dconv *D)
-{
-    int L = D->ow + D->kw;
-    long row = (long)D->cin * D->stride * D->stride * L + (long)D->cout * L;
-    /* big bands: each holds ≥ DW_MIN_PIXELS so the per-band reductions stay cheap */
-    int min_rows = (DW_MIN_PIXELS + D->ow - 1) / D->ow;
-    return band_height(D->oh, row, DW_BAND_BYTES, (D->kh - 1) / D->stride, min_rows, 1);
-}
-
-static size_t dw_per_thread(const nj_dconv *D, int band)
-{
-    int rows = last_band_rows(D->oh, band);
-    stage st;
-    stage_geom(D, rows, &st);
-    size_t dy = (size_t)D->cout * round_upz((size_t)rows * st.L, VL);
-    return round_upz(stage_floats(D, rows) + dy + (size_t)D->cout * D->cin * D->kh * D->kw, VL);
-}
-
-size_t nj_dconv_dw_scratch(const nj_dconv *D, int threads)
-{
-    return (size_t)threads * dw_per_thread(D, dw_band(D));
+    NINE(DW_OUT)
 }
 
 /* Adds one staged channel's taps against dy channels o (and o+1 when pair). */
@@ -393,53 +481,138 @@ static void dw_channel(const nj_dconv *D, const float *in, const int *off, const
     }
 }
 
-static void dw_item(const nj_dconv *D, const float *x, const float *dy, int n, int oy0, int oy1,
-                    float *buf, float *part)
+/* dy rows of sample n laid out like the staged outputs (row stride L, zeros
+ * in the dropped columns), then the taps of every channel pair. */
+static void dwq_item(const nj_dconv *D, const stage *st, const int *off, const float *staged,
+                     const float *dy, int n, int oy0, float *dyb, float *part)
 {
-    stage st;
-    int off[MAX_TAPS], taps = D->kh * D->kw;
-    stage_band(D, x, n, oy0, oy1, buf, &st, off);
-    int nq = st.rows * st.L;
+    int nq = st->rows * st->L, taps = D->kh * D->kw;
     size_t oq = round_upz((size_t)nq, VL), ohw = (size_t)D->oh * D->ow;
-    float *dyb = buf + (size_t)D->cin * st.cs;
     const float *dyn = dy + (size_t)n * D->cout * ohw + (size_t)oy0 * D->ow;
     for (int o = 0; o < D->cout; o++) {
         float *d = dyb + o * oq;
         memset(d, 0, sizeof(float) * oq);
-        for (int r = 0; r < st.rows; r++)
-            memcpy(d + (size_t)r * st.L, dyn + o * ohw + (size_t)r * D->ow, sizeof(float) * (size_t)D->ow);
+        for (int r = 0; r < st->rows; r++)
+            memcpy(d + (size_t)r * st->L, dyn + o * ohw + (size_t)r * D->ow, sizeof(float) * (size_t)D->ow);
     }
     size_t wc = (size_t)D->cin * taps;
     for (int o = 0; o < D->cout; o += 2) {
         int pair = o + 1 < D->cout;
         for (int c = 0; c < D->cin; c++)
-            dw_channel(D, buf + c * st.cs, off, dyb + o * oq, dyb + (o + pair) * oq, (int)oq, pair,
+            dw_channel(D, staged + c * st->cs, off, dyb + o * oq, dyb + (o + pair) * oq, (int)oq, pair,
                        part + o * wc + (size_t)c * taps, part + (o + pair) * wc + (size_t)c * taps);
+    }
+}
+
+/* -- both -- */
+
+static int dw_along_outputs(const nj_dconv *D) { return D->cout >= VL; }
+
+static int dw_band(const nj_dconv *D)
+{
+    int L = D->ow + D->kw;
+    long row = (long)D->cin * D->stride * D->stride * L + (long)round_up(D->cout, VL) * L;
+    /* along positions: bands of ≥ DW_MIN_PIXELS keep the per-band reductions cheap */
+    int min_rows = dw_along_outputs(D) ? 1 : (DW_MIN_PIXELS + D->ow - 1) / D->ow;
+    return band_height(D->oh, row, DW_BAND_BYTES, (D->kh - 1) / D->stride, min_rows, 1);
+}
+
+/* Floats of one thread's partial dW (along positions) or of the shared
+ * transposed dW (along outputs). */
+static size_t dw_part_floats(const nj_dconv *D)
+{
+    size_t kk = (size_t)D->cin * D->kh * D->kw;
+    return round_upz(kk * (dw_along_outputs(D) ? dwo_cp(D) : (size_t)D->cout), VL);
+}
+
+static size_t dw_per_thread(const nj_dconv *D, int band)
+{
+    int rows = last_band_rows(D->oh, band);
+    stage st;
+    stage_geom(D, rows, &st);
+    size_t dy = dw_along_outputs(D) ? (size_t)rows * D->ow * dwo_cp(D)
+                                    : (size_t)D->cout * round_upz((size_t)rows * st.L, VL);
+    return round_upz(stage_floats(D, rows) + round_upz(dy, VL), VL) +
+           (dw_along_outputs(D) ? 0 : dw_part_floats(D));
+}
+
+size_t nj_dconv_dw_scratch(const nj_dconv *D, int threads)
+{
+    return (size_t)threads * dw_per_thread(D, dw_band(D)) +
+           (dw_along_outputs(D) ? dw_part_floats(D) : 0);
+}
+
+/* Along positions: item (sample, band) added into one thread's partial part[o][k]. */
+static void dwq_band(const nj_dconv *D, const float *x, const float *dy, int n, int oy0, int oy1,
+                     float *buf, float *part)
+{
+    stage st;
+    int off[MAX_TAPS];
+    stage_band(D, x, n, oy0, oy1, 0, D->cin, buf, &st, off);
+    dwq_item(D, &st, off, buf, dy, n, oy0, buf + (size_t)D->cin * st.cs, part);
+}
+
+/* Along positions: (sample, band) items split across threads, each adding into
+ * its own partial; the partials are summed in thread order. */
+static void dwq_all(const nj_dconv *D, const float *x, const float *dy, float *dw, float *scratch,
+                    int par)
+{
+    int band = dw_band(D), nb = band_count(D->oh, band), items = D->n * nb;
+    int threads = par ? omp_get_max_threads() : 1;
+    size_t per = dw_per_thread(D, band), pf = dw_part_floats(D), wsize = pf;
+    #pragma omp parallel num_threads(threads) if (par)
+    {
+        float *buf = scratch + (size_t)omp_get_thread_num() * per;
+        float *part = buf + per - pf;
+        memset(part, 0, sizeof(float) * pf);
+        /* static: a thread gets the same items every step (reproducible dW) */
+        #pragma omp for schedule(static)
+        for (int it = 0; it < items; it++) {
+            int k = it % nb, oy0 = k * band, oy1 = k == nb - 1 ? D->oh : oy0 + band;
+            dwq_band(D, x, dy, it / nb, oy0, oy1, buf, part);
+        }
+    }
+    wsize = (size_t)D->cout * D->cin * D->kh * D->kw;
+    for (int t = 0; t < threads; t++) {
+        const float *part = scratch + (size_t)(t + 1) * per - pf;
+        for (size_t i = 0; i < wsize; i++) dw[i] += part[i];
+    }
+}
+
+/* Along outputs: thread t owns whole groups of 9 combinations for every item,
+ * accumulating into the shared dwt[k][cp]; then dw[o][k] += dwt[k][o].  Every
+ * element is summed by one thread in item order, whatever the thread count. */
+static void dwo_all(const nj_dconv *D, const float *x, const float *dy, float *dw, float *scratch,
+                    int par)
+{
+    int band = dw_band(D), threads = par ? omp_get_max_threads() : 1;
+    int kk = D->cin * D->kh * D->kw, groups = (kk + 8) / 9;
+    size_t cp = dwo_cp(D), per = dw_per_thread(D, band);
+    float *dwt = scratch + (size_t)threads * per;
+    #pragma omp parallel num_threads(threads) if (par)
+    {
+        int t = omp_get_thread_num(), nt = omp_get_num_threads();
+        int k0 = 9 * (int)((long)groups * t / nt), k1 = 9 * (int)((long)groups * (t + 1) / nt);
+        if (k1 > kk) k1 = kk;
+        if (k0 < k1) {
+            memset(dwt + (size_t)k0 * cp, 0, sizeof(float) * (size_t)(k1 - k0) * cp);
+            dwo_share(D, x, dy, band, k0, k1, scratch + (size_t)t * per, dwt);
+        }
+        #pragma omp barrier
+        #pragma omp for schedule(static)
+        for (int kb = 0; kb < kk; kb += VL) {
+            int ke = kb + VL < kk ? kb + VL : kk;
+            for (int o = 0; o < D->cout; o++)
+                for (int k = kb; k < ke; k++) dw[(size_t)o * kk + k] += dwt[(size_t)k * cp + o];
+        }
     }
 }
 
 void nj_dconv_backward_dw(const nj_dconv *D, const float *x, const float *dy, float *dw,
                           float *scratch, int par)
 {
-    int band = dw_band(D), nb = band_count(D->oh, band), items = D->n * nb;
-    int threads = par ? omp_get_max_threads() : 1;
-    size_t per = dw_per_thread(D, band), wsize = (size_t)D->cout * D->cin * D->kh * D->kw;
-    for (int t = 0; t < threads; t++) memset(scratch + (size_t)(t + 1) * per - wsize, 0, sizeof(float) * wsize);
-    #pragma omp parallel num_threads(threads) if (par)
-    {
-        float *buf = scratch + (size_t)omp_get_thread_num() * per;
-        float *part = buf + per - wsize;
-        /* static: a thread gets the same items every step (reproducible dW) */
-        #pragma omp for schedule(static)
-        for (int it = 0; it < items; it++) {
-            int k = it % nb, oy0 = k * band, oy1 = k == nb - 1 ? D->oh : oy0 + band;
-            dw_item(D, x, dy, it / nb, oy0, oy1, buf, part);
-        }
-    }
-    for (int t = 0; t < threads; t++) {
-        const float *part = scratch + (size_t)(t + 1) * per - wsize;
-        for (size_t i = 0; i < wsize; i++) dw[i] += part[i];
-    }
+    if (dw_along_outputs(D)) dwo_all(D, x, dy, dw, scratch, par);
+    else dwq_all(D, x, dy, dw, scratch, par);
 }
 
 /* ---- input gradient -----------------------------------------------------
@@ -616,15 +789,17 @@ void nj_dconv_backward_dx(const nj_dconv *D, const float *dy, const float *w, fl
     }
 }
 
-int nj_dconv_suits(const nj_dconv *D)
+int nj_dconv_suits(const nj_dconv *D, int backward)
 {
-    if (D->kh * D->kw > MAX_TAPS || (D->stride != 1 && D->stride != 2)) return 0;
-    /* measured per layer of the default nets (320x96, 1 thread, forward +
-     * backward): faster from 40 columns up to 128 output channels and for the
-     * 1-channel disparity heads at any size; at stride 2 for the pose net's
-     * 7×7 and 5×5 kernels.  im2col + sgemm wins on the small maps of the
-     * bottleneck (per-sample weight-gradient reductions dominate there) and
-     * on 3×3 stride-2 kernels (a quarter of the taps per phase). */
-    if (D->stride == 2) return D->kh * D->kw >= 25 && D->ow >= 40;
-    return (D->ow >= 40 && D->cout <= 128) || D->cout <= 4;
+    if (D->kh * D->kw > MAX_TAPS || (D->stride != 1 && D->stride != 2) || D->kh * D->kw == 1) return 0;
+    /* measured per layer of the default nets (320x96, 1 thread, forward and
+     * backward timed apart): at stride 1 up to 128 output channels at any map
+     * size, and the 1-channel disparity heads; im2col + sgemm wins for the
+     * bottleneck's 256-channel outputs.  At stride 2 the backward pass always
+     * (the weight gradient's positions stream past 9 taps × 32 channels held
+     * in registers), the forward pass for the pose net's 7×7 and 5×5 kernels
+     * on maps of ≥ 40 columns (3×3 kernels have a quarter of their taps per
+     * phase, too few to hide the staging). */
+    if (D->stride == 2) return backward || (D->kh * D->kw >= 25 && D->ow >= 40);
+    return D->cout <= 128;
 }

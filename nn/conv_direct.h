@@ -21,8 +21,9 @@ typedef struct nj_dconv {
     int oh, ow;
 } nj_dconv;
 
-/* 1 when the direct kernels handle this geometry and are the faster choice. */
-int nj_dconv_suits(const nj_dconv *D);
+/* 1 when the direct kernels handle this geometry and are the faster choice
+ * for the forward pass (backward = 0) or for dx and dW (backward = 1). */
+int nj_dconv_suits(const nj_dconv *D, int backward);
 /* Floats of scratch the forward / input-gradient pass needs for `threads` threads. */
 size_t nj_dconv_forward_scratch(const nj_dconv *D, int threads);
 size_t nj_dconv_dx_scratch(const nj_dconv *D, int threads);

@@ -70,8 +70,8 @@ static void test_conv_grads(void)
          NJ_PAD_REFLECT, 1, 0.25f},
         {"conv 1x1 direct multi-band", 1, 1100, 20, 6, 2, 1, 1, 1, 0, NJ_PAD_ZERO, 0, 0.25f},
         /* stride-1 convs that take the register-blocked kernels (nn/conv_direct.c):
-         * ≥ 40 output columns, or ≤ 4 output channels; channel counts that use
-         * every block size (16, 8, 4, 1), reflection/zero padding, several bands */
+         * up to 128 output channels; channel counts that use every block size
+         * (16, 8, 4, 1), reflection/zero padding, several bands */
         {"conv direct 3x3 zero cout 5 (blocks 4+1) batch 2", 2, 3, 6, 45, 5, 3, 3, 1, 1,
          NJ_PAD_ZERO, 1, 0.25f},
         {"conv direct 3x3 reflect cout 24 (blocks 16+8) multi-band", 1, 2, 21, 40, 24, 3, 3, 1, 1,
@@ -90,6 +90,15 @@ static void test_conv_grads(void)
         {"conv direct 5x5 stride 2 reflect pad 2 multi-band", 1, 2, 40, 81, 8, 5, 5, 2, 2,
          NJ_PAD_REFLECT, 1, 0.25f},
         {"conv direct 5x5 stride 2 zero pad 2 odd", 1, 2, 7, 85, 3, 5, 5, 2, 2, NJ_PAD_ZERO, 1, 0.25f},
+        /* the weight gradient along output channels (≥ 16): vectors of 32 + 16
+         * channels, groups of 9 combinations that span input channels (5×5),
+         * small maps, and the 3×3 stride-2 backward pass */
+        {"conv direct 3x3 reflect small map cout 40 (dW 32+16)", 2, 3, 6, 20, 40, 3, 3, 1, 1,
+         NJ_PAD_REFLECT, 1, 0.25f},
+        {"conv direct 5x5 reflect cout 16 (dW groups span channels)", 1, 3, 5, 12, 16, 5, 5, 1, 2,
+         NJ_PAD_REFLECT, 0, 0.25f},
+        {"conv 3x3 stride 2 zero backward direct cout 33", 2, 2, 9, 22, 33, 3, 3, 2, 1, NJ_PAD_ZERO,
+         1, 0.25f},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) check_conv(&cases[i]);
 }
@@ -254,7 +263,7 @@ static int run_conv(const conv_case *c, int threads, float grad0, conv_run *out)
     nj_graph *g = nj_graph_new(1 << 22);
     size_t nx = (size_t)c->n * c->cin * c->h * c->w, nw = (size_t)c->cout * c->cin * c->kh * c->kw;
     float *xv = malloc(nx * sizeof(float)), *wv = malloc(nw * sizeof(float));
-    float bv[64];
+    float bv[256]; /* cout of every case ≤ 256 */
     test_fill_uniform(xv, nx, -1, 1, 11);
     test_fill_uniform(wv, nw, -1, 1, 12);
     test_fill_uniform(bv, (size_t)c->cout, -1, 1, 13);
@@ -317,6 +326,11 @@ static void test_threads_and_accumulation(void)
         {"direct 3x3 zero batch 3 cout 40", 3, 24, 37, 70, 40, 3, 3, 1, 1, NJ_PAD_ZERO, 1, 0},
         {"direct head 3x3 reflect cout 1", 4, 16, 50, 96, 1, 3, 3, 1, 1, NJ_PAD_REFLECT, 1, 0},
         {"direct 7x7 stride 2 reflect batch 3", 3, 6, 48, 100, 16, 7, 7, 2, 3, NJ_PAD_REFLECT, 1, 0},
+        {"direct 5x5 reflect cin 7 cout 20 (dW split mid-channel)", 2, 7, 19, 44, 20, 5, 5, 1, 2,
+         NJ_PAD_REFLECT, 1, 0},
+        {"direct 3x3 reflect small map cin 96 cout 128", 4, 96, 6, 20, 128, 3, 3, 1, 1,
+         NJ_PAD_REFLECT, 1, 0},
+        {"3x3 stride 2 zero backward direct cout 64", 3, 32, 24, 80, 64, 3, 3, 2, 1, NJ_PAD_ZERO, 1, 0},
     };
     int saved = omp_get_max_threads();
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {

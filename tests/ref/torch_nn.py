@@ -125,9 +125,11 @@ def conv_cases(wr):
 
 
 def direct_conv_cases(wr):
-    """Convs that take nightjar's direct kernels: stride 1 with >= 40 output columns
-    or <= 4 output channels (every channel-block size, both paddings, several
-    bands), and stride 2 with 7x7 or 5x5 kernels and >= 40 output columns."""
+    """Convs that take nightjar's direct kernels: stride 1 up to 128 output channels
+    (every channel-block size, both paddings, several bands, small maps), stride 2
+    with 7x7 or 5x5 kernels and >= 40 output columns, and the backward pass of
+    every stride-2 conv (3x3 included); weight gradients along output channels
+    (>= 16: vectors of 32 and 16, 9-combination groups spanning channels)."""
     specs = [  # n, cin, h, w, cout, k, stride, pad, mode, bias
         (2, 3, 11, 45, 17, 3, 1, 1, "zero", True),
         (2, 5, 37, 67, 24, 3, 1, 1, "reflect", False),
@@ -140,6 +142,10 @@ def direct_conv_cases(wr):
         (2, 3, 12, 84, 5, 7, 2, 3, "zero", False),
         (2, 4, 33, 87, 9, 5, 2, 2, "reflect", True),
         (3, 2, 9, 80, 4, 5, 2, 2, "zero", True),
+        (2, 7, 6, 20, 40, 3, 1, 1, "reflect", True),
+        (2, 5, 11, 30, 33, 3, 2, 1, "zero", True),
+        (2, 3, 9, 31, 20, 5, 1, 2, "reflect", False),
+        (1, 24, 3, 10, 128, 3, 1, 1, "reflect", True),
     ]
     for n, cin, h, w, cout, k, st, pad, mode, bias in specs:
         name = "conv2d direct k%d s%d %s pad%d %dx%d cout %d" % (k, st, mode, pad, h, w, cout)

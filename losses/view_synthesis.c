@@ -55,13 +55,11 @@ static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs
     if (m && in->rng && cfg->tie_break > 0) {
         size_t k = nj_numel(m);
         const nj_replicas *r = nj_graph_replicas(g);
-        /* with replicas (equal shares of the batch), shard i draws the noise a
-         * single process draws for its items, and every shard's generator ends
-         * where the single process's does */
-        if (r) nj_rng_skip_normals(in->rng, (uint64_t)k * (uint64_t)r->rank);
-        for (size_t i = 0; i < k; i++)
-            m->data[i] += (float)(nj_rng_normal(in->rng) * cfg->tie_break);
-        if (r) nj_rng_skip_normals(in->rng, (uint64_t)k * (uint64_t)(r->count - 1 - r->rank));
+        /* with replicas (equal shares of the batch), shard i gets the noise a
+         * single process gets at its items, and every shard's generator
+         * advances as the single process's does */
+        nj_rng_add_normals(in->rng, m->data, k, r ? (uint64_t)k * (uint64_t)r->rank : 0,
+                           cfg->tie_break);
     }
     return m;
 }

@@ -65,8 +65,44 @@ nj_param *nj_params_add(nj_params *ps, const char *name, int group,
 
 void nj_params_zero_grad(nj_params *ps)
 {
+    #pragma omp parallel for schedule(dynamic, 1) if (ps->count > 1)
     for (int i = 0; i < ps->count; i++)
         memset(ps->items[i]->grad, 0, nj_param_numel(ps->items[i]) * sizeof(float));
+}
+
+/* Σ g² in 8 double lanes, then the lanes and the tail in order. */
+static double sum_squares(const float *g, size_t k)
+{
+    double lane[8] = {0}, s = 0;
+    size_t j = 0;
+    for (; j + 8 <= k; j += 8)
+        for (int l = 0; l < 8; l++) lane[l] += (double)g[j + l] * g[j + l];
+    for (int l = 0; l < 8; l++) s += lane[l];
+    for (; j < k; j++) s += (double)g[j] * g[j];
+    return s;
+}
+
+double nj_params_grad_norm(const nj_params *ps)
+{
+    enum { BLOCK = 64 };
+    double part[BLOCK], s = 0;
+    for (int i0 = 0; i0 < ps->count; i0 += BLOCK) {
+        int m = ps->count - i0 < BLOCK ? ps->count - i0 : BLOCK;
+        #pragma omp parallel for schedule(dynamic, 1) if (m > 1)
+        for (int i = 0; i < m; i++)
+            part[i] = sum_squares(ps->items[i0 + i]->grad, nj_param_numel(ps->items[i0 + i]));
+        for (int i = 0; i < m; i++) s += part[i];
+    }
+    return sqrt(s);
+}
+
+void nj_params_scale_grads(nj_params *ps, float f)
+{
+    #pragma omp parallel for schedule(dynamic, 1) if (ps->count > 1)
+    for (int i = 0; i < ps->count; i++) {
+        float *g = ps->items[i]->grad;
+        for (size_t j = 0, k = nj_param_numel(ps->items[i]); j < k; j++) g[j] *= f;
+    }
 }
 
 void nj_params_freeze_group(nj_params *ps, int group, int frozen)

@@ -36,6 +36,12 @@ size_t nj_param_numel(const nj_param *p);
 /* Total number of scalars. */
 size_t nj_params_numel(const nj_params *ps);
 void nj_params_zero_grad(nj_params *ps);
+/* √(Σ grad²) over every parameter.  Each tensor is summed by one thread (8
+ * double lanes) and the tensors' sums are added in order, so the value does
+ * not depend on the thread count. */
+double nj_params_grad_norm(const nj_params *ps);
+/* grad *= f for every parameter. */
+void nj_params_scale_grads(nj_params *ps, float f);
 void nj_params_freeze_group(nj_params *ps, int group, int frozen);
 /* The parameter as a graph tensor (no copy); grad NULL when its group is frozen. */
 nj_tensor *nj_param_tensor(nj_graph *g, const nj_params *ps, nj_param *p);

@@ -42,7 +42,18 @@ double nj_rng_normal(nj_rng *r)
     return sqrt(-2.0 * log(u1)) * cos(6.283185307179586 * u2);
 }
 
-void nj_rng_skip_normals(nj_rng *r, uint64_t n)
+/* Standard normal number `c` of the stream keyed by `key`. */
+static float keyed_normal(uint64_t key, uint64_t c)
 {
-    for (uint64_t i = 0; i < 2 * n; i++) nj_rng_next(r);   /* two uniforms per normal */
+    uint64_t x = key + c * 0x9E3779B97F4A7C15ull, z = splitmix64(&x);
+    float u1 = (float)((z >> 40) + 1) * (1.0f / 16777216.0f);   /* (0, 1] */
+    float u2 = (float)((z >> 8) & 0xFFFFFF) * (1.0f / 16777216.0f);
+    return sqrtf(-2.0f * logf(u1)) * cosf(6.2831853f * u2);
+}
+
+void nj_rng_add_normals(nj_rng *r, float *dst, size_t n, uint64_t first, float scale)
+{
+    uint64_t key = nj_rng_next(r);
+    #pragma omp parallel for schedule(static) if (n > 16384)
+    for (size_t i = 0; i < n; i++) dst[i] += scale * keyed_normal(key, first + i);
 }

@@ -3,6 +3,7 @@
  * can be saved in checkpoints and restored exactly. */
 #ifndef NJ_RNG_H
 #define NJ_RNG_H
+#include <stddef.h>
 #include <stdint.h>
 
 typedef struct nj_rng { uint64_t s[2]; } nj_rng;
@@ -15,7 +16,12 @@ double nj_rng_uniform(nj_rng *r);
 uint32_t nj_rng_below(nj_rng *r, uint32_t n);
 /* Standard normal (Box–Muller). */
 double nj_rng_normal(nj_rng *r);
-/* Advances r past n nj_rng_normal() draws without computing them. */
-void nj_rng_skip_normals(nj_rng *r, uint64_t n);
+/* dst[i] += scale · z_i for i < n, z_i standard normal: one draw from r keys a
+ * counter-based generator (splitmix64 of key + counter, Box–Muller in float)
+ * and element i takes counter first + i.  r advances by one draw whatever n
+ * is, the values do not depend on the thread count, and a caller holding
+ * elements [first, first + n) of a larger array gets exactly the values a
+ * caller holding all of it gets there.  Parallel over OpenMP threads. */
+void nj_rng_add_normals(nj_rng *r, float *dst, size_t n, uint64_t first, float scale);
 
 #endif

@@ -8,7 +8,11 @@
  *    computed by hand, and the final parameters must match with relative error
  *        max_i |a_i − b_i| / max(max_i |b_i|, 1e-6)  ≤ 1e-6
  *    per parameter (b = PyTorch); the frozen one must not move at all.
- * 2. Arena reuse: a small training step (conv → ELU → mean, forward, backward,
+ * 2. Gradient norm and scaling (nn/param.c, used for clipping): hand-worked
+ *    Euclidean norms (a 3-4-5 triangle and a 1-2-2 one: √(9+16+1+4+4) = √34),
+ *    scaling by 0.5, and on ~2.1 M random gradients 1 and 2 threads give the
+ *    same bits and a plain serial double sum agrees within 1e-12 relative.
+ * 3. Arena reuse: a small training step (conv → ELU → mean, forward, backward,
  *    Adam) with parameters wrapped by nj_param_tensor is repeated in one graph
  *    with nj_graph_reset between steps; after the first step the arena must
  *    make no further system allocation (nj_arena_sysallocs) and the tape must
@@ -20,6 +24,7 @@
 #include "tests/torch_ref.h"
 #include <cjson/cJSON.h>
 #include <math.h>
+#include <omp.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -177,6 +182,45 @@ static void test_adam_vs_torch(void)
     else ref_rmtree(dir);
 }
 
+/* ---- gradient norm ---------------------------------------------------------- */
+
+static void test_grad_norm(void)
+{
+    nj_params ps;
+    nj_params_init(&ps);
+    nj_param *a = nj_params_add(&ps, "a", 0, 1, 1, 1, 2), *b = nj_params_add(&ps, "b", 0, 1, 3, 1, 1);
+    a->grad[0] = 3; a->grad[1] = -4;
+    b->grad[0] = 1; b->grad[1] = 2; b->grad[2] = -2;
+    double n = nj_params_grad_norm(&ps);
+    nj_params_scale_grads(&ps, 0.5f);
+    check(fabs(n - sqrt(34.0)) < 1e-12 && a->grad[1] == -2 && b->grad[2] == -1,
+          "grad norm: hand-worked sqrt(9+16+1+4+4) and scaling by 0.5",
+          "norm %.15g (want %.15g), scaled %g %g", n, sqrt(34.0), a->grad[1], b->grad[2]);
+    nj_rng rng;
+    nj_rng_seed(&rng, 3);
+    for (int i = 0; i < 70; i++) {
+        char name[16];
+        snprintf(name, sizeof name, "p%d", i);
+        nj_param *p = nj_params_add(&ps, name, 0, 1 + i % 5, 3, 3, 7 + 31 * i);
+        for (size_t j = 0, k = nj_param_numel(p); j < k; j++) p->grad[j] = (float)nj_rng_normal(&rng);
+    }
+    double serial = 0;
+    for (int i = 0; i < ps.count; i++)
+        for (size_t j = 0, k = nj_param_numel(ps.items[i]); j < k; j++)
+            serial += (double)ps.items[i]->grad[j] * ps.items[i]->grad[j];
+    int saved = omp_get_max_threads();
+    omp_set_num_threads(1);
+    double one = nj_params_grad_norm(&ps);
+    omp_set_num_threads(2);
+    double two = nj_params_grad_norm(&ps);
+    omp_set_num_threads(saved);
+    check(one == two && fabs(one - sqrt(serial)) <= 1e-12 * sqrt(serial),
+          "grad norm: 1 and 2 threads identical, equal to a serial sum",
+          "1 thread %.17g, 2 threads %.17g, serial %.17g (%zu values)", one, two, sqrt(serial),
+          nj_params_numel(&ps));
+    nj_params_free(&ps);
+}
+
 /* ---- arena reuse --------------------------------------------------------------- */
 
 /* One step: conv (reflect) → ELU → mean, backward, Adam.  Returns the loss. */
@@ -229,6 +273,7 @@ int main(void)
 {
     nj_threads_init(0);
     test_adam_vs_torch();
+    test_grad_norm();
     test_arena_reuse();
     return test_exit();
 }

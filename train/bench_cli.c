@@ -67,20 +67,10 @@ static int parse(int argc, char **argv, bench_args *a)
     return 0;
 }
 
-static double grad_clip(nj_params *ps, float max_norm)
+static void grad_clip(nj_params *ps, float max_norm)
 {
-    double s = 0;
-    for (int i = 0; i < ps->count; i++) {
-        const nj_param *p = ps->items[i];
-        for (size_t j = 0, k = nj_param_numel(p); j < k; j++) s += (double)p->grad[j] * p->grad[j];
-    }
-    double n = sqrt(s);
-    if (max_norm > 0 && n > max_norm)
-        for (int i = 0; i < ps->count; i++) {
-            nj_param *p = ps->items[i];
-            for (size_t j = 0, k = nj_param_numel(p); j < k; j++) p->grad[j] *= (float)(max_norm / n);
-        }
-    return n;
+    double n = nj_params_grad_norm(ps);
+    if (max_norm > 0 && n > max_norm) nj_params_scale_grads(ps, (float)(max_norm / n));
 }
 
 /* One step as the trainer runs it: zero grads, forward + backward, clip, Adam. */

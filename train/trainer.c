@@ -46,26 +46,6 @@ int nj_trainer_save(nj_trainer *t, const char *name, char *err, size_t errlen)
 }
 
 /* Global L2 norm of all gradients; non-finite when any gradient is. */
-static double grad_norm(const nj_params *ps)
-{
-    double s = 0;
-    for (int i = 0; i < ps->count; i++) {
-        const nj_param *p = ps->items[i];
-        size_t k = nj_param_numel(p);
-        for (size_t j = 0; j < k; j++) s += (double)p->grad[j] * p->grad[j];
-    }
-    return sqrt(s);
-}
-
-static void scale_grads(nj_params *ps, float f)
-{
-    for (int i = 0; i < ps->count; i++) {
-        nj_param *p = ps->items[i];
-        size_t k = nj_param_numel(p);
-        for (size_t j = 0; j < k; j++) p->grad[j] *= f;
-    }
-}
-
 /* Fixes the LR schedule's horizon of a time-budgeted run once the speed is
  * known: at step max(warm-up, 100), from the time per step since step 10 (the
  * first steps are slowed by start-up).  Saved in checkpoints, so a resumed run
@@ -261,10 +241,11 @@ static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float 
         nj_runlog_say(&t->log, "step %ld: averaging the gradients over the ranks failed", t->st.step);
         return -1;
     }
-    double gn = grad_norm(&t->model.params);
+    double gn = nj_params_grad_norm(&t->model.params);
     if (!isfinite(r->loss) || !isfinite(gn)) return handle_bad_step(t, isfinite(r->loss) ? "gradient" : "loss") < 0 ? -1 : 1;
     t->bad_steps = 0;
-    if (t->cfg.grad_clip > 0 && gn > t->cfg.grad_clip) scale_grads(&t->model.params, (float)(t->cfg.grad_clip / gn));
+    if (t->cfg.grad_clip > 0 && gn > t->cfg.grad_clip)
+        nj_params_scale_grads(&t->model.params, (float)(t->cfg.grad_clip / gn));
     *lr = nj_train_config_lr(&t->cfg, t->st.step, t->st.schedule_steps) * t->st.lr_scale;
     t->opt.lr = *lr;
     nj_adam_step(&t->opt, &t->model.params);

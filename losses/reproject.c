@@ -34,11 +34,14 @@ static void reproject_row(const nj_tensor *depth, const float *T, nj_camera c, i
     }
 }
 
-/* Backward of one row: depth grads directly, pose grads into acc[12] (double). */
+/* Backward of one row: depth grads directly, pose grads into acc[12] (double,
+ * summed in a local array: acc may alias nothing, but the compiler cannot
+ * know that, and memory accumulators serialise on store-to-load latency). */
 static void backward_row(const nj_tensor *depth, const nj_tensor *out, const float *T,
-                         nj_camera c, int n, int v, float *gd, double acc[12])
+                         nj_camera c, int n, int v, float *gd, double *restrict acc_out)
 {
     int W = depth->w, H = depth->h;
+    double acc[12] = {0};
     size_t plane = (size_t)H * W, row = (size_t)v * W;
     const float *d = depth->data + n * plane + row;
     const float *gx = out->grad + (size_t)n * 2 * plane + row, *gy = gx + plane;
@@ -61,6 +64,7 @@ static void backward_row(const nj_tensor *depth, const nj_tensor *out, const flo
             gd[u] += s;
         }
     }
+    memcpy(acc_out, acc, sizeof acc);
 }
 
 static void reproject_backward(nj_graph *g, const nj_op *op)

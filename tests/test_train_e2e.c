@@ -9,7 +9,8 @@
  * Ground truth is the renderer's exact depth; the metrics are the eval
  * command's (checked against NumPy in test_metrics / test_predict_cli).
  * Both cases train with one thread, so each run is bit-for-bit the one
- * measured when its threshold was set (DEVELOPERS.md "Training recipe").
+ * measured when its threshold was set (DEVELOPERS.md "Training recipe"),
+ * and they run side by side (stereo in a child process).
  *
  * NJ_TEST_REDUCED=1 (make sanitize) runs the same pipeline small enough for
  * sanitizers: 4 sequences of 24 frames, 64×32 training with a half-width
@@ -22,6 +23,8 @@
 #include "tests/torch_ref.h"
 #include <math.h>
 #include <stdio.h>
+#include <sys/wait.h>
+#include <unistd.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -41,7 +44,10 @@ static int reduced(void)
 /* Measured: after 600 steps, test AbsRel 0.5569 (im2col convolutions) but
  * 0.7105 and 0.6219 with the direct kernels and two batch-norm summation
  * orders — the 600-step outcome hangs on rounding.  900 steps (cosine
- * schedule over 900): 0.4390 against 0.6993 (constant) and 0.7181 (untrained).
+ * schedule over 900): 0.4390 against 0.6993 (constant) and 0.7181 (untrained);
+ * 0.3917 with the weight gradient along output channels, 0.5602 once the
+ * tie-break noise and the gradient norm changed their summation (again a
+ * rounding-level change: the outcome of this small run spreads 0.39…0.56).
  * Known weakness, not hidden: with model seeds 3 and 4 this recipe drifts to
  * the far bound on this small 160×96 data (AbsRel 2.9 and 9.2 after 900 steps;
  * the im2col build of the previous release does the same), so the test pins
@@ -58,8 +64,11 @@ static const char *MONO_CONFIG =
  * convolutions and 0.2031 with the direct kernels (rounding differs, the run
  * follows another path): too close to 0.2.  1300 steps measured 0.1739,
  * 0.1778 and 0.2011 under three summation orders; 1600 steps 0.1721, 0.1637
- * (runs by hand) and 0.1805 (this test on a clean clone, same build — the gap
- * to the hand run is not explained yet; 30-step runs repeat bit for bit). */
+ * by hand.  This test used to get 0.1805 and 0.2027 from "1600 steps": the
+ * runs were cut at about 1070 steps by the default 5-minute time budget (the
+ * hand runs were not), which --minutes 0 now switches off and the step check
+ * now catches.  With the weight gradient along output channels and the
+ * counter-keyed tie-break noise: 0.1749 after 1600 steps, 0.1798 after 1300. */
 static const char *STEREO_CONFIG =
     "{ \"run\": { \"name\": \"e2e-stereo\", \"seed\": 2, \"threads\": 1, \"log_every\": 10,\n"
     "           \"validate_every\": 0, \"checkpoint_minutes\": 50, \"keep_last\": 1 },\n"
@@ -104,6 +113,17 @@ static int loss_ends(const char *log, int k, double *first, double *last)
     return 0;
 }
 
+/* The step of a run's "end" record in log.jsonl, or -1. */
+static long end_step(const char *jsonl)
+{
+    char *text = e2e_slurp(jsonl, NULL);
+    if (!text) return -1;
+    char *e = strstr(text, "\"type\":\"end\""), *st = e ? strstr(e, "\"step\":") : NULL;
+    long v = st ? atol(st + 7) : -1;
+    free(text);
+    return v;
+}
+
 static int train_and_eval(const char *dir, const char *tag, const char *config_text,
                           const char *steps, const char *data, const char *eval_extra)
 {
@@ -111,12 +131,19 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
     snprintf(cfg, sizeof cfg, "%s/%s.json", dir, tag);
     e2e_write(cfg, config_text);
     snprintf(log, sizeof log, "%s/%s-train.txt", dir, tag);
-    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/%s --steps %s", e2e_bin(),
-             cfg, data, dir, tag, reduced() ? REDUCED_STEPS : steps);
+    /* --minutes 0: no time budget (the default is 5 minutes), so a busy or
+     * slow machine runs the same steps as an idle one */
+    const char *want = reduced() ? REDUCED_STEPS : steps;
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/%s --steps %s --minutes 0",
+             e2e_bin(), cfg, data, dir, tag, want);
     int rc = e2e_run(cmd, log);
-    char name[128];
+    char name[128], jsonl[1024];
+    snprintf(jsonl, sizeof jsonl, "%s/%s/log.jsonl", dir, tag);
+    long ended = rc == 0 ? end_step(jsonl) : -1;
     snprintf(name, sizeof name, "%s training runs to its step budget", tag);
-    if (!check(rc == 0, name, "exit %d (log %s)", rc, log)) return -1;
+    if (!check(rc == 0 && ended == atol(want), name, "exit %d, ended at step %ld of %s (log %s)", rc,
+               ended, want, log))
+        return -1;
     snprintf(log, sizeof log, "%s/%s-eval.txt", dir, tag);
     snprintf(cmd, sizeof cmd, "%s eval --model %s/%s/final.ckpt --data %s --split test --out %s/%s.metrics.json %s", e2e_bin(),
              dir, tag, data, dir, tag, eval_extra);
@@ -223,8 +250,29 @@ int main(void)
     char dir[256];
     if (!check(e2e_have_binary(), "./nightjar is built", "run from the repository root after make")) return test_exit();
     if (ref_mkdtemp(dir, sizeof dir, "e2e")) { check(0, "temp folder", "%s", dir); return test_exit(); }
+    /* the two cases train one thread each: run them side by side on the two
+     * cores, the stereo case in a child whose report is printed after mono's */
+    char out[300];
+    snprintf(out, sizeof out, "%s/stereo-checks.txt", dir);
+    fflush(stdout);
+    pid_t pid = fork();
+    if (pid == 0) {
+        if (!freopen(out, "w", stdout)) _exit(3);
+        stereo(dir);
+        fflush(stdout);
+        _exit(test_failures() ? 1 : 0);
+    }
+    if (pid < 0) stereo(dir);
     mono(dir);
-    stereo(dir);
+    if (pid > 0) {
+        int st = 0;
+        pid_t w = waitpid(pid, &st, 0);
+        char *text = e2e_slurp(out, NULL);
+        if (text) fputs(text, stdout);
+        free(text);
+        check(w == pid && WIFEXITED(st) && WEXITSTATUS(st) == 0, "stereo case (run beside the monocular one) passes",
+              "child status %d", st);
+    }
     if (!test_failures()) ref_rmtree(dir);
     else printf("# kept %s for inspection\n", dir);
     return test_exit();

@@ -16,7 +16,8 @@ static void usage(FILE *f)
         "  --config   training configuration (see configs/)\n"
         "  --data     dataset description, overrides data.dataset\n"
         "  --out      run folder (default checkpoints/<run name>)\n"
-        "  --minutes, --hours  time budget; --steps  step budget\n"
+        "  --minutes, --hours  time budget (0: none, the run then needs --steps or run.max_steps);\n"
+        "             --steps  step budget; with both, the run ends at whichever comes first\n"
         "  --resume   continue the run in --out from its newest readable checkpoint\n"
         "  --init     start from another run's weights (same architecture): a checkpoint,\n"
         "             or an export made with --format safetensors\n"
@@ -69,7 +70,7 @@ static int parse_args(int argc, char **argv, train_args *a)
                              : !strcmp(o, "--out") ? &a->out : &a->init;
             *dst = argv[++i];
         } else if (!strcmp(o, "--minutes") || !strcmp(o, "--hours")) {
-            if (need_value(i, argc, argv) || parse_number(o, argv[i + 1], 1e-6, &v)) return -1;
+            if (need_value(i, argc, argv) || parse_number(o, argv[i + 1], 0, &v)) return -1;
             a->minutes = !strcmp(o, "--hours") ? v * 60 : v;
             i++;
         } else if (!strcmp(o, "--steps") || !strcmp(o, "--threads") || !strcmp(o, "--seed")) {

@@ -413,18 +413,20 @@ static void dwo_range(const nj_dconv *D, const stage *st, const int *off, const 
     }
 }
 
-/* One thread's share: combinations [k0, k1) over every (sample, band). */
-static void dwo_share(const nj_dconv *D, const float *x, const float *dy, int band, int k0, int k1,
-                      float *buf, float *dwt)
+/* Combinations [k0, k1) over every (sample, band), with dy already transposed
+ * for the whole batch (dyt_all, sample n at n·oh·ow·cp). */
+static void dwo_chunk(const nj_dconv *D, const float *x, const float *dyt_all, int band, int k0,
+                      int k1, float *buf, float *dwt)
 {
     int taps = D->kh * D->kw, nb = band_count(D->oh, band);
     int c0 = k0 / taps, c1 = (k1 + taps - 1) / taps, off[MAX_TAPS];
+    size_t cp = dwo_cp(D);
+    memset(dwt + (size_t)k0 * cp, 0, sizeof(float) * (size_t)(k1 - k0) * cp);
     for (int it = 0; it < D->n * nb; it++) {
         int n = it / nb, k = it % nb, oy0 = k * band, oy1 = k == nb - 1 ? D->oh : oy0 + band;
         stage st;
         stage_band(D, x, n, oy0, oy1, c0, c1, buf, &st, off);
-        float *dyt = buf + (size_t)(c1 - c0) * st.cs;
-        dwo_transpose(D, dy, n, oy0, st.rows, dyt);
+        const float *dyt = dyt_all + ((size_t)n * D->oh + (size_t)oy0) * D->ow * cp;
         dwo_range(D, &st, off, buf, c0, dyt, k0, k1, dwt);
     }
 }
@@ -528,18 +530,23 @@ static size_t dw_part_floats(const nj_dconv *D)
 static size_t dw_per_thread(const nj_dconv *D, int band)
 {
     int rows = last_band_rows(D->oh, band);
+    if (dw_along_outputs(D)) return round_upz(stage_floats(D, rows), VL);
     stage st;
     stage_geom(D, rows, &st);
-    size_t dy = dw_along_outputs(D) ? (size_t)rows * D->ow * dwo_cp(D)
-                                    : (size_t)D->cout * round_upz((size_t)rows * st.L, VL);
-    return round_upz(stage_floats(D, rows) + round_upz(dy, VL), VL) +
-           (dw_along_outputs(D) ? 0 : dw_part_floats(D));
+    size_t dy = (size_t)D->cout * round_upz((size_t)rows * st.L, VL);
+    return round_upz(stage_floats(D, rows) + round_upz(dy, VL), VL) + dw_part_floats(D);
+}
+
+/* Along outputs: the whole batch's dy transposed, then the shared dwt. */
+static size_t dwo_shared_floats(const nj_dconv *D)
+{
+    return round_upz((size_t)D->n * D->oh * D->ow * dwo_cp(D), VL) + dw_part_floats(D);
 }
 
 size_t nj_dconv_dw_scratch(const nj_dconv *D, int threads)
 {
     return (size_t)threads * dw_per_thread(D, dw_band(D)) +
-           (dw_along_outputs(D) ? dw_part_floats(D) : 0);
+           (dw_along_outputs(D) ? dwo_shared_floats(D) : 0);
 }
 
 /* Along positions: item (sample, band) added into one thread's partial part[o][k]. */
@@ -579,27 +586,37 @@ static void dwq_all(const nj_dconv *D, const float *x, const float *dy, float *d
     }
 }
 
-/* Along outputs: thread t owns whole groups of 9 combinations for every item,
- * accumulating into the shared dwt[k][cp]; then dw[o][k] += dwt[k][o].  Every
- * element is summed by one thread in item order, whatever the thread count. */
+/* Along outputs: dy is transposed for the whole batch, then chunks of whole
+ * groups of 9 combinations are taken by whichever thread is free (the two
+ * cores of a VM need not run at the same speed), each over every item into the
+ * shared dwt[k][cp]; then dw[o][k] += dwt[k][o].  Every element is summed by
+ * one thread in item order, whatever the thread count or the schedule. */
 static void dwo_all(const nj_dconv *D, const float *x, const float *dy, float *dw, float *scratch,
                     int par)
 {
     int band = dw_band(D), threads = par ? omp_get_max_threads() : 1;
-    int kk = D->cin * D->kh * D->kw, groups = (kk + 8) / 9;
+    int kk = D->cin * D->kh * D->kw, groups = (kk + 8) / 9, rows_per = 8;
+    int chunks = par ? (groups < 4 * threads ? groups : 4 * threads) : 1;
+    int row_items = D->n * ((D->oh + rows_per - 1) / rows_per), per_n = row_items / D->n;
     size_t cp = dwo_cp(D), per = dw_per_thread(D, band);
-    float *dwt = scratch + (size_t)threads * per;
+    float *dyt_all = scratch + (size_t)threads * per;
+    float *dwt = dyt_all + round_upz((size_t)D->n * D->oh * D->ow * cp, VL);
     #pragma omp parallel num_threads(threads) if (par)
     {
-        int t = omp_get_thread_num(), nt = omp_get_num_threads();
-        int k0 = 9 * (int)((long)groups * t / nt), k1 = 9 * (int)((long)groups * (t + 1) / nt);
-        if (k1 > kk) k1 = kk;
-        if (k0 < k1) {
-            memset(dwt + (size_t)k0 * cp, 0, sizeof(float) * (size_t)(k1 - k0) * cp);
-            dwo_share(D, x, dy, band, k0, k1, scratch + (size_t)t * per, dwt);
+        float *buf = scratch + (size_t)omp_get_thread_num() * per;
+        #pragma omp for schedule(dynamic, 1)
+        for (int it = 0; it < row_items; it++) {
+            int n = it / per_n, oy0 = (it % per_n) * rows_per;
+            int rows = oy0 + rows_per < D->oh ? rows_per : D->oh - oy0;
+            dwo_transpose(D, dy, n, oy0, rows, dyt_all + ((size_t)n * D->oh + (size_t)oy0) * D->ow * cp);
         }
-        #pragma omp barrier
-        #pragma omp for schedule(static)
+        #pragma omp for schedule(dynamic, 1)
+        for (int c = 0; c < chunks; c++) {
+            int k0 = 9 * (int)((long)groups * c / chunks), k1 = 9 * (int)((long)groups * (c + 1) / chunks);
+            if (k1 > kk) k1 = kk;
+            if (k0 < k1) dwo_chunk(D, x, dyt_all, band, k0, k1, buf, dwt);
+        }
+        #pragma omp for schedule(dynamic, 4)
         for (int kb = 0; kb < kk; kb += VL) {
             int ke = kb + VL < kk ? kb + VL : kk;
             for (int o = 0; o < D->cout; o++)

@@ -33,10 +33,12 @@ nj_tensor *nj_concat(nj_graph *g, nj_tensor *a, nj_tensor *b)
     nj_tensor *y = nj_op_output(g, a->n, a->c + b->c, a->h, a->w, in, 2);
     if (!y) return NULL;
     size_t hw = (size_t)a->h * a->w, na = (size_t)a->c * hw, nb = (size_t)b->c * hw;
-    for (int n = 0; n < a->n; n++) {
+    #pragma omp parallel for schedule(static) if (nj_numel(y) > 65536)
+    for (int k = 0; k < 2 * a->n; k++) {
+        int n = k / 2;
         float *dst = y->data + (size_t)n * (na + nb);
-        memcpy(dst, a->data + (size_t)n * na, na * sizeof(float));
-        memcpy(dst + na, b->data + (size_t)n * nb, nb * sizeof(float));
+        if (k % 2 == 0) memcpy(dst, a->data + (size_t)n * na, na * sizeof(float));
+        else memcpy(dst + na, b->data + (size_t)n * nb, nb * sizeof(float));
     }
     nj_graph_record(g, "concat", concat_backward, y, in, 2);
     return y;

@@ -273,13 +273,15 @@ size_t nj_dconv_forward_scratch(const nj_dconv *D, int threads)
     return weight_floats(D) + (size_t)threads * fwd_per_thread(D, fwd_band(D));
 }
 
-/* wt[(c·taps + t)·cout + o] = w[o][c][t]. */
+/* wt[(c·taps + t)·cout + o] = w[o][c][t]; channels in parallel (each writes
+ * its own block). */
 static void forward_weights(const nj_dconv *D, const float *w, float *wt)
 {
     int taps = D->kh * D->kw;
-    for (int o = 0; o < D->cout; o++)
-        for (int c = 0; c < D->cin; c++)
-            for (int t = 0; t < taps; t++)
+    #pragma omp parallel for schedule(static) if ((long)D->cin * taps * D->cout > 65536)
+    for (int c = 0; c < D->cin; c++)
+        for (int t = 0; t < taps; t++)
+            for (int o = 0; o < D->cout; o++)
                 wt[((size_t)c * taps + t) * D->cout + o] = w[((size_t)o * D->cin + c) * taps + t];
 }
 
@@ -695,13 +697,21 @@ size_t nj_dconv_dx_scratch(const nj_dconv *D, int threads)
 static void dx_weights(const nj_dconv *D, const float *w, float *wt)
 {
     int s = D->stride;
+    size_t base = 0;
     for (int py = 0; py < s; py++)
-        for (int px = 0; px < s; px++)
-            for (int o = 0; o < D->cout; o++)
+        for (int px = 0; px < s; px++) {
+            int ny = (D->kh - py + s - 1) / s, nx = (D->kw - px + s - 1) / s;
+            size_t per_o = (size_t)ny * nx * D->cin;
+            #pragma omp parallel for schedule(static) if ((long)per_o * D->cout > 65536)
+            for (int o = 0; o < D->cout; o++) {
+                float *d = wt + base + (size_t)o * per_o;
                 for (int ky = py; ky < D->kh; ky += s)
                     for (int kx = px; kx < D->kw; kx += s)
                         for (int c = 0; c < D->cin; c++)
-                            *wt++ = w[(((size_t)o * D->cin + c) * D->kh + ky) * D->kw + kx];
+                            *d++ = w[(((size_t)o * D->cin + c) * D->kh + ky) * D->kw + kx];
+            }
+            base += per_o * D->cout;
+        }
 }
 
 /* Tap offsets of phase (py, px); returns the tap count. */

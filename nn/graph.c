@@ -124,7 +124,7 @@ void *nj_graph_scratch_zero(nj_graph *g, size_t bytes)
  * every gradient buffer zeroed, and on one thread that is a serial stretch). */
 static void zero_floats(float *p, size_t n)
 {
-    enum { SPAN = 1 << 16 };
+    enum { SPAN = 1 << 14 };
     if (n < 4 * (size_t)SPAN) {
         memset(p, 0, sizeof(float) * n);
         return;

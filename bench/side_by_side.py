@@ -4,7 +4,8 @@
 Runs, in one go and alternating the two implementations, the training step of the same recipe
 (nightjar: ./nightjar bench --profile; PyTorch: bench/torch_recipe.py --bench) at
   320x96 batch 4 with 1 and 2 threads, and 416x128 batch 4 with 2 threads,
-each as its own process (so peak RSS is per implementation and configuration): median ms/step
+each as its own process (so peak RSS is per implementation and configuration; 1-thread
+configurations pinned to one core for both, see one_core): median ms/step
 over STEPS steps after WARMUP warm-up steps, repeated for ROUNDS rounds over all configurations
 (which implementation goes first alternates); the table shows the median over rounds and each
 round's ratio.  On this shared 2-core VM single rounds were seen to swing PyTorch's 1-thread step
@@ -32,8 +33,17 @@ def fields(text):
     return out
 
 
-def run(cmd, env=None):
-    p = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, env=env)
+def one_core(threads):
+    """1-thread configurations run pinned to one core, both implementations: PyTorch with one
+    intra-op thread was measured using ~1.2 cores (CPU time / wall time) without it."""
+    if threads != 1:
+        return None
+    core = min(os.sched_getaffinity(0))
+    return lambda: os.sched_setaffinity(0, {core})
+
+
+def run(cmd, env=None, threads=2):
+    p = subprocess.run(cmd, cwd=ROOT, capture_output=True, text=True, env=env, preexec_fn=one_core(threads))
     if p.returncode != 0:
         sys.exit("side_by_side: %s failed (%d):\n%s%s" % (" ".join(cmd), p.returncode, p.stdout, p.stderr))
     return p.stdout
@@ -41,15 +51,16 @@ def run(cmd, env=None):
 
 def nightjar(size, batch, threads, a):
     out = run(["./nightjar", "bench", "--size", size, "--batch", str(batch), "--threads", str(threads),
-               "--steps", str(a.steps), "--warmup", str(a.warmup), "--profile"])
+               "--steps", str(a.steps), "--warmup", str(a.warmup), "--profile"], threads=threads)
     prof = [l for l in out.splitlines() if l.startswith("profile")]
     return fields(out), prof[0] if prof else ""
 
 
 def torch(size, batch, threads, a):
-    env = dict(os.environ, OMP_NUM_THREADS=str(threads))
+    env = dict(os.environ, OMP_NUM_THREADS=str(threads), OPENBLAS_NUM_THREADS=str(threads),
+               MKL_NUM_THREADS=str(threads))
     out = run(["/usr/bin/python3", "bench/torch_recipe.py", "--bench", "--size", size, "--batch", str(batch),
-               "--threads", str(threads), "--steps", str(a.steps), "--warmup", str(a.warmup)], env)
+               "--threads", str(threads), "--steps", str(a.steps), "--warmup", str(a.warmup)], env, threads)
     return fields(out)
 
 

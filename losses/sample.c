@@ -6,7 +6,7 @@
 /* Corner indices and weights of one sample; dx/dy are 0 where clamped. */
 typedef struct { int x0, x1, y0, y1; float wx, wy, dx, dy; } tap;
 
-static tap make_tap(float x, float y, int W, int H)
+static inline tap make_tap(float x, float y, int W, int H)
 {
     tap t;
     t.dx = (x > 0 && x < W - 1) ? 1.0f : 0.0f;
@@ -23,7 +23,7 @@ static tap make_tap(float x, float y, int W, int H)
     return t;
 }
 
-static float interp(const float *p, int W, tap t)
+static inline float interp(const float *p, int W, tap t)
 {
     float a = p[t.y0 * W + t.x0], b = p[t.y0 * W + t.x1];
     float c = p[t.y1 * W + t.x0], d = p[t.y1 * W + t.x1];
@@ -39,6 +39,7 @@ static void sample_forward(const nj_tensor *img, const nj_tensor *co, nj_tensor 
         for (int v = 0; v < Ho; v++) {
             const float *cx = co->data + (size_t)n * 2 * out_plane + (size_t)v * Wo;
             const float *cy = cx + out_plane;
+            #pragma omp simd
             for (int u = 0; u < Wo; u++) {
                 tap t = make_tap(cx[u], cy[u], W, H);
                 for (int c = 0; c < C; c++)
@@ -57,6 +58,7 @@ static void coords_backward(const nj_tensor *img, const nj_tensor *co, const nj_
     for (int n = 0; n < N; n++)
         for (int v = 0; v < Ho; v++) {
             size_t off = (size_t)n * 2 * out_plane + (size_t)v * Wo;
+            #pragma omp simd
             for (int u = 0; u < Wo; u++) {
                 tap t = make_tap(co->data[off + u], co->data[off + out_plane + u], W, H);
                 float gx = 0, gy = 0;

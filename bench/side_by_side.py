@@ -34,8 +34,9 @@ def fields(text):
 
 
 def one_core(threads):
-    """1-thread configurations run pinned to one core, both implementations: PyTorch with one
-    intra-op thread was measured using ~1.2 cores (CPU time / wall time) without it."""
+    """1-thread configurations run pinned to one core, both implementations, so neither can use
+    the second core through helper threads (the CPU-time column is a mean over steps and the
+    step time a median, so their ratio alone does not show whether one did)."""
     if threads != 1:
         return None
     core = min(os.sched_getaffinity(0))

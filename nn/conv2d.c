@@ -1,7 +1,8 @@
 /* nn/conv2d.c — 2-D convolution, forward and backward: the op, its shape
  * checks, and the choice between the direct kernels (nn/conv_direct.c, for the
- * geometries nj_dconv_suits picks) and im2col + sgemm (Chellapilla, Puri &
- * Simard 2006), which this file implements for the rest.
+ * geometries nj_dconv_suits picks, forward and backward decided apart) and
+ * im2col + sgemm (Chellapilla, Puri & Simard 2006), which this file implements
+ * for the rest.
  *
  * The output of each sample is cut into bands of whole output rows.  A band's
  * im2col tile (Cin·kh·kw rows × band pixels) is built in per-thread scratch
@@ -291,7 +292,8 @@ static void reduce_dw(const float *parts, int nparts, size_t wsize, float *dw, i
     }
 }
 
-/* The direct-kernel description of a stride-1 geometry, or 0 when im2col suits it better. */
+/* The direct-kernel description of the geometry for the forward (backward = 0)
+ * or backward pass; 0 when im2col + sgemm suits that pass better. */
 static int direct_kernel(const conv_geom *G, nj_dconv *D, int backward)
 {
     if (G->direct) return 0;

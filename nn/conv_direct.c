@@ -29,7 +29,7 @@
 #define MAX_TAPS 64
 #define BAND_BYTES (192 * 1024)     /* target size of one thread's staged input band */
 #define MIN_BANDS 4                 /* bands per sample, for balance across threads */
-#define DW_BAND_BYTES (1024 * 1024) /* the weight gradient's staged input + dy band */
+#define DW_BAND_BYTES (1024 * 1024) /* the weight gradient's band budget (see dw_band) */
 #define DW_MIN_PIXELS 2048
 
 typedef float vf __attribute__((vector_size(VL * sizeof(float))));
@@ -319,19 +319,23 @@ void nj_dconv_forward(const nj_dconv *D, const float *x, const float *w, const f
 
 /* ---- weight gradient ----------------------------------------------------
  * dW[o][c][t] = Σ_q dy[o][q] · staged[c][off[t] + q] over the valid positions
- * of a band.  Items are (sample, band); each thread adds into its own partial
- * dW, and the partials are summed in thread order, so dW is the same from run
- * to run at a given thread count.
+ * of each (sample, band).
  *
- * From 16 output channels on, the kernel runs along output channels: the band
- * of dy is transposed to position-major rows of cp = cout rounded up to 16
- * floats, and a block of 9 (channel, tap) combinations × NO·16 output channels
- * is held in vector registers while the band's positions stream past (one
- * broadcast input value and NO dy vectors per position; no horizontal sums).
- * The partial is kept transposed, [combination][cp], and transposed back when
- * the threads' partials are summed.  Below 16 output channels (the disparity
- * heads) the kernel runs along positions: 9 taps × 2 output channels of
- * position vectors, reduced once per band. */
+ * From 16 output channels on, the kernel runs along output channels: dy of
+ * the whole batch is transposed to position-major rows of cp = cout rounded
+ * up to 16 floats, and a block of 9 (channel, tap) combinations × 16 or 32
+ * output channels is held in vector registers while a band's positions
+ * stream past (one broadcast input value and 1–2 dy vectors per position; no
+ * horizontal sums).  Chunks of combination groups go to whichever thread is
+ * free and accumulate into a shared transposed dwt[combination][cp], which is
+ * added into dW at the end; every element is summed by one thread in item
+ * order, so dW does not depend on the thread count or the schedule.
+ *
+ * Below 16 output channels (the disparity heads) the kernel runs along
+ * positions: 9 taps × 2 output channels of position vectors, reduced once per
+ * band; items (sample, band) go to threads statically, each adding into its
+ * own partial dW, and the partials are summed in thread order (reproducible
+ * at a given thread count). */
 
 #define NINE(M) M(0) M(1) M(2) M(3) M(4) M(5) M(6) M(7) M(8)
 
@@ -514,6 +518,9 @@ static int dw_along_outputs(const nj_dconv *D) { return D->cout >= VL; }
 
 static int dw_band(const nj_dconv *D)
 {
+    /* sized as measured: a staged row of every input channel plus a dy row
+     * (along outputs a chunk stages only its channels and dy lives elsewhere,
+     * so the band is smaller than the budget needs; changing it reorders sums) */
     int L = D->ow + D->kw;
     long row = (long)D->cin * D->stride * D->stride * L + (long)round_up(D->cout, VL) * L;
     /* along positions: bands of ≥ DW_MIN_PIXELS keep the per-band reductions cheap */
@@ -568,7 +575,8 @@ static void dwq_all(const nj_dconv *D, const float *x, const float *dy, float *d
 {
     int band = dw_band(D), nb = band_count(D->oh, band), items = D->n * nb;
     int threads = par ? omp_get_max_threads() : 1;
-    size_t per = dw_per_thread(D, band), pf = dw_part_floats(D), wsize = pf;
+    size_t per = dw_per_thread(D, band), pf = dw_part_floats(D);
+    size_t wsize = (size_t)D->cout * D->cin * D->kh * D->kw;
     #pragma omp parallel num_threads(threads) if (par)
     {
         float *buf = scratch + (size_t)omp_get_thread_num() * per;
@@ -581,7 +589,6 @@ static void dwq_all(const nj_dconv *D, const float *x, const float *dy, float *d
             dwq_band(D, x, dy, it / nb, oy0, oy1, buf, part);
         }
     }
-    wsize = (size_t)D->cout * D->cin * D->kh * D->kw;
     for (int t = 0; t < threads; t++) {
         const float *part = scratch + (size_t)(t + 1) * per - pf;
         for (size_t i = 0; i < wsize; i++) dw[i] += part[i];

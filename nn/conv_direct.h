@@ -6,12 +6,14 @@
  * per-thread band of the padded input staged as stride×stride phase planes.
  * The input gradient is the same correlation applied to the zero-extended
  * output gradient (per input phase for stride 2), with the padding folded
- * back; the weight gradient accumulates 9 taps × 2 output channels at a time
- * in registers.  Details in conv_direct.c.
+ * back; the weight gradient holds 9 (channel, tap) combinations × 16–32 output
+ * channels in registers (below 16 outputs: 9 taps × 2 outputs of position
+ * vectors).  Details in conv_direct.c.
  *
- * Outputs and dx do not depend on the thread count: every element is summed by
- * one thread in a fixed order.  dW is summed from per-thread partials (fixed
- * items per thread), so it is reproducible at a given thread count. */
+ * Outputs, dx and dW from 16 output channels do not depend on the thread
+ * count: every element is summed by one thread in a fixed order.  Below 16
+ * output channels dW is summed from per-thread partials (fixed items per
+ * thread), so it is reproducible at a given thread count. */
 #ifndef NJ_CONV_DIRECT_H
 #define NJ_CONV_DIRECT_H
 #include <stddef.h>

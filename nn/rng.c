@@ -42,7 +42,9 @@ double nj_rng_normal(nj_rng *r)
     return sqrt(-2.0 * log(u1)) * cos(6.283185307179586 * u2);
 }
 
-/* Standard normal number `c` of the stream keyed by `key`. */
+/* Standard normal number `c` of the stream keyed by `key`: splitmix64 (Steele,
+ * Lea & Flood 2014) of key + c·golden gamma gives two 24-bit uniforms, turned
+ * into a normal by the Box–Muller transform (Box & Muller 1958). */
 static float keyed_normal(uint64_t key, uint64_t c)
 {
     uint64_t x = key + c * 0x9E3779B97F4A7C15ull, z = splitmix64(&x);

@@ -11,7 +11,9 @@
  *
  * Kernel.  An OB-channel × NV·16-pixel block of outputs is accumulated in
  * named vector variables (registers) over every input channel and tap, then
- * stored once.  GCC vector extensions compile to AVX-512, AVX2 or SSE as the
+ * stored once.  The block shape (12×32, 8×48, 16×16 or 8×32) is picked per
+ * channel count and width by estimated cycles: wide blocks need fewer loads
+ * per multiply-add, narrow ones waste fewer lanes on small maps.  GCC vector extensions compile to AVX-512, AVX2 or SSE as the
  * -march allows; this file is built with -ffp-contract=fast so that
  * multiply-adds fuse.
  *
@@ -72,14 +74,17 @@ static inline void store_vec(float *d, vf a, int left)
  * a block, so that every accumulator is a named variable. */
 #define RV1(M, o) M(o, 0)
 #define RV2(M, o) M(o, 0) M(o, 1)
+#define RV3(M, o) M(o, 0) M(o, 1) M(o, 2)
 #define RV4(M, o) M(o, 0) M(o, 1) M(o, 2) M(o, 3)
 #define RO1(M, RV) RV(M, 0)
 #define RO4(M, RV) RV(M, 0) RV(M, 1) RV(M, 2) RV(M, 3)
 #define RO8(M, RV) RO4(M, RV) RV(M, 4) RV(M, 5) RV(M, 6) RV(M, 7)
+#define RO12(M, RV) RO8(M, RV) RV(M, 8) RV(M, 9) RV(M, 10) RV(M, 11)
 #define RO16(M, RV) RO8(M, RV) RV(M, 8) RV(M, 9) RV(M, 10) RV(M, 11) \
                     RV(M, 12) RV(M, 13) RV(M, 14) RV(M, 15)
 #define LOAD1(M) M(0)
 #define LOAD2(M) M(0) M(1)
+#define LOAD3(M) M(0) M(1) M(2)
 #define LOAD4(M) M(0) M(1) M(2) M(3)
 
 #define ACC_INIT(o, v) vf a_##o##_##v = (vf){0} + (bias ? bias[o0 + o] : 0.0f);
@@ -107,22 +112,63 @@ static inline void store_vec(float *d, vf a, int left)
         RO(ACC_STORE, RV)                                                             \
     }
 KERNEL(k16x1, RO16, RV1, LOAD1)
+KERNEL(k12x2, RO12, RV2, LOAD2)
+KERNEL(k8x3, RO8, RV3, LOAD3)
 KERNEL(k8x2, RO8, RV2, LOAD2)
 KERNEL(k4x4, RO4, RV4, LOAD4)
 KERNEL(k1x4, RO1, RV4, LOAD4)
 
 typedef void (*kernel_fn)(const corr_src *, const float *, int, const float *, float *, size_t, int);
 
-/* out[o][q] for q ∈ [0, nq), every channel o (plane stride ops). */
+/* A block shape: ob output channels × px positions, and its estimated cycles
+ * per (channel, tap) step on a core with two vector FMA and two load ports:
+ * the larger of ob·px/16 FMAs and ob + px/16 loads, halved, plus one for the
+ * loop (fitted to per-layer timings of the default nets within ~10 %). */
+typedef struct kernel_kind {
+    int ob, px;
+    kernel_fn f;
+    double cycles;
+} kernel_kind;
+
+static const kernel_kind MAIN_KINDS[] = {
+    {12, 2 * VL, k12x2, 13.0}, {8, 3 * VL, k8x3, 13.0}, {16, VL, k16x1, 9.5}, {8, 2 * VL, k8x2, 9.0}};
+/* The remainder's kinds, widest first: every channel count is covered. */
+static const kernel_kind REST_KINDS[] = {
+    {16, VL, k16x1, 9.5}, {8, 2 * VL, k8x2, 9.0}, {4, 4 * VL, k4x4, 9.0}, {1, 4 * VL, k1x4, 3.5}};
+#define NKINDS(a) (int)(sizeof a / sizeof a[0])
+
+/* Estimated cycles per (channel, tap) of covering o channels × nq positions
+ * with `main` as often as it fits, then the remainder kinds; with S given,
+ * also runs those kernels. */
+static double block_plan(const kernel_kind *main, int o, int nq, const corr_src *S,
+                         const float *bias, float *out, size_t ops)
+{
+    double cost = 0;
+    int o0 = 0;
+    for (int k = -1; k < NKINDS(REST_KINDS); k++) {
+        const kernel_kind *K = k < 0 ? main : &REST_KINDS[k];
+        for (; o0 + K->ob <= o; o0 += K->ob) {
+            cost += K->cycles * (double)((nq + K->px - 1) / K->px);
+            if (!S) continue;
+            for (int q = 0; q < nq; q += K->px)
+                K->f(S, S->in + q, o0, bias, out + (size_t)o0 * ops + q, ops, nq - q);
+        }
+    }
+    return cost;
+}
+
+/* out[o][q] for q ∈ [0, nq), every channel o (plane stride ops), by the main
+ * block shape of least estimated cost for this channel count and width (the
+ * shape changes only which outputs share a block, not any output's sum). */
 static void correlate(const corr_src *S, const float *bias, float *out, size_t ops, int nq)
 {
-    static const struct { int ob, px; kernel_fn f; } kinds[] = {
-        {16, VL, k16x1}, {8, 2 * VL, k8x2}, {4, 4 * VL, k4x4}, {1, 4 * VL, k1x4}};
-    int o0 = 0;
-    for (size_t k = 0; k < sizeof kinds / sizeof kinds[0]; k++)
-        for (; o0 + kinds[k].ob <= S->o; o0 += kinds[k].ob)
-            for (int q = 0; q < nq; q += kinds[k].px)
-                kinds[k].f(S, S->in + q, o0, bias, out + (size_t)o0 * ops + q, ops, nq - q);
+    int best = 0;
+    double best_cost = 0;
+    for (int k = 0; k < NKINDS(MAIN_KINDS); k++) {
+        double c = block_plan(&MAIN_KINDS[k], S->o, nq, NULL, NULL, NULL, 0);
+        if (k == 0 || c < best_cost) best = k, best_cost = c;
+    }
+    block_plan(&MAIN_KINDS[best], S->o, nq, S, bias, out, ops);
 }
 
 /* Reads past the last flat index: the widest block (4·VL) plus the largest

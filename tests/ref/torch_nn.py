@@ -129,7 +129,10 @@ def direct_conv_cases(wr):
     (every channel-block size, both paddings, several bands, small maps), stride 2
     with 7x7 or 5x5 kernels and >= 40 output columns, and the backward pass of
     every stride-2 conv (3x3 included); weight gradients along output channels
-    (>= 16: vectors of 32 and 16, 9-combination groups spanning channels)."""
+    (>= 16: vectors of 32 and 16, 9-combination groups spanning channels).  The
+    block shape is picked per channel count and map width: among these cases each
+    of 12x32, 8x48, 16x16 and 8x32 (channels x positions) is picked, with channel
+    remainders of 16, 8, 4 and 1 (e.g. cout 17: 2x 8x48 + 1; cout 33: 2x 12x32 + 8 + 1)."""
     specs = [  # n, cin, h, w, cout, k, stride, pad, mode, bias
         (2, 3, 11, 45, 17, 3, 1, 1, "zero", True),
         (2, 5, 37, 67, 24, 3, 1, 1, "reflect", False),

@@ -873,13 +873,17 @@ int nj_dconv_suits(const nj_dconv *D, int backward)
 {
     if (D->kh * D->kw > MAX_TAPS || (D->stride != 1 && D->stride != 2) || D->kh * D->kw == 1) return 0;
     /* measured per layer of the default nets (320x96, 1 thread, forward and
-     * backward timed apart): at stride 1 up to 128 output channels at any map
-     * size, and the 1-channel disparity heads; im2col + sgemm wins for the
-     * bottleneck's 256-channel outputs.  At stride 2 the backward pass always
-     * (the weight gradient's positions stream past 9 taps × 32 channels held
-     * in registers), the forward pass for the pose net's 7×7 and 5×5 kernels
-     * on maps of ≥ 40 columns (3×3 kernels have a quarter of their taps per
-     * phase, too few to hide the staging). */
-    if (D->stride == 2) return backward || (D->kh * D->kw >= 25 && D->ow >= 40);
-    return D->cout <= 128;
+     * backward timed apart): im2col + sgemm wins only where a sample's output
+     * map is tiny (the 3×10 bottleneck: 30 positions fill 16-lane vectors
+     * poorly), and for 3×3 stride-2 forwards from few input channels (a
+     * quarter of the taps per phase, too little work to hide the staging).
+     * At stride 2 the backward pass always (the weight gradient's positions
+     * stream past 9 taps × 32 channels held in registers), the forward pass for
+     * the pose net's 7×7 and 5×5 kernels on maps of ≥ 40 columns and for 3×3
+     * kernels from ≥ 32 channels onto ≥ 64 positions. */
+    int positions = D->oh * D->ow;
+    if (D->stride == 2)
+        return backward || (D->kh * D->kw >= 25 && D->ow >= 40) ||
+               (D->cin >= 32 && positions >= 64);
+    return D->cout <= 128 || positions >= 64;
 }

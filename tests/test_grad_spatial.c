@@ -99,6 +99,12 @@ static void test_conv_grads(void)
          NJ_PAD_REFLECT, 0, 0.25f},
         {"conv 3x3 stride 2 zero backward direct cout 33", 2, 2, 9, 22, 33, 3, 3, 2, 1, NJ_PAD_ZERO,
          1, 0.25f},
+        /* forward direct too: 3×3 stride 2 from ≥ 32 channels onto ≥ 64
+         * positions, and stride 1 beyond 128 outputs on ≥ 64 positions */
+        {"conv direct 3x3 stride 2 zero cin 32 (forward direct)", 1, 32, 16, 20, 8, 3, 3, 2, 1,
+         NJ_PAD_ZERO, 1, 0.25f},
+        {"conv direct 3x3 reflect cout 136 on 8x12", 1, 2, 8, 12, 136, 3, 3, 1, 1, NJ_PAD_REFLECT, 1,
+         0.25f},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) check_conv(&cases[i]);
 }
@@ -330,7 +336,9 @@ static void test_threads_and_accumulation(void)
          NJ_PAD_REFLECT, 1, 0},
         {"direct 3x3 reflect small map cin 96 cout 128", 4, 96, 6, 20, 128, 3, 3, 1, 1,
          NJ_PAD_REFLECT, 1, 0},
-        {"3x3 stride 2 zero backward direct cout 64", 3, 32, 24, 80, 64, 3, 3, 2, 1, NJ_PAD_ZERO, 1, 0},
+        {"3x3 stride 2 zero direct cout 64", 3, 32, 24, 80, 64, 3, 3, 2, 1, NJ_PAD_ZERO, 1, 0},
+        {"direct 3x3 reflect cin 64 cout 144 on 6x20", 2, 64, 6, 20, 144, 3, 3, 1, 1, NJ_PAD_REFLECT,
+         1, 0},
     };
     int saved = omp_get_max_threads();
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {

@@ -126,9 +126,10 @@ def conv_cases(wr):
 
 def direct_conv_cases(wr):
     """Convs that take nightjar's direct kernels: stride 1 up to 128 output channels
-    (every channel-block size, both paddings, several bands, small maps), stride 2
-    with 7x7 or 5x5 kernels and >= 40 output columns, and the backward pass of
-    every stride-2 conv (3x3 included); weight gradients along output channels
+    (every channel-block size, both paddings, several bands, small maps) and beyond
+    128 on maps of >= 64 positions, stride 2 with 7x7 or 5x5 kernels and >= 40
+    output columns or 3x3 kernels from >= 32 channels onto >= 64 positions, and the
+    backward pass of every stride-2 conv (3x3 included); weight gradients along output channels
     (>= 16: vectors of 32 and 16, 9-combination groups spanning channels).  The
     block shape is picked per channel count and map width: among these cases each
     of 12x32, 8x48, 16x16 and 8x32 (channels x positions) is picked, with channel
@@ -149,6 +150,8 @@ def direct_conv_cases(wr):
         (2, 5, 11, 30, 33, 3, 2, 1, "zero", True),
         (2, 3, 9, 31, 20, 5, 1, 2, "reflect", False),
         (1, 24, 3, 10, 128, 3, 1, 1, "reflect", True),
+        (2, 32, 20, 36, 24, 3, 2, 1, "zero", True),
+        (1, 8, 8, 12, 136, 3, 1, 1, "reflect", True),
     ]
     for n, cin, h, w, cout, k, st, pad, mode, bias in specs:
         name = "conv2d direct k%d s%d %s pad%d %dx%d cout %d" % (k, st, mode, pad, h, w, cout)

@@ -27,7 +27,9 @@ Modes (run with Debian's /usr/bin/python3):
                  DIR/torch_loss.npy and DIR/torch_grad_<param>.npy for every parameter; the
                  same in float32 as DIR/torch32_loss.npy and DIR/torch32_grad_<param>.npy.
   --bench        time the training step: --size WxH --batch N --threads N --steps N --warmup N;
-                 ends with the line "ms_per_step=X peak_rss_mb=Y".
+                 ends with the line "ms_per_step=X peak_rss_mb=Y".  With --paced every
+                 step (warm-up included) waits for a line on standard input and is followed
+                 by a line "step_ms=X" (bench/side_by_side.py alternates step by step).
 """
 import argparse
 import os
@@ -296,6 +298,8 @@ def mode_bench(a):
     cams = torch.tensor([[0.58 * w, 1.92 * h, 0.5 * w, 0.5 * h]] * a.batch)
     times = []
     for i in range(a.warmup + a.steps):
+        if a.paced and not sys.stdin.readline():
+            sys.exit("torch_recipe: --paced: standard input ended before step %d" % (i + 1))
         if i == a.warmup:
             cpu0 = time.process_time()
         t0 = time.perf_counter()
@@ -304,8 +308,11 @@ def mode_bench(a):
         loss.backward()
         torch.nn.utils.clip_grad_norm_(params, 1.0)
         opt.step()
+        dt = time.perf_counter() - t0
         if i >= a.warmup:
-            times.append(time.perf_counter() - t0)
+            times.append(dt)
+        if a.paced:
+            print("step_ms=%.2f" % (dt * 1e3), flush=True)
     cpu = (time.process_time() - cpu0) / a.steps
     rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
     print("torch %s, %dx%d batch %d, %d threads; step_ms min %.1f median %.1f max %.1f; last loss %.5f"
@@ -324,6 +331,7 @@ def main():
     p.add_argument("--threads", type=int, default=2)
     p.add_argument("--steps", type=int, default=10)
     p.add_argument("--warmup", type=int, default=3)
+    p.add_argument("--paced", action="store_true")
     a = p.parse_args()
     if a.equiv:
         mode_equiv(a.equiv)

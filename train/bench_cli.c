@@ -5,7 +5,10 @@
  * FLOPs of a step divided by the median step time).  Before it: OpenBLAS
  * sgemm GFLOP/s measured the way convs call it (one single-threaded sgemm per
  * OpenMP thread), and with --profile the time shares of conv forward, conv
- * backward, warping, SSIM and the rest. */
+ * backward, warping, SSIM and the rest.  With --paced every step (warm-up
+ * included) waits for a line on standard input and is followed by a line
+ * `step_ms=X`, so that a driver can alternate two implementations step by step
+ * (bench/side_by_side.py). */
 #include "train/bench.h"
 #include "nn/prof.h"
 #include <cblas.h>
@@ -17,14 +20,17 @@
 #include <sys/resource.h>
 
 typedef struct {
-    int w, h, batch, threads, steps, warmup, profile;
+    int w, h, batch, threads, steps, warmup, profile, paced;
 } bench_args;
 
 static int usage(FILE *f)
 {
     fprintf(f, "usage: nightjar bench [--size WxH] [--batch N] [--threads N] [--steps N] [--warmup N] [--profile]\n"
+               "                      [--paced]\n"
                "  times one training step of the default depth+pose nets (full loss, Adam) on synthetic frames;\n"
-               "  defaults: --size 320x96 --batch 4 --threads 0 (all cores) --steps 10 --warmup 3\n");
+               "  defaults: --size 320x96 --batch 4 --threads 0 (all cores) --steps 10 --warmup 3\n"
+               "  --paced   each step waits for a line on standard input and is followed by a line step_ms=X\n"
+               "            (for alternating step by step with another implementation)\n");
     return f == stdout ? 0 : 2;
 }
 
@@ -48,6 +54,7 @@ static int parse(int argc, char **argv, bench_args *a)
         int rc = 0;
         if (!strcmp(o, "--help") || !strcmp(o, "-h")) return 1;
         if (!strcmp(o, "--profile")) { a->profile = 1; continue; }
+        if (!strcmp(o, "--paced")) { a->paced = 1; continue; }
         if (!strcmp(o, "--size")) {
             if (!v || sscanf(v, "%dx%d", &a->w, &a->h) != 2 || a->w < 8 || a->h < 8 || a->w > 8192 || a->h > 8192) {
                 fprintf(stderr, "nightjar bench: --size needs WxH (e.g. 320x96), got '%s'\n", v ? v : "");
@@ -87,6 +94,15 @@ static int one_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const 
     *seconds = omp_get_wtime() - t0;
     *loss = r.loss;
     return 0;
+}
+
+/* Reads one line of standard input (--paced); -1 at its end. */
+static int wait_line(void)
+{
+    int c;
+    while ((c = getchar()) != EOF)
+        if (c == '\n') return 0;
+    return -1;
 }
 
 /* User + system CPU seconds of the process so far. */
@@ -178,12 +194,21 @@ static int run(const bench_args *a)
     int rc = 0;
     double cpu0 = 0;
     for (int i = 0; i < a->warmup + a->steps && !rc; i++) {
+        if (a->paced && wait_line()) {
+            fprintf(stderr, "nightjar bench: --paced: standard input ended before step %d\n", i + 1);
+            rc = 1;
+            break;
+        }
         if (i == a->warmup) { nj_prof_enable(a->profile); nj_prof_reset(); cpu0 = cpu_seconds(); }
         double s;
         if (one_step(g, &m, &cfg, &bb.b, &rng, &opt, &s, &loss)) {
             fprintf(stderr, "nightjar bench: step failed: %s\n", nj_graph_error(g));
             rc = 1;
         } else if (i >= a->warmup) t[i - a->warmup] = s;
+        if (a->paced && !rc) {
+            printf("step_ms=%.2f\n", s * 1e3);
+            fflush(stdout);
+        }
     }
     nj_prof_enable(0);
     double cpu = cpu_seconds() - cpu0;

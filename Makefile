@@ -60,6 +60,9 @@ deps-test:
 $(B)/nn/%.o $(B)/losses/%.o: CFLAGS += -O3
 # the direct conv kernels rely on fused multiply-adds (ISO C mode turns contraction off)
 $(B)/nn/conv_direct.o: CFLAGS += -ffp-contract=fast
+# sqrtf of a non-negative second moment never sets errno: without the errno
+# call path the Adam loop vectorises (vsqrtps rounds exactly like sqrtf)
+$(B)/nn/adam.o: CFLAGS += -fno-math-errno
 
 $(B)/%.o: %.c
 	@mkdir -p $(dir $@)

@@ -16,17 +16,18 @@ void nj_adam_init(nj_adam *opt, float lr)
 static void update_one(const nj_adam *o, nj_param *p, double lr, double bc1, double bc2)
 {
     size_t k = nj_param_numel(p);
-    const float b1 = o->beta1, b2 = o->beta2;
-    const float decay = (float)(1.0 - lr * o->weight_decay);
+    const float b1 = o->beta1, b2 = o->beta2, eps = o->eps;
+    /* decay 1 without weight decay: w·1 is w, so one loop serves both */
+    const float decay = o->weight_decay > 0 ? (float)(1.0 - lr * o->weight_decay) : 1.0f;
     const float step = (float)(lr / bc1), inv_sqrt_bc2 = (float)(1.0 / sqrt(bc2));
-    float *w = p->data, *m = p->m, *v = p->v;
-    const float *g = p->grad;
-    #pragma omp parallel for if (k > 65536) schedule(static)
+    float *restrict w = p->data, *restrict m = p->m, *restrict v = p->v;
+    const float *restrict g = p->grad;
+    #pragma omp parallel for simd if (k > 65536) schedule(static)
     for (size_t i = 0; i < k; i++) {
-        if (o->weight_decay > 0) w[i] *= decay;
+        w[i] *= decay;
         m[i] = b1 * m[i] + (1.0f - b1) * g[i];
         v[i] = b2 * v[i] + (1.0f - b2) * g[i] * g[i];
-        w[i] -= step * m[i] / (sqrtf(v[i]) * inv_sqrt_bc2 + o->eps);
+        w[i] -= step * m[i] / (sqrtf(v[i]) * inv_sqrt_bc2 + eps);
     }
 }
 

@@ -214,21 +214,33 @@ static inline float padded_at(const nj_dconv *D, const float *plane, int Y, int 
     return plane[(size_t)iy * D->w + ix];
 }
 
-/* One stride-1 plane row: padded row Y, columns [0, L). */
-static void fill_row1(const nj_dconv *D, float *dst, const float *plane, int Y, int L)
+static int ceil_div(int a, int s) { return a >= 0 ? (a + s - 1) / s : -((-a) / s); }
+
+/* One row of phase plane column px: padded row Y, padded columns s·j + px for
+ * j ∈ [0, L) (the columns inside the image copied directly, the rest through
+ * padded_at). */
+static void fill_row(const nj_dconv *D, float *dst, const float *plane, int Y, int px, int L)
 {
-    int iy = Y - D->pad, p = D->pad, w = D->w, wp = w + 2 * p;
+    int iy = Y - D->pad, p = D->pad, w = D->w, s = D->stride;
     int valid = Y < D->h + 2 * p && ((iy >= 0 && iy < D->h) || D->reflect);
     if (!valid) {
         memset(dst, 0, sizeof(float) * (size_t)L);
         return;
     }
     const float *src = plane + (size_t)reflect_index(iy, D->h) * w;
-    int n = L < wp ? L : wp;
-    for (int X = 0; X < p && X < n; X++) dst[X] = D->reflect ? src[reflect_index(X - p, w)] : 0.0f;
-    if (n > p) memcpy(dst + p, src, sizeof(float) * (size_t)((n - p) < w ? n - p : w));
-    for (int X = p + w; X < n; X++) dst[X] = D->reflect ? src[reflect_index(X - p, w)] : 0.0f;
-    if (L > n) memset(dst + n, 0, sizeof(float) * (size_t)(L - n));
+    int j0 = ceil_div(p - px, s), j1 = ceil_div(w + p - px, s);
+    if (j0 < 0) j0 = 0;
+    if (j0 > L) j0 = L;
+    if (j1 > L) j1 = L;
+    if (j1 < j0) j1 = j0;
+    for (int j = 0; j < j0; j++) dst[j] = padded_at(D, plane, Y, s * j + px);
+    int off = px - p; /* s·j + off ∈ [0, w) for j ∈ [j0, j1) */
+    if (s == 1) {
+        if (j1 > j0) memcpy(dst + j0, src + j0 + off, sizeof(float) * (size_t)(j1 - j0));
+    } else {
+        for (int j = j0; j < j1; j++) dst[j] = src[s * j + off];
+    }
+    for (int j = j1; j < L; j++) dst[j] = padded_at(D, plane, Y, s * j + px);
 }
 
 /* Stages output rows [oy0, oy0 + st->rows) of channels [c0, c1) of sample xn
@@ -246,11 +258,7 @@ static void stage_fill(const nj_dconv *D, const stage *st, const float *xn, int 
                 for (int i = 0; i < st->prow; i++) {
                     float *d = pl + (size_t)i * L;
                     int Y = s * (oy0 + i) + py;
-                    if (s == 1) {
-                        fill_row1(D, d, src, Y, L);
-                    } else {
-                        for (int j = 0; j < L; j++) d[j] = padded_at(D, src, Y, s * j + px);
-                    }
+                    fill_row(D, d, src, Y, px, L);
                 }
                 memset(pl + used, 0, sizeof(float) * (st->ps - used));
             }
@@ -712,8 +720,6 @@ static void dx_geom_init(const nj_dconv *D, dx_geom *G)
     G->wq = (wp + G->s - 1) / G->s;
     G->L = G->wq + G->Ex;
 }
-
-static int ceil_div(int a, int s) { return a >= 0 ? (a + s - 1) / s : -((-a) / s); }
 
 static int dx_band(const nj_dconv *D)
 {

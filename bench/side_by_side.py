@@ -1,17 +1,19 @@
 #!/usr/bin/env python3
 """bench/side_by_side.py — `make bench`'s nightjar-vs-PyTorch table (issue #7).
 
-Runs, in one go and alternating the two implementations, the training step of the same recipe
-(nightjar: ./nightjar bench --profile; PyTorch: bench/torch_recipe.py --bench) at
-  320x96 batch 4 with 1 and 2 threads, and 416x128 batch 4 with 2 threads,
-each as its own process (so peak RSS is per implementation and configuration; 1-thread
-configurations pinned to one core for both, see one_core): median ms/step
-over STEPS steps after WARMUP warm-up steps, repeated for ROUNDS rounds over all configurations
-(which implementation goes first alternates); the table shows the median over rounds and each
-round's ratio.  On this shared 2-core VM single rounds were seen to swing PyTorch's 1-thread step
-between 740 and 1100 ms within minutes, hence the rounds.  nightjar's conv GFLOP/s (conv FLOPs over the time
-spent inside conv forward + backward) is shown next to OpenBLAS sgemm GFLOP/s measured in the same
-process, and the data loader's samples/s at each size (build/bench/bench_data WxH).
+Runs, in one go, the training step of the same recipe (nightjar: ./nightjar bench --profile;
+PyTorch: bench/torch_recipe.py --bench) at
+  320x96 batch 4 with 1 and 2 threads, and 416x128 batch 4 with 2 threads.
+Per configuration both implementations run as their own processes side by side (so peak RSS is
+per implementation and configuration; 1-thread configurations pinned to one core for both, see
+one_core), and the driver alternates them step by step (--paced: each step waits for the
+driver's go, and which implementation steps first alternates from step to step), so that a
+change of machine speed between minutes hits both alike — on this shared 2-core VM the step time of
+either implementation was seen to jump by ~30 % for minutes at a time.  Median ms/step over STEPS
+steps after WARMUP warm-up steps, repeated for ROUNDS rounds over all configurations; the table
+shows the median over rounds and each round's ratio.  nightjar's conv GFLOP/s (conv FLOPs over
+the time spent inside conv forward + backward) is shown next to OpenBLAS sgemm GFLOP/s measured in
+the same process, and the data loader's samples/s at each size (build/bench/bench_data WxH).
 
 Usage: /usr/bin/python3 bench/side_by_side.py [--steps N] [--warmup N] [--rounds N] [--no-loader]
 Targets: step <= 0.45x PyTorch's, peak RSS <= 1/3, 1->2 threads >= 1.8x, conv >= 60% of sgemm.
@@ -50,19 +52,43 @@ def run(cmd, env=None, threads=2):
     return p.stdout
 
 
-def nightjar(size, batch, threads, a):
-    out = run(["./nightjar", "bench", "--size", size, "--batch", str(batch), "--threads", str(threads),
-               "--steps", str(a.steps), "--warmup", str(a.warmup), "--profile"], threads=threads)
-    prof = [l for l in out.splitlines() if l.startswith("profile")]
-    return fields(out), prof[0] if prof else ""
+def start(cmd, env, threads):
+    return subprocess.Popen(cmd + ["--paced"], cwd=ROOT, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True, env=env, preexec_fn=one_core(threads))
 
 
-def torch(size, batch, threads, a):
+def step(p, name):
+    """Lets process p run one step; returns its step time (ms)."""
+    p.stdin.write("\n")
+    p.stdin.flush()
+    for line in p.stdout:
+        if line.startswith("step_ms="):
+            return float(line.split("=")[1])
+    sys.exit("side_by_side: %s ended before a step finished:\n%s" % (name, p.stderr.read()))
+
+
+def finish(p, name):
+    p.stdin.close()
+    out, err = p.stdout.read(), p.stderr.read()
+    if p.wait() != 0:
+        sys.exit("side_by_side: %s failed (%d):\n%s%s" % (name, p.returncode, out, err))
+    return out
+
+
+def side_by_side(size, batch, threads, a):
+    """Both implementations at one configuration, alternating step by step."""
+    common = ["--size", size, "--batch", str(batch), "--threads", str(threads),
+              "--steps", str(a.steps), "--warmup", str(a.warmup)]
     env = dict(os.environ, OMP_NUM_THREADS=str(threads), OPENBLAS_NUM_THREADS=str(threads),
                MKL_NUM_THREADS=str(threads))
-    out = run(["/usr/bin/python3", "bench/torch_recipe.py", "--bench", "--size", size, "--batch", str(batch),
-               "--threads", str(threads), "--steps", str(a.steps), "--warmup", str(a.warmup)], env, threads)
-    return fields(out)
+    procs = [("nightjar", start(["./nightjar", "bench", "--profile"] + common, None, threads)),
+             ("PyTorch", start(["/usr/bin/python3", "bench/torch_recipe.py", "--bench"] + common, env, threads))]
+    for i in range(a.warmup + a.steps):
+        for name, p in (procs if i % 2 == 0 else procs[::-1]):
+            step(p, name)
+    out = {name: finish(p, name) for name, p in procs}
+    prof = [l for l in out["nightjar"].splitlines() if l.startswith("profile")]
+    return fields(out["nightjar"]), fields(out["PyTorch"]), prof[0] if prof else ""
 
 
 def cpu_cell(nj, th):
@@ -94,13 +120,7 @@ def main():
     got = [([], [], []) for _ in CONFIGS]  # per config: nightjar runs, PyTorch runs, ratios
     for r in range(a.rounds):
         for k, (size, batch, threads) in enumerate(CONFIGS):
-            # alternate which implementation goes first, so slow drifts in machine load hit both
-            if (k + r) % 2 == 0:
-                nj, prof = nightjar(size, batch, threads, a)
-                th = torch(size, batch, threads, a)
-            else:
-                th = torch(size, batch, threads, a)
-                nj, prof = nightjar(size, batch, threads, a)
+            nj, th, prof = side_by_side(size, batch, threads, a)
             got[k][0].append(nj)
             got[k][1].append(th)
             got[k][2].append(nj["ms_per_step"] / th["ms_per_step"])

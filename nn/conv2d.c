@@ -276,6 +276,8 @@ static void bias_backward(const conv_geom *G, const nj_tensor *y, float *db)
         double s = 0;
         for (int n = 0; n < G->n; n++) {
             const float *d = y->grad + ((size_t)n * G->cout + o) * ohw;
+            /* in double, several partial sums at once (not one long chain of dependent adds) */
+            #pragma omp simd reduction(+ : s)
             for (size_t p = 0; p < ohw; p++) s += d[p];
         }
         db[o] += (float)s;

@@ -87,6 +87,12 @@ void *nj_graph_fail(nj_graph *g, const char *fmt, ...)
     return NULL;
 }
 
+void nj_graph_fail_cause(nj_graph *g, const char *msg)
+{
+    snprintf(g->err, sizeof g->err, "%s", msg);
+    g->failed = 1;
+}
+
 void *nj_graph_alloc(nj_graph *g, size_t bytes)
 {
     void *p = nj_arena_alloc(g->arena, bytes);

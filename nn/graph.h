@@ -77,6 +77,11 @@ const char *nj_graph_error(const nj_graph *g);
 void *nj_graph_fail(nj_graph *g, const char *fmt, ...)
     __attribute__((format(printf, 2, 3)));
 
+/* Fails g with msg even when it failed already: for a caller that knows the
+ * first failure's cause lies elsewhere (a replica whose failure made this
+ * graph's sums fail). */
+void nj_graph_fail_cause(nj_graph *g, const char *msg);
+
 nj_arena *nj_graph_arena(nj_graph *g);
 /* Arena scratch memory; on exhaustion the graph fails and NULL is returned. */
 void *nj_graph_alloc(nj_graph *g, size_t bytes);

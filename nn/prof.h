@@ -4,8 +4,9 @@
  * nothing, so instrumented ops pay one branch.  When enabled (./nightjar bench
  * --profile), the instrumented ops (conv forward, the graph's replay of conv
  * backward, reprojection + bilinear sampling, SSIM) add their elapsed time to
- * their kind's total.  Ops are called from the main thread only (they
- * parallelise inside), so the totals need no locking. */
+ * their kind's total.  Only the main thread's ops count (they parallelise
+ * inside), or replica 0's when a step runs as per-thread replicas, so the
+ * totals need no locking. */
 #ifndef NJ_PROF_H
 #define NJ_PROF_H
 

@@ -11,6 +11,7 @@
  * (bench/side_by_side.py). */
 #include "train/bench.h"
 #include "nn/prof.h"
+#include "train/step_replicas.h"
 #include <cblas.h>
 #include <math.h>
 #include <omp.h>
@@ -80,15 +81,17 @@ static void grad_clip(nj_params *ps, float max_norm)
     if (max_norm > 0 && n > max_norm) nj_params_scale_grads(ps, (float)(max_norm / n));
 }
 
-/* One step as the trainer runs it: zero grads, forward + backward, clip, Adam. */
-static int one_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
-                    nj_rng *rng, nj_adam *opt, double *seconds, float *loss)
+/* One step as the trainer runs it: zero grads, forward + backward (split over
+ * the threads as replicas when rep is set, see train/step_replicas.h), clip,
+ * Adam. */
+static int one_step(nj_graph *g, nj_step_replicas *rep, nj_model *m, const nj_train_config *cfg,
+                    const nj_batch *b, nj_rng *rng, nj_adam *opt, double *seconds, float *loss)
 {
     double t0 = omp_get_wtime();
     nj_graph_reset(g);
     nj_params_zero_grad(&m->params);
     nj_step_result r;
-    if (nj_train_step(g, m, cfg, b, rng, 1, &r)) return -1;
+    if (nj_step_replicas_run(rep, g, m, cfg, b, rng, &r)) return -1;
     grad_clip(&m->params, cfg->grad_clip);
     nj_adam_step(opt, &m->params);
     *seconds = omp_get_wtime() - t0;
@@ -181,6 +184,11 @@ static int run(const bench_args *a)
         fprintf(stderr, "nightjar bench: out of memory\n");
         return 1;
     }
+    nj_step_replicas *rep = NULL;
+    if (threads > 1 && !(rep = nj_step_replicas_new(&m, threads, (size_t)64 << 20, err, sizeof err))) {
+        fprintf(stderr, "nightjar bench: %s\n", err);
+        return 1;
+    }
     nj_adam opt;
     nj_adam_init(&opt, cfg.lr);
     nj_rng rng;
@@ -201,7 +209,7 @@ static int run(const bench_args *a)
         }
         if (i == a->warmup) { nj_prof_enable(a->profile); nj_prof_reset(); cpu0 = cpu_seconds(); }
         double s;
-        if (one_step(g, &m, &cfg, &bb.b, &rng, &opt, &s, &loss)) {
+        if (one_step(g, rep, &m, &cfg, &bb.b, &rng, &opt, &s, &loss)) {
             fprintf(stderr, "nightjar bench: step failed: %s\n", nj_graph_error(g));
             rc = 1;
         } else if (i >= a->warmup) t[i - a->warmup] = s;
@@ -222,8 +230,9 @@ static int run(const bench_args *a)
         /* CPU time is less disturbed than wall time when other jobs share the cores */
         printf("cpu_ms_per_step=%.1f (user + system, all threads)\n", cpu / a->steps * 1e3);
         if (a->profile) print_profile(total, flops * a->steps);
-        printf("arena_peak_mb=%.1f (activations, gradients and saved state of one step)\n",
-               nj_arena_peak(nj_graph_arena(g)) / 1048576.0);
+        printf("arena_peak_mb=%.1f (activations, gradients and saved state of one step%s)\n",
+               (nj_arena_peak(nj_graph_arena(g)) + nj_step_replicas_arena_peak(rep)) / 1048576.0,
+               nj_step_replicas_fit(rep, &bb.b) ? ", all replicas" : "");
         printf("sgemm_gflops=%.2f (OpenBLAS, one single-threaded 64x576x2048 sgemm per thread)\n", sgemm_gflops());
         struct rusage ru;
         getrusage(RUSAGE_SELF, &ru);
@@ -231,6 +240,7 @@ static int run(const bench_args *a)
                flops / med * 1e-9);
     }
     free(t);
+    nj_step_replicas_free(rep);
     nj_graph_free(g);
     nj_bench_batch_free(&bb);
     nj_model_free(&m);

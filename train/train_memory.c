@@ -11,6 +11,7 @@
  * gradient and scratch buffer of a step comes from the arena, so the probe
  * follows the code as it changes.  The probes leave the model as they found
  * it (batch-norm statistics restored, gradients zeroed). */
+#include "train/step_replicas.h"
 #include "train/trainer.h"
 #include "train/memneed.h"
 #include "train/step.h"
@@ -188,6 +189,7 @@ void nj_trainer_memory_log(nj_trainer *t)
 {
     char line[512];
     double peak = nj_mem_rss(1), arena = t->g ? (double)nj_arena_peak(nj_graph_arena(t->g)) : 0;
+    arena += (double)nj_step_replicas_arena_peak(t->split);
     snprintf(line, sizeof line, "{\"type\":\"memory\",\"need_mib\":%.2f,\"peak_rss_mib\":%.2f,"
              "\"arena_estimate_mib\":%.3f,\"arena_peak_mib\":%.3f,\"start_vm_mib\":%.2f,\"peak_vm_mib\":%.2f}",
              t->mem.total / MIB, peak / MIB, t->mem.arena_per_step / MIB, arena / MIB, t->mem.start_vm / MIB,

@@ -6,7 +6,9 @@
 #include "train/runfiles.h"
 #include "train/dist.h"
 #include "train/trainer_dist.h"
+#include "train/step_replicas.h"
 #include <math.h>
+#include <omp.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -188,6 +190,11 @@ static int finish_setup(nj_trainer *t, char *err, size_t errlen)
     t->g = nj_graph_new((size_t)64 << 20);
     if (!t->g) { snprintf(err, errlen, "out of memory creating the training graph"); return -1; }
     nj_trainer_dist_graph(t);
+    /* one process, several threads: each thread runs the step on its share of
+     * the batch (train/step_replicas.h; across processes trainer_dist.h does) */
+    if (t->ranks <= 1 && omp_get_max_threads() > 1 &&
+        !(t->split = nj_step_replicas_new(&t->model, omp_get_max_threads(), (size_t)64 << 20, err, errlen)))
+        return -1;
     if (t->rank != 0) nj_runlog_quiet(&t->log);
     else if (nj_runlog_open(&t->log, t->dir, err, errlen)) return -1;
     nj_health_init(&t->health, t->cfg.video);
@@ -228,6 +235,8 @@ void nj_trainer_teardown(nj_trainer *t)
     t->loader = NULL;
     if (t->g) nj_graph_free(t->g);
     t->g = NULL;
+    nj_step_replicas_free(t->split);
+    t->split = NULL;
     if (t->model_ready) nj_model_free(&t->model);
     t->model_ready = 0;
     free(t->train);

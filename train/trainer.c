@@ -6,6 +6,7 @@
 #include "train/runfiles.h"
 #include "train/step.h"
 #include "train/trainer_dist.h"
+#include "train/step_replicas.h"
 #include <math.h>
 #include <signal.h>
 #include <stdio.h>
@@ -232,7 +233,7 @@ static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float 
     nj_graph_reset(t->g);
     nj_params_zero_grad(&t->model.params);
     nj_train_config tmp;
-    if (nj_train_step(t->g, &t->model, step_config(t, &tmp), b, &t->rng, 1, r)) {
+    if (nj_step_replicas_run(t->split, t->g, &t->model, step_config(t, &tmp), b, &t->rng, r)) {
         nj_runlog_say(&t->log, "step %ld failed: %s", t->st.step, nj_graph_error(t->g));
         return -1;
     }

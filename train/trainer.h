@@ -41,6 +41,7 @@ typedef struct nj_trainer {
     nj_mem_need mem;           /* memory need, estimated at setup (train_memory.c) */
     int rank, ranks;           /* data-parallel processes (trainer_dist.h); 0 of 1 alone */
     float *fused;              /* gradient all-reduce buffer (ranks > 1) */
+    struct nj_step_replicas *split; /* the step as per-thread replicas (several threads, one process) */
 } nj_trainer;
 
 /* `./nightjar train ...` */

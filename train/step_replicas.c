@@ -1,0 +1,414 @@
+/* train/step_replicas.c — the training step as in-process data-parallel
+ * replicas (see step_replicas.h). */
+#include "train/step_replicas.h"
+#include <omp.h>
+#include <pthread.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define MAX_REPLICAS 64
+#define BLOCK_FLOATS 65536 /* gradient-combine work item */
+
+/* Barrier with an abort: a replica whose step fails releases the others
+ * (their pending and later sums fail) instead of leaving them waiting. */
+typedef struct hub {
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+    int count, waiting, aborted, first_failed;
+    unsigned long gen;
+    double *slot[MAX_REPLICAS];
+    int len[MAX_REPLICAS];
+} hub;
+
+/* One replica's side of the sums (the hook's context). */
+typedef struct member {
+    hub *h;
+    int rank, cap;
+    double *tmp;
+} member;
+
+typedef struct replica {
+    nj_graph *g;             /* own graph (rank ≥ 1; rank 0 runs in the caller's) */
+    nj_model m;              /* rank ≥ 1: the model with private gradients and BN buffers */
+    nj_param *shadow;        /* rank ≥ 1: the parameter records m's units point to */
+    float *store;            /* their gradient and buffer storage */
+    size_t store_floats;
+    member mem;
+    nj_rng rng;
+    nj_step_result res;
+    int rc;
+} replica;
+
+typedef struct grad_block {
+    int param;               /* index into real[] */
+    size_t start, len;
+} grad_block;
+
+struct nj_step_replicas {
+    int T, npairs, nblocks;
+    hub h;
+    replica rep[MAX_REPLICAS];
+    nj_param **real;         /* the model's parameters in unit order ... */
+    nj_param ***twin;        /* ... and their records in replica r: twin[r][i] */
+    grad_block *blocks;
+};
+
+/* ---- the hub ------------------------------------------------------------ */
+
+static int hub_wait(hub *h)
+{
+    pthread_mutex_lock(&h->mu);
+    unsigned long gen = h->gen;
+    if (!h->aborted && ++h->waiting == h->count) {
+        h->waiting = 0;
+        h->gen++;
+        pthread_cond_broadcast(&h->cv);
+    } else {
+        while (!h->aborted && gen == h->gen) pthread_cond_wait(&h->cv, &h->mu);
+    }
+    int rc = h->aborted ? -1 : 0;
+    pthread_mutex_unlock(&h->mu);
+    return rc;
+}
+
+static void hub_abort(hub *h, int rank)
+{
+    pthread_mutex_lock(&h->mu);
+    if (!h->aborted) h->first_failed = rank;
+    h->aborted = 1;
+    pthread_cond_broadcast(&h->cv);
+    pthread_mutex_unlock(&h->mu);
+}
+
+static void hub_reset(hub *h)
+{
+    h->waiting = 0;
+    h->aborted = 0;
+    h->first_failed = -1;
+}
+
+/* nj_replicas.sum: every replica's buf becomes the sum over replicas, added
+ * in replica order (the same value on every replica). */
+static int member_sum(double *buf, int n, void *ctx)
+{
+    member *me = ctx;
+    hub *h = me->h;
+    if (n > me->cap) {
+        double *t = realloc(me->tmp, sizeof(double) * (size_t)n);
+        if (!t) {
+            hub_abort(h, me->rank);
+            return -1;
+        }
+        me->tmp = t;
+        me->cap = n;
+    }
+    h->slot[me->rank] = buf;
+    h->len[me->rank] = n;
+    if (hub_wait(h)) return -1;
+    for (int r = 0; r < h->count; r++)
+        if (h->len[r] != n) return -1; /* every replica sees the same mismatch */
+    for (int i = 0; i < n; i++) {
+        double s = 0;
+        for (int r = 0; r < h->count; r++) s += h->slot[r][i];
+        me->tmp[i] = s;
+    }
+    if (hub_wait(h)) return -1; /* every replica has read every slot */
+    memcpy(buf, me->tmp, sizeof(double) * (size_t)n);
+    return 0;
+}
+
+/* ---- setting up --------------------------------------------------------- */
+
+/* The parameter slots of a unit: learned ones first, then the BN buffers. */
+static nj_param **unit_slot(nj_unit *u, int k)
+{
+    nj_param **slots[6] = {&u->w, &u->b, &u->gamma, &u->beta, &u->run_mean, &u->run_var};
+    return slots[k];
+}
+
+static size_t model_floats(nj_model *m)
+{
+    size_t f = 0;
+    for (int i = 0; i < m->nunits; i++)
+        for (int k = 0; k < 6; k++)
+            if (*unit_slot(&m->units[i], k)) f += nj_param_numel(*unit_slot(&m->units[i], k));
+    return f;
+}
+
+/* Replica rank r ≥ 1: m's units pointing to private records — learned
+ * parameters share the data and get their own gradient, BN buffers get
+ * their own copy (training mode never reads them; each replica updates its
+ * own copy with the same synchronised statistics). */
+static int make_twin(nj_step_replicas *s, nj_model *m, int r)
+{
+    replica *p = &s->rep[r];
+    p->m = *m;
+    p->store_floats = model_floats(m);
+    p->shadow = calloc((size_t)m->nunits * 6, sizeof *p->shadow);
+    p->store = calloc(p->store_floats ? p->store_floats : 1, sizeof(float));
+    s->twin[r] = calloc((size_t)s->npairs, sizeof *s->twin[r]);
+    if (!p->shadow || !p->store || !s->twin[r]) return -1;
+    float *next = p->store;
+    int pair = 0;
+    for (int i = 0; i < m->nunits; i++)
+        for (int k = 0; k < 6; k++) {
+            nj_param *orig = *unit_slot(&m->units[i], k);
+            if (!orig) continue;
+            nj_param *t = &p->shadow[i * 6 + k];
+            *t = *orig;
+            size_t n = nj_param_numel(orig);
+            if (k < 4) {
+                t->grad = next;
+                s->twin[r][pair++] = t;
+            } else {
+                t->data = next;
+                memcpy(t->data, orig->data, sizeof(float) * n);
+            }
+            next += n;
+            *unit_slot(&p->m.units[i], k) = t;
+        }
+    return 0;
+}
+
+/* The model's learned parameters in unit order, and the combine blocks. */
+static int list_params(nj_step_replicas *s, nj_model *m)
+{
+    s->real = calloc((size_t)m->nunits * 4 + 1, sizeof *s->real);
+    if (!s->real) return -1;
+    size_t blocks = 0;
+    for (int i = 0; i < m->nunits; i++)
+        for (int k = 0; k < 4; k++) {
+            nj_param *p = *unit_slot(&m->units[i], k);
+            if (!p) continue;
+            s->real[s->npairs++] = p;
+            blocks += (nj_param_numel(p) + BLOCK_FLOATS - 1) / BLOCK_FLOATS;
+        }
+    if (s->npairs != m->params.count) return -2;
+    s->blocks = calloc(blocks + 1, sizeof *s->blocks);
+    if (!s->blocks) return -1;
+    for (int i = 0; i < s->npairs; i++)
+        for (size_t a = 0, n = nj_param_numel(s->real[i]); a < n; a += BLOCK_FLOATS)
+            s->blocks[s->nblocks++] = (grad_block){i, a, n - a < BLOCK_FLOATS ? n - a : BLOCK_FLOATS};
+    return 0;
+}
+
+/* Drops the parameter lists and the replicas' model records. */
+static void unbind(nj_step_replicas *s)
+{
+    for (int r = 1; r < s->T; r++) {
+        free(s->rep[r].shadow);
+        free(s->rep[r].store);
+        free(s->twin[r]);
+        s->rep[r].shadow = NULL;
+        s->rep[r].store = NULL;
+        s->twin[r] = NULL;
+    }
+    free(s->real);
+    free(s->blocks);
+    s->real = NULL;
+    s->blocks = NULL;
+    s->npairs = s->nblocks = 0;
+}
+
+/* 1 when the lists describe model m (a reloaded model has new records). */
+static int bound_to(const nj_step_replicas *s, nj_model *m)
+{
+    int k = 0;
+    for (int i = 0; i < m->nunits; i++)
+        for (int j = 0; j < 4; j++) {
+            nj_param *p = *unit_slot(&m->units[i], j);
+            if (p && (k >= s->npairs || s->real[k++] != p)) return 0;
+        }
+    return k == s->npairs && s->real;
+}
+
+/* (Re)builds the lists and model records for m.  0, or -1 with a message. */
+static int bind(nj_step_replicas *s, nj_model *m, char *err, size_t errlen)
+{
+    unbind(s);
+    int rc = list_params(s, m);
+    if (rc == -2) {
+        snprintf(err, errlen, "step replicas: the model's units hold %d parameters, its list %d", s->npairs,
+                 m->params.count);
+        return -1;
+    }
+    for (int r = 1; !rc && r < s->T; r++) rc = make_twin(s, m, r);
+    if (rc) snprintf(err, errlen, "out of memory setting up %d training replicas", s->T);
+    return rc ? -1 : 0;
+}
+
+nj_step_replicas *nj_step_replicas_new(nj_model *m, int threads, size_t arena_chunk, char *err,
+                                       size_t errlen)
+{
+    if (threads < 2 || threads > MAX_REPLICAS) {
+        snprintf(err, errlen, "step replicas: %d threads (2..%d)", threads, MAX_REPLICAS);
+        return NULL;
+    }
+    nj_step_replicas *s = calloc(1, sizeof *s);
+    if (!s || !(s->twin = calloc((size_t)threads, sizeof *s->twin))) {
+        free(s);
+        snprintf(err, errlen, "out of memory setting up %d training replicas", threads);
+        return NULL;
+    }
+    s->T = threads;
+    pthread_mutex_init(&s->h.mu, NULL);
+    pthread_cond_init(&s->h.cv, NULL);
+    s->h.count = threads;
+    for (int r = 0; r < threads; r++) s->rep[r].mem = (member){&s->h, r, 0, NULL};
+    int rc = bind(s, m, err, errlen);
+    for (int r = 1; !rc && r < threads; r++)
+        if (!(s->rep[r].g = nj_graph_new(arena_chunk))) {
+            snprintf(err, errlen, "out of memory setting up %d training replicas", threads);
+            rc = -1;
+        }
+    if (rc) {
+        nj_step_replicas_free(s);
+        return NULL;
+    }
+    return s;
+}
+
+void nj_step_replicas_free(nj_step_replicas *s)
+{
+    if (!s) return;
+    unbind(s);
+    for (int r = 0; r < s->T; r++) {
+        if (s->rep[r].g) nj_graph_free(s->rep[r].g);
+        free(s->rep[r].mem.tmp);
+    }
+    pthread_mutex_destroy(&s->h.mu);
+    pthread_cond_destroy(&s->h.cv);
+    free(s->twin);
+    free(s);
+}
+
+int nj_step_replicas_fit(const nj_step_replicas *s, const nj_batch *b)
+{
+    return s && b->n >= s->T && b->n % s->T == 0;
+}
+
+size_t nj_step_replicas_arena_peak(const nj_step_replicas *s)
+{
+    size_t peak = 0;
+    for (int r = 1; s && r < s->T; r++) peak += nj_arena_peak(nj_graph_arena(s->rep[r].g));
+    return peak;
+}
+
+/* ---- one step ----------------------------------------------------------- */
+
+/* Items [r·k, (r+1)·k) of b. */
+static void shard(const nj_batch *b, int r, int k, nj_batch *o)
+{
+    size_t i0 = (size_t)r * k, img = (size_t)3 * b->h * b->w;
+    *o = *b;
+    o->n = k;
+    o->target += i0 * img;
+    o->target_in += i0 * img;
+    if (b->sources) o->sources += i0 * (size_t)b->nsrc * img;
+    if (b->sources_in) o->sources_in += i0 * (size_t)b->nsrc * img;
+    if (b->partner) o->partner += i0 * img;
+    if (b->partner_in) o->partner_in += i0 * img;
+    if (b->camera) o->camera += i0;
+    if (b->stereo_tx) o->stereo_tx += i0;
+    if (b->has_partner) o->has_partner += i0;
+    if (b->flipped) o->flipped += i0;
+    if (b->sample) o->sample += i0;
+}
+
+/* Replica r's part of the step, on the calling thread alone. */
+static void replica_step(nj_step_replicas *s, int r, nj_graph *g0, nj_model *m, const nj_train_config *cfg,
+                         const nj_batch *b)
+{
+    replica *p = &s->rep[r];
+    omp_set_num_threads(1); /* this task's ops run on this thread (the ICV is per task) */
+    nj_graph *g = r ? p->g : g0;
+    nj_model *mr = r ? &p->m : m;
+    if (r) {
+        nj_graph_reset(g);
+        memcpy(p->m.params.frozen, m->params.frozen, sizeof m->params.frozen);
+        for (int i = 0; i < s->npairs; i++)
+            memset(s->twin[r][i]->grad, 0, sizeof(float) * nj_param_numel(s->twin[r][i]));
+    }
+    nj_replicas rp = {r, s->T, member_sum, &p->mem};
+    nj_graph_set_replicas(g, &rp);
+    nj_batch sb;
+    shard(b, r, b->n / s->T, &sb);
+    p->rc = nj_train_step(g, mr, cfg, &sb, &p->rng, 1, &p->res);
+    if (p->rc) hub_abort(&s->h, r);
+    nj_graph_set_replicas(g, NULL);
+}
+
+/* The model's gradients ← the replicas' mean, block by block on all threads. */
+static void combine_grads(nj_step_replicas *s)
+{
+    const float scale = 1.0f / (float)s->T;
+    #pragma omp parallel for schedule(dynamic, 1)
+    for (int i = 0; i < s->nblocks; i++) {
+        const grad_block *B = &s->blocks[i];
+        float *d = s->real[B->param]->grad + B->start;
+        for (int r = 1; r < s->T; r++) {
+            const float *o = s->twin[r][B->param]->grad + B->start;
+            #pragma omp simd
+            for (size_t j = 0; j < B->len; j++) d[j] += o[j];
+        }
+        #pragma omp simd
+        for (size_t j = 0; j < B->len; j++) d[j] *= scale;
+    }
+}
+
+/* r ← the replicas' mean loss figures, replica 0's tensors. */
+static void combine_results(nj_step_replicas *s, nj_step_result *r)
+{
+    *r = s->rep[0].res;
+    double f[6] = {0};
+    for (int k = 0; k < s->T; k++) {
+        const nj_step_result *q = &s->rep[k].res;
+        f[0] += q->loss;
+        f[1] += q->photometric;
+        f[2] += q->smoothness;
+        f[3] += q->mask_fraction;
+        f[4] += q->saturated;
+        f[5] += q->translation;
+    }
+    r->loss = (float)(f[0] / s->T);
+    r->photometric = (float)(f[1] / s->T);
+    r->smoothness = (float)(f[2] / s->T);
+    r->mask_fraction = (float)(f[3] / s->T);
+    r->saturated = (float)(f[4] / s->T);
+    r->translation = (float)(f[5] / s->T);
+}
+
+int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj_train_config *cfg,
+                         const nj_batch *b, nj_rng *rng, nj_step_result *r)
+{
+    if (!nj_step_replicas_fit(s, b)) return nj_train_step(g, m, cfg, b, rng, 1, r);
+    char err[256];
+    if (!bound_to(s, m) && bind(s, m, err, sizeof err)) { /* the model was reloaded */
+        nj_graph_fail(g, "%s", err);
+        return -1;
+    }
+    hub_reset(&s->h);
+    for (int k = 0; k < s->T; k++) s->rep[k].rng = *rng;
+    int short_team = 0;
+    #pragma omp parallel num_threads(s->T)
+    {
+        if (omp_get_num_threads() != s->T) {
+            #pragma omp single
+            short_team = 1; /* fewer threads than replicas: they would wait for each other forever */
+        } else {
+            replica_step(s, omp_get_thread_num(), g, m, cfg, b);
+        }
+    }
+    if (short_team) return nj_train_step(g, m, cfg, b, rng, 1, r);
+    if (s->h.aborted) {
+        int f = s->h.first_failed;
+        if (f > 0) nj_graph_fail_cause(g, nj_graph_error(s->rep[f].g));
+        else if (!nj_graph_failed(g)) nj_graph_fail(g, "a training replica failed");
+        return -1;
+    }
+    *rng = s->rep[0].rng;
+    combine_grads(s);
+    combine_results(s, r);
+    return 0;
+}

@@ -1,0 +1,44 @@
+/* train/step_replicas.h — one training step split over the threads of one
+ * process: data-parallel replicas instead of splitting every op.
+ *
+ * With T threads and a batch of N = T·k items, thread r runs the whole step
+ * (train/step.h) single-threaded on items [r·k, (r+1)·k) in its own graph;
+ * the ops that couple batch items (batch-norm statistics, the photometric
+ * normaliser, the tie-break noise) combine the replicas' partial sums through
+ * nn/graph.h's replica hook, so every replica computes its slice of what one
+ * graph computes on the whole batch (the same mechanism as data-parallel
+ * processes, train/trainer_dist.h).  Replica 0 uses the model's gradient
+ * buffers, the others private ones; afterwards the model's gradients are the
+ * replicas' mean (summed in replica order, so the result depends on T but not
+ * on the schedule) and the loss figures are their mean.  Per op, one thread
+ * holds every value it needs in its own caches and no op waits for another
+ * thread, except at those sums.
+ *
+ * nj_step_replicas_run falls back to the plain step (op-level threads) when
+ * the batch does not split evenly or the replicas are not set up (T = 1). */
+#ifndef NJ_STEP_REPLICAS_H
+#define NJ_STEP_REPLICAS_H
+#include "train/step.h"
+
+typedef struct nj_step_replicas nj_step_replicas;
+
+/* Replicas of model m for `threads` threads (≥ 2; model-shaped gradient
+ * buffers and a graph with arena chunks of arena_chunk bytes for each replica
+ * after the first).  NULL with a message in err when out of memory or threads
+ * < 2. */
+nj_step_replicas *nj_step_replicas_new(nj_model *m, int threads, size_t arena_chunk, char *err,
+                                       size_t errlen);
+void nj_step_replicas_free(nj_step_replicas *s);
+/* 1 when s is set up and batch b splits evenly over its threads. */
+int nj_step_replicas_fit(const nj_step_replicas *s, const nj_batch *b);
+/* One training step with backward pass, like nj_train_step(g, m, cfg, b, rng,
+ * 1, r) (g reset and m's gradients zeroed by the caller): split over the
+ * replicas when nj_step_replicas_fit, else the plain step.  Split: g is
+ * replica 0's graph; r's disp0 / automask / error are replica 0's slice; rng
+ * ends where the plain step leaves it.  Returns 0, or -1 with g's error set. */
+int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj_train_config *cfg,
+                         const nj_batch *b, nj_rng *rng, nj_step_result *r);
+/* Arena high-water mark of the replicas' own graphs (bytes, all together). */
+size_t nj_step_replicas_arena_peak(const nj_step_replicas *s);
+
+#endif

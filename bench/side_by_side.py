@@ -86,7 +86,8 @@ def side_by_side(size, batch, threads, a):
     for i in range(a.warmup + a.steps):
         for name, p in (procs if i % 2 == 0 else procs[::-1]):
             step(p, name)
-    out = {name: finish(p, name) for name, p in procs}
+    # PyTorch ends first: nightjar's closing sgemm measurement waits for its input to end
+    out = {name: finish(p, name) for name, p in procs[::-1]}
     prof = [l for l in out["nightjar"].splitlines() if l.startswith("profile")]
     return fields(out["nightjar"]), fields(out["PyTorch"]), prof[0] if prof else ""
 

@@ -7,8 +7,10 @@
  * OpenMP thread), and with --profile the time shares of conv forward, conv
  * backward, warping, SSIM and the rest.  With --paced every step (warm-up
  * included) waits for a line on standard input and is followed by a line
- * `step_ms=X`, so that a driver can alternate two implementations step by step
- * (bench/side_by_side.py). */
+ * `step_ms=X`, and the closing figures wait for one more line or the end of
+ * the input, so that a driver can alternate two implementations step by step
+ * (bench/side_by_side.py).  peak_rss_mb is the peak over the steps (read
+ * before the sgemm measurement allocates its buffers). */
 #include "train/bench.h"
 #include "nn/prof.h"
 #include "train/step_replicas.h"
@@ -30,7 +32,8 @@ static int usage(FILE *f)
                "                      [--paced]\n"
                "  times one training step of the default depth+pose nets (full loss, Adam) on synthetic frames;\n"
                "  defaults: --size 320x96 --batch 4 --threads 0 (all cores) --steps 10 --warmup 3\n"
-               "  --paced   each step waits for a line on standard input and is followed by a line step_ms=X\n"
+               "  --paced   each step waits for a line on standard input and is followed by a line step_ms=X;\n"
+               "            the closing figures wait for one more line or the end of the input\n"
                "            (for alternating step by step with another implementation)\n");
     return f == stdout ? 0 : 2;
 }
@@ -220,6 +223,12 @@ static int run(const bench_args *a)
     }
     nj_prof_enable(0);
     double cpu = cpu_seconds() - cpu0;
+    /* the peak of training, before the sgemm measurement's own buffers */
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    /* --paced: the closing figures (the sgemm rate) wait until the driver is
+     * done with the other implementation, so that nothing runs beside them */
+    if (a->paced && !rc) wait_line();
     if (!rc) {
         double total = 0;
         for (int i = 0; i < a->steps; i++) total += t[i];
@@ -234,8 +243,6 @@ static int run(const bench_args *a)
                (nj_arena_peak(nj_graph_arena(g)) + nj_step_replicas_arena_peak(rep)) / 1048576.0,
                nj_step_replicas_fit(rep, &bb.b) ? ", all replicas" : "");
         printf("sgemm_gflops=%.2f (OpenBLAS, one single-threaded 64x576x2048 sgemm per thread)\n", sgemm_gflops());
-        struct rusage ru;
-        getrusage(RUSAGE_SELF, &ru);
         printf("ms_per_step=%.1f peak_rss_mb=%.1f gflops=%.2f\n", med * 1e3, ru.ru_maxrss / 1024.0,
                flops / med * 1e-9);
     }

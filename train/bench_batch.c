@@ -118,7 +118,7 @@ int nj_bench_dump(const char *dir, const nj_model *m, const nj_bench_batch *bb, 
     if (!src || !cams) { free(src); free(cams); snprintf(err, errlen, "bench dump: out of memory"); return -1; }
     int rc = dump_one(dir, "target", b->target, 4, shape, err, errlen);
     for (int j = 0; j < 2 && !rc; j++) {
-        char nm[16];
+        char nm[24];
         for (int i = 0; i < b->n; i++)
             memcpy(src + i * img, b->sources + ((size_t)i * 2 + j) * img, sizeof(float) * img);
         snprintf(nm, sizeof nm, "source%d", j);

@@ -5,14 +5,16 @@
  * against an independent PyTorch implementation of the recipe
  * (tests/test_bench_equiv.c).  The bench's default nets and synthetic frames
  * (128×64, batch 4, two sources, auto-mask with tie-break noise):
- *  - 2 replicas: the loss and its parts equal the plain step's within float
+ *  - 2 threads, batch 4 (2 replicas): the loss and its parts equal the plain step's within float
  *    rounding (the sums run in another order), every parameter gradient
  *    within 1e-4 of the largest |gradient| of its tensor (conv biases before
  *    batch norm, whose gradient is 0 in exact arithmetic: rounding-small on
  *    both sides), the batch-norm
  *    running statistics (updated by replica 0 from synchronised statistics)
  *    within 1e-5, and the noise generator ends in the same state;
- *  - 4 replicas (one item each) likewise;
+ *  - likewise 4 threads on batch 4 (4 replicas), on batch 6 (3 replicas: the
+ *    largest divisor of the batch up to the thread count) and on batch 2
+ *    (2 replicas whose ops run on 2 threads each, a nested team);
  *  - a batch of 3 does not split over 2: the plain step runs, bit for bit;
  *  - a model freed and built again (the trainer reloads a checkpoint after
  *    non-finite steps) is picked up by the same replicas: the step after it
@@ -149,20 +151,26 @@ static void compare(const char *what, const outcome *ref, const outcome *got, co
     check(!memcmp(&ref->rng, &got->rng, sizeof ref->rng), name, "states differ");
 }
 
-static void test_equal(const nj_train_config *cfg, nj_model *shape)
+/* The plain step against `threads` threads on a batch of n. */
+static void equal_case(const char *what, int n, int threads, const nj_train_config *cfg, nj_model *shape)
 {
     nj_bench_batch bb;
-    if (!check(nj_bench_batch_make(&bb, 4, H, W, 7) == 0, "bench batch of 4", "out of memory")) return;
-    outcome ref, two, four;
+    if (!check(nj_bench_batch_make(&bb, n, H, W, 7) == 0, "bench batch", "out of memory for %d items", n)) return;
+    outcome ref, got;
     run_step(1, &bb, cfg, &ref);
-    run_step(2, &bb, cfg, &two);
-    run_step(4, &bb, cfg, &four);
-    compare("2 replicas of 2 items", &ref, &two, shape);
-    compare("4 replicas of 1 item", &ref, &four, shape);
+    run_step(threads, &bb, cfg, &got);
+    compare(what, &ref, &got, shape);
     outcome_free(&ref, shape);
-    outcome_free(&two, shape);
-    outcome_free(&four, shape);
+    outcome_free(&got, shape);
     nj_bench_batch_free(&bb);
+}
+
+static void test_equal(const nj_train_config *cfg, nj_model *shape)
+{
+    equal_case("2 threads, batch 4: 2 replicas of 2 items", 4, 2, cfg, shape);
+    equal_case("4 threads, batch 4: 4 replicas of 1 item", 4, 4, cfg, shape);
+    equal_case("4 threads, batch 6: 3 replicas of 2 items", 6, 4, cfg, shape);
+    equal_case("4 threads, batch 2: 2 replicas of 1 item, 2 threads each", 2, 4, cfg, shape);
 }
 
 static void test_uneven(const nj_train_config *cfg, nj_model *shape)

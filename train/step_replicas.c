@@ -50,7 +50,10 @@ typedef struct grad_block {
 } grad_block;
 
 struct nj_step_replicas {
-    int T, npairs, nblocks;
+    int T;                   /* threads */
+    int R;                   /* replicas the records below are for */
+    size_t arena_chunk;
+    int npairs, nblocks;
     hub h;
     replica rep[MAX_REPLICAS];
     nj_param **real;         /* the model's parameters in unit order ... */
@@ -207,7 +210,7 @@ static int list_params(nj_step_replicas *s, nj_model *m)
 /* Drops the parameter lists and the replicas' model records. */
 static void unbind(nj_step_replicas *s)
 {
-    for (int r = 1; r < s->T; r++) {
+    for (int r = 1; r < s->R; r++) {
         free(s->rep[r].shadow);
         free(s->rep[r].store);
         free(s->twin[r]);
@@ -220,6 +223,7 @@ static void unbind(nj_step_replicas *s)
     s->real = NULL;
     s->blocks = NULL;
     s->npairs = s->nblocks = 0;
+    s->R = 0;
 }
 
 /* 1 when the lists describe model m (a reloaded model has new records). */
@@ -234,8 +238,9 @@ static int bound_to(const nj_step_replicas *s, nj_model *m)
     return k == s->npairs && s->real;
 }
 
-/* (Re)builds the lists and model records for m.  0, or -1 with a message. */
-static int bind(nj_step_replicas *s, nj_model *m, char *err, size_t errlen)
+/* (Re)builds the lists, model records and graphs of R replicas of m.  0, or
+ * -1 with a message. */
+static int bind(nj_step_replicas *s, nj_model *m, int R, char *err, size_t errlen)
 {
     unbind(s);
     int rc = list_params(s, m);
@@ -244,39 +249,47 @@ static int bind(nj_step_replicas *s, nj_model *m, char *err, size_t errlen)
                  m->params.count);
         return -1;
     }
-    for (int r = 1; !rc && r < s->T; r++) rc = make_twin(s, m, r);
-    if (rc) snprintf(err, errlen, "out of memory setting up %d training replicas", s->T);
+    s->R = R;
+    for (int r = 1; !rc && r < R; r++) {
+        rc = make_twin(s, m, r);
+        if (!rc && !s->rep[r].g && !(s->rep[r].g = nj_graph_new(s->arena_chunk))) rc = -1;
+    }
+    if (rc) {
+        snprintf(err, errlen, "out of memory setting up %d training replicas", R);
+        unbind(s);
+    }
     return rc ? -1 : 0;
+}
+
+/* Replicas for a batch of n on T threads: the largest divisor of n up to T
+ * (and MAX_REPLICAS); 1: the batch does not split. */
+static int replicas_for(int T, int n)
+{
+    int top = T < n ? T : n;
+    for (int r = top < MAX_REPLICAS ? top : MAX_REPLICAS; r >= 2; r--)
+        if (n % r == 0) return r;
+    return 1;
 }
 
 nj_step_replicas *nj_step_replicas_new(nj_model *m, int threads, size_t arena_chunk, char *err,
                                        size_t errlen)
 {
-    if (threads < 2 || threads > MAX_REPLICAS) {
-        snprintf(err, errlen, "step replicas: %d threads (2..%d)", threads, MAX_REPLICAS);
+    if (threads < 2) {
+        snprintf(err, errlen, "step replicas: %d threads (at least 2)", threads);
         return NULL;
     }
     nj_step_replicas *s = calloc(1, sizeof *s);
-    if (!s || !(s->twin = calloc((size_t)threads, sizeof *s->twin))) {
+    if (!s || !(s->twin = calloc(MAX_REPLICAS, sizeof *s->twin))) {
         free(s);
         snprintf(err, errlen, "out of memory setting up %d training replicas", threads);
         return NULL;
     }
     s->T = threads;
+    s->arena_chunk = arena_chunk;
     pthread_mutex_init(&s->h.mu, NULL);
     pthread_cond_init(&s->h.cv, NULL);
-    s->h.count = threads;
-    for (int r = 0; r < threads; r++) s->rep[r].mem = (member){&s->h, r, 0, NULL};
-    int rc = bind(s, m, err, errlen);
-    for (int r = 1; !rc && r < threads; r++)
-        if (!(s->rep[r].g = nj_graph_new(arena_chunk))) {
-            snprintf(err, errlen, "out of memory setting up %d training replicas", threads);
-            rc = -1;
-        }
-    if (rc) {
-        nj_step_replicas_free(s);
-        return NULL;
-    }
+    for (int r = 0; r < MAX_REPLICAS; r++) s->rep[r].mem = (member){&s->h, r, 0, NULL};
+    (void)m; /* the records are made for the first batch, when the replica count is known */
     return s;
 }
 
@@ -284,7 +297,7 @@ void nj_step_replicas_free(nj_step_replicas *s)
 {
     if (!s) return;
     unbind(s);
-    for (int r = 0; r < s->T; r++) {
+    for (int r = 0; r < MAX_REPLICAS; r++) {
         if (s->rep[r].g) nj_graph_free(s->rep[r].g);
         free(s->rep[r].mem.tmp);
     }
@@ -296,13 +309,14 @@ void nj_step_replicas_free(nj_step_replicas *s)
 
 int nj_step_replicas_fit(const nj_step_replicas *s, const nj_batch *b)
 {
-    return s && b->n >= s->T && b->n % s->T == 0;
+    return s && replicas_for(s->T, b->n) >= 2;
 }
 
 size_t nj_step_replicas_arena_peak(const nj_step_replicas *s)
 {
     size_t peak = 0;
-    for (int r = 1; s && r < s->T; r++) peak += nj_arena_peak(nj_graph_arena(s->rep[r].g));
+    for (int r = 1; s && r < MAX_REPLICAS; r++)
+        if (s->rep[r].g) peak += nj_arena_peak(nj_graph_arena(s->rep[r].g));
     return peak;
 }
 
@@ -327,12 +341,12 @@ static void shard(const nj_batch *b, int r, int k, nj_batch *o)
     if (b->sample) o->sample += i0;
 }
 
-/* Replica r's part of the step, on the calling thread alone. */
-static void replica_step(nj_step_replicas *s, int r, nj_graph *g0, nj_model *m, const nj_train_config *cfg,
-                         const nj_batch *b)
+/* Replica r's part of the step, its ops on `inner` threads. */
+static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj_model *m,
+                         const nj_train_config *cfg, const nj_batch *b)
 {
     replica *p = &s->rep[r];
-    omp_set_num_threads(1); /* this task's ops run on this thread (the ICV is per task) */
+    omp_set_num_threads(inner); /* for this task's ops only (the ICV is per task) */
     nj_graph *g = r ? p->g : g0;
     nj_model *mr = r ? &p->m : m;
     if (r) {
@@ -341,10 +355,10 @@ static void replica_step(nj_step_replicas *s, int r, nj_graph *g0, nj_model *m, 
         for (int i = 0; i < s->npairs; i++)
             memset(s->twin[r][i]->grad, 0, sizeof(float) * nj_param_numel(s->twin[r][i]));
     }
-    nj_replicas rp = {r, s->T, member_sum, &p->mem};
+    nj_replicas rp = {r, s->R, member_sum, &p->mem};
     nj_graph_set_replicas(g, &rp);
     nj_batch sb;
-    shard(b, r, b->n / s->T, &sb);
+    shard(b, r, b->n / s->R, &sb);
     p->rc = nj_train_step(g, mr, cfg, &sb, &p->rng, 1, &p->res);
     if (p->rc) hub_abort(&s->h, r);
     nj_graph_set_replicas(g, NULL);
@@ -353,12 +367,12 @@ static void replica_step(nj_step_replicas *s, int r, nj_graph *g0, nj_model *m, 
 /* The model's gradients ← the replicas' mean, block by block on all threads. */
 static void combine_grads(nj_step_replicas *s)
 {
-    const float scale = 1.0f / (float)s->T;
+    const float scale = 1.0f / (float)s->R;
     #pragma omp parallel for schedule(dynamic, 1)
     for (int i = 0; i < s->nblocks; i++) {
         const grad_block *B = &s->blocks[i];
         float *d = s->real[B->param]->grad + B->start;
-        for (int r = 1; r < s->T; r++) {
+        for (int r = 1; r < s->R; r++) {
             const float *o = s->twin[r][B->param]->grad + B->start;
             #pragma omp simd
             for (size_t j = 0; j < B->len; j++) d[j] += o[j];
@@ -373,7 +387,7 @@ static void combine_results(nj_step_replicas *s, nj_step_result *r)
 {
     *r = s->rep[0].res;
     double f[6] = {0};
-    for (int k = 0; k < s->T; k++) {
+    for (int k = 0; k < s->R; k++) {
         const nj_step_result *q = &s->rep[k].res;
         f[0] += q->loss;
         f[1] += q->photometric;
@@ -382,35 +396,41 @@ static void combine_results(nj_step_replicas *s, nj_step_result *r)
         f[4] += q->saturated;
         f[5] += q->translation;
     }
-    r->loss = (float)(f[0] / s->T);
-    r->photometric = (float)(f[1] / s->T);
-    r->smoothness = (float)(f[2] / s->T);
-    r->mask_fraction = (float)(f[3] / s->T);
-    r->saturated = (float)(f[4] / s->T);
-    r->translation = (float)(f[5] / s->T);
+    r->loss = (float)(f[0] / s->R);
+    r->photometric = (float)(f[1] / s->R);
+    r->smoothness = (float)(f[2] / s->R);
+    r->mask_fraction = (float)(f[3] / s->R);
+    r->saturated = (float)(f[4] / s->R);
+    r->translation = (float)(f[5] / s->R);
 }
 
 int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj_train_config *cfg,
                          const nj_batch *b, nj_rng *rng, nj_step_result *r)
 {
-    if (!nj_step_replicas_fit(s, b)) return nj_train_step(g, m, cfg, b, rng, 1, r);
+    int R = s ? replicas_for(s->T, b->n) : 1;
+    if (R < 2) return nj_train_step(g, m, cfg, b, rng, 1, r);
     char err[256];
-    if (!bound_to(s, m) && bind(s, m, err, sizeof err)) { /* the model was reloaded */
+    /* first batch, another replica count, or a reloaded model: new records */
+    if ((!bound_to(s, m) || s->R != R) && bind(s, m, R, err, sizeof err)) {
         nj_graph_fail(g, "%s", err);
         return -1;
     }
     hub_reset(&s->h);
-    for (int k = 0; k < s->T; k++) s->rep[k].rng = *rng;
-    int short_team = 0;
-    #pragma omp parallel num_threads(s->T)
+    s->h.count = R;
+    for (int k = 0; k < R; k++) s->rep[k].rng = *rng;
+    /* threads beyond one per replica run each replica's ops (a nested team) */
+    int inner = s->T / R, levels = omp_get_max_active_levels(), short_team = 0;
+    if (inner > 1 && levels < 2) omp_set_max_active_levels(2);
+    #pragma omp parallel num_threads(R)
     {
-        if (omp_get_num_threads() != s->T) {
+        if (omp_get_num_threads() != R) {
             #pragma omp single
             short_team = 1; /* fewer threads than replicas: they would wait for each other forever */
         } else {
-            replica_step(s, omp_get_thread_num(), g, m, cfg, b);
+            replica_step(s, omp_get_thread_num(), inner, g, m, cfg, b);
         }
     }
+    if (inner > 1 && levels < 2) omp_set_max_active_levels(levels);
     if (short_team) return nj_train_step(g, m, cfg, b, rng, 1, r);
     if (s->h.aborted) {
         int f = s->h.first_failed;

@@ -4,7 +4,9 @@
  *    (and batch-norm running statistics) and logged losses of one process
  *    with batch 4 (the plain ./nightjar), within 1e-5 relative; only rank 0
  *    writes; the checkpoint records the process count; the MPI build run
- *    without mpirun gives the plain build's weights bit for bit;
+ *    without mpirun gives the plain build's weights bit for bit; the same
+ *    with 2 threads per rank (the rank's batch split again over thread
+ *    replicas, train/step_replicas.h) stays within 1e-5;
  *  - a 2-rank checkpoint at step K/2 resumed with 2 ranks ends equal to the
  *    uninterrupted 2-rank run;
  *  - SIGKILL to rank 1 mid-run: non-zero exit with a message, the newest
@@ -139,6 +141,17 @@ static int same_as_big_batch(void)
           isinf(d) ? err : "");
     printf("   (relative L2 difference %.3g; worst single tensor max|diff|/max|w| %.3g; 3 steps move the model "
            "by %.3g)\n", d, tw, three);
+    /* each rank's batch of 2 split again over 2 threads: 4 shards in all */
+    char threads[512];
+    snprintf(threads, sizeof threads, "%s/threads", dir);
+    snprintf(log, sizeof log, "%s.log", threads);
+    rc = train(mpirun, cfg2, threads, "--threads 2", log);
+    snprintf(a, sizeof a, "%s/final.ckpt", single);
+    snprintf(b, sizeof b, "%s/final.ckpt", threads);
+    d = rc == 0 ? rel_diff(a, b, NULL, err, sizeof err) : INFINITY;
+    check(d <= 1e-5, "mpi: 2 ranks x 2 threads x batch 2 (thread replicas inside ranks) == 1 process x batch 4 "
+          "after 6 steps (within 1e-5 relative)", "exit %d, relative L2 difference %.3g (see %s)", rc, d, log);
+    printf("   (2 ranks x 2 threads: relative L2 difference %.3g)\n", d);
     char alone[512];
     snprintf(alone, sizeof alone, "%s/alone", dir);
     snprintf(log, sizeof log, "%s.log", alone);

@@ -23,9 +23,13 @@ typedef struct hub {
     unsigned long gen;
     double *slot[MAX_REPLICAS];
     int len[MAX_REPLICAS];
+    double *result;          /* the sum, in replica 0's buffer */
+    int result_rc;
+    nj_replicas outer;       /* the step graph's own replicas (processes); count 1: none */
 } hub;
 
-/* One replica's side of the sums (the hook's context). */
+/* One replica's side of the sums (the hook's context); replica 0's tmp holds
+ * each sum's result. */
 typedef struct member {
     hub *h;
     int rank, cap;
@@ -102,33 +106,39 @@ static void hub_reset(hub *h)
     h->first_failed = -1;
 }
 
-/* nj_replicas.sum: every replica's buf becomes the sum over replicas, added
- * in replica order (the same value on every replica). */
+/* nj_replicas.sum: every replica's buf becomes the sum over the replicas,
+ * added in replica order by replica 0 — and, when the step's graph had
+ * replicas of its own (data-parallel processes, train/trainer_dist.h), summed
+ * over those too by replica 0, which runs on the thread that called the step
+ * (the one MPI allows to communicate). */
 static int member_sum(double *buf, int n, void *ctx)
 {
     member *me = ctx;
     hub *h = me->h;
-    if (n > me->cap) {
-        double *t = realloc(me->tmp, sizeof(double) * (size_t)n);
-        if (!t) {
-            hub_abort(h, me->rank);
-            return -1;
-        }
-        me->tmp = t;
-        me->cap = n;
-    }
     h->slot[me->rank] = buf;
     h->len[me->rank] = n;
     if (hub_wait(h)) return -1;
-    for (int r = 0; r < h->count; r++)
-        if (h->len[r] != n) return -1; /* every replica sees the same mismatch */
-    for (int i = 0; i < n; i++) {
-        double s = 0;
-        for (int r = 0; r < h->count; r++) s += h->slot[r][i];
-        me->tmp[i] = s;
+    if (me->rank == 0) {
+        /* every replica has copied the last result (it is past this call's
+         * first barrier): the result buffer may move now */
+        int same = 1;
+        for (int r = 0; r < h->count; r++) same &= h->len[r] == n;
+        if (same && n > me->cap) {
+            double *t = realloc(me->tmp, sizeof(double) * (size_t)n);
+            if (t) me->tmp = t, me->cap = n;
+            else same = 0;
+        }
+        for (int i = 0; same && i < n; i++) {
+            double s = 0;
+            for (int r = 0; r < h->count; r++) s += h->slot[r][i];
+            me->tmp[i] = s;
+        }
+        h->result = me->tmp;
+        h->result_rc = !same ? -1 : (h->outer.count > 1 ? h->outer.sum(me->tmp, n, h->outer.ctx) : 0);
     }
-    if (hub_wait(h)) return -1; /* every replica has read every slot */
-    memcpy(buf, me->tmp, sizeof(double) * (size_t)n);
+    if (hub_wait(h)) return -1; /* replica 0 has read every slot and written the result */
+    if (h->result_rc) return -1;
+    memcpy(buf, h->result, sizeof(double) * (size_t)n);
     return 0;
 }
 
@@ -355,7 +365,7 @@ static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj
         for (int i = 0; i < s->npairs; i++)
             memset(s->twin[r][i]->grad, 0, sizeof(float) * nj_param_numel(s->twin[r][i]));
     }
-    nj_replicas rp = {r, s->R, member_sum, &p->mem};
+    nj_replicas rp = {s->h.outer.rank * s->R + r, s->h.outer.count * s->R, member_sum, &p->mem};
     nj_graph_set_replicas(g, &rp);
     nj_batch sb;
     shard(b, r, b->n / s->R, &sb);
@@ -415,8 +425,13 @@ int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj
         nj_graph_fail(g, "%s", err);
         return -1;
     }
+    /* the caller's graph may have process replicas: this step's replica r is
+     * shard rank·R + r of count·R, and replica 0 adds the processes' sums */
+    const nj_replicas *o = nj_graph_replicas(g);
+    nj_replicas outer = o ? *o : (nj_replicas){0, 1, NULL, NULL};
     hub_reset(&s->h);
     s->h.count = R;
+    s->h.outer = outer;
     for (int k = 0; k < R; k++) s->rep[k].rng = *rng;
     /* threads beyond one per replica run each replica's ops (a nested team) */
     int inner = s->T / R, levels = omp_get_max_active_levels(), short_team = 0;
@@ -431,6 +446,7 @@ int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj
         }
     }
     if (inner > 1 && levels < 2) omp_set_max_active_levels(levels);
+    nj_graph_set_replicas(g, o ? &outer : NULL);
     if (short_team) return nj_train_step(g, m, cfg, b, rng, 1, r);
     if (s->h.aborted) {
         int f = s->h.first_failed;

@@ -9,7 +9,11 @@
  * photometric normaliser, the tie-break noise) combine the replicas' partial
  * sums through nn/graph.h's replica hook, so every replica computes its slice
  * of what one graph computes on the whole batch (the same mechanism as
- * data-parallel processes, train/trainer_dist.h).  Replica 0 uses the model's
+ * data-parallel processes, train/trainer_dist.h).  When the caller's graph
+ * has process replicas of its own, the thread replicas nest inside them:
+ * replica r of process p is shard p·R + r of all, and replica 0 (on the
+ * calling thread, the one MPI lets communicate) adds the processes' sums to
+ * the threads' sum.  Replica 0 uses the model's
  * gradient buffers, the others private ones (made for the first batch, again
  * when the replica count changes or the model is rebuilt); afterwards the
  * model's gradients are the replicas' mean (summed in replica order, so the

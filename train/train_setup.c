@@ -190,9 +190,9 @@ static int finish_setup(nj_trainer *t, char *err, size_t errlen)
     t->g = nj_graph_new((size_t)64 << 20);
     if (!t->g) { snprintf(err, errlen, "out of memory creating the training graph"); return -1; }
     nj_trainer_dist_graph(t);
-    /* one process, several threads: each thread runs the step on its share of
-     * the batch (train/step_replicas.h; across processes trainer_dist.h does) */
-    if (t->ranks <= 1 && omp_get_max_threads() > 1 &&
+    /* several threads: the process's batch is split over them as replicas
+     * (train/step_replicas.h), inside the processes' split (trainer_dist.h) */
+    if (omp_get_max_threads() > 1 &&
         !(t->split = nj_step_replicas_new(&t->model, omp_get_max_threads(), (size_t)64 << 20, err, errlen)))
         return -1;
     if (t->rank != 0) nj_runlog_quiet(&t->log);

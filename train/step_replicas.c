@@ -58,6 +58,7 @@ struct nj_step_replicas {
     int R;                   /* replicas the records below are for */
     size_t arena_chunk;
     int npairs, nblocks;
+    int dirty;               /* the private gradients may hold values (a step failed before its combine) */
     hub h;
     replica rep[MAX_REPLICAS];
     nj_param **real;         /* the model's parameters in unit order ... */
@@ -268,6 +269,7 @@ static int bind(nj_step_replicas *s, nj_model *m, int R, char *err, size_t errle
         snprintf(err, errlen, "out of memory setting up %d training replicas", R);
         unbind(s);
     }
+    s->dirty = 0; /* fresh records: zeroed gradients */
     return rc ? -1 : 0;
 }
 
@@ -362,7 +364,8 @@ static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj
     if (r) {
         nj_graph_reset(g);
         memcpy(p->m.params.frozen, m->params.frozen, sizeof m->params.frozen);
-        for (int i = 0; i < s->npairs; i++)
+        /* zeroed by the last combine, or at allocation */
+        for (int i = 0; s->dirty && i < s->npairs; i++)
             memset(s->twin[r][i]->grad, 0, sizeof(float) * nj_param_numel(s->twin[r][i]));
     }
     nj_replicas rp = {s->h.outer.rank * s->R + r, s->h.outer.count * s->R, member_sum, &p->mem};
@@ -374,7 +377,9 @@ static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj
     nj_graph_set_replicas(g, NULL);
 }
 
-/* The model's gradients ← the replicas' mean, block by block on all threads. */
+/* The model's gradients ← the replicas' mean, block by block on all threads;
+ * the private gradients are zeroed on the way (ready for the next step, and
+ * off the replicas' own start). */
 static void combine_grads(nj_step_replicas *s)
 {
     const float scale = 1.0f / (float)s->R;
@@ -383,9 +388,12 @@ static void combine_grads(nj_step_replicas *s)
         const grad_block *B = &s->blocks[i];
         float *d = s->real[B->param]->grad + B->start;
         for (int r = 1; r < s->R; r++) {
-            const float *o = s->twin[r][B->param]->grad + B->start;
+            float *o = s->twin[r][B->param]->grad + B->start;
             #pragma omp simd
-            for (size_t j = 0; j < B->len; j++) d[j] += o[j];
+            for (size_t j = 0; j < B->len; j++) {
+                d[j] += o[j];
+                o[j] = 0.0f;
+            }
         }
         #pragma omp simd
         for (size_t j = 0; j < B->len; j++) d[j] *= scale;
@@ -449,6 +457,7 @@ int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj
     nj_graph_set_replicas(g, o ? &outer : NULL);
     if (short_team) return nj_train_step(g, m, cfg, b, rng, 1, r);
     if (s->h.aborted) {
+        s->dirty = 1;
         int f = s->h.first_failed;
         if (f > 0) nj_graph_fail_cause(g, nj_graph_error(s->rep[f].g));
         else if (!nj_graph_failed(g)) nj_graph_fail(g, "a training replica failed");
@@ -456,6 +465,7 @@ int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj
     }
     *rng = s->rep[0].rng;
     combine_grads(s);
+    s->dirty = 0;
     combine_results(s, r);
     return 0;
 }

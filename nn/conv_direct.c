@@ -13,9 +13,9 @@
  * named vector variables (registers) over every input channel and tap, then
  * stored once.  The block shape (12×32, 8×48, 16×16 or 8×32) is picked per
  * channel count and width by estimated cycles: wide blocks need fewer loads
- * per multiply-add, narrow ones waste fewer lanes on small maps.  GCC vector extensions compile to AVX-512, AVX2 or SSE as the
- * -march allows; this file is built with -ffp-contract=fast so that
- * multiply-adds fuse.
+ * per multiply-add, narrow ones waste fewer lanes on small maps.  GCC vector
+ * extensions compile to AVX-512, AVX2 or SSE as the -march allows; this file
+ * is built with -ffp-contract=fast so that multiply-adds fuse.
  *
  * Weight gradient: per (pair of output channels, input channel), 9 taps at a
  * time are accumulated as vectors over the band and reduced once.
@@ -123,7 +123,10 @@ typedef void (*kernel_fn)(const corr_src *, const float *, int, const float *, f
 /* A block shape: ob output channels × px positions, and its estimated cycles
  * per (channel, tap) step on a core with two vector FMA and two load ports:
  * the larger of ob·px/16 FMAs and ob + px/16 loads, halved, plus one for the
- * loop (fitted to per-layer timings of the default nets within ~10 %). */
+ * loop.  A model, not a timing (so the pick is the same on every run); on the
+ * default nets at 320×96 it picks the shape each layer ran fastest with when
+ * all four were timed (12×32 on large maps, 8×48 for 256 outputs on 6×20,
+ * 16×16 on 3×10). */
 typedef struct kernel_kind {
     int ob, px;
     kernel_fn f;

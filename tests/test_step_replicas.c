@@ -74,7 +74,7 @@ static void run_step(int threads, const nj_bench_batch *bb, const nj_train_confi
         return;
     }
     nj_graph *g = nj_graph_new((size_t)16 << 20);
-    nj_step_replicas *s = threads > 1 ? nj_step_replicas_new(&m, threads, (size_t)16 << 20, err, sizeof err) : NULL;
+    nj_step_replicas *s = threads > 1 ? nj_step_replicas_new(threads, (size_t)16 << 20, err, sizeof err) : NULL;
     nj_rng_seed(&o->rng, 11);
     omp_set_num_threads(threads);
     nj_params_zero_grad(&m.params);
@@ -180,7 +180,7 @@ static void test_uneven(const nj_train_config *cfg, nj_model *shape)
     nj_model m;
     char err[256];
     nj_model_init(&m, &cfg->model, err, sizeof err);
-    nj_step_replicas *s = nj_step_replicas_new(&m, 2, (size_t)16 << 20, err, sizeof err);
+    nj_step_replicas *s = nj_step_replicas_new(2, (size_t)16 << 20, err, sizeof err);
     check(s && !nj_step_replicas_fit(s, &bb.b), "a batch of 3 does not split over 2 replicas", "%s",
           s ? "fits" : err);
     nj_step_replicas_free(s);
@@ -221,7 +221,7 @@ static void test_rebind(const nj_train_config *cfg)
     char err[256];
     nj_model_init(&m, &cfg->model, err, sizeof err);
     nj_graph *g = nj_graph_new((size_t)16 << 20);
-    nj_step_replicas *s = nj_step_replicas_new(&m, 2, (size_t)16 << 20, err, sizeof err);
+    nj_step_replicas *s = nj_step_replicas_new(2, (size_t)16 << 20, err, sizeof err);
     int rc1, rc2;
     float first = step_with(s, &m, g, cfg, &bb, &rc1);
     nj_model_free(&m);

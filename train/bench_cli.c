@@ -188,7 +188,7 @@ static int run(const bench_args *a)
         return 1;
     }
     nj_step_replicas *rep = NULL;
-    if (threads > 1 && !(rep = nj_step_replicas_new(&m, threads, (size_t)64 << 20, err, sizeof err))) {
+    if (threads > 1 && !(rep = nj_step_replicas_new(threads, (size_t)64 << 20, err, sizeof err))) {
         fprintf(stderr, "nightjar bench: %s\n", err);
         return 1;
     }

@@ -70,6 +70,13 @@ static float saturation_share(const nj_tensor *d)
     return (float)s / (float)k;
 }
 
+void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES])
+{
+    float *f[NJ_STEP_FIGURES] = {&r->loss, &r->photometric, &r->smoothness, &r->mask_fraction, &r->saturated,
+                                 &r->translation};
+    memcpy(out, f, sizeof f);
+}
+
 int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
                   nj_rng *rng, int backward, nj_step_result *r)
 {

@@ -16,6 +16,12 @@ typedef struct nj_step_result {
     nj_tensor *automask, *error;
 } nj_step_result;
 
+/* The loss figures of r that data-parallel shares average (loss,
+ * photometric, smoothness, mask_fraction, saturated, translation): pointers
+ * into r, NJ_STEP_FIGURES of them. */
+enum { NJ_STEP_FIGURES = 6 };
+void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES]);
+
 /* Builds the step in g (reset first by the caller).  With backward != 0 runs
  * the reverse pass (gradients accumulate into the model's parameters).
  * rng: tie-break noise source, or NULL.  Returns 0 or -1 with g's error set. */

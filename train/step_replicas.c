@@ -23,17 +23,15 @@ typedef struct hub {
     unsigned long gen;
     double *slot[MAX_REPLICAS];
     int len[MAX_REPLICAS];
-    double *result;          /* the sum, in replica 0's buffer */
-    int result_rc;
+    double *result;          /* the sum (written by replica 0) */
+    int cap, result_rc;
     nj_replicas outer;       /* the step graph's own replicas (processes); count 1: none */
 } hub;
 
-/* One replica's side of the sums (the hook's context); replica 0's tmp holds
- * each sum's result. */
+/* One replica's side of the sums (the hook's context). */
 typedef struct member {
     hub *h;
-    int rank, cap;
-    double *tmp;
+    int rank;
 } member;
 
 typedef struct replica {
@@ -41,11 +39,9 @@ typedef struct replica {
     nj_model m;              /* rank ≥ 1: the model with private gradients and BN buffers */
     nj_param *shadow;        /* rank ≥ 1: the parameter records m's units point to */
     float *store;            /* their gradient and buffer storage */
-    size_t store_floats;
     member mem;
     nj_rng rng;
     nj_step_result res;
-    int rc;
 } replica;
 
 typedef struct grad_block {
@@ -124,18 +120,17 @@ static int member_sum(double *buf, int n, void *ctx)
          * first barrier): the result buffer may move now */
         int same = 1;
         for (int r = 0; r < h->count; r++) same &= h->len[r] == n;
-        if (same && n > me->cap) {
-            double *t = realloc(me->tmp, sizeof(double) * (size_t)n);
-            if (t) me->tmp = t, me->cap = n;
+        if (same && n > h->cap) {
+            double *t = realloc(h->result, sizeof(double) * (size_t)n);
+            if (t) h->result = t, h->cap = n;
             else same = 0;
         }
         for (int i = 0; same && i < n; i++) {
             double s = 0;
             for (int r = 0; r < h->count; r++) s += h->slot[r][i];
-            me->tmp[i] = s;
+            h->result[i] = s;
         }
-        h->result = me->tmp;
-        h->result_rc = !same ? -1 : (h->outer.count > 1 ? h->outer.sum(me->tmp, n, h->outer.ctx) : 0);
+        h->result_rc = !same ? -1 : (h->outer.count > 1 ? h->outer.sum(h->result, n, h->outer.ctx) : 0);
     }
     if (hub_wait(h)) return -1; /* replica 0 has read every slot and written the result */
     if (h->result_rc) return -1;
@@ -169,9 +164,9 @@ static int make_twin(nj_step_replicas *s, nj_model *m, int r)
 {
     replica *p = &s->rep[r];
     p->m = *m;
-    p->store_floats = model_floats(m);
+    size_t floats = model_floats(m);
     p->shadow = calloc((size_t)m->nunits * 6, sizeof *p->shadow);
-    p->store = calloc(p->store_floats ? p->store_floats : 1, sizeof(float));
+    p->store = calloc(floats ? floats : 1, sizeof(float));
     s->twin[r] = calloc((size_t)s->npairs, sizeof *s->twin[r]);
     if (!p->shadow || !p->store || !s->twin[r]) return -1;
     float *next = p->store;
@@ -283,8 +278,7 @@ static int replicas_for(int T, int n)
     return 1;
 }
 
-nj_step_replicas *nj_step_replicas_new(nj_model *m, int threads, size_t arena_chunk, char *err,
-                                       size_t errlen)
+nj_step_replicas *nj_step_replicas_new(int threads, size_t arena_chunk, char *err, size_t errlen)
 {
     if (threads < 2) {
         snprintf(err, errlen, "step replicas: %d threads (at least 2)", threads);
@@ -300,8 +294,7 @@ nj_step_replicas *nj_step_replicas_new(nj_model *m, int threads, size_t arena_ch
     s->arena_chunk = arena_chunk;
     pthread_mutex_init(&s->h.mu, NULL);
     pthread_cond_init(&s->h.cv, NULL);
-    for (int r = 0; r < MAX_REPLICAS; r++) s->rep[r].mem = (member){&s->h, r, 0, NULL};
-    (void)m; /* the records are made for the first batch, when the replica count is known */
+    for (int r = 0; r < MAX_REPLICAS; r++) s->rep[r].mem = (member){&s->h, r};
     return s;
 }
 
@@ -309,10 +302,9 @@ void nj_step_replicas_free(nj_step_replicas *s)
 {
     if (!s) return;
     unbind(s);
-    for (int r = 0; r < MAX_REPLICAS; r++) {
+    for (int r = 0; r < MAX_REPLICAS; r++)
         if (s->rep[r].g) nj_graph_free(s->rep[r].g);
-        free(s->rep[r].mem.tmp);
-    }
+    free(s->h.result);
     pthread_mutex_destroy(&s->h.mu);
     pthread_cond_destroy(&s->h.cv);
     free(s->twin);
@@ -372,8 +364,7 @@ static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj
     nj_graph_set_replicas(g, &rp);
     nj_batch sb;
     shard(b, r, b->n / s->R, &sb);
-    p->rc = nj_train_step(g, mr, cfg, &sb, &p->rng, 1, &p->res);
-    if (p->rc) hub_abort(&s->h, r);
+    if (nj_train_step(g, mr, cfg, &sb, &p->rng, 1, &p->res)) hub_abort(&s->h, r);
     nj_graph_set_replicas(g, NULL);
 }
 
@@ -404,22 +395,17 @@ static void combine_grads(nj_step_replicas *s)
 static void combine_results(nj_step_replicas *s, nj_step_result *r)
 {
     *r = s->rep[0].res;
-    double f[6] = {0};
-    for (int k = 0; k < s->R; k++) {
-        const nj_step_result *q = &s->rep[k].res;
-        f[0] += q->loss;
-        f[1] += q->photometric;
-        f[2] += q->smoothness;
-        f[3] += q->mask_fraction;
-        f[4] += q->saturated;
-        f[5] += q->translation;
+    float *mean[NJ_STEP_FIGURES];
+    nj_step_figures(r, mean);
+    for (int i = 0; i < NJ_STEP_FIGURES; i++) {
+        double sum = 0;
+        for (int k = 0; k < s->R; k++) {
+            float *f[NJ_STEP_FIGURES];
+            nj_step_figures(&s->rep[k].res, f);
+            sum += *f[i];
+        }
+        *mean[i] = (float)(sum / s->R);
     }
-    r->loss = (float)(f[0] / s->R);
-    r->photometric = (float)(f[1] / s->R);
-    r->smoothness = (float)(f[2] / s->R);
-    r->mask_fraction = (float)(f[3] / s->R);
-    r->saturated = (float)(f[4] / s->R);
-    r->translation = (float)(f[5] / s->R);
 }
 
 int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj_train_config *cfg,

@@ -30,12 +30,12 @@
 
 typedef struct nj_step_replicas nj_step_replicas;
 
-/* Replicas of model m for `threads` threads (≥ 2; at most 64 replicas); each replica after the
- * first gets model-shaped gradient buffers and a graph with arena chunks of
- * arena_chunk bytes at its first step.  NULL with a message in err when out
- * of memory or threads is out of range. */
-nj_step_replicas *nj_step_replicas_new(nj_model *m, int threads, size_t arena_chunk, char *err,
-                                       size_t errlen);
+/* Replicas for `threads` threads (≥ 2; at most 64 replicas).  The replicas
+ * after the first get model-shaped gradient buffers and a graph with arena
+ * chunks of arena_chunk bytes at their first step (when the batch, hence the
+ * replica count, is known).  NULL with a message in err when out of memory or
+ * threads < 2. */
+nj_step_replicas *nj_step_replicas_new(int threads, size_t arena_chunk, char *err, size_t errlen);
 void nj_step_replicas_free(nj_step_replicas *s);
 /* 1 when s is set up and batch b splits into 2 or more replicas. */
 int nj_step_replicas_fit(const nj_step_replicas *s, const nj_batch *b);

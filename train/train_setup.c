@@ -193,7 +193,7 @@ static int finish_setup(nj_trainer *t, char *err, size_t errlen)
     /* several threads: the process's batch is split over them as replicas
      * (train/step_replicas.h), inside the processes' split (trainer_dist.h) */
     if (omp_get_max_threads() > 1 &&
-        !(t->split = nj_step_replicas_new(&t->model, omp_get_max_threads(), (size_t)64 << 20, err, errlen)))
+        !(t->split = nj_step_replicas_new(omp_get_max_threads(), (size_t)64 << 20, err, errlen)))
         return -1;
     if (t->rank != 0) nj_runlog_quiet(&t->log);
     else if (nj_runlog_open(&t->log, t->dir, err, errlen)) return -1;

@@ -9,7 +9,7 @@
 #include <unistd.h>
 
 /* Loss figures appended to the gradients in the fused buffer. */
-enum { NSTATS = 6 };
+enum { NSTATS = NJ_STEP_FIGURES };
 
 /* Rank 0's note for a signal (see nj_trainer_dist_signal_note). */
 static char g_note[NJ_PATH_MAX + 512];
@@ -201,8 +201,8 @@ int nj_trainer_dist_average(nj_trainer *t, nj_step_result *r)
     if (t->ranks <= 1) return 0;
     float *f = t->fused;
     size_t k = pack_grads(&t->model.params, f, 1, 1.0f);
-    float *stats[NSTATS] = {&r->loss, &r->photometric, &r->smoothness, &r->mask_fraction, &r->saturated,
-                            &r->translation};
+    float *stats[NSTATS];
+    nj_step_figures(r, stats);
     for (int i = 0; i < NSTATS; i++) f[k + i] = *stats[i];
     if (nj_dist_sum_f32(f, k + NSTATS)) return -1;
     const float scale = 1.0f / (float)t->ranks;

@@ -889,7 +889,9 @@ int nj_dconv_suits(const nj_dconv *D, int backward)
      * At stride 2 the backward pass always (the weight gradient's positions
      * stream past 9 taps × 32 channels held in registers), the forward pass for
      * the pose net's 7×7 and 5×5 kernels on maps of ≥ 40 columns and for 3×3
-     * kernels from ≥ 32 channels onto ≥ 64 positions. */
+     * kernels from ≥ 32 channels onto ≥ 64 positions.  (The stride-2 rules
+     * were timed before stride-2 staging copied whole row spans; re-time the
+     * small 3×3 stride-2 forwards before relying on that reason.) */
     int positions = D->oh * D->ow;
     if (D->stride == 2)
         return backward || (D->kh * D->kw >= 25 && D->ow >= 40) ||

@@ -15,6 +15,8 @@ struct nj_graph {
     char err[512];
     void *scratch;              /* see nj_graph_scratch */
     size_t scratch_bytes;
+    nj_tensor **lazy;           /* this step's tensors whose grad may still be unzeroed */
+    int nlazy, lazy_cap;
 };
 
 nj_graph *nj_graph_new(size_t arena_chunk_bytes)
@@ -35,6 +37,7 @@ void nj_graph_free(nj_graph *g)
     if (!g) return;
     nj_arena_free(g->arena);
     free(g->scratch);
+    free(g->lazy);
     free(g->tape);
     free(g);
 }
@@ -43,6 +46,7 @@ void nj_graph_reset(nj_graph *g)
 {
     nj_arena_reset(g->arena);
     g->ntape = 0;
+    g->nlazy = 0;
     g->failed = 0;
     g->err[0] = 0;
 }
@@ -126,8 +130,8 @@ void *nj_graph_scratch_zero(nj_graph *g, size_t bytes)
     return p;
 }
 
-/* Zeroes n floats; big buffers by all threads (the forward pass allocates
- * every gradient buffer zeroed, and on one thread that is a serial stretch). */
+/* Zeroes n floats; big buffers by all threads (on one thread a big buffer
+ * would be a serial stretch). */
 static void zero_floats(float *p, size_t n)
 {
     enum { SPAN = 1 << 14 };
@@ -143,6 +147,50 @@ static void zero_floats(float *p, size_t n)
     }
 }
 
+/* A new grad buffer is zeroed only when a backward is about to touch it:
+ * zeroing every buffer during the forward pass wrote it out to memory once
+ * more, and read it back in the backward (~3 % of a training step).  When
+ * the list cannot grow, the buffer is zeroed at once. */
+static void defer_zero(nj_graph *g, nj_tensor *t)
+{
+    if (g->nlazy == g->lazy_cap) {
+        /* grows during the first step only: later steps allocate the same tensors */
+        int cap = g->lazy_cap ? 2 * g->lazy_cap : 1024;
+        nj_tensor **l = realloc(g->lazy, sizeof *l * (size_t)cap);
+        if (!l) {
+            zero_floats(t->grad, nj_numel(t));
+            return;
+        }
+        g->lazy = l;
+        g->lazy_cap = cap;
+    }
+    g->lazy[g->nlazy++] = t;
+    t->grad_lazy = 1;
+}
+
+/* Zeroes t's grad if it is still unwritten. */
+static void settle(nj_tensor *t)
+{
+    if (t && t->grad_lazy) {
+        zero_floats(t->grad, nj_numel(t));
+        t->grad_lazy = 0;
+    }
+}
+
+float *nj_tensor_grad(nj_tensor *t)
+{
+    settle(t);
+    return t->grad;
+}
+
+/* After a reverse pass every grad buffer holds its value (zero when nothing
+ * reached it), as callers and tests read them. */
+static void settle_all(nj_graph *g)
+{
+    for (int i = 0; i < g->nlazy; i++) settle(g->lazy[i]);
+    g->nlazy = 0;
+}
+
 nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad)
 {
     if (n <= 0 || c <= 0 || h <= 0 || w <= 0)
@@ -153,9 +201,10 @@ nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad)
     t->grad = NULL;
     size_t bytes = nj_numel(t) * sizeof(float);
     if (!(t->data = nj_graph_alloc(g, bytes))) return NULL;
+    t->grad_lazy = 0;
     if (with_grad && g->grad_on) {
         if (!(t->grad = nj_graph_alloc(g, bytes))) return NULL;
-        zero_floats(t->grad, nj_numel(t));
+        defer_zero(g, t);
     }
     return t;
 }
@@ -176,6 +225,7 @@ nj_tensor *nj_tensor_wrap(nj_graph *g, int n, int c, int h, int w,
     t->n = n; t->c = c; t->h = h; t->w = w;
     t->data = data;
     t->grad = g->grad_on ? grad : NULL;
+    t->grad_lazy = 0;
     return t;
 }
 
@@ -210,13 +260,17 @@ nj_op *nj_graph_record(nj_graph *g, const char *name, nj_backward_fn bw,
 static int replay(nj_graph *g)
 {
     for (int k = g->ntape - 1; k >= 0 && !g->failed; k--) {
+        nj_op *op = &g->tape[k];
+        settle(op->out);
+        for (int i = 0; i < 4; i++) settle(op->in[i]);
         double t0 = nj_prof_start();
-        g->tape[k].backward(g, &g->tape[k]);
+        op->backward(g, op);
         if (t0 > 0) {
-            int kind = nj_prof_kind_of(g->tape[k].name);
+            int kind = nj_prof_kind_of(op->name);
             if (kind >= 0) nj_prof_stop((nj_prof_kind)kind, t0);
         }
     }
+    settle_all(g);
     return g->failed ? -1 : 0;
 }
 
@@ -225,6 +279,7 @@ int nj_backward_seeded(nj_graph *g, nj_tensor *out, const float *seed)
     if (g->failed) return -1;
     if (!out) { nj_graph_fail(g, "backward: output is NULL"); return -1; }
     if (!out->grad) return 0;
+    settle(out);
     size_t n = nj_numel(out);
     for (size_t i = 0; i < n; i++) out->grad[i] += seed[i];
     return replay(g);
@@ -240,6 +295,7 @@ int nj_backward(nj_graph *g, nj_tensor *loss)
         return -1;
     }
     if (!loss->grad) return 0; /* nothing upstream needs a gradient */
+    settle(loss);
     loss->grad[0] += 1.0f;
     return replay(g);
 }

@@ -98,9 +98,14 @@ void *nj_graph_scratch(nj_graph *g, size_t bytes);
 /* Same, zero-filled. */
 void *nj_graph_scratch_zero(nj_graph *g, size_t bytes);
 
-/* A new tensor in the arena.  Data uninitialised; a zeroed grad buffer is
- * attached when with_grad is non-zero and gradients are enabled. */
+/* A new tensor in the arena.  Data uninitialised; a grad buffer is attached
+ * when with_grad is non-zero and gradients are enabled.  That buffer reads as
+ * zero, but it is zeroed lazily: just before the first backward that touches
+ * it, and for every buffer at the end of a reverse pass.  Before the reverse
+ * pass, read or write it only through nj_tensor_grad(). */
 nj_tensor *nj_tensor_new(nj_graph *g, int n, int c, int h, int w, int with_grad);
+/* t's grad buffer, zeroed first if it is still unwritten (NULL: no gradient). */
+float *nj_tensor_grad(nj_tensor *t);
 /* A tensor in the arena holding a copy of `data` (numel floats). */
 nj_tensor *nj_tensor_from(nj_graph *g, int n, int c, int h, int w,
                           const float *data, int with_grad);

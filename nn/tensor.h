@@ -5,6 +5,8 @@
  * values use size-1 dimensions (a scalar is 1x1x1x1, a per-channel vector is
  * 1xCx1x1).  `grad` is NULL when no gradient flows to the tensor; otherwise it
  * has the same shape as `data` and backward passes accumulate into it.
+ * `grad_lazy` is 1 while a graph-allocated grad buffer is still unwritten: the
+ * graph zeroes it just before the first backward that touches it (nn/graph.h).
  */
 #ifndef NJ_TENSOR_H
 #define NJ_TENSOR_H
@@ -14,6 +16,7 @@ typedef struct nj_tensor {
     int n, c, h, w;
     float *data;
     float *grad;
+    int grad_lazy;
 } nj_tensor;
 
 static inline size_t nj_numel(const nj_tensor *t)

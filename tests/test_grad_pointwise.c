@@ -612,6 +612,49 @@ static void test_fold(void)
     nj_graph_free(g);
 }
 
+/* Grad buffers are zeroed lazily (nn/graph.c): a reused arena must still give
+ * zero-valued gradients — before the reverse pass through nj_tensor_grad(),
+ * after it for tensors the pass never reached, and as the start of the
+ * accumulation for the ones it did.  Expected values are d(sum x*x)/dx = 2x. */
+static void test_lazy_grad_zero(void)
+{
+    enum { N = 2 * 4 * 48 * 48 }; /* big enough for the threaded zeroing */
+    static float xv[N];
+    test_fill_uniform(xv, N, -1, 1, 701);
+    nj_graph *g = nj_graph_new(1 << 22);
+    /* step 1 leaves non-zero values in every grad buffer of the arena */
+    for (int k = 0; k < 3; k++) {
+        nj_tensor *t = nj_tensor_new(g, 2, 4, 48, 48, 1);
+        float *gt = t ? nj_tensor_grad(t) : NULL;
+        for (int i = 0; gt && i < N; i++) gt[i] = 7.0f;
+    }
+    nj_graph_reset(g);
+    nj_tensor *x = nj_tensor_from(g, 2, 4, 48, 48, xv, 1);
+    nj_tensor *unused = nj_tensor_new(g, 2, 4, 48, 48, 1);
+    nj_tensor *idle = nj_tensor_new(g, 2, 4, 48, 48, 1); /* in no op at all */
+    nj_tensor *loss = nj_sum(g, nj_mul(g, x, x), NJ_AXIS_ALL);
+    nj_tensor *dangling = nj_relu(g, x); /* recorded, but not on the loss's path */
+    int ok = loss && dangling && unused && idle && !nj_graph_failed(g);
+    double before = 0, unreached = 0, wrong = 0, dangle = 0;
+    if (ok) {
+        float *gu = nj_tensor_grad(unused);
+        for (int i = 0; i < N; i++) before = fmax(before, fabs(gu[i]));
+        for (int i = 0; i < N; i++) gu[i] = 7.0f; /* written before backward: kept */
+    }
+    ok = ok && nj_backward(g, loss) == 0;
+    for (int i = 0; ok && i < N; i++) {
+        unreached = fmax(unreached, fabs(unused->grad[i] - 7.0f));
+        wrong = fmax(wrong, fabs(x->grad[i] - 2.0f * xv[i]));
+        dangle = fmax(dangle, fabs(dangling->grad[i]));
+        dangle = fmax(dangle, fabs(idle->grad[i]));
+    }
+    check(ok && before == 0 && unreached == 0 && wrong <= 1e-6 && dangle == 0,
+          "lazily zeroed grads: zero before, accumulate from zero, untouched ones kept or zero",
+          "ok %d, before backward %g, written-before changed by %g, dx off by %g, dangling/idle %g (%s)",
+          ok, before, unreached, wrong, dangle, nj_graph_error(g));
+    nj_graph_free(g);
+}
+
 int main(void)
 {
     nj_threads_init(0);
@@ -626,5 +669,6 @@ int main(void)
     test_groupnorm();
     test_shape_errors();
     test_fold();
+    test_lazy_grad_zero();
     return test_exit();
 }

@@ -276,9 +276,10 @@ static int run_conv(const conv_case *c, int threads, float grad0, conv_run *out)
     nj_tensor *x = nj_tensor_from(g, c->n, c->cin, c->h, c->w, xv, 1);
     nj_tensor *w = nj_tensor_from(g, c->cout, c->cin, c->kh, c->kw, wv, 1);
     nj_tensor *b = nj_tensor_from(g, 1, c->cout, 1, 1, bv, 1);
-    for (size_t i = 0; i < nx; i++) x->grad[i] = grad0;
-    for (size_t i = 0; i < nw; i++) w->grad[i] = grad0;
-    for (int i = 0; i < c->cout; i++) b->grad[i] = grad0;
+    float *gx = nj_tensor_grad(x), *gw = nj_tensor_grad(w), *gb = nj_tensor_grad(b);
+    for (size_t i = 0; i < nx; i++) gx[i] = grad0;
+    for (size_t i = 0; i < nw; i++) gw[i] = grad0;
+    for (int i = 0; i < c->cout; i++) gb[i] = grad0;
     nj_tensor *y = nj_conv2d(g, x, w, b, c->stride, c->pad, c->mode);
     int ok = y != NULL;
     if (ok) {

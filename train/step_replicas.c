@@ -25,6 +25,10 @@ typedef struct hub {
     int len[MAX_REPLICAS];
     double *result;          /* the sum (written by replica 0) */
     int cap, result_rc;
+    /* one-barrier sums: replica r publishes its partial sums in stage[p][r],
+     * p alternating from sum to sum (see publish_sum) */
+    double *stage[2][MAX_REPLICAS];
+    int stage_cap[2][MAX_REPLICAS], stage_len[2][MAX_REPLICAS];
     nj_replicas outer;       /* the step graph's own replicas (processes); count 1: none */
 } hub;
 
@@ -32,6 +36,7 @@ typedef struct hub {
 typedef struct member {
     hub *h;
     int rank;
+    unsigned sums;           /* sums taken part in this step (its parity picks the stage) */
 } member;
 
 typedef struct replica {
@@ -103,15 +108,46 @@ static void hub_reset(hub *h)
     h->first_failed = -1;
 }
 
+/* The sum without process replicas, behind one barrier: each replica copies
+ * its partials into its own stage, waits for the others, and adds every
+ * stage in replica order itself (the same additions in the same order as
+ * replica 0's in member_sum, so the same bits).  Stages alternate from one
+ * sum to the next: a replica writing stage p of sum k+1 cannot meet one still
+ * reading sum k's stage (1 - p), and none can be reading stage p, the one of
+ * sum k-1, because all have passed sum k's barrier.  Halves the barriers of
+ * a step (64 → 32 at the default sizes) and drops replica 0's serial sum. */
+static int publish_sum(member *me, double *buf, int n)
+{
+    hub *h = me->h;
+    int p = me->sums++ & 1, r = me->rank;
+    if (n > h->stage_cap[p][r]) {
+        double *t = realloc(h->stage[p][r], sizeof(double) * (size_t)n);
+        if (t) h->stage[p][r] = t, h->stage_cap[p][r] = n;
+    }
+    int fits = n <= h->stage_cap[p][r];
+    if (fits) memcpy(h->stage[p][r], buf, sizeof(double) * (size_t)n);
+    h->stage_len[p][r] = fits ? n : -1;
+    if (hub_wait(h)) return -1;
+    for (int q = 0; q < h->count; q++)
+        if (h->stage_len[p][q] != n) return -1; /* every replica sees the same lengths: all fail */
+    for (int i = 0; i < n; i++) {
+        double sum = 0;
+        for (int q = 0; q < h->count; q++) sum += h->stage[p][q][i];
+        buf[i] = sum;
+    }
+    return 0;
+}
+
 /* nj_replicas.sum: every replica's buf becomes the sum over the replicas,
- * added in replica order by replica 0 — and, when the step's graph had
- * replicas of its own (data-parallel processes, train/trainer_dist.h), summed
- * over those too by replica 0, which runs on the thread that called the step
- * (the one MPI allows to communicate). */
+ * added in replica order.  When the step's graph had replicas of its own
+ * (data-parallel processes, train/trainer_dist.h), replica 0, which runs on
+ * the thread that called the step (the one MPI allows to communicate), adds
+ * the replicas' sums and then the processes', and the others wait for it. */
 static int member_sum(double *buf, int n, void *ctx)
 {
     member *me = ctx;
     hub *h = me->h;
+    if (h->outer.count <= 1) return publish_sum(me, buf, n);
     h->slot[me->rank] = buf;
     h->len[me->rank] = n;
     if (hub_wait(h)) return -1;
@@ -294,7 +330,7 @@ nj_step_replicas *nj_step_replicas_new(int threads, size_t arena_chunk, char *er
     s->arena_chunk = arena_chunk;
     pthread_mutex_init(&s->h.mu, NULL);
     pthread_cond_init(&s->h.cv, NULL);
-    for (int r = 0; r < MAX_REPLICAS; r++) s->rep[r].mem = (member){&s->h, r};
+    for (int r = 0; r < MAX_REPLICAS; r++) s->rep[r].mem = (member){&s->h, r, 0};
     return s;
 }
 
@@ -305,6 +341,8 @@ void nj_step_replicas_free(nj_step_replicas *s)
     for (int r = 0; r < MAX_REPLICAS; r++)
         if (s->rep[r].g) nj_graph_free(s->rep[r].g);
     free(s->h.result);
+    for (int p = 0; p < 2; p++)
+        for (int r = 0; r < MAX_REPLICAS; r++) free(s->h.stage[p][r]);
     pthread_mutex_destroy(&s->h.mu);
     pthread_cond_destroy(&s->h.cv);
     free(s->twin);
@@ -426,7 +464,7 @@ int nj_step_replicas_run(nj_step_replicas *s, nj_graph *g, nj_model *m, const nj
     hub_reset(&s->h);
     s->h.count = R;
     s->h.outer = outer;
-    for (int k = 0; k < R; k++) s->rep[k].rng = *rng;
+    for (int k = 0; k < R; k++) s->rep[k].rng = *rng, s->rep[k].mem.sums = 0;
     /* threads beyond one per replica run each replica's ops (a nested team) */
     int inner = s->T / R, levels = omp_get_max_active_levels(), short_team = 0;
     if (inner > 1 && levels < 2) omp_set_max_active_levels(2);

@@ -19,5 +19,9 @@ typedef struct nj_adam {
 void nj_adam_init(nj_adam *opt, float lr);
 /* One update of every non-frozen parameter from its grad.  OpenMP over elements. */
 void nj_adam_step(nj_adam *opt, nj_params *ps);
+/* The same with every gradient read as grad·grad_scale (gradient clipping
+ * folded into the update; the grad buffers are left as they are).  Gives the
+ * bits nj_params_scale_grads(ps, grad_scale) then nj_adam_step would. */
+void nj_adam_step_scaled(nj_adam *opt, nj_params *ps, float grad_scale);
 
 #endif

@@ -12,6 +12,11 @@
  *    Euclidean norms (a 3-4-5 triangle and a 1-2-2 one: √(9+16+1+4+4) = √34),
  *    scaling by 0.5, and on ~2.1 M random gradients 1 and 2 threads give the
  *    same bits and a plain serial double sum agrees within 1e-12 relative.
+ * 2b. Clipping folded into the update: nj_adam_step_scaled(f) on 2 threads
+ *    must give the same bits as nj_params_scale_grads(f) then nj_adam_step on
+ *    1 thread (parameters, both moments; 3 steps, ~0.4 M values over tensors
+ *    of many sizes, one frozen group, two learning-rate groups) and must
+ *    leave the gradients as they were.
  * 3. Arena reuse: a small training step (conv → ELU → mean, forward, backward,
  *    Adam) with parameters wrapped by nj_param_tensor is repeated in one graph
  *    with nj_graph_reset between steps; after the first step the arena must
@@ -221,6 +226,68 @@ static void test_grad_norm(void)
     nj_params_free(&ps);
 }
 
+/* ---- clipping folded into the update ------------------------------------------ */
+
+static void fill_params(nj_params *ps, unsigned seed)
+{
+    nj_rng rng;
+    nj_rng_seed(&rng, seed);
+    for (int i = 0; i < 23; i++) {
+        char name[16];
+        snprintf(name, sizeof name, "q%d", i);
+        nj_param *p = nj_params_add(ps, name, i % 3, 1 + i % 4, 5, 3, 1 + 97 * (i % 7) + 1000 * (i == 9));
+        for (size_t j = 0, k = nj_param_numel(p); j < k; j++) {
+            p->data[j] = (float)nj_rng_normal(&rng);
+            p->grad[j] = (float)nj_rng_normal(&rng);
+        }
+    }
+}
+
+static int same_floats(const float *a, const float *b, size_t n) { return !memcmp(a, b, n * sizeof(float)); }
+
+static void test_scaled_step(void)
+{
+    nj_params a, b;
+    nj_params_init(&a);
+    nj_params_init(&b);
+    fill_params(&a, 21);
+    fill_params(&b, 21);
+    nj_params_freeze_group(&a, 2, 1);
+    nj_params_freeze_group(&b, 2, 1);
+    nj_adam oa, ob;
+    nj_adam_init(&oa, 0.01f);
+    nj_adam_init(&ob, 0.01f);
+    oa.group_lr[1] = ob.group_lr[1] = 0.5f;
+    oa.weight_decay = ob.weight_decay = 0.01f;
+    int saved = omp_get_max_threads(), same = 1, grads_kept = 1;
+    const float f[3] = {0.37f, 1.0f, 0.81f};
+    for (int s = 0; s < 3; s++) {
+        omp_set_num_threads(1);
+        nj_params_scale_grads(&a, f[s]);
+        nj_adam_step(&oa, &a);
+        for (int i = 0; i < b.count; i++) /* both start the next step from the same grads */
+            memcpy(a.items[i]->grad, b.items[i]->grad, sizeof(float) * nj_param_numel(b.items[i]));
+        omp_set_num_threads(2);
+        float *before = malloc(sizeof(float) * nj_param_numel(b.items[9]));
+        memcpy(before, b.items[9]->grad, sizeof(float) * nj_param_numel(b.items[9]));
+        nj_adam_step_scaled(&ob, &b, f[s]);
+        grads_kept &= same_floats(before, b.items[9]->grad, nj_param_numel(b.items[9]));
+        free(before);
+    }
+    omp_set_num_threads(saved);
+    for (int i = 0; i < a.count; i++) {
+        size_t k = nj_param_numel(a.items[i]);
+        same &= same_floats(a.items[i]->data, b.items[i]->data, k) &&
+                same_floats(a.items[i]->m, b.items[i]->m, k) && same_floats(a.items[i]->v, b.items[i]->v, k);
+    }
+    check(same && grads_kept && nj_params_numel(&a) > 65536,
+          "adam: clipping folded into the update (2 threads) == scale grads then step (1 thread), bit for bit",
+          "parameters and moments %s, grads %s, %zu values", same ? "equal" : "differ",
+          grads_kept ? "kept" : "changed", nj_params_numel(&a));
+    nj_params_free(&a);
+    nj_params_free(&b);
+}
+
 /* ---- arena reuse --------------------------------------------------------------- */
 
 /* One step: conv (reflect) → ELU → mean, backward, Adam.  Returns the loss. */
@@ -274,6 +341,7 @@ int main(void)
     nj_threads_init(0);
     test_adam_vs_torch();
     test_grad_norm();
+    test_scaled_step();
     test_arena_reuse();
     return test_exit();
 }

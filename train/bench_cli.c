@@ -78,10 +78,11 @@ static int parse(int argc, char **argv, bench_args *a)
     return 0;
 }
 
-static void grad_clip(nj_params *ps, float max_norm)
+/* The factor that clips the gradients' global norm to max_norm (1: no clipping). */
+static float clip_factor(const nj_params *ps, float max_norm)
 {
     double n = nj_params_grad_norm(ps);
-    if (max_norm > 0 && n > max_norm) nj_params_scale_grads(ps, (float)(max_norm / n));
+    return max_norm > 0 && n > max_norm ? (float)(max_norm / n) : 1.0f;
 }
 
 /* One step as the trainer runs it: zero grads, forward + backward (split over
@@ -95,8 +96,7 @@ static int one_step(nj_graph *g, nj_step_replicas *rep, nj_model *m, const nj_tr
     nj_params_zero_grad(&m->params);
     nj_step_result r;
     if (nj_step_replicas_run(rep, g, m, cfg, b, rng, &r)) return -1;
-    grad_clip(&m->params, cfg->grad_clip);
-    nj_adam_step(opt, &m->params);
+    nj_adam_step_scaled(opt, &m->params, clip_factor(&m->params, cfg->grad_clip));
     *seconds = omp_get_wtime() - t0;
     *loss = r.loss;
     return 0;

@@ -6,16 +6,19 @@ PyTorch: bench/torch_recipe.py --bench) at
   320x96 batch 4 with 1 and 2 threads, and 416x128 batch 4 with 2 threads.
 Per configuration both implementations run as their own processes side by side (so peak RSS is
 per implementation and configuration; 1-thread configurations pinned to one core for both, see
-one_core), and the driver alternates them step by step (--paced: each step waits for the
-driver's go, and which implementation steps first alternates from step to step), so that a
-change of machine speed between minutes hits both alike — on this shared 2-core VM the step time of
-either implementation was seen to jump by ~30 % for minutes at a time.  Median ms/step over STEPS
-steps after WARMUP warm-up steps, repeated for ROUNDS rounds over all configurations; the table
-shows the median over rounds and each round's ratio.  nightjar's conv GFLOP/s (conv FLOPs over
+one_core), and the driver alternates them in short turns (--paced: each step waits for the
+driver's go; which implementation takes the first turn alternates), so that a change of machine
+speed between minutes hits both alike — on this shared 2-core VM the step time of either
+implementation was seen to jump by ~30 % for minutes at a time.  A turn is BLOCK steps (default 5)
+and its first step is not counted: it runs with the caches full of the other process's data, which
+a training run never sees (stepping the two strictly in turn, --block 1, every step is such a step:
+nightjar's 2-thread step then measured ~7 ms (5 %) slower, PyTorch's 0-7 % in two runs).  Median
+ms/step over the counted steps (at least STEPS) after WARMUP warm-up steps, repeated for ROUNDS
+rounds over all configurations; the table shows the median over rounds and each round's ratio.  nightjar's conv GFLOP/s (conv FLOPs over
 the time spent inside conv forward + backward) is shown next to OpenBLAS sgemm GFLOP/s measured in
 the same process, and the data loader's samples/s at each size (build/bench/bench_data WxH).
 
-Usage: /usr/bin/python3 bench/side_by_side.py [--steps N] [--warmup N] [--rounds N] [--no-loader]
+Usage: /usr/bin/python3 bench/side_by_side.py [--steps N] [--warmup N] [--rounds N] [--block K] [--no-loader]
 Targets: step <= 0.45x PyTorch's, peak RSS <= 1/3, 1->2 threads >= 1.8x, conv >= 60% of sgemm.
 """
 import argparse
@@ -76,20 +79,39 @@ def finish(p, name):
 
 
 def side_by_side(size, batch, threads, a):
-    """Both implementations at one configuration, alternating step by step."""
+    """Both implementations at one configuration, alternating in blocks of a.block steps (1: step
+    by step).  Each block's first step follows the other implementation's steps, with caches
+    holding the other's data; with blocks of 2 or more it is not counted, like a warm-up step, so
+    the medians are of steady-state steps as in a training run.  The medians are the driver's
+    own, over the counted steps, for both implementations."""
+    k = a.block
+    kept = k - 1 if k > 1 else 1
+    blocks = -(-a.steps // kept)
+    n = blocks * k  # steps after warm-up that each process takes
     common = ["--size", size, "--batch", str(batch), "--threads", str(threads),
-              "--steps", str(a.steps), "--warmup", str(a.warmup)]
+              "--steps", str(n), "--warmup", str(a.warmup)]
     env = dict(os.environ, OMP_NUM_THREADS=str(threads), OPENBLAS_NUM_THREADS=str(threads),
                MKL_NUM_THREADS=str(threads))
     procs = [("nightjar", start(["./nightjar", "bench", "--profile"] + common, None, threads)),
              ("PyTorch", start(["/usr/bin/python3", "bench/torch_recipe.py", "--bench"] + common, env, threads))]
-    for i in range(a.warmup + a.steps):
+    times = {"nightjar": [], "PyTorch": []}
+    for i in range(a.warmup):
         for name, p in (procs if i % 2 == 0 else procs[::-1]):
             step(p, name)
+    for b in range(blocks):
+        for name, p in (procs if b % 2 == 0 else procs[::-1]):
+            for j in range(k):
+                ms = step(p, name)
+                if k == 1 or j > 0:
+                    times[name].append(ms)
     # PyTorch ends first: nightjar's closing sgemm measurement waits for its input to end
     out = {name: finish(p, name) for name, p in procs[::-1]}
     prof = [l for l in out["nightjar"].splitlines() if l.startswith("profile")]
-    return fields(out["nightjar"]), fields(out["PyTorch"]), prof[0] if prof else ""
+    nj, th = fields(out["nightjar"]), fields(out["PyTorch"])
+    own = nj["ms_per_step"]  # nightjar's median over all its steps after warm-up
+    nj["ms_per_step"], th["ms_per_step"] = median(times["nightjar"]), median(times["PyTorch"])
+    nj["gflops"] *= own / nj["ms_per_step"]  # the step's FLOPs over the counted steps' median
+    return nj, th, prof[0] if prof else ""
 
 
 def cpu_cell(nj, th):
@@ -116,8 +138,13 @@ def main():
     ap.add_argument("--warmup", type=int, default=3)
     ap.add_argument("--rounds", type=int, default=3,
                     help="rounds over all configurations; each figure is the median over rounds")
+    ap.add_argument("--block", type=int, default=5,
+                    help="steps per turn of each implementation; with 2 or more the first step of "
+                         "each turn is not counted (1: step by step, all counted)")
     ap.add_argument("--no-loader", action="store_true")
     a = ap.parse_args()
+    if a.block < 1 or a.steps < 1 or a.rounds < 1 or a.warmup < 0:
+        sys.exit("side_by_side: --block, --steps and --rounds must be at least 1, --warmup at least 0")
     got = [([], [], []) for _ in CONFIGS]  # per config: nightjar runs, PyTorch runs, ratios
     for r in range(a.rounds):
         for k, (size, batch, threads) in enumerate(CONFIGS):
@@ -138,8 +165,10 @@ def main():
             m = re.search(r"loader_samples_per_s_%s=([0-9.]+)" % size, out)
             loader[size] = float(m.group(1)) if m else 0.0
     print()
-    print("Medians over %d rounds of %d steps (after %d warm-up) per implementation and configuration." %
-          (a.rounds, a.steps, a.warmup))
+    turns = ("alternating step by step" if a.block == 1 else
+             "alternating in turns of %d steps, the first of each turn not counted" % a.block)
+    print("Medians over %d rounds of %d steps (after %d warm-up) per implementation and configuration, %s." %
+          (a.rounds, -(-a.steps // max(a.block - 1, 1)) * max(a.block - 1, 1), a.warmup, turns))
     print("| config | nightjar ms/step | PyTorch ms/step | ratio (target <= 0.45) | ratio per round | nightjar peak RSS MB | "
           "PyTorch peak RSS MB | ratio (target <= 0.33) | nightjar conv GFLOP/s | sgemm GFLOP/s | "
           "conv/sgemm (target >= 0.60) | step GFLOP/s | nightjar samples/s | loader samples/s (1 worker) | "

@@ -149,8 +149,9 @@ static void zero_floats(float *p, size_t n)
 
 /* A new grad buffer is zeroed only when a backward is about to touch it:
  * zeroing every buffer during the forward pass wrote it out to memory once
- * more, and read it back in the backward (~3 % of a training step).  When
- * the list cannot grow, the buffer is zeroed at once. */
+ * more, and read it back in the backward (measured: ~5 ms of the 2-thread
+ * step at 320x96 b4, nothing measurable on 1 thread).  When the list cannot
+ * grow, the buffer is zeroed at once. */
 static void defer_zero(nj_graph *g, nj_tensor *t)
 {
     if (g->nlazy == g->lazy_cap) {

@@ -96,6 +96,11 @@ double nj_params_grad_norm(const nj_params *ps)
     return sqrt(s);
 }
 
+float nj_clip_factor(double norm, float max_norm)
+{
+    return max_norm > 0 && norm > max_norm ? (float)(max_norm / norm) : 1.0f;
+}
+
 void nj_params_scale_grads(nj_params *ps, float f)
 {
     #pragma omp parallel for schedule(dynamic, 1) if (ps->count > 1)

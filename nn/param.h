@@ -40,6 +40,9 @@ void nj_params_zero_grad(nj_params *ps);
  * double lanes) and the tensors' sums are added in order, so the value does
  * not depend on the thread count. */
 double nj_params_grad_norm(const nj_params *ps);
+/* The factor that clips a gradient of global norm `norm` to max_norm: max_norm / norm when
+ * max_norm > 0 and norm exceeds it, else 1 (for nj_adam_step_scaled). */
+float nj_clip_factor(double norm, float max_norm);
 /* grad *= f for every parameter. */
 void nj_params_scale_grads(nj_params *ps, float f);
 void nj_params_freeze_group(nj_params *ps, int group, int frozen);

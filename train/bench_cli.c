@@ -78,12 +78,6 @@ static int parse(int argc, char **argv, bench_args *a)
     return 0;
 }
 
-/* The factor that clips the gradients' global norm to max_norm (1: no clipping). */
-static float clip_factor(const nj_params *ps, float max_norm)
-{
-    double n = nj_params_grad_norm(ps);
-    return max_norm > 0 && n > max_norm ? (float)(max_norm / n) : 1.0f;
-}
 
 /* One step as the trainer runs it: zero grads, forward + backward (split over
  * the threads as replicas when rep is set, see train/step_replicas.h), clip,
@@ -96,7 +90,7 @@ static int one_step(nj_graph *g, nj_step_replicas *rep, nj_model *m, const nj_tr
     nj_params_zero_grad(&m->params);
     nj_step_result r;
     if (nj_step_replicas_run(rep, g, m, cfg, b, rng, &r)) return -1;
-    nj_adam_step_scaled(opt, &m->params, clip_factor(&m->params, cfg->grad_clip));
+    nj_adam_step_scaled(opt, &m->params, nj_clip_factor(nj_params_grad_norm(&m->params), cfg->grad_clip));
     *seconds = omp_get_wtime() - t0;
     *loss = r.loss;
     return 0;
@@ -181,14 +175,14 @@ static int run(const bench_args *a)
         return 2;
     }
     nj_bench_batch bb;
-    nj_graph *g = nj_graph_new((size_t)64 << 20);
+    nj_graph *g = nj_graph_new(NJ_STEP_ARENA_CHUNK);
     double *t = malloc(sizeof(double) * (size_t)a->steps);
     if (!g || !t || nj_bench_batch_make(&bb, a->batch, a->h, a->w, 7)) {
         fprintf(stderr, "nightjar bench: out of memory\n");
         return 1;
     }
     nj_step_replicas *rep = NULL;
-    if (threads > 1 && !(rep = nj_step_replicas_new(threads, (size_t)64 << 20, err, sizeof err))) {
+    if (threads > 1 && !(rep = nj_step_replicas_new(threads, NJ_STEP_ARENA_CHUNK, err, sizeof err))) {
         fprintf(stderr, "nightjar bench: %s\n", err);
         return 1;
     }

@@ -20,6 +20,9 @@ typedef struct nj_step_result {
  * photometric, smoothness, mask_fraction, saturated, translation): pointers
  * into r, NJ_STEP_FIGURES of them. */
 enum { NJ_STEP_FIGURES = 6 };
+
+/* Arena chunk size of a training step's graph (and of each replica's, train/step_replicas.h). */
+#define NJ_STEP_ARENA_CHUNK ((size_t)64 << 20)
 void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES]);
 
 /* Builds the step in g (reset first by the caller).  With backward != 0 runs

@@ -109,6 +109,17 @@ static void hub_reset(hub *h)
     h->first_failed = -1;
 }
 
+/* out[i] ← Σ_r in[r][i], added in replica order (every path sums this way,
+ * so the bits do not depend on which one ran). */
+static void add_in_order(double *out, double *const *in, int count, int n)
+{
+    for (int i = 0; i < n; i++) {
+        double s = 0;
+        for (int r = 0; r < count; r++) s += in[r][i];
+        out[i] = s;
+    }
+}
+
 /* The sum without process replicas, behind one barrier: each replica copies
  * its partials into its own stage, waits for the others, and adds every
  * stage in replica order itself (the same additions in the same order as
@@ -131,11 +142,7 @@ static int publish_sum(member *me, double *buf, int n)
     if (hub_wait(h)) return -1;
     for (int q = 0; q < h->count; q++)
         if (h->stage_len[p][q] != n) return -1; /* every replica sees the same lengths: all fail */
-    for (int i = 0; i < n; i++) {
-        double sum = 0;
-        for (int q = 0; q < h->count; q++) sum += h->stage[p][q][i];
-        buf[i] = sum;
-    }
+    add_in_order(buf, h->stage[p], h->count, n);
     return 0;
 }
 
@@ -162,12 +169,8 @@ static int member_sum(double *buf, int n, void *ctx)
             if (t) h->result = t, h->cap = n;
             else same = 0;
         }
-        for (int i = 0; same && i < n; i++) {
-            double s = 0;
-            for (int r = 0; r < h->count; r++) s += h->slot[r][i];
-            h->result[i] = s;
-        }
-        h->result_rc = !same ? -1 : (h->outer.count > 1 ? h->outer.sum(h->result, n, h->outer.ctx) : 0);
+        if (same) add_in_order(h->result, h->slot, h->count, n);
+        h->result_rc = !same ? -1 : h->outer.sum(h->result, n, h->outer.ctx);
     }
     if (hub_wait(h)) return -1; /* replica 0 has read every slot and written the result */
     if (h->result_rc) return -1;

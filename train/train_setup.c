@@ -187,13 +187,13 @@ static int finish_setup(nj_trainer *t, char *err, size_t errlen)
     nj_adam_init(&t->opt, t->cfg.lr);
     t->opt.weight_decay = t->cfg.weight_decay;
     t->opt.step = t->st.adam_step;
-    t->g = nj_graph_new((size_t)64 << 20);
+    t->g = nj_graph_new(NJ_STEP_ARENA_CHUNK);
     if (!t->g) { snprintf(err, errlen, "out of memory creating the training graph"); return -1; }
     nj_trainer_dist_graph(t);
     /* several threads: the process's batch is split over them as replicas
      * (train/step_replicas.h), inside the processes' split (trainer_dist.h) */
     if (omp_get_max_threads() > 1 &&
-        !(t->split = nj_step_replicas_new(omp_get_max_threads(), (size_t)64 << 20, err, errlen)))
+        !(t->split = nj_step_replicas_new(omp_get_max_threads(), NJ_STEP_ARENA_CHUNK, err, errlen)))
         return -1;
     if (t->rank != 0) nj_runlog_quiet(&t->log);
     else if (nj_runlog_open(&t->log, t->dir, err, errlen)) return -1;

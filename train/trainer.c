@@ -246,7 +246,7 @@ static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float 
     if (!isfinite(r->loss) || !isfinite(gn)) return handle_bad_step(t, isfinite(r->loss) ? "gradient" : "loss") < 0 ? -1 : 1;
     t->bad_steps = 0;
     /* clipping is folded into the update (the grad buffers keep the unclipped values) */
-    float clip = t->cfg.grad_clip > 0 && gn > t->cfg.grad_clip ? (float)(t->cfg.grad_clip / gn) : 1.0f;
+    float clip = nj_clip_factor(gn, t->cfg.grad_clip);
     *lr = nj_train_config_lr(&t->cfg, t->st.step, t->st.schedule_steps) * t->st.lr_scale;
     t->opt.lr = *lr;
     nj_adam_step_scaled(&t->opt, &t->model.params, clip);

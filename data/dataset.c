@@ -183,13 +183,13 @@ static void warn_unknown(ctx *c, const cJSON *obj, const char *const *known, int
 
 static void parse_sequence(ctx *c, const cJSON *seq, int i, nj_sequence *s, const char *root)
 {
-    static const char *known[] = {"name", "images", "camera", "right_images", "baseline", "depth", "poses", "split"};
+    static const char *known[] = {"name", "images", "camera", "right_images", "baseline", "depth", "poses", "split", "lead_mask"};
     snprintf(c->where, sizeof c->where, "sequence %d", i + 1);
     if (!cJSON_IsObject(seq)) {
         nj_problem(c->pr, "%s: %s: must be an object", c->path, c->where);
         return;
     }
-    const char *name = NULL, *images = NULL, *poses = NULL;
+    const char *name = NULL, *images = NULL, *poses = NULL, *lead = NULL;
     if (get_string(c, seq, "name", &name) == 0) missing(c, "name", "");
     if (name) {
         s->name = strdup(name);
@@ -201,6 +201,7 @@ static void parse_sequence(ctx *c, const cJSON *seq, int i, nj_sequence *s, cons
     parse_stereo(c, seq, s, root);
     parse_depth(c, seq, s, root);
     if (get_string(c, seq, "poses", &poses) == 1) s->poses = resolve(root, poses);
+    if (get_string(c, seq, "lead_mask", &lead) == 1) s->lead_mask_dir = resolve(root, lead);
     parse_split(c, seq, s);
     warn_unknown(c, seq, known, (int)(sizeof known / sizeof known[0]));
 }
@@ -275,6 +276,20 @@ void nj_data_options_default(nj_data_options *o)
     o->dup_threshold = 0.003f;
 }
 
+char *nj_lead_mask_path(const nj_sequence *s, int frame)
+{
+    if (!s->lead_mask_dir || frame < 0 || frame >= s->nframes) return NULL;
+    const char *name = s->frames[frame], *dot = strrchr(name, '.');
+    size_t stem = dot ? (size_t)(dot - name) : strlen(name);
+    char *file = malloc(stem + 5);
+    if (!file) return NULL;
+    memcpy(file, name, stem);
+    strcpy(file + stem, ".png");
+    char *p = nj_path_join(s->lead_mask_dir, file);
+    free(file);
+    return p;
+}
+
 static void sequence_free(nj_sequence *s)
 {
     free(s->name);
@@ -282,6 +297,7 @@ static void sequence_free(nj_sequence *s)
     free(s->right_images);
     free(s->depth_dir);
     free(s->poses);
+    free(s->lead_mask_dir);
     nj_free_names(s->frames, s->nframes);
     free(s->kept);
 }

@@ -10,6 +10,9 @@
  *       "depth": {"dir": "...", "format": "png16"|"npy"|"pfm", "scale": 1000.0},
  *                                            optional ground truth (scale: png16 only, required there)
  *       "poses": "yard-03/poses.txt",        optional ground truth, 12 numbers per line
+ *       "lead_mask": "yard-03/lead",         optional folder of 8-bit PNG masks, one per frame
+ *                                            (same stem as the frame): nonzero = a vehicle
+ *                                            driven ahead at the camera's speed (eval scores it)
  *       "split": "train" } ] }               train | val | test, default train
  *
  * nj_dataset_open parses and validates everything `nightjar check-data`
@@ -34,6 +37,7 @@ typedef struct nj_sequence {
     nj_depth_format depth_format;
     float depth_scale;
     char *poses;             /* NULL without poses */
+    char *lead_mask_dir;     /* NULL without "lead_mask" */
     nj_split split;
     /* from validation */
     int nframes;
@@ -84,6 +88,10 @@ void nj_free_names(char **names, int n);
 char *nj_path_join(const char *dir, const char *name);
 /* Depth file of a frame: DEPTH_DIR/<frame stem><extension of the format>. */
 char *nj_depth_path(const nj_sequence *s, int frame);
+/* Lead-vehicle mask of a frame: LEAD_MASK_DIR/<frame stem>.png (malloc'd; NULL
+ * when the sequence has no "lead_mask" or out of memory).  An 8-bit PNG read
+ * with nj_image_load: nonzero = a pixel of the vehicle driven ahead. */
+char *nj_lead_mask_path(const nj_sequence *s, int frame);
 
 /* One training sample: target frame, its temporal sources, the stereo flag. */
 typedef struct nj_sample {

@@ -1,6 +1,7 @@
 /* data/validate.c — checking one sequence against the file system: folders,
  * frames (every image fully decoded, in parallel), sizes, stereo partners,
- * ground-truth files, and near-duplicate frames (a stopped machine).
+ * ground-truth files, the lead-vehicle mask folder, and near-duplicate frames
+ * (a stopped machine).
  *
  * Near-duplicates: each frame is reduced to a grey thumbnail 64 pixels wide
  * (area filter), and a frame whose mean absolute difference to the last kept
@@ -245,6 +246,7 @@ int nj_sequence_validate(nj_sequence *s, const nj_data_options *o, nj_problems *
     scan_images(s, o, stereo_ok, pr);
     check_depth(s, pr);
     check_poses(s, pr);
+    if (s->lead_mask_dir) check_folder(s->lead_mask_dir, "lead_mask", s, pr);
 done:
     s->problems = pr->n - before;
     return s->problems;

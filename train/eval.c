@@ -1,13 +1,16 @@
 /* train/eval.c — `nightjar eval`: depth metrics (Eigen et al. 2014) of a
- * trained model on a dataset split, beside two baselines on the same pixels —
- * a constant depth (median-scaled) and the untrained network (same
- * architecture and seed) — plus the 5-frame-snippet trajectory error (Zhou et
- * al. 2017) where ground-truth poses exist.  Prints a table and writes
+ * trained model on a dataset split, beside three baselines on the same pixels —
+ * a constant depth (median-scaled), the untrained network (same architecture
+ * and seed) and the row-layout oracle (each row at its median true depth) —
+ * also per band of true depth, on obstacle pixels and on lead-vehicle masks
+ * (eval_regions.c), plus the 5-frame-snippet trajectory error (Zhou et al.
+ * 2017) where ground-truth poses exist.  Prints a table and writes
  * metrics.json atomically. */
 #include "data/atomic.h"
 #include "data/dataset.h"
 #include "data/poses.h"
 #include "train/checkpoint.h"
+#include "train/eval_regions.h"
 #include "train/groundplane.h"
 #include "train/infer.h"
 #include "train/metrics.h"
@@ -18,8 +21,13 @@
 #include <string.h>
 
 typedef enum { SCALE_MEDIAN, SCALE_METRIC, SCALE_CAMERA } scaling;
-enum { M_MODEL, M_CONSTANT, M_UNTRAINED, NMETHODS };
-static const char *const METHOD_NAMES[NMETHODS] = {"model", "constant depth", "untrained network"};
+enum { M_MODEL, M_CONSTANT, M_UNTRAINED, M_ORACLE, NMETHODS };
+static const char *const METHOD_NAMES[NMETHODS] = {"model", "constant depth", "untrained network",
+                                                   "row-layout oracle"};
+/* the methods' keys in metrics.json (the model's metrics are at the top level) */
+static const char *const METHOD_KEYS[NMETHODS] = {"model", "baseline_constant", "baseline_untrained",
+                                                  "baseline_row_layout_oracle"};
+_Static_assert(NMETHODS == NJ_EVAL_METHODS, "eval_regions.h counts the same methods");
 
 typedef struct eval_args {
     const char *model, *data, *out;
@@ -38,6 +46,7 @@ typedef struct eval_run {
     scaling mode;
     nj_plane_options plane;
     nj_metrics_acc acc[NMETHODS];
+    nj_eval_regions regions;
     int frames, no_ground, untrained_no_ground, empty;
     /* pose */
     int snippets, pose_sequences;
@@ -54,10 +63,17 @@ static void usage(FILE *f)
         "usage: nightjar eval --model CKPT --data DATASET.json [--split test] [--out metrics.json]\n"
         "                     [--max-depth M] [--camera-height METRES] [--threads N]\n"
         "  Depth metrics (AbsRel, SqRel, RMSE, RMSE log, delta<1.25^k) over the ground-truth\n"
-        "  pixels closer than the depth cap (default 80 m), for the model and two baselines on\n"
-        "  the same pixels: a constant depth and the untrained network.  Monocular models are\n"
-        "  scaled per image by the median ratio (the spread of the ratios is reported);\n"
-        "  stereo-trained models are evaluated metric, without scaling.\n"
+        "  pixels closer than the depth cap (default 80 m), for the model and three baselines on\n"
+        "  the same pixels: a constant depth, the untrained network and the row-layout oracle\n"
+        "  (each pixel at the median true depth of its image row: a model that only learned\n"
+        "  \"lower is nearer\" cannot beat it).  Monocular models are scaled per image by the\n"
+        "  median ratio (the spread of the ratios is reported), the oracle too;\n"
+        "  stereo-trained models are evaluated metric, without scaling (the oracle is metric).\n"
+        "  Also, for every method: AbsRel, delta<1.25 and the median of scaled prediction /\n"
+        "  truth (range compression) per band of true depth (0-3, 3-6, 6-10, 10-20, 20-cap m),\n"
+        "  on obstacle pixels (true depth more than 20%% off its row's median) and, where the\n"
+        "  sequences have \"lead_mask\", on the lead vehicle's pixels; per image, then the mean\n"
+        "  over the images that have such pixels (pixels and images counted).\n"
         "  --camera-height M  metric scale from the camera's height above flat ground (a plane\n"
         "                     fitted to the lower image region) instead of median scaling;\n"
         "                     images where no ground plane is found are left out (counted)\n"
@@ -184,16 +200,25 @@ static int open_split(const eval_args *a, nj_dataset *ds, char *err, size_t errl
 
 /* ---- depth ------------------------------------------------------------------ */
 
+/* Full-size maps and their selected (valid ground truth) pixels: pred[0]
+ * the model, pred[1] the untrained network, pred[2] the row-layout oracle;
+ * flag[0] obstacle pixels, flag[1] the lead-vehicle mask (when the sequence
+ * has one: has_lead). */
 typedef struct frame_buf {
-    float *gt, *pred[2], *gsel, *psel[2], *ones, *scratch;
+    float *gt, *pred[3], *gsel, *psel[3], *flag[2], *fsel[2], *ones, *scratch;
+    int has_lead;
 } frame_buf;
 
 static void frame_buf_free(frame_buf *b)
 {
     free(b->gt);
-    for (int k = 0; k < 2; k++) {
+    for (int k = 0; k < 3; k++) {
         free(b->pred[k]);
         free(b->psel[k]);
+    }
+    for (int k = 0; k < 2; k++) {
+        free(b->flag[k]);
+        free(b->fsel[k]);
     }
     free(b->gsel);
     free(b->ones);
@@ -207,10 +232,15 @@ static int frame_buf_alloc(frame_buf *b, size_t n)
     b->ones = malloc(n * sizeof(float));
     b->scratch = malloc(n * sizeof(float));
     int ok = b->gsel && b->ones && b->scratch;
-    for (int k = 0; k < 2; k++) {
+    for (int k = 0; k < 3; k++) {
         b->pred[k] = malloc(n * sizeof(float));
         b->psel[k] = malloc(n * sizeof(float));
         ok = ok && b->pred[k] && b->psel[k];
+    }
+    for (int k = 0; k < 2; k++) {
+        b->flag[k] = malloc(n * sizeof(float));
+        b->fsel[k] = malloc(n * sizeof(float));
+        ok = ok && b->flag[k] && b->fsel[k];
     }
     for (size_t i = 0; ok && i < n; i++) b->ones[i] = 1.0f;
     return ok ? 0 : -1;
@@ -238,12 +268,25 @@ static void add_metrics(eval_run *r, int method, const float *gsel, const float 
         nj_metrics_acc_add(&r->acc[method], &m, scale);
 }
 
-/* Scores the three methods on the valid pixels of one ground-truth map. */
-static void score_frame(eval_run *r, frame_buf *b, int w, int h, nj_camera cam)
+/* The row-layout oracle and the obstacle flags of b->gt, then every map's
+ * valid pixels (the same selection for all).  Returns their count. */
+static size_t select_frame(const eval_run *r, frame_buf *b, int w, int h)
 {
     size_t n = (size_t)w * h;
-    size_t k = nj_depth_select(b->gt, b->pred[0], n, NJ_EVAL_MIN_DEPTH, r->a.max_depth, b->gsel, b->psel[0]);
-    nj_depth_select(b->gt, b->pred[1], n, NJ_EVAL_MIN_DEPTH, r->a.max_depth, b->gsel, b->psel[1]);
+    float lo = NJ_EVAL_MIN_DEPTH, hi = r->a.max_depth;
+    nj_row_layout(b->gt, w, h, lo, hi, b->pred[2], b->scratch);
+    nj_obstacle_flags(b->gt, b->pred[2], n, lo, hi, b->flag[0]);
+    size_t k = 0;
+    for (int m = 0; m < 3; m++) k = nj_depth_select(b->gt, b->pred[m], n, lo, hi, b->gsel, b->psel[m]);
+    for (int f = 0; f < 1 + b->has_lead; f++) nj_depth_select(b->gt, b->flag[f], n, lo, hi, b->gsel, b->fsel[f]);
+    return k;
+}
+
+/* Scores the four methods on the valid pixels of one ground-truth map, on
+ * all of them and per region. */
+static void score_frame(eval_run *r, frame_buf *b, int w, int h, nj_camera cam)
+{
+    size_t k = select_frame(r, b, w, h);
     if (k == 0) {
         r->empty++;
         return;
@@ -258,9 +301,13 @@ static void score_frame(eval_run *r, frame_buf *b, int w, int h, nj_camera cam)
         r->untrained_no_ground += r->mode == SCALE_CAMERA;
         s1 = 1.0;
     }
-    add_metrics(r, M_MODEL, b->gsel, b->psel[0], k, s0);
-    add_metrics(r, M_UNTRAINED, b->gsel, b->psel[1], k, s1);
-    add_metrics(r, M_CONSTANT, b->gsel, b->ones, k, nj_median_scale(b->gsel, b->ones, k, b->scratch));
+    /* the oracle is metric by construction: median-scaled only when the model is */
+    double so = r->mode == SCALE_MEDIAN ? nj_median_scale(b->gsel, b->psel[2], k, b->scratch) : 1.0;
+    const float *psel[NMETHODS] = {b->psel[0], b->ones, b->psel[1], b->psel[2]};
+    const double scale[NMETHODS] = {s0, nj_median_scale(b->gsel, b->ones, k, b->scratch), s1, so};
+    for (int m = 0; m < NMETHODS; m++) add_metrics(r, m, b->gsel, psel[m], k, scale[m]);
+    nj_eval_regions_add(&r->regions, b->gsel, psel, scale, k, b->fsel[0], b->has_lead ? b->fsel[1] : NULL,
+                        b->scratch);
     r->frames++;
 }
 
@@ -443,6 +490,7 @@ static void print_table(const eval_run *r)
         printf("pose: rotation error %.3f deg per frame pair (true rotation %.3f deg; an error as large as "
                "the true rotation means none was learned), over %d pairs\n",
                RAD2DEG(r->rot_err_sum / r->pairs), RAD2DEG(r->rot_true_sum / r->pairs), r->pairs);
+    if (r->frames) nj_eval_regions_print(&r->regions, METHOD_NAMES);
 }
 
 static void add_depth_json(cJSON *o, const nj_metrics_acc *acc, int with_scale)
@@ -487,6 +535,11 @@ static cJSON *report_json(const eval_run *r)
     cJSON *u = cJSON_AddObjectToObject(root, "baseline_untrained");
     add_depth_json(u, &r->acc[M_UNTRAINED], 1);
     cJSON_AddStringToObject(u, "scaling", scaling_name(r->mode));
+    cJSON *o = cJSON_AddObjectToObject(root, METHOD_KEYS[M_ORACLE]);
+    add_depth_json(o, &r->acc[M_ORACLE], 0);
+    cJSON_AddStringToObject(o, "scaling", r->mode == SCALE_MEDIAN ? "median" : "metric");
+    cJSON_AddStringToObject(o, "rule", "each pixel at the median true depth of its image row");
+    nj_eval_regions_json(&r->regions, root, METHOD_KEYS);
     if (r->snippets) {
         cJSON *p = cJSON_AddObjectToObject(root, "pose");
         cJSON_AddNumberToObject(p, "ate", r->ate_mean);
@@ -534,6 +587,7 @@ static int evaluate(eval_run *r, char *err, size_t errlen)
             : (r->cfg.stereo && !r->cfg.video) ? SCALE_METRIC : SCALE_MEDIAN;
     nj_plane_options_default(&r->plane);
     for (int k = 0; k < NMETHODS; k++) nj_metrics_acc_init(&r->acc[k]);
+    nj_eval_regions_init(&r->regions, r->a.max_depth);
     if (open_split(&r->a, &ds, err, errlen)) {
         nj_dataset_free(&ds);
         return -1;

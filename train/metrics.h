@@ -68,6 +68,68 @@ void nj_metrics_acc_add(nj_metrics_acc *a, const nj_depth_metrics *m, double sca
 void nj_metrics_acc_result(const nj_metrics_acc *a, nj_depth_metrics *mean,
                            double *scale_mean, double *scale_std);
 
+/* ---- regions: the row-layout oracle, depth bands, obstacles, masks --------- */
+/*
+ * Row-layout oracle: every pixel of row y predicted as the median of the
+ * valid ground truth of row y (validity as nj_depth_select); rows without a
+ * valid pixel take the median of all valid pixels of the image.  A model
+ * that only learned "lower in the image is nearer" cannot beat it.
+ *
+ * Obstacle pixels: valid ground truth more than NJ_OBSTACLE_REL (20 %) off
+ * its row's median, |gt − m_row| > 0.2·m_row: what stands out of the layout.
+ *
+ * Depth bands of the TRUE depth: [0, 3), [3, 6), [6, 10), [10, 20) and
+ * [20, cap) metres; bands at or beyond the cap are dropped and the last band
+ * kept ends at the cap.
+ *
+ * Region metrics (over a subset of an image's selected pixels, the
+ * prediction scaled by the image's own factor and clamped as in
+ * nj_depth_metrics_compute): AbsRel, δ<1.25 and the median of
+ * p/gt (below 1: too near, above: too far; a range compressed towards the
+ * middle shows as > 1 in near bands and < 1 in far ones).  Accumulated like
+ * the all-pixel metrics: per image, then the mean over the images that have
+ * pixels in the region; pixels and images are counted.
+ */
+#define NJ_OBSTACLE_REL 0.2
+#define NJ_DEPTH_BANDS 5
+
+/* The bands below max_depth: from[b], to[b] (metres, room for
+ * NJ_DEPTH_BANDS each).  Returns their count. */
+int nj_depth_bands(float max_depth, float *from, float *to);
+/* Fills out (w·h) with the row-layout oracle of gt (w·h); `scratch` needs
+ * room for w·h floats.  Returns the number of valid pixels; when 0, out is
+ * NaN everywhere. */
+size_t nj_row_layout(const float *gt, int w, int h, float min_depth, float max_depth, float *out,
+                     float *scratch);
+/* flag[i] = 1 where gt[i] is valid and |gt[i] − row[i]| > NJ_OBSTACLE_REL·row[i]
+ * (row: nj_row_layout's output for the same gt), else 0.  Returns the count. */
+size_t nj_obstacle_flags(const float *gt, const float *row, size_t n, float min_depth, float max_depth,
+                         float *flag);
+
+typedef struct nj_region_metrics {
+    double absrel, delta1, ratio;    /* ratio: median of scaled prediction / truth */
+    long pixels;
+} nj_region_metrics;
+
+/* Region metrics over those of n selected pairs with lo <= gt[i] < hi and
+ * (flag NULL or flag[i] != 0); pred is multiplied by `scale` and clamped to
+ * [min_depth, max_depth].  `scratch` needs room for n floats.  Returns 0, or
+ * -1 (out zeroed) when no pair is in the region. */
+int nj_region_metrics_compute(const float *gt, const float *pred, const float *flag, size_t n, float lo,
+                              float hi, double scale, float min_depth, float max_depth, float *scratch,
+                              nj_region_metrics *out);
+
+typedef struct nj_region_acc {
+    double sum[3];
+    long pixels;
+    int images;
+} nj_region_acc;
+
+void nj_region_acc_init(nj_region_acc *a);
+void nj_region_acc_add(nj_region_acc *a, const nj_region_metrics *m);
+/* Mean over the images added (pixels = total); all zero when none. */
+void nj_region_acc_result(const nj_region_acc *a, nj_region_metrics *mean);
+
 /* ---- camera motion --------------------------------------------------------- */
 
 /* Positions of n frames relative to the first, from camera-to-world poses

@@ -8,6 +8,7 @@
  * metrics.json atomically. */
 #include "data/atomic.h"
 #include "data/dataset.h"
+#include "data/image.h"
 #include "data/poses.h"
 #include "train/checkpoint.h"
 #include "train/eval_regions.h"
@@ -311,6 +312,35 @@ static void score_frame(eval_run *r, frame_buf *b, int w, int h, nj_camera cam)
     r->frames++;
 }
 
+/* The lead-vehicle mask of frame i into flag (w×h, 1 = the vehicle): the
+ * mask's pixel (x, y) is the depth map's pixel (x, y); a mask of another
+ * size is resampled to the depth map's (data/image.h) and thresholded at 0.5. */
+static int load_lead_mask(const nj_sequence *s, int i, int w, int h, float *flag, char *err, size_t errlen)
+{
+    char *path = nj_lead_mask_path(s, i);
+    nj_image m = {0, 0, NULL};
+    int rc = -1;
+    if (!path) {
+        snprintf(err, errlen, "out of memory");
+        return -1;
+    }
+    if (nj_image_load(path, &m, err, errlen)) goto done;
+    if (m.w == w && m.h == h) {
+        for (size_t j = 0; j < (size_t)w * h; j++) flag[j] = m.data[j] > 0;
+    } else {
+        if (nj_resize_plane(m.data, m.w, m.h, flag, w, h)) {
+            snprintf(err, errlen, "%s: out of memory resizing the mask", path);
+            goto done;
+        }
+        for (size_t j = 0; j < (size_t)w * h; j++) flag[j] = flag[j] >= 0.5f;
+    }
+    rc = 0;
+done:
+    free(path);
+    nj_image_free(&m);
+    return rc;
+}
+
 static int eval_frame(eval_run *r, const nj_sequence *s, int i, char *err, size_t errlen)
 {
     char *img_path = nj_path_join(s->images, s->frames[i]), *gt_path = nj_depth_path(s, i);
@@ -331,6 +361,8 @@ static int eval_frame(eval_run *r, const nj_sequence *s, int i, char *err, size_
     }
     for (int k = 0; k < 2; k++)
         if (nj_infer_depth(&r->inf[k], &im, w, h, b.pred[k], NULL, err, errlen)) goto done;
+    b.has_lead = s->lead_mask_dir != NULL;
+    if (b.has_lead && load_lead_mask(s, i, w, h, b.flag[1], err, errlen)) goto done;
     nj_camera cam = s->camera;
     if (w != s->width || h != s->height) cam = nj_camera_resize(cam, s->width, s->height, w, h);
     score_frame(r, &b, w, h, cam);
@@ -428,6 +460,7 @@ static int run_sequences(eval_run *r, const nj_dataset *ds, char *err, size_t er
         const nj_sequence *s = &ds->seq[q];
         if (s->split != r->a.split) continue;
         int before = r->frames;
+        r->regions.lead_sequences += s->lead_mask_dir && s->depth_dir;
         for (int i = 0; s->depth_dir && i < s->nframes; i++)
             if (eval_frame(r, s, i, err, errlen)) return -1;
         int snip = r->snippets;

@@ -60,8 +60,9 @@ static int bin_objects(const nj_view *v, const nj_object *obj, int n, bins *b)
     return 0;
 }
 
-static void trace(const nj_scene *s, const nj_object *obj, const bins *b, const nj_view *v,
-                  int u, int y, float *rgb, float *depth)
+/* Colour and depth of one pixel; returns the material hit. */
+static int trace(const nj_scene *s, const nj_object *obj, const bins *b, const nj_view *v,
+                 int u, int y, float *rgb, float *depth)
 {
     float dc[3] = {(u - v->cx) / v->fx, (y - v->cy) / v->fy, 1.0f}, org[3], dir[3];
     for (int i = 0; i < 3; i++) {
@@ -80,22 +81,30 @@ static void trace(const nj_scene *s, const nj_object *obj, const bins *b, const 
     if (!isfinite(h.t)) {
         nj_sky(s, unit, rgb);
         *depth = 0;
-        return;
+        return NJ_MAT_SKY;
     }
     for (int i = 0; i < 3; i++) h.p[i] = org[i] + h.t * dir[i];
     float cosn = fabsf(h.n[0] * unit[0] + h.n[1] * unit[1] + h.n[2] * unit[2]);
     float fw = h.t * len / v->fx / (cosn > 0.1f ? cosn : 0.1f);
     nj_shade(s, &h, fw, rgb);
     *depth = h.t;
+    return h.material;
 }
 
 int nj_render(const nj_scene *s, const nj_view *v, float time, float *rgb, float *depth)
 {
-    int n = s->nobj + (s->has_mover ? 1 : 0);
+    return nj_render_with(s, v, time, NULL, 0, rgb, depth, NULL);
+}
+
+int nj_render_with(const nj_scene *s, const nj_view *v, float time, const nj_object *extra, int nextra,
+                   float *rgb, float *depth, unsigned char *lead_mask)
+{
+    int nm = s->nobj + (s->has_mover ? 1 : 0), n = nm + nextra;
     nj_object *obj = malloc((size_t)(n ? n : 1) * sizeof(nj_object));
     if (!obj) return -1;
     memcpy(obj, s->obj, (size_t)s->nobj * sizeof(nj_object));
     if (s->has_mover) obj[s->nobj] = nj_scene_mover_at(s, time);
+    if (nextra) memcpy(obj + nm, extra, (size_t)nextra * sizeof(nj_object));
     bins b;
     if (bin_objects(v, obj, n, &b)) { free(obj); return -1; }
     size_t plane = (size_t)v->w * v->h;
@@ -104,7 +113,8 @@ int nj_render(const nj_scene *s, const nj_view *v, float time, float *rgb, float
         for (int u = 0; u < v->w; u++) {
             float c[3];
             size_t i = (size_t)y * v->w + u;
-            trace(s, obj, &b, v, u, y, c, &depth[i]);
+            int mat = trace(s, obj, &b, v, u, y, c, &depth[i]);
+            if (lead_mask) lead_mask[i] = mat == NJ_MAT_CART ? 255 : 0;
             rgb[i] = c[0];
             rgb[plane + i] = c[1];
             rgb[2 * plane + i] = c[2];

@@ -21,5 +21,10 @@ typedef struct nj_view {
 /* rgb: planar 3×h×w; depth: h×w metres (0 = sky).  `time` places the mover.
  * OpenMP over rows.  Returns 0, or -1 when out of memory. */
 int nj_render(const nj_scene *s, const nj_view *v, float time, float *rgb, float *depth);
+/* The same with `nextra` more objects (the lead cart placed for this frame);
+ * `lead_mask` (h×w, may be NULL) gets 255 where the pixel's first hit is
+ * the lead cart's material, else 0. */
+int nj_render_with(const nj_scene *s, const nj_view *v, float time, const nj_object *extra, int nextra,
+                   float *rgb, float *depth, unsigned char *lead_mask);
 
 #endif

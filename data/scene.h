@@ -4,14 +4,16 @@
  * objects stand on it (their tops at negative y).  A yaw φ rotates local
  * (lx, lz) into world (cos φ·lx + sin φ·lz, −sin φ·lx + cos φ·lz) — the
  * rotation R_y(φ) about the down axis.  The yard is closed by a perimeter
- * brick wall; rays that leave over it see the sky (no depth).
+ * brick wall; rays that leave over it see the sky (no depth).  With a lead
+ * cart, a box-shaped vehicle rides rigidly ahead of the camera's vehicle
+ * (data/scene_gen.h places it per frame).
  */
 #ifndef NJ_SCENE_H
 #define NJ_SCENE_H
 #include <stdint.h>
 
 enum { NJ_SHAPE_BOX, NJ_SHAPE_CYLINDER };
-enum { NJ_MAT_GROUND, NJ_MAT_CONTAINER, NJ_MAT_CRATE, NJ_MAT_POLE, NJ_MAT_WALL, NJ_MAT_ROBOT, NJ_MAT_SKY };
+enum { NJ_MAT_GROUND, NJ_MAT_CONTAINER, NJ_MAT_CRATE, NJ_MAT_POLE, NJ_MAT_WALL, NJ_MAT_ROBOT, NJ_MAT_SKY, NJ_MAT_CART };
 
 typedef struct nj_object {
     int shape, material;
@@ -32,6 +34,9 @@ typedef struct nj_scene {
     int has_mover;           /* an independently moving robot */
     nj_object mover;         /* its shape; its position at time t is p0 + v·t */
     float mover_p0[2], mover_v[2];
+    int has_lead;            /* a cart driven ahead at the camera's speed */
+    nj_object lead;          /* its shape; placed per frame by nj_scene_lead_at */
+    float lead_ahead;        /* metres from the camera centre to its centre, along the heading */
 } nj_scene;
 
 typedef struct nj_hit {

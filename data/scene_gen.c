@@ -1,8 +1,9 @@
 /* data/scene_gen.c — laying out a robot yard around a vehicle path:
  * shipping containers (some stacked) lining the route, wooden crates (some
  * stacked), poles, a perimeter wall, and optionally a robot that crosses the
- * route.  Everything keeps a clearance from the path, so the camera never
- * enters an object. */
+ * route, and a lead cart riding ahead of the vehicle.  Everything keeps a
+ * clearance from the path, so the camera never enters an object, and from
+ * every placement of the lead cart. */
 #include "data/scene_gen.h"
 #include <math.h>
 #include <stdlib.h>
@@ -30,6 +31,33 @@ static float footprint_radius(const nj_object *o)
     return o->shape == NJ_SHAPE_CYLINDER ? o->hx : hypotf(o->hx, o->hz);
 }
 
+/* Separated when one footprint misses the other's circle widened by `gap`. */
+static int apart(const nj_object *a, const nj_object *b, float gap)
+{
+    return nj_object_footprint_distance(a, b->x, b->z) >= footprint_radius(b) + gap ||
+           nj_object_footprint_distance(b, a->x, a->z) >= footprint_radius(a) + gap;
+}
+
+nj_object nj_scene_lead_at(const nj_scene *s, const nj_trajectory *tr, int i)
+{
+    nj_object o = s->lead;
+    float psi = tr->heading[i];
+    o.x = tr->px[i] + s->lead_ahead * sinf(psi);
+    o.z = tr->pz[i] + s->lead_ahead * cosf(psi);
+    set_yaw(&o, psi);
+    return o;
+}
+
+/* Clear of every placement of the lead cart (when there is one). */
+static int clear_of_lead(const nj_scene *s, const nj_object *o, const nj_trajectory *tr, float gap)
+{
+    for (int i = 0; s->has_lead && i < tr->n; i++) {
+        nj_object l = nj_scene_lead_at(s, tr, i);
+        if (!apart(o, &l, gap)) return 0;
+    }
+    return 1;
+}
+
 /* Clear of the path, inside the yard, not overlapping placed objects. */
 static int fits(const nj_scene *s, const nj_object *o, const nj_trajectory *tr)
 {
@@ -44,7 +72,7 @@ static int fits(const nj_scene *s, const nj_object *o, const nj_trajectory *tr)
             nj_object_footprint_distance(o, p->x, p->z) < footprint_radius(p) + 0.2f)
             return 0;
     }
-    return 1;
+    return clear_of_lead(s, o, tr, 0.3f);
 }
 
 static void add(nj_scene *s, const nj_object *o)
@@ -170,11 +198,36 @@ static int mover_fits(const nj_scene *s, const nj_trajectory *tr)
         for (int k = 0; k < s->nobj; k++)
             if (s->obj[k].y1 == 0 && hypotf(s->obj[k].x - m.x, s->obj[k].z - m.z) < rad + footprint_radius(&s->obj[k]))
                 return 0;
+        if (s->has_lead) {
+            nj_object l = nj_scene_lead_at(s, tr, i);
+            if (!apart(&m, &l, 0.3f)) return 0;
+        }
     }
     return 1;
 }
 
-/* A small robot crossing the route ahead of the vehicle around mid-sequence. */
+/* The lead cart: paint from a small palette, rear face 6–7 m ahead. */
+static void make_lead(nj_rng *r, nj_scene *s)
+{
+    static const float PAINT[4][3] = {{0.10f, 0.35f, 0.75f}, {0.15f, 0.55f, 0.30f}, {0.75f, 0.12f, 0.10f},
+                                      {0.85f, 0.85f, 0.82f}};
+    nj_object *o = &s->lead;
+    memset(o, 0, sizeof *o);
+    o->shape = NJ_SHAPE_BOX;
+    o->material = NJ_MAT_CART;
+    o->hx = 0.5f * uni(r, 0.95f, 1.05f);
+    o->hz = 0.5f * uni(r, 1.4f, 1.6f);
+    o->y0 = -uni(r, 1.15f, 1.25f);
+    o->y1 = 0;
+    tint(r, PAINT[nj_rng_below(r, 4)], 0.05f, o->colour);
+    o->seed = (uint32_t)nj_rng_next(r);
+    s->lead_ahead = uni(r, 6.0f, 7.0f) + o->hz;
+    set_yaw(o, 0);
+    s->has_lead = 1;
+}
+
+/* A small robot crossing the route ahead of the vehicle around mid-sequence
+ * (between the camera and the lead cart when there is one). */
 static void place_mover(nj_rng *r, nj_scene *s, const nj_trajectory *tr)
 {
     nj_object *m = &s->mover;
@@ -189,7 +242,8 @@ static void place_mover(nj_rng *r, nj_scene *s, const nj_trajectory *tr)
     m->seed = (uint32_t)nj_rng_next(r);
     for (int tries = 0; tries < 200 && !s->has_mover; tries++) {
         int i = tr->n / 4 + (int)nj_rng_below(r, (uint32_t)(tr->n / 2 + 1));
-        float psi = tr->heading[i], ahead = uni(r, 4.0f, 8.0f), speed = uni(r, 0.5f, 1.0f);
+        float hi = s->has_lead ? s->lead_ahead - s->lead.hz - 1.5f : 8.0f;   /* in front of the lead cart */
+        float psi = tr->heading[i], ahead = uni(r, s->has_lead ? 3.5f : 4.0f, hi), speed = uni(r, 0.5f, 1.0f);
         float side = nj_rng_uniform(r) < 0.5f ? -1.0f : 1.0f, t = (float)(i * tr->dt);
         float x = tr->px[i] + ahead * sinf(psi), z = tr->pz[i] + ahead * cosf(psi);
         s->mover_v[0] = side * speed * cosf(psi);
@@ -219,9 +273,15 @@ static void yard_bounds(nj_scene *s, const nj_trajectory *tr)
 
 int nj_scene_make(nj_rng *r, const nj_trajectory *tr, int moving, nj_scene *s)
 {
+    return nj_scene_make_fleet(r, NULL, tr, moving, 0, s);
+}
+
+int nj_scene_make_fleet(nj_rng *r, nj_rng *fleet, const nj_trajectory *tr, int moving, int lead, nj_scene *s)
+{
     memset(s, 0, sizeof *s);
     s->obj = malloc(MAX_OBJECTS * sizeof(nj_object));
     if (!s->obj) return -1;
+    if (fleet && lead) make_lead(fleet, s);
     s->seed = (uint32_t)nj_rng_next(r);
     yard_bounds(s, tr);
     s->wall_height = uni(r, 3.5f, 4.5f);

@@ -1,6 +1,7 @@
 /* data/texture.c — materials: concrete with slab joints, gravel (cellular
  * noise), brick pavers and walls, corrugated container steel with rust,
- * wooden planks, striped poles, the robot's hazard stripes; lighting; sky. */
+ * wooden planks, striped poles, the robot's hazard stripes, the lead cart's
+ * painted panels; lighting; sky. */
 #include "data/texture.h"
 #include "data/noise.h"
 #include <math.h>
@@ -159,6 +160,28 @@ static void robot(const nj_object *o, const nj_hit *h, float fw, float rgb[3])
     scale3(rgb, 1 + 0.08f * nj_fbm2(h->u * 4, h->v * 4, 4, fw * 4, o->seed));
 }
 
+/* The lead cart: painted panels with seams every 0.5 m, a black bumper band,
+ * a white-and-paint reflector band, a grey load on top. */
+static void cart(const nj_object *o, const nj_hit *h, float fw, float rgb[3])
+{
+    float u = h->u, v = h->v;
+    if (fabsf(h->n[1]) > 0.5f) {
+        float g = 0.35f + 0.1f * nj_fbm2(u * 3, v * 3, 4, fw * 3, o->seed);
+        rgb[0] = rgb[1] = rgb[2] = g;
+        return;
+    }
+    float seam = nj_filtered_pulse(u / 0.5f + 0.25f, 0.94f, fw / 0.5f);
+    for (int c = 0; c < 3; c++) rgb[c] = o->colour[c] * (0.55f + 0.45f * seam);
+    if (v < 0.3f) {
+        float black[3] = {0.06f, 0.06f, 0.07f};
+        mix3(rgb, black, rgb, 0.25f * nj_filtered_pulse(u / 0.1f, 0.5f, fw / 0.1f));
+    } else if (v > 0.75f && v < 0.9f) {
+        float white[3] = {0.95f, 0.95f, 0.92f};
+        mix3(rgb, rgb, white, nj_filtered_pulse((u + v) / 0.2f, 0.5f, fw / 0.2f));
+    }
+    scale3(rgb, 1 + 0.1f * nj_fbm2(u * 4, v * 4, 4, fw * 4, o->seed + 1));
+}
+
 static float light(const nj_scene *s, const nj_hit *h)
 {
     float lambert = h->n[0] * s->sun[0] + h->n[1] * s->sun[1] + h->n[2] * s->sun[2];
@@ -175,6 +198,7 @@ void nj_shade(const nj_scene *s, const nj_hit *h, float fw, float rgb[3])
     case NJ_MAT_CRATE: crate(h->obj, h, fw, rgb); break;
     case NJ_MAT_POLE: pole(h->obj, h, fw, rgb); break;
     case NJ_MAT_WALL: wall(s, h, fw, rgb); break;
+    case NJ_MAT_CART: cart(h->obj, h, fw, rgb); break;
     default: robot(h->obj, h, fw, rgb); break;
     }
     float L = light(s, h);

@@ -6,15 +6,20 @@
 
 #define PI 3.14159265358979323846
 #define MAX_STOPS 2
+#define MAX_HALTS 16        /* stops with halts on */
+#define MAX_TURNS 16
 #define SUBSTEPS 8
 
 typedef struct motion {
     double v0;                           /* cruising speed */
     double ka[2], kt[2], kp[2];          /* curvature: amplitudes, periods, phases */
-    double stop_t[MAX_STOPS], stop_hold[MAX_STOPS];
+    double stop_t[MAX_HALTS], stop_hold[MAX_HALTS];
     int nstops;
     double jf[3][2], jp[3][2];           /* shake: frequencies and phases */
     double pitch0;
+    int nturns;                          /* sharp turns (turns on) */
+    double turn_c[MAX_TURNS], turn_w[MAX_TURNS], turn_a[MAX_TURNS];   /* centre, half-width (s), curvature */
+    double kmax;                         /* curvature bound, 0 = none (turns off) */
 } motion;
 
 static double uni(nj_rng *r, double a, double b) { return a + (b - a) * nj_rng_uniform(r); }
@@ -59,9 +64,67 @@ static double stop_factor(const motion *m, double t)
     return f;
 }
 
+/* With turns on: the sharp turns (raised-cosine bumps) are added and the sum
+ * is bounded softly by kmax (kmax·tanh(k/kmax)), so the heading rate peaks
+ * just below v0·kmax. */
 static double curvature(const motion *m, double t)
 {
-    return m->ka[0] * sin(2 * PI * t / m->kt[0] + m->kp[0]) + m->ka[1] * sin(2 * PI * t / m->kt[1] + m->kp[1]);
+    double k = m->ka[0] * sin(2 * PI * t / m->kt[0] + m->kp[0]) + m->ka[1] * sin(2 * PI * t / m->kt[1] + m->kp[1]);
+    if (m->kmax <= 0) return k;
+    for (int i = 0; i < m->nturns; i++) {
+        double x = (t - m->turn_c[i]) / m->turn_w[i];
+        if (fabs(x) < 1) k += m->turn_a[i] * 0.5 * (1 + cos(PI * x));
+    }
+    return m->kmax * tanh(k / m->kmax);
+}
+
+/* Halts: at least two stops holding ~1 s (one in sequences of 4–8 s, none
+ * shorter), one per 10 s beyond 20 s, each inside its own equal share of the
+ * sequence (braking, hold and start all fit). */
+static void draw_halts(nj_rng *r, double duration, motion *m)
+{
+    int n = duration >= 8 ? (int)(duration / 10) : duration >= 4 ? 1 : 0;
+    if (duration >= 8 && n < 2) n = 2;
+    if (n > MAX_HALTS) n = MAX_HALTS;
+    m->nstops = n;
+    double share = n ? duration / n : 0;
+    for (int k = 0; k < n; k++) {
+        m->stop_hold[k] = uni(r, 1.0, 1.3);
+        double span = 0.8 + m->stop_hold[k] + 1.2, room = share - span - 0.6;
+        m->stop_t[k] = k * share + 0.3 + (room > 0 ? uni(r, 0, room) : 0);
+    }
+}
+
+/* 1 when [a, b] overlaps a stop (braking, hold or start). */
+static int during_stop(const motion *m, double a, double b)
+{
+    for (int k = 0; k < m->nstops; k++)
+        if (b > m->stop_t[k] && a < m->stop_t[k] + 0.8 + m->stop_hold[k] + 1.2) return 1;
+    return 0;
+}
+
+/* Turns: the peak heading rate is drawn in 0.85–0.95° per frame; sharp turns
+ * of 2–3 s, one per 6 s of sequence (at least 2 from 8 s), centred where the
+ * vehicle cruises (when its share of the sequence has such a time), push the
+ * curvature to its bound. */
+static void draw_turns(nj_rng *r, double duration, double dt, motion *m)
+{
+    double peak = uni(r, 0.85, 0.95) * PI / 180 / dt;      /* rad/s */
+    m->kmax = peak / m->v0;
+    int n = (int)(duration / 6);
+    if (n < 2) n = duration >= 8 ? 2 : 1;
+    if (n > MAX_TURNS) n = MAX_TURNS;
+    m->nturns = n;
+    double t0 = 0.1 * duration, share = 0.8 * duration / n;
+    for (int k = 0; k < n; k++) {
+        m->turn_w[k] = uni(r, 1.0, 1.5);
+        double free_c[256];          /* centres on a 0.1 s grid of the share at cruising speed */
+        int nfree = 0;
+        for (double c = t0 + share * k; c < t0 + share * (k + 1) && nfree < 256; c += 0.1)
+            if (!during_stop(m, c - 0.4, c + 0.4)) free_c[nfree++] = c;
+        m->turn_c[k] = nfree ? free_c[nj_rng_below(r, (uint32_t)nfree)] : t0 + share * (k + 0.5);
+        m->turn_a[k] = 3.0 * m->kmax * (nj_rng_uniform(r) < 0.5 ? -1 : 1);
+    }
 }
 
 static double shake(const motion *m, int a, double t)
@@ -101,6 +164,11 @@ static void camera_pose(const motion *m, double t, double x, double z, double ps
 
 int nj_trajectory_make(nj_rng *r, int n, double dt, nj_trajectory *tr)
 {
+    return nj_trajectory_make_fleet(r, NULL, n, dt, 0, 0, tr);
+}
+
+int nj_trajectory_make_fleet(nj_rng *r, nj_rng *fleet, int n, double dt, int halts, int turns, nj_trajectory *tr)
+{
     memset(tr, 0, sizeof *tr);
     tr->n = n;
     tr->dt = dt;
@@ -112,6 +180,10 @@ int nj_trajectory_make(nj_rng *r, int n, double dt, nj_trajectory *tr)
     if (!tr->pose || !tr->px || !tr->pz || !tr->heading || !tr->speed) { nj_trajectory_free(tr); return -1; }
     motion m;
     draw_motion(r, n * dt, &m);
+    m.nturns = 0;
+    m.kmax = 0;
+    if (fleet && halts) draw_halts(fleet, n * dt, &m);
+    if (fleet && turns) draw_turns(fleet, n * dt, dt, &m);
     tr->stops = m.nstops;
     tr->height = uni(r, 0.8, 1.2);
     double x = 0, z = 0, psi = uni(r, 0, 2 * PI), h = dt / SUBSTEPS;
@@ -129,6 +201,10 @@ int nj_trajectory_make(nj_rng *r, int n, double dt, nj_trajectory *tr)
             z += h * v * cos(pm);
             psi += h * v * curvature(&m, tm);
         }
+    }
+    for (int i = 1; i < n; i++) {
+        double d = fabs((double)tr->heading[i] - tr->heading[i - 1]);
+        if (d > tr->peak_turn) tr->peak_turn = d;
     }
     return 0;
 }

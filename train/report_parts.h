@@ -62,8 +62,11 @@ void nj_html_text(FILE *f, const char *s);
 void nj_report_gallery(FILE *f, const char *run_dir);
 
 /* Writes the metric <section>: the table of `nightjar eval --out` JSON at
- * metrics_path (model and the two baselines) and the sizes of the files in
- * export_dir; either may be missing (NULL or absent), which is stated. */
+ * metrics_path (model and the baselines: constant, untrained and, when the
+ * file has it, the row-layout oracle; then the per-region table — depth
+ * bands, obstacle and lead-vehicle pixels — when present) and the sizes of
+ * the files in export_dir; either may be missing (NULL or absent), which is
+ * stated. */
 void nj_report_metrics(FILE *f, const char *metrics_path, const char *export_dir);
 
 #endif

@@ -5,7 +5,9 @@
  * Setup: `nightjar synth` (3 sequences of 12 frames, 64×48), a model trained
  * for 3 steps, `nightjar predict` on the test sequence's frames.  eval runs
  * twice: without masks, then with 8-bit grey PNG masks (stb_image_write)
- * added to the test sequence as "lead_mask" (frame 0's mask is empty).
+ * added to the test sequence as "lead_mask" (frame 0's mask is empty; frame
+ * 5's is written at twice the size, each pixel a 2×2 block, which eval's
+ * area resize brings back to the same pixels).
  *
  * Sources of truth:
  *   - the contract: every key the earlier metrics.json had is still there with
@@ -16,7 +18,8 @@
  *     pixels are the mask's pixels with valid ground truth, counted here from
  *     the .npy ground truth;
  *   - NumPy from the files (tests/ref/regions_eval.py: ground truth, predict's
- *     depth maps, the masks read with Pillow): the oracle's metrics, every
+ *     depth maps, the masks read with Pillow, a mask of an integer multiple of
+ *     the depth's size reduced by block means >= 0.5): the oracle's metrics, every
  *     band, the obstacle and the lead-vehicle entries of the model, the
  *     constant and the oracle, within 1e-5 relative;
  *   - the oracle (each row at its median true depth) beats the constant depth.
@@ -262,7 +265,7 @@ static int write_masks(long *pixels, int *images)
     *pixels = 0;
     *images = 0;
     for (int f = 0; f < NFRAMES; f++) {
-        static unsigned char m[FW * FH];
+        static unsigned char m[FW * FH], m2[4 * FW * FH];
         float *gt = NULL;
         int shape[4], nd;
         snprintf(path, sizeof path, "%s/data/yard-02/depth/%06d.npy", dir, f);
@@ -282,7 +285,13 @@ static int write_masks(long *pixels, int *images)
         *pixels += in;
         *images += in > 0;
         snprintf(path, sizeof path, "%s/data/yard-02/lead/%06d.png", dir, f);
-        if (!stbi_write_png(path, FW, FH, 1, m, FW)) return -1;
+        if (f == 5) {           /* twice the size */
+            for (int y = 0; y < 2 * FH; y++)
+                for (int x = 0; x < 2 * FW; x++) m2[y * 2 * FW + x] = m[(y / 2) * FW + x / 2];
+            if (!stbi_write_png(path, 2 * FW, 2 * FH, 1, m2, 2 * FW)) return -1;
+        } else if (!stbi_write_png(path, FW, FH, 1, m, FW)) {
+            return -1;
+        }
     }
     return 0;
 }

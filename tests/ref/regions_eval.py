@@ -8,8 +8,9 @@ Usage: /usr/bin/python3 tests/ref/regions_eval.py DATASET.json SPLIT MAX_DEPTH P
 For every sequence of SPLIT with ground truth in "npy" format, every frame
 FRAME.ext: ground truth DEPTH_DIR/FRAME.npy, prediction PRED_DIR/FRAME.depth.npy
 (as written by `nightjar predict`), and where the sequence has "lead_mask" the
-mask LEAD_DIR/FRAME.png read with Pillow (nonzero = in; same size as the depth
-here).  The protocol is the one of tests/ref/regions_ref.py (its functions are
+mask LEAD_DIR/FRAME.png read with Pillow (nonzero = in; a mask of an integer
+multiple of the depth's size is reduced by the mean of each block >= 0.5, as
+an area filter and eval's threshold do).  The protocol is the one of tests/ref/regions_ref.py (its functions are
 reused).  Methods: "model" (median-scaled prediction), "baseline_constant"
 (median-scaled constant), "baseline_row_layout_oracle" (median-scaled oracle).
 Writes OUT.json with eval's key names:
@@ -49,6 +50,11 @@ def frames(root, split):
                 mask = np.array(Image.open(os.path.join(root, s["lead_mask"], stem + ".png"))) != 0
                 if mask.ndim == 3:
                     mask = mask.any(axis=2)
+                if mask.shape != gt.shape:     # an integer multiple: block means >= 0.5 (area filter)
+                    fy, fx = mask.shape[0] // gt.shape[0], mask.shape[1] // gt.shape[1]
+                    assert mask.shape == (gt.shape[0] * fy, gt.shape[1] * fx)
+                    blocks = mask.reshape(gt.shape[0], fy, gt.shape[1], fx).mean(axis=(1, 3))
+                    mask = blocks >= 0.5
             yield stem, gt, mask
 
 

@@ -30,7 +30,14 @@ void nj_eval_regions_add(nj_eval_regions *r, const float *gsel, const float *con
 /* The compact table on stdout; names[m]: the methods' printed names. */
 void nj_eval_regions_print(const nj_eval_regions *r, const char *const *names);
 /* "by_depth_band", "obstacle_pixels" and (with masks) "lead_vehicle_pixels"
- * into root; keys[m]: the methods' keys inside each entry. */
+ * into root; keys[m]: the methods' keys inside each entry:
+ *   "by_depth_band": [{"from_m": 0, "to_m": 3, "pixels": P, "images": I,
+ *                      "model": {"absrel", "delta_1_25", "ratio_median"},
+ *                      "baseline_constant": {...}, ...}, ...]
+ *   "obstacle_pixels": {"rule": "...", "pixels", "images", METHOD: {...}}
+ *   "lead_vehicle_pixels": {"sequences", "pixels", "images", METHOD: {...}}
+ * pixels and images are the same for every method; a region without pixels
+ * has null metrics. */
 void nj_eval_regions_json(const nj_eval_regions *r, cJSON *root, const char *const *keys);
 
 #endif

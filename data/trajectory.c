@@ -105,8 +105,8 @@ static int during_stop(const motion *m, double a, double b)
 
 /* Turns: the peak heading rate is drawn in 0.85–0.95° per frame; sharp turns
  * of 2–3 s, one per 6 s of sequence (at least 2 from 8 s), centred where the
- * vehicle cruises (when its share of the sequence has such a time), push the
- * curvature to its bound. */
+ * vehicle cruises and apart from the turn before (when its share of the
+ * sequence has such a time), push the curvature to its bound. */
 static void draw_turns(nj_rng *r, double duration, double dt, motion *m)
 {
     double peak = uni(r, 0.85, 0.95) * PI / 180 / dt;      /* rad/s */
@@ -118,10 +118,11 @@ static void draw_turns(nj_rng *r, double duration, double dt, motion *m)
     double t0 = 0.1 * duration, share = 0.8 * duration / n;
     for (int k = 0; k < n; k++) {
         m->turn_w[k] = uni(r, 1.0, 1.5);
-        double free_c[256];          /* centres on a 0.1 s grid of the share at cruising speed */
-        int nfree = 0;
+        double free_c[256];          /* centres on a 0.1 s grid of the share at cruising speed, */
+        int nfree = 0;               /* the turn not overlapping the one before */
         for (double c = t0 + share * k; c < t0 + share * (k + 1) && nfree < 256; c += 0.1)
-            if (!during_stop(m, c - 0.4, c + 0.4)) free_c[nfree++] = c;
+            if (!during_stop(m, c - 0.4, c + 0.4) && (k == 0 || c - m->turn_c[k - 1] >= m->turn_w[k - 1] + m->turn_w[k]))
+                free_c[nfree++] = c;
         m->turn_c[k] = nfree ? free_c[nj_rng_below(r, (uint32_t)nfree)] : t0 + share * (k + 0.5);
         m->turn_a[k] = 3.0 * m->kmax * (nj_rng_uniform(r) < 0.5 ? -1 : 1);
     }

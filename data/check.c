@@ -14,8 +14,10 @@ static void usage(FILE *f)
         "  count, resolution, usable samples and near-duplicate frames skipped.\n"
         "  --k N              temporal sources t-N and t+N (default 1; 0 = stereo only)\n"
         "  --no-stereo        ignore stereo partners when counting samples\n"
-        "  --dup-threshold X  mean absolute difference below which a frame counts as a\n"
-        "                     duplicate of the last kept one (default 0.003; 0 = off)\n"
+        "  --dup-threshold X  change below which a frame counts as a duplicate of the last\n"
+        "                     kept one (default 0.003; 0 = off): the 90th percentile of the\n"
+        "                     grey difference of 32-pixel-wide thumbnails, after dividing out\n"
+        "                     the gain change and removing the frames' estimated sensor noise\n"
         "  Exit status: 0 usable, 1 problems found, 2 bad usage.\n");
 }
 

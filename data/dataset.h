@@ -59,9 +59,11 @@ typedef struct nj_dataset {
 typedef struct nj_data_options {
     int k;                   /* temporal sources t−k and t+k; 0 = none */
     int stereo;              /* add the stereo partner when the sequence has one */
-    float dup_threshold;     /* skip frames whose mean absolute difference (0..1, on
-                                64-pixel-wide grey thumbnails) to the last kept frame is
-                                below this; 0 disables */
+    float dup_threshold;     /* skip frames that barely differ from the last kept frame:
+                                their change (grey levels 0..1: the 90th percentile of
+                                the absolute difference of 32-pixel-wide grey thumbnails,
+                                gain difference divided out, the frames' estimated noise
+                                removed; data/validate.c) is below this; 0 disables */
 } nj_data_options;
 
 /* k = 1, stereo on, dup_threshold = 0.003. */

@@ -23,8 +23,22 @@
 #include "data/synth.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
+#include <stdarg.h>
 
 static char dir[64];
+
+/* checkv() that also prints the measured values when the check passes. */
+static int checkv(int cond, const char *name, const char *fmt, ...) __attribute__((format(printf, 3, 4)));
+static int checkv(int cond, const char *name, const char *fmt, ...)
+{
+    char msg[1024];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(msg, sizeof msg, fmt, ap);
+    va_end(ap);
+    if (cond) printf("info %s: %s\n", name, msg);
+    return check(cond, name, "%s", msg);
+}
 
 typedef struct rates {
     int stopped, moving, slow, stopped_skipped, moving_skipped, slow_skipped;
@@ -152,20 +166,20 @@ int main(void)
     if (check(render("fleet", 1, json, sizeof json) == 0 && measure(json, &r) == 0, "stops_fleet_set_ready",
               "render or open failed")) {
         report("fleet", &r);
-        check(r.stopped >= 30 && pct(r.stopped_skipped, r.stopped) >= 90, "stops_fleet_stopped_skipped",
+        checkv(r.stopped >= 30 && pct(r.stopped_skipped, r.stopped) >= 90, "stops_fleet_stopped_skipped",
               "%d of %d stopped frames skipped (%.1f%%, want >= 90%%; old rule %.1f%%)", r.stopped_skipped, r.stopped,
               pct(r.stopped_skipped, r.stopped), pct(r.old_stopped_skipped, r.stopped));
-        check(r.moving >= 100 && pct(r.moving_skipped, r.moving) < 2, "stops_fleet_moving_kept",
+        checkv(r.moving >= 100 && pct(r.moving_skipped, r.moving) < 2, "stops_fleet_moving_kept",
               "%d of %d moving frames skipped (%.1f%%, want < 2%%; old rule %.1f%%)", r.moving_skipped, r.moving,
               pct(r.moving_skipped, r.moving), pct(r.old_moving_skipped, r.moving));
     }
     if (check(render("clean", 0, json, sizeof json) == 0 && measure(json, &r) == 0, "stops_clean_set_ready",
               "render or open failed")) {
         report("clean", &r);
-        check(r.moving >= 100 && pct(r.moving_skipped, r.moving) < 2, "stops_clean_moving_kept",
+        checkv(r.moving >= 100 && pct(r.moving_skipped, r.moving) < 2, "stops_clean_moving_kept",
               "%d of %d moving frames skipped (%.1f%%, want < 2%%; old rule %.1f%%)", r.moving_skipped, r.moving,
               pct(r.moving_skipped, r.moving), pct(r.old_moving_skipped, r.moving));
-        check(r.stopped == 0 || pct(r.stopped_skipped, r.stopped) >= 90, "stops_clean_stopped_skipped",
+        checkv(r.stopped == 0 || pct(r.stopped_skipped, r.stopped) >= 90, "stops_clean_stopped_skipped",
               "%d of %d stopped frames skipped (%.1f%%; old rule %.1f%%)", r.stopped_skipped, r.stopped,
               pct(r.stopped_skipped, r.stopped), pct(r.old_stopped_skipped, r.stopped));
     }

@@ -127,6 +127,11 @@ static void log_step(nj_trainer *t, const nj_step_result *r, float lr, double ip
              t->st.step, (double)t->st.step * t->cfg.batch * t->ranks / epoch_len, r->loss, r->photometric,
              r->smoothness, lr, ips, r->mask_fraction, r->saturated, r->translation, el,
              nj_health_summary(&t->health, health, sizeof health));
+    const nj_disp_figures *f = &t->health.disp;   /* the drift alarm's figures (health.h) */
+    if (t->health.have_disp && strlen(line) > 1)
+        snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1,
+                 ",\"inverted\":%.4f,\"far_half\":%.4f,\"depth_p50\":%.4g}", f->inverted, f->far_half,
+                 f->depth_p50);
     nj_runlog_json(&t->log, line);
 }
 
@@ -149,9 +154,13 @@ static void progress(nj_trainer *t, const nj_step_result *r, float lr, double ip
 
 static void check_health(nj_trainer *t, const nj_step_result *r)
 {
+    /* the drift alarm's figures come from this step's scale-0 disparity */
+    const nj_tensor *d = r->disp0;
+    nj_disp_figures df;
+    if (d) nj_health_disp_figures(d->data, d->n, d->h, d->w, t->cfg.loss.min_depth, t->cfg.loss.max_depth, &df);
     int fired = nj_health_observe(&t->health, t->st.step, r->loss, r->saturated, r->translation,
-                                  r->mask_fraction);
-    for (int bit = 1; bit <= NJ_HEALTH_FLAT; bit <<= 1)
+                                  r->mask_fraction, d ? &df : NULL);
+    for (int bit = 1; bit <= NJ_HEALTH_LAST; bit <<= 1)
         if (fired & bit) {
             char line[512];
             nj_runlog_say(&t->log, "health: %s", nj_health_message(bit));

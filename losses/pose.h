@@ -20,6 +20,17 @@ nj_tensor *nj_pose_compose(nj_graph *g, nj_tensor *a, nj_tensor *b);
  * translation (tx, 0, 0).  For a left target and right source, tx = −baseline. */
 nj_tensor *nj_pose_stereo(nj_graph *g, int n, const float *tx);
 
+/* Lateral slip of a motion vector (N×6×1×1, as for nj_pose_from_vec) against
+ * the planar circular-arc motion of a wheeled vehicle whose camera sits over
+ * its turning centre line (Scaramuzza, Fraundorfer & Siegwart 2009): moving
+ * along an arc, the sideways displacement is half the heading change times
+ * the forward one, tx = tz·ry/2, to first order in either direction of the
+ * pair.  Returns N×1×1×1 ((tx − tz·ry/2) / sqrt(|t|² + eps²))²: scale-free,
+ * so monocular scene units do not matter, and near 0 when the vehicle stands
+ * still (eps).  A camera mounted ahead of the axle adds a sideways swing in
+ * turns that this model does not have. */
+nj_tensor *nj_arc_slip(nj_graph *g, nj_tensor *vec, float eps);
+
 /* Plain Rodrigues' formula in double, for code outside the graph. */
 void nj_rotvec_to_matrix(const double v[3], double R[9]);
 

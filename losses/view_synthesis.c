@@ -41,6 +41,28 @@ static nj_tensor *saturation_guard(nj_graph *g, const nj_vs_config *cfg, nj_tens
     return nj_affine(g, nj_mean(g, nj_add(g, lo, hi), NJ_AXIS_ALL), cfg->saturation_guard, 0.0f);
 }
 
+/* Gains beyond this factor are not exposure changes but scene changes. */
+#define GAIN_LIMIT 1.5f
+
+/* src · clamp(mean(target)/mean(src)) per item; a constant (no gradient):
+ * sources are data. */
+static nj_tensor *gain_matched(nj_graph *g, nj_tensor *src, const nj_tensor *tgt)
+{
+    nj_tensor *out = nj_tensor_new(g, src->n, src->c, src->h, src->w, 0);
+    if (!out) return NULL;
+    size_t k = (size_t)src->c * src->h * src->w;
+    for (int n = 0; n < src->n; n++) {
+        const float *a = src->data + n * k, *t = tgt->data + n * k;
+        double sa = 0, st = 0;
+        for (size_t i = 0; i < k; i++) { sa += a[i]; st += t[i]; }
+        float gain = sa > 0 ? (float)(st / sa) : 1.0f;
+        gain = gain < 1.0f / GAIN_LIMIT ? 1.0f / GAIN_LIMIT : gain > GAIN_LIMIT ? GAIN_LIMIT : gain;
+        float *o = out->data + n * k;
+        for (size_t i = 0; i < k; i++) o[i] = a[i] * gain;
+    }
+    return out;
+}
+
 /* Minimum over sources of the un-warped (identity) error, with tie-break noise. */
 static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in)
 {
@@ -171,6 +193,13 @@ int nj_view_synthesis_loss(nj_graph *g, const nj_vs_config *cfg,
     }
     nj_tensor *pyr[NJ_MAX_SCALES];
     if (image_pyramid(g, in, pyr)) return -1;
+    nj_vs_input matched;
+    if (cfg->gain_match) {
+        matched = *in;
+        for (int s = 0; s < in->nsources; s++)
+            if (!(matched.sources[s] = gain_matched(g, in->sources[s], in->target))) return -1;
+        in = &matched;
+    }
     nj_tensor *ident = cfg->automask ? identity_min(g, cfg, in) : NULL;
     nj_tensor *total = NULL;
     for (int s = 0; s < in->nscales; s++) {

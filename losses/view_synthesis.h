@@ -8,6 +8,12 @@
  *    tiny random tie-break, compete; pixels where an un-warped source is at
  *    least as good (static relative to the camera) contribute nothing;
  *    pixels whose warped point leaves every source view are excluded too;
+ *  - with gain_match, every source (warped and un-warped alike) is first
+ *    multiplied by one gain per item, mean(target)/mean(source) over all
+ *    pixels and channels, clamped to [1/GAIN_LIMIT, GAIN_LIMIT]: a global
+ *    exposure change between frames is not read as geometry.  A gain-only
+ *    form of the affine brightness model of Yang et al. 2020 (D3VO), fitted in
+ *    closed form instead of predicted; the closed-form fit is our choice;
  *  - edge-aware smoothness of the scale's own disparity against the image
  *    downsampled to that scale, weight halved per scale (Godard et al. 2017).
  * total = mean over scales of (photometric_s + smooth_weight/2^s · smooth_s).
@@ -28,6 +34,9 @@ typedef struct nj_vs_config {
     int automask;          /* 1: auto-mask static pixels */
     float tie_break;       /* std-dev of the identity errors' noise, 1e-5; 0 = none */
     float saturation_guard;/* weight of the saturation guard (below), 0 = none */
+    int gain_match;        /* 1: scale each source by mean(target)/mean(source) first */
+    float arc_motion;      /* weight of the predicted motions' arc slip (losses/pose.h
+                              nj_arc_slip), added by the training step; 0 = none */
 } nj_vs_config;
 
 typedef struct nj_vs_input {

@@ -111,6 +111,12 @@ static nj_tensor *b_depth(nj_graph *g, nj_tensor *const *in, void *ctx)
     return nj_disp_to_depth(g, nj_affine(g, in[0], 0.45f, 0.5f), 0.5f, 20.0f);
 }
 
+static nj_tensor *b_arc_slip(nj_graph *g, nj_tensor *const *in, void *ctx)
+{
+    (void)ctx;
+    return nj_arc_slip(g, in[0], 1e-3f);
+}
+
 static void grad_checks(void)
 {
     gc_spec s = {.nin = 1, .shape = {{3, 6, 1, 1}}, .lo = -2, .hi = 2, .seed = 1};
@@ -119,6 +125,8 @@ static void grad_checks(void)
     gradcheck("grad pose_from_vec (angles ~1e-3, series branch)", b_pose_small, NULL, &s);
     s.eps = 0; s.seed = 3;
     gradcheck("grad pose_invert", b_invert, NULL, &s);
+    s.seed = 9;
+    gradcheck("grad arc_slip (planar-arc motion penalty)", b_arc_slip, NULL, &s);
     gc_spec c = {.nin = 2, .shape = {{2, 6, 1, 1}, {2, 6, 1, 1}}, .seed = 4};
     gradcheck("grad pose_compose", b_compose, NULL, &c);
     gc_spec r = {.nin = 2, .shape = {{2, 1, 6, 8}, {2, 6, 1, 1}}, .seed = 5};

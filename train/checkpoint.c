@@ -212,7 +212,10 @@ int nj_checkpoint_init_from(const char *path, nj_model *m, char *err, size_t err
         copy_values(&m->params, &src.params);
         copy_values(&m->buffers, &src.buffers);
         /* the pose net's weights were trained for their output scale */
-        if (m->cfg.pose && src.cfg.pose) m->cfg.pose_scale = src.cfg.pose_scale;
+        if (m->cfg.pose && src.cfg.pose) {
+            m->cfg.pose_scale = src.cfg.pose_scale;
+            m->cfg.rotation_scale = src.cfg.rotation_scale;
+        }
         rc = 0;
     }
     nj_model_free(&src);

@@ -200,6 +200,7 @@ char *nj_export_architecture_json(const nj_export_net *net)
         cJSON_AddNumberToObject(o, "pose_stages", c->pose_stages);
         cJSON_AddNumberToObject(o, "pose_width", c->pose_width);
         cJSON_AddNumberToObject(o, "pose_scale", c->pose_scale);
+        cJSON_AddNumberToObject(o, "rotation_scale", c->rotation_scale);
     }
     cJSON_AddStringToObject(o, "input", "RGB in [0,1], standardised as (x - 0.45) / 0.225");
     cJSON_AddNumberToObject(o, "input_mean", NJ_EXPORT_MEAN);

@@ -10,8 +10,9 @@
  *
  * Pose net: the two frames concatenated on channels (6 channels), a stack of
  * stride-2 convs (7×7, 5×5, then 3×3) + norm + ELU, a 1×1 conv to 6 numbers,
- * spatial mean, times `out_scale`: an axis-angle rotation and a translation
- * mapping points of the first frame's camera into the second's.
+ * spatial mean; the first three times `rotation_scale` are an axis-angle
+ * rotation (radians), the last three times `pose_scale` a translation: the
+ * motion mapping points of the first frame's camera into the second's.
  *
  * Parameters are registered in groups: 0 depth encoder, 1 depth decoder,
  * 2 pose net; batch-norm running statistics are kept in `buffers`.
@@ -38,7 +39,8 @@ typedef struct nj_model_config {
     int pose;              /* 1: build the pose net */
     int pose_stages;       /* stride-2 convs in the pose net (default 5) */
     float pose_width;
-    float pose_scale;      /* output multiplier (default 0.5) */
+    float pose_scale;      /* translation output multiplier (default 0.5) */
+    float rotation_scale;  /* rotation output multiplier (default: see model.c) */
     float bn_momentum;     /* default 0.1 */
     unsigned seed;         /* initialisation seed */
 } nj_model_config;

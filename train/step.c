@@ -32,8 +32,11 @@ static float mean_translation(const nj_tensor *v)
 
 /* Temporal sources: pose net on (earlier, later) frame pairs; the pair with
  * the earlier source is inverted so every pose maps target → source. */
-static int add_video(nj_graph *g, nj_model *m, const nj_batch *b, nj_tensor *tgt_in,
-                     nj_vs_input *in, float *translation)
+/* Scale-free slips below this translation length count as standing still. */
+#define SLIP_EPS 1e-3f
+
+static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
+                     nj_tensor *tgt_in, nj_vs_input *in, float *translation, nj_tensor **slip)
 {
     float t = 0;
     for (int j = 0; j < b->nsrc && in->nsources < NJ_MAX_SOURCES; j++) {
@@ -42,6 +45,10 @@ static int add_video(nj_graph *g, nj_model *m, const nj_batch *b, nj_tensor *tgt
         nj_tensor *vec = j == 0 ? nj_pose_forward(g, m, src_in, tgt_in) : nj_pose_forward(g, m, tgt_in, src_in);
         nj_tensor *T = nj_pose_from_vec(g, vec);
         if (j == 0) T = nj_pose_invert(g, T);
+        if (cfg->loss.arc_motion > 0) {
+            nj_tensor *s = nj_mean(g, nj_arc_slip(g, vec, SLIP_EPS), NJ_AXIS_ALL);
+            *slip = *slip ? nj_add(g, *slip, s) : s;
+        }
         if (!T) return -1;
         t += mean_translation(vec);
         in->sources[in->nsources] = src;
@@ -89,7 +96,8 @@ int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj
     in.rng = rng;
     in.nscales = m->cfg.scales;
     if (nj_depth_forward(g, m, tgt_in, in.disp)) return -1;
-    if (cfg->video && b->nsrc > 0 && add_video(g, m, b, tgt_in, &in, &r->translation)) return -1;
+    nj_tensor *slip = NULL;
+    if (cfg->video && b->nsrc > 0 && add_video(g, m, cfg, b, tgt_in, &in, &r->translation, &slip)) return -1;
     if (cfg->stereo && b->stereo && add_stereo(g, b, &in)) return -1;
     if (in.nsources == 0) {
         nj_graph_fail(g, "training batch has no source frame (check frame_offsets / stereo settings)");
@@ -97,6 +105,8 @@ int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj
     }
     nj_vs_output out;
     if (nj_view_synthesis_loss(g, &cfg->loss, &in, &out)) return -1;
+    if (slip) out.total = nj_add(g, out.total, nj_affine(g, slip, cfg->loss.arc_motion / (float)b->nsrc, 0.0f));
+    if (nj_graph_failed(g)) return -1;
     r->loss = out.total->data[0];
     r->photometric = out.photometric;
     r->smoothness = out.smoothness;

@@ -80,6 +80,11 @@ static int fresh_model(nj_trainer *t, char *err, size_t errlen)
                t->model.cfg.pose_scale, t->cfg.init, mc.pose_scale);
         t->cfg.model.pose_scale = t->model.cfg.pose_scale;
     }
+    if (t->model.cfg.rotation_scale != mc.rotation_scale) {
+        printf("model.rotation_scale %g taken from %s (its pose weights were trained with it; the config says %g)\n",
+               t->model.cfg.rotation_scale, t->cfg.init, mc.rotation_scale);
+        t->cfg.model.rotation_scale = t->model.cfg.rotation_scale;
+    }
     memset(&t->st, 0, sizeof t->st);
     nj_rng_seed(&t->rng, (uint64_t)t->cfg.seed * 0x9E3779B97F4A7C15ull + 7);
     t->st.rng[0] = t->rng.s[0];

@@ -1,0 +1,167 @@
+/* tests/test_recipe_options.c — the training recipe's fleet options.
+ *
+ *  - model.rotation_scale: the pose net's three rotation outputs are scaled by
+ *    it and the three translation outputs by pose_scale.  Two models with the
+ *    same seed (same weights) and different scales must give outputs in the
+ *    exact ratio of the scales, channel by channel, and the rotation rows of
+ *    the output layer's gradient must scale the same way (chain rule).
+ *  - loss.gain_match: a source that is the target times a global gain (an
+ *    exposure change; the gain-only case of the affine brightness model of
+ *    Yang et al. 2020) must give the photometric error of the target against
+ *    itself, i.e. 0, under the identity motion; without it the error is the
+ *    one of the brightness change.  A gain beyond the limit (x2) is not fully
+ *    undone (the limit holds).
+ */
+#include "losses/pose.h"
+#include "losses/view_synthesis.h"
+#include "nn/graph.h"
+#include "tests/check.h"
+#include "train/model.h"
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#define W 64
+#define H 32
+
+static void fill_image(nj_tensor *t, unsigned seed, float hi)
+{
+    nj_rng r;
+    nj_rng_seed(&r, seed);
+    size_t k = nj_numel(t);
+    /* smooth-ish texture in [0.1, hi]: SSIM needs structure */
+    for (size_t i = 0; i < k; i++) t->data[i] = 0.1f + (hi - 0.1f) * (float)nj_rng_uniform(&r);
+}
+
+static int pose_run(float rot, float trans, float out[12], float grow[2])
+{
+    nj_model_config mc;
+    nj_model_config_default(&mc);
+    mc.stages = 3;
+    mc.scales = 3;
+    mc.pose_stages = 3;
+    mc.width = 0.5f;
+    mc.pose_width = 0.5f;
+    mc.pose_scale = trans;
+    mc.rotation_scale = rot;
+    mc.seed = 5;
+    nj_model m;
+    char err[256];
+    if (nj_model_init(&m, &mc, err, sizeof err)) { check(0, "rotation_scale: model", "%s", err); return -1; }
+    nj_graph *g = nj_graph_new(1 << 22);
+    nj_tensor *a = nj_tensor_new(g, 2, 3, H, W, 0), *b = nj_tensor_new(g, 2, 3, H, W, 0);
+    fill_image(a, 1, 0.9f);
+    fill_image(b, 2, 0.9f);
+    nj_tensor *v = nj_pose_forward(g, &m, a, b);
+    int rc = -1;
+    if (v && !nj_graph_failed(g)) {
+        memcpy(out, v->data, 12 * sizeof(float));
+        /* loss = sum of all outputs: d/d(out-layer bias) is the channel's scale */
+        nj_params_zero_grad(&m.params);
+        if (!nj_backward(g, nj_sum(g, v, NJ_AXIS_ALL))) {
+            const nj_param *pb = nj_params_find(&m.params, "pose.out.b");
+            grow[0] = pb ? pb->grad[0] : NAN;   /* a rotation channel */
+            grow[1] = pb ? pb->grad[3] : NAN;   /* a translation channel */
+            rc = 0;
+        }
+    }
+    if (rc) check(0, "rotation_scale: forward/backward", "%s", nj_graph_error(g));
+    nj_graph_free(g);
+    nj_model_free(&m);
+    return rc;
+}
+
+static void test_rotation_scale(void)
+{
+    float same[12], split[12], gs[2], gp[2];
+    if (pose_run(0.5f, 0.5f, same, gs) || pose_run(0.01f, 0.5f, split, gp)) return;
+    double worst = 0;
+    for (int n = 0; n < 2; n++)
+        for (int c = 0; c < 6; c++) {
+            double want = c < 3 ? same[6 * n + c] * (0.01 / 0.5) : same[6 * n + c];
+            double e = fabs(split[6 * n + c] - want) / fmax(fabs(want), 1e-12);
+            if (e > worst) worst = e;
+        }
+    check(worst < 1e-5, "rotation_scale: rotation outputs x0.02, translation unchanged (same weights)",
+          "worst relative deviation %.2e", worst);
+    /* d(sum)/d(bias_c) = N * scale_c exactly */
+    check(fabsf(gp[0] - 2 * 0.01f) < 1e-6f && fabsf(gp[1] - 2 * 0.5f) < 1e-6f && fabsf(gs[0] - 1.0f) < 1e-6f,
+          "rotation_scale: output-layer bias gradient is batch x scale per channel",
+          "rotation %.6g (want 0.02), translation %.6g (want 1), equal scales %.6g (want 1)", gp[0], gp[1], gs[0]);
+}
+
+/* Photometric loss of `target` against `source` under the identity motion. */
+static float identity_loss(float gain, int match)
+{
+    nj_graph *g = nj_graph_new(1 << 22);
+    nj_tensor *tgt = nj_tensor_new(g, 1, 3, H, W, 0), *src = nj_tensor_new(g, 1, 3, H, W, 0);
+    fill_image(tgt, 3, 0.45f);
+    for (size_t i = 0; i < nj_numel(src); i++) src->data[i] = tgt->data[i] * gain;
+    nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
+    for (size_t i = 0; i < nj_numel(disp); i++) disp->data[i] = 0.3f;
+    float tx = 0.0f;
+    nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
+    nj_vs_input in = {.target = tgt, .sources = {src}, .poses = {nj_pose_stereo(g, 1, &tx)},
+                      .nsources = 1, .cams = &cam, .disp = {disp}, .nscales = 1, .rng = NULL};
+    nj_vs_config cfg;
+    nj_vs_config_default(&cfg);
+    cfg.automask = 0;
+    cfg.smooth_weight = 0;
+    cfg.gain_match = match;
+    nj_vs_output out;
+    float l = nj_view_synthesis_loss(g, &cfg, &in, &out) ? NAN : out.photometric;
+    nj_graph_free(g);
+    return l;
+}
+
+static void test_gain_match(void)
+{
+    float off = identity_loss(1.25f, 0), on = identity_loss(1.25f, 1), same = identity_loss(1.0f, 0);
+    check(same < 1e-6f && on < 1e-5f && off > 0.02f,
+          "gain_match: a source 1.25x brighter costs what the target itself costs (0)",
+          "with gain_match %.3g, without %.3g, target against itself %.3g", on, off, same);
+    float beyond = identity_loss(2.0f, 1), beyond_off = identity_loss(2.0f, 0);
+    check(beyond > 0.02f && beyond < beyond_off,
+          "gain_match: a 2x change is corrected only up to the 1.5x limit",
+          "with gain_match %.3g, without %.3g", beyond, beyond_off);
+}
+
+/* Motion vector (points of camera 0 into camera 1) when camera 1 sits at c1
+ * with heading yaw (camera-to-world R_y(yaw)): R = R_y(yaw)ᵀ, t = −R_y(yaw)ᵀ c1. */
+static void motion_vec(double yaw, const double c1[3], float v[6])
+{
+    double cy = cos(yaw), sy = sin(yaw);
+    /* R_y(yaw)ᵀ rows: (cy, 0, −sy), (0, 1, 0), (sy, 0, cy) */
+    v[0] = 0; v[1] = (float)-yaw; v[2] = 0;
+    v[3] = (float)-(cy * c1[0] - sy * c1[2]);
+    v[4] = (float)-c1[1];
+    v[5] = (float)-(sy * c1[0] + cy * c1[2]);
+}
+
+/* The planar arc of Scaramuzza et al. 2009, built here from the circle itself:
+ * radius rho, heading change th, camera at (rho (1 − cos th), 0, rho sin th). */
+static void test_arc_slip(void)
+{
+    nj_graph *g = nj_graph_new(1 << 20);
+    nj_tensor *v = nj_tensor_new(g, 3, 6, 1, 1, 0);
+    double rho = 6.0, th = 0.035;   /* ~2 degrees over 0.21 m */
+    double arc[3] = {rho * (1 - cos(th)), 0, rho * sin(th)}, side[3] = {0.1, 0, 0}, back[3] = {0, 0, -0.2};
+    motion_vec(th, arc, v->data);
+    motion_vec(0, side, v->data + 6);
+    motion_vec(-th, back, v->data + 12);   /* reversing while turning: not an arc of this camera */
+    nj_tensor *s = nj_arc_slip(g, v, 1e-3f);
+    if (!s) { check(0, "arc_slip", "%s", nj_graph_error(g)); nj_graph_free(g); return; }
+    check(s->data[0] < 1e-6f && fabs(s->data[1] - 0.01 / (0.01 + 1e-6)) < 1e-6 && s->data[2] > 1e-4f,
+          "arc_slip: ~0 on a true circular arc, ~1 for a pure sideways move",
+          "arc %.3g (want < 1e-6), sideways %.6g (want 0.01 / (0.01 + eps^2) = 0.9999), reversing with a heading change %.3g (want > 1e-4)",
+          s->data[0], s->data[1], s->data[2]);
+    nj_graph_free(g);
+}
+
+int main(void)
+{
+    test_arc_slip();
+    test_rotation_scale();
+    test_gain_match();
+    return test_exit();
+}

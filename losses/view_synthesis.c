@@ -21,6 +21,8 @@ void nj_vs_config_default(nj_vs_config *cfg)
     cfg->automask = 1;
     cfg->tie_break = 1e-5f;
     cfg->saturation_guard = 0.0f;
+    cfg->gain_match = 0;
+    cfg->arc_motion = 0.0f;
 }
 
 /* Logit magnitude beyond which the saturation guard pushes back. */

@@ -18,11 +18,15 @@
  *    brightness ratio inside [0.85, 1.15] and not constant;
  *  - --sensor-noise 0.01 against the same seed without it: std of the
  *    difference within 10% of 0.01 (plus 8-bit rounding);
- *  - the same options and seed twice: identical files. */
+ *  - the same options and seed twice: identical files;
+ *  - 12 yards with a lead cart, halts and turns (built here): no object and
+ *    no mover touches any placement of the cart (points on a 5x5 grid over
+ *    its footprint lie outside every footprint). */
 #include "data/dataset.h"
 #include "data/image.h"
 #include "data/npy.h"
 #include "data/poses.h"
+#include "data/scene_gen.h"
 #include "data/synth.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
@@ -404,6 +408,47 @@ static void test_determinism(void)
           (unsigned long long)ha, na, (unsigned long long)hb, nb);
 }
 
+/* Points of the cart's footprint inside object o's footprint. */
+static int touches(const nj_object *cart, const nj_object *o)
+{
+    int n = 0;
+    for (int a = 0; a < 5; a++)
+        for (int b = 0; b < 5; b++) {
+            float lx = cart->hx * (a / 2.0f - 1), lz = cart->hz * (b / 2.0f - 1);
+            float x = cart->x + cart->cs * lx + cart->sn * lz, z = cart->z - cart->sn * lx + cart->cs * lz;
+            n += nj_object_footprint_distance(o, x, z) <= 0;
+        }
+    return n;
+}
+
+static void test_lead_clear(void)
+{
+    int hits = 0, objects = 0, movers = 0;
+    for (int k = 0; k < 12; k++) {
+        nj_rng r, f;
+        nj_rng_seed(&r, 1000 + k);
+        nj_rng_seed(&f, 2000 + k);
+        nj_trajectory tr;
+        nj_scene sc;
+        if (nj_trajectory_make_fleet(&r, &f, 150, 0.1, 1, 1, &tr)) { hits++; continue; }
+        if (nj_scene_make_fleet(&r, &f, &tr, 1, 1, &sc)) { hits++; nj_trajectory_free(&tr); continue; }
+        objects += sc.nobj;
+        movers += sc.has_mover;
+        for (int i = 0; i < tr.n; i++) {
+            nj_object cart = nj_scene_lead_at(&sc, &tr, i);
+            for (int o = 0; o < sc.nobj; o++) hits += touches(&cart, &sc.obj[o]) > 0;
+            if (sc.has_mover) {
+                nj_object m = nj_scene_mover_at(&sc, (float)(i * tr.dt));
+                hits += touches(&cart, &m) > 0 || touches(&m, &cart) > 0;
+            }
+        }
+        nj_scene_free(&sc);
+        nj_trajectory_free(&tr);
+    }
+    checkv(hits == 0 && objects > 0, "fleet_lead_cart_clear_of_objects",
+           "%d (frame, object) contacts over 12 yards x 150 frames (%d objects, %d movers)", hits, objects, movers);
+}
+
 int main(void)
 {
     if (!check(tdu_tmpdir(dir, sizeof dir) == 0, "fleet_tmpdir", "mkdtemp failed")) return test_exit();
@@ -412,6 +457,7 @@ int main(void)
     test_lead_and_motion();
     test_exposure_and_noise();
     test_determinism();
+    test_lead_clear();
     tdu_rmtree(dir);
     return test_exit();
 }

@@ -226,8 +226,9 @@ static void make_lead(nj_rng *r, nj_scene *s)
     s->has_lead = 1;
 }
 
-/* A small robot crossing the route ahead of the vehicle around mid-sequence
- * (between the camera and the lead cart when there is one). */
+/* A small robot crossing the route ahead of the vehicle around mid-sequence;
+ * with a lead cart, 3.5 m ahead up to 1.5 m short of the cart, or 1.5–3.5 m
+ * beyond it (the same draw mapped onto those two ranges). */
 static void place_mover(nj_rng *r, nj_scene *s, const nj_trajectory *tr)
 {
     nj_object *m = &s->mover;
@@ -242,8 +243,10 @@ static void place_mover(nj_rng *r, nj_scene *s, const nj_trajectory *tr)
     m->seed = (uint32_t)nj_rng_next(r);
     for (int tries = 0; tries < 200 && !s->has_mover; tries++) {
         int i = tr->n / 4 + (int)nj_rng_below(r, (uint32_t)(tr->n / 2 + 1));
-        float hi = s->has_lead ? s->lead_ahead - s->lead.hz - 1.5f : 8.0f;   /* in front of the lead cart */
-        float psi = tr->heading[i], ahead = uni(r, s->has_lead ? 3.5f : 4.0f, hi), speed = uni(r, 0.5f, 1.0f);
+        float psi = tr->heading[i], ahead = uni(r, 4.0f, 8.0f), speed = uni(r, 0.5f, 1.0f);
+        if (s->has_lead)      /* between the camera and the lead cart, or beyond it */
+            ahead = ahead < 6.0f ? 3.5f + (ahead - 4.0f) * 0.5f * (s->lead_ahead - s->lead.hz - 5.0f)
+                                 : s->lead_ahead + s->lead.hz + 1.5f + (ahead - 6.0f);
         float side = nj_rng_uniform(r) < 0.5f ? -1.0f : 1.0f, t = (float)(i * tr->dt);
         float x = tr->px[i] + ahead * sinf(psi), z = tr->pz[i] + ahead * cosf(psi);
         s->mover_v[0] = side * speed * cosf(psi);

@@ -29,6 +29,10 @@ static int feed(nj_health *h, int n, float loss0, float loss_step, float sat, fl
  * seed 2 0.36/0.82/0.50/0.47 (learns), seed 3 0.52/0.88/1.82/2.87 and seed 4
  * 0.61/1.14/2.76/4.76 (drift); *_NEAR: seeds 3 and 4 with model.head_init
  * 0.1, which learn (0.47/0.38/0.21/0.17 and 0.55/0.27/0.34/0.32).
+ * HEAD_*: the same three seeds with the code of commit 06908bd (a new
+ * near-duplicate rule changed the training samples), the "inverted" values
+ * of their log.jsonl: seed 2 0.52/0.63/0.27/0.26 (learns), seed 3
+ * 0.57/0.55/0.53/1.27 and seed 4 0.42/0.85/0.83/2.53 (drift).
  * SMALL_*: the "inverted" values in log.jsonl of tests/test_drift_alarm.c's
  * runs (96×64, half-width nets, 400 steps,
  * logging every 5; code of commit 06908bd): the healthy one (head_init 0.1,
@@ -78,6 +82,33 @@ static const float E2E_SEED4_NEAR[] = {
     0.059, 0.113, 0.074, 0.118, 0.142, 0.064, 0.078, 0.059, 0.136, 0.114, 0.077, 0.088, 0.094,
     0.078, 0.042, 0.087, 0.044, 0.094, 0.087, 0.112, 0.048, 0.123, 0.102, 0.069, 0.068, 0.093,
     0.107, 0.035, 0.090, 0.079, 0.060, 0.054, 0.101, 0.062, 0.074, 0.022, 0.067, 0.033, 0.044,
+};  /* steps: 1, 10, 20, ... 900 */
+static const float HEAD_SEED2[] = {
+    0.168, 0.070, 0.164, 0.024, 0.011, 0.020, 0.087, 0.081, 0.020, 0.001, 0.103, 0.443, 0.015,
+    0.000, 0.000, 0.000, 0.000, 0.095, 0.078, 0.030, 0.544, 0.218, 0.000, 0.000, 0.000, 0.050,
+    0.000, 0.000, 0.079, 0.062, 0.067, 0.000, 0.000, 0.000, 0.000, 0.006, 0.000, 0.005, 0.001,
+    0.009, 0.003, 0.007, 0.012, 0.007, 0.003, 0.037, 0.025, 0.026, 0.001, 0.025, 0.011, 0.015,
+    0.035, 0.051, 0.040, 0.074, 0.004, 0.008, 0.013, 0.043, 0.043, 0.017, 0.000, 0.004, 0.013,
+    0.016, 0.016, 0.055, 0.022, 0.029, 0.023, 0.025, 0.013, 0.036, 0.035, 0.016, 0.035, 0.041,
+    0.009, 0.014, 0.014, 0.021, 0.047, 0.025, 0.022, 0.037, 0.019, 0.047, 0.025, 0.033, 0.054,
+};  /* steps: 1, 10, 20, ... 900 */
+static const float HEAD_SEED3[] = {
+    0.319, 0.273, 0.335, 0.106, 0.114, 0.089, 0.101, 0.311, 0.157, 0.063, 0.071, 0.147, 0.340,
+    0.107, 0.049, 0.112, 0.371, 0.465, 0.376, 0.109, 0.141, 0.164, 0.069, 0.158, 0.241, 0.257,
+    0.321, 0.249, 0.282, 0.397, 0.451, 0.259, 0.292, 0.377, 0.364, 0.316, 0.315, 0.405, 0.453,
+    0.460, 0.416, 0.426, 0.424, 0.406, 0.410, 0.441, 0.447, 0.429, 0.409, 0.497, 0.487, 0.514,
+    0.563, 0.505, 0.471, 0.536, 0.598, 0.619, 0.600, 0.595, 0.596, 0.607, 0.603, 0.587, 0.567,
+    0.593, 0.641, 0.646, 0.644, 0.652, 0.661, 0.666, 0.661, 0.670, 0.685, 0.690, 0.705, 0.698,
+    0.683, 0.669, 0.678, 0.680, 0.696, 0.697, 0.692, 0.712, 0.701, 0.696, 0.702, 0.693, 0.691,
+};  /* steps: 1, 10, 20, ... 900 */
+static const float HEAD_SEED4[] = {
+    0.227, 0.265, 0.377, 0.226, 0.110, 0.078, 0.034, 0.293, 0.453, 0.345, 0.357, 0.283, 0.068,
+    0.074, 0.139, 0.090, 0.089, 0.244, 0.329, 0.162, 0.177, 0.213, 0.421, 0.419, 0.518, 0.426,
+    0.381, 0.282, 0.462, 0.710, 0.715, 0.526, 0.329, 0.394, 0.544, 0.644, 0.599, 0.607, 0.648,
+    0.628, 0.664, 0.710, 0.645, 0.693, 0.685, 0.655, 0.690, 0.699, 0.692, 0.688, 0.700, 0.660,
+    0.683, 0.686, 0.695, 0.682, 0.706, 0.717, 0.710, 0.700, 0.731, 0.720, 0.700, 0.766, 0.728,
+    0.748, 0.748, 0.797, 0.752, 0.671, 0.793, 0.791, 0.755, 0.770, 0.814, 0.752, 0.806, 0.733,
+    0.781, 0.795, 0.783, 0.771, 0.809, 0.744, 0.790, 0.786, 0.845, 0.816, 0.882, 0.818, 0.796,
 };  /* steps: 1, 10, 20, ... 900 */
 static const float SMALL_HEALTHY[] = {
     0.488, 0.445, 0.666, 0.575, 0.377, 0.142, 0.052, 0.050, 0.042, 0.039, 0.013, 0.009, 0.002,
@@ -138,6 +169,15 @@ static void drift_alarm(void)
     at = replay(E2E_SEED4_NEAR, N(E2E_SEED4_NEAR), 10, &fires, &active);
     check(at < 0 && fires == 0, "drift alarm: e2e seed 4 with head_init 0.1 (learns) stays silent",
           "fired at %ld", at);
+    at = replay(HEAD_SEED3, N(HEAD_SEED3), 10, &fires, &active);
+    /* validation AbsRel 0.53 at step 500, 0.98 at 600: the alarm comes before ground truth shows it */
+    check(at == 460 && fires == 1 && active, "drift alarm: seed 3 on 06908bd (drifts) fires once, at step 460",
+          "fired at %ld, %d times, active at the end %d", at, fires, active);
+    at = replay(HEAD_SEED4, N(HEAD_SEED4), 10, &fires, &active);
+    check(at == 360 && fires == 1 && active, "drift alarm: seed 4 on 06908bd (drifts) fires once, at step 360",
+          "fired at %ld, %d times, active at the end %d", at, fires, active);
+    at = replay(HEAD_SEED2, N(HEAD_SEED2), 10, &fires, &active);
+    check(at < 0 && fires == 0, "drift alarm: seed 2 on 06908bd (learns) stays silent", "fired at %ld", at);
     at = replay(SMALL_DRIFT, N(SMALL_DRIFT), 5, &fires, &active);
     check(at == 195 && fires == 1, "drift alarm: the short drifting run fires once, at its first chance (step 195)",
           "fired at %ld, %d times", at, fires);

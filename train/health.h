@@ -36,11 +36,16 @@
  * fires at step 300 for seed 3 (validation AbsRel by ground truth then 0.88,
  * seed 2's 0.82: ground truth tells them apart only at step 400, 1.02 vs
  * 0.58; 2.87 at step 900) and at step 340 for seed 4 (1.14 at step 300,
- * 4.76 at 900).  Short 96×64 runs (tests/test_drift_alarm.c, logging every
- * 5): healthy at most 0.011, the drifting one (pose_scale 0.1) 0.63–0.66,
- * firing at step 195, its first chance.  Threshold 0.4: 3× the largest
- * healthy median, 0.6× the smallest drifted one (0.2 would separate the
- * recorded runs too; seeds 3 and 4 would fire at step 290). */
+ * 4.76 at 900).  With the near-duplicate rule of commit 06908bd the same
+ * seeds drift again and the alarm fires at steps 460 (seed 3: validation
+ * AbsRel 0.53 at step 500, 0.98 at 600, 1.27 at 900) and 360 (seed 4: 0.77
+ * at step 400, 2.53 at 900); seed 2 learns (0.26) and stays at most 0.03.
+ * Short 96×64 runs (tests/test_drift_alarm.c, logging every 5): healthy at
+ * most 0.011, the drifting one (pose_scale 0.1) 0.63–0.66, firing at step
+ * 195, its first chance.  Threshold 0.4: 3× the largest healthy median
+ * (0.13); drifted runs settle at 0.63–0.85.  0.2 also separates every
+ * recorded run and fires 70–160 steps earlier on the 06908bd seeds (300,
+ * 290), but with 1.5× margin on the healthy side. */
 #ifndef NJ_HEALTH_H
 #define NJ_HEALTH_H
 

@@ -22,5 +22,16 @@ int check(int cond, const char *name, const char *fmt, ...)
     return cond;
 }
 
+int checkv(int cond, const char *name, const char *fmt, ...)
+{
+    char msg[1024];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(msg, sizeof msg, fmt, ap);
+    va_end(ap);
+    if (cond) printf("info %s: %s\n", name, msg);
+    return check(cond, name, "%s", msg);
+}
+
 int test_failures(void) { return failures; }
 int test_exit(void) { return failures ? 1 : 0; }

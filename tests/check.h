@@ -9,6 +9,10 @@
  * (the values seen).  Returns cond. */
 int check(int cond, const char *name, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
+/* check() that also prints the measured values of a passing check, on an
+ * "info NAME: ..." line before its PASS line (run.sh counts only PASS/FAIL). */
+int checkv(int cond, const char *name, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
 /* Number of failed checks so far in this program. */
 int test_failures(void);
 int test_exit(void);

@@ -30,23 +30,10 @@
 #include "data/synth.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include <stdarg.h>
 #include <sys/stat.h>
 
 static char dir[64];
 
-/* check() that also prints the measured values when the check passes. */
-static int checkv(int cond, const char *name, const char *fmt, ...) __attribute__((format(printf, 3, 4)));
-static int checkv(int cond, const char *name, const char *fmt, ...)
-{
-    char msg[1024];
-    va_list ap;
-    va_start(ap, fmt);
-    vsnprintf(msg, sizeof msg, fmt, ap);
-    va_end(ap);
-    if (cond) printf("info %s: %s\n", name, msg);
-    return check(cond, name, "%s", msg);
-}
 
 static void write_text(const char *path, const char *text)
 {

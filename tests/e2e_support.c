@@ -1,5 +1,6 @@
 /* tests/e2e_support.c — see e2e_support.h. */
 #include "tests/e2e_support.h"
+#include "tests/check.h"
 #include <cjson/cJSON.h>
 #include <math.h>
 #include <stdio.h>
@@ -73,3 +74,28 @@ const char *e2e_bin(void)
 }
 
 int e2e_have_binary(void) { return access(e2e_bin(), X_OK) == 0; }
+
+void e2e_side_by_side(const char *dir, void (*first)(const char *), void (*second)(const char *),
+                      const char *tag, const char *second_name)
+{
+    char out[300];
+    snprintf(out, sizeof out, "%s/%s-checks.txt", dir, tag);
+    fflush(stdout);
+    pid_t pid = fork();
+    if (pid == 0) {
+        if (!freopen(out, "w", stdout)) _exit(3);
+        second(dir);
+        fflush(stdout);
+        _exit(test_failures() ? 1 : 0);
+    }
+    if (pid < 0) second(dir);
+    first(dir);
+    if (pid > 0) {
+        int st = 0;
+        pid_t w = waitpid(pid, &st, 0);
+        char *text = e2e_slurp(out, NULL);
+        if (text) fputs(text, stdout);
+        free(text);
+        check(w == pid && WIFEXITED(st) && WEXITSTATUS(st) == 0, second_name, "child status %d", st);
+    }
+}

@@ -23,4 +23,11 @@ const char *e2e_bin(void);
 /* 1 when e2e_bin() exists and is executable. */
 int e2e_have_binary(void);
 
+/* Runs second(dir) in a child process beside first(dir) in this one (two
+ * one-thread trainings on the two cores), then prints the child's PASS/FAIL
+ * lines after the parent's and checks that the child passed (check named
+ * `second_name`).  The child's lines go through DIR/TAG-checks.txt. */
+void e2e_side_by_side(const char *dir, void (*first)(const char *), void (*second)(const char *),
+                      const char *tag, const char *second_name);
+
 #endif

@@ -149,27 +149,7 @@ int main(void)
     snprintf(log, sizeof log, "%s/synth.txt", dir);
     if (!check(e2e_run(cmd, log) == 0, "synth renders the data", "see %s", log)) return test_exit();
     /* the healthy case in a child, its checks printed after the drift case's */
-    char out[300];
-    snprintf(out, sizeof out, "%s/healthy-checks.txt", dir);
-    fflush(stdout);
-    pid_t pid = fork();
-    if (pid == 0) {
-        if (!freopen(out, "w", stdout)) _exit(3);
-        healthy(dir);
-        fflush(stdout);
-        _exit(test_failures() ? 1 : 0);
-    }
-    if (pid < 0) healthy(dir);
-    drifting(dir);
-    if (pid > 0) {
-        int st = 0;
-        pid_t w = waitpid(pid, &st, 0);
-        char *text = e2e_slurp(out, NULL);
-        if (text) fputs(text, stdout);
-        free(text);
-        check(w == pid && WIFEXITED(st) && WEXITSTATUS(st) == 0, "healthy case (run beside the drift one) passes",
-              "child status %d", st);
-    }
+    e2e_side_by_side(dir, drifting, healthy, "healthy", "healthy case (run beside the drift one) passes");
     if (!test_failures()) ref_rmtree(dir);
     else printf("# kept %s for inspection\n", dir);
     return test_exit();

@@ -252,27 +252,7 @@ int main(void)
     if (ref_mkdtemp(dir, sizeof dir, "e2e")) { check(0, "temp folder", "%s", dir); return test_exit(); }
     /* the two cases train one thread each: run them side by side on the two
      * cores, the stereo case in a child whose report is printed after mono's */
-    char out[300];
-    snprintf(out, sizeof out, "%s/stereo-checks.txt", dir);
-    fflush(stdout);
-    pid_t pid = fork();
-    if (pid == 0) {
-        if (!freopen(out, "w", stdout)) _exit(3);
-        stereo(dir);
-        fflush(stdout);
-        _exit(test_failures() ? 1 : 0);
-    }
-    if (pid < 0) stereo(dir);
-    mono(dir);
-    if (pid > 0) {
-        int st = 0;
-        pid_t w = waitpid(pid, &st, 0);
-        char *text = e2e_slurp(out, NULL);
-        if (text) fputs(text, stdout);
-        free(text);
-        check(w == pid && WIFEXITED(st) && WEXITSTATUS(st) == 0, "stereo case (run beside the monocular one) passes",
-              "child status %d", st);
-    }
+    e2e_side_by_side(dir, mono, stereo, "stereo", "stereo case (run beside the monocular one) passes");
     if (!test_failures()) ref_rmtree(dir);
     else printf("# kept %s for inspection\n", dir);
     return test_exit();

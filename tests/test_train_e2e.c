@@ -165,22 +165,27 @@ static int val_absrels(const char *text, double *v, int max)
     return n;
 }
 
-/* "Validation never drifts back up": the run ends within 10% of its best
+/* "Validation never drifts back up": the run ends within 25% of its best
  * validation AbsRel over the second half of the run.  The first half is left
  * out: in its first ~100 steps the net predicts a near-uniform depth, which
- * median scaling can score below the learned depth for a while (measured:
- * 0.39 at step 100, then 1.07, 0.48, 0.59, 0.50, 0.40, 0.45, 0.45, 0.43 at
- * 200…900).  Step-to-step noise of the second half is up to ~8%; the drift
- * this guards against multiplies AbsRel (×3 to ×17 over the second half with
- * seeds 3 and 4). */
+ * median scaling can score below the learned depth for a while (measured
+ * with the near-duplicate rule of 1f44855: 0.52 at step 100, then 0.92, 0.63,
+ * 0.31, 0.27, 0.27, 0.27, 0.23, 0.26 at 200…900; before that rule 0.39, 1.07,
+ * 0.48, …, 0.43).  Step-to-step noise of the second half reaches 10.5% (0.234
+ * → 0.259); the drift this guards against multiplies AbsRel (×3 to ×17 over
+ * the second half with seeds 3 and 4), so the bound is ×1.25 — 2.4× below the
+ * smallest drift measured.  The run's drift alarm (train/health.h) must stay
+ * silent as well. */
 static void no_drift(const char *text)
 {
     double v[256], best = INFINITY;
     int n = val_absrels(text, v, 256);
     for (int i = n / 2; i < n; i++) best = v[i] < best ? v[i] : best;
-    check(n >= 3 && v[n - 1] <= 1.10 * best,
-          "monocular validation AbsRel ends at (within 10% of) its best of the second half: no drift back up",
+    check(n >= 3 && v[n - 1] <= 1.25 * best,
+          "monocular validation AbsRel ends at (within 25% of) its best of the second half: no drift back up",
           "%d validations, best of the second half %.4f, last %.4f", n, best, n ? v[n - 1] : NAN);
+    check(!strstr(text, "drifting"),
+          "monocular run: the drift alarm stays silent", "log.jsonl has a drift record");
 }
 
 static void mono(const char *dir)

@@ -99,3 +99,13 @@ void e2e_side_by_side(const char *dir, void (*first)(const char *), void (*secon
         check(w == pid && WIFEXITED(st) && WEXITSTATUS(st) == 0, second_name, "child status %d", st);
     }
 }
+
+int e2e_val_absrels(const char *text, double *v, int max)
+{
+    int n = 0;
+    for (const char *p = text; p && (p = strstr(p, "\"type\":\"val\"")) && n < max; p++) {
+        const char *a = strstr(p, "\"absrel\":"), *nl = strchr(p, '\n');
+        if (a && (!nl || a < nl)) v[n++] = atof(a + 9);
+    }
+    return n;
+}

@@ -23,6 +23,9 @@ const char *e2e_bin(void);
 /* 1 when e2e_bin() exists and is executable. */
 int e2e_have_binary(void);
 
+/* The validation AbsRel values of a run's log.jsonl text, in step order
+ * (at most max; the count is returned). */
+int e2e_val_absrels(const char *text, double *v, int max);
 /* Runs second(dir) in a child process beside first(dir) in this one (two
  * one-thread trainings on the two cores), then prints the child's PASS/FAIL
  * lines after the parent's and checks that the child passed (check named

@@ -67,17 +67,6 @@ static int train(const char *dir, const char *tag, const char *head_init, const 
     return check(rc == 0, name, "exit %d (log %s)", rc, log) ? 0 : -1;
 }
 
-/* Validation AbsRel values of a log.jsonl text, in order. */
-static int val_absrels(const char *text, double *v, int max)
-{
-    int n = 0;
-    for (const char *p = text; p && (p = strstr(p, "\"type\":\"val\"")) && n < max; p++) {
-        const char *a = strstr(p, "\"absrel\":"), *nl = strchr(p, '\n');
-        if (a && (!nl || a < nl)) v[n++] = atof(a + 9);
-    }
-    return n;
-}
-
 /* Step of the first health record carrying the alarm, or -1. */
 static long alarm_step(const char *jsonl)
 {
@@ -109,7 +98,7 @@ static void drifting(const char *dir)
           "no step line with health drifting");
     check(strstr(jsonl, "\"inverted\":") != NULL, "step lines log the alarm's figure (inverted)", "not found");
     double v[16];
-    int n = val_absrels(jsonl, v, 16);
+    int n = e2e_val_absrels(jsonl, v, 16);
     /* ground truth confirms the drift: measured 0.641 → 0.945 (×1.47), rising at every validation */
     int rising = n >= 4;
     for (int i = 1; i < n; i++) rising &= v[i] >= v[i - 1];
@@ -132,7 +121,7 @@ static void healthy(const char *dir)
           "healthy run: the drift alarm stays silent", "alarm in log.jsonl %d times, in the output %d times",
           e2e_count(jsonl, ALARM), e2e_count(out, ALARM));
     double v[16];
-    int n = val_absrels(jsonl, v, 16);
+    int n = e2e_val_absrels(jsonl, v, 16);
     /* measured 0.34–0.37 */
     check(n >= 4 && v[n - 1] < 0.5, "healthy run: validation AbsRel (ground truth) stays low: it learns",
           "%d validations, last %.3f", n, n ? v[n - 1] : NAN);

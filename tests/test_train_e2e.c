@@ -154,17 +154,6 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
     return check(rc == 0, name, "exit %d (log %s)", rc, log) ? 0 : -1;
 }
 
-/* The validation AbsRel values of a run's log text, in step order (count returned). */
-static int val_absrels(const char *text, double *v, int max)
-{
-    int n = 0;
-    for (const char *p = text; p && (p = strstr(p, "\"type\":\"val\"")) && n < max; p++) {
-        const char *a = strstr(p, "\"absrel\":"), *nl = strchr(p, '\n');
-        if (a && (!nl || a < nl)) v[n++] = atof(a + 9);
-    }
-    return n;
-}
-
 /* "Validation never drifts back up": the run ends within 25% of its best
  * validation AbsRel over the second half of the run.  The first half is left
  * out: in its first ~100 steps the net predicts a near-uniform depth, which
@@ -179,7 +168,7 @@ static int val_absrels(const char *text, double *v, int max)
 static void no_drift(const char *text)
 {
     double v[256], best = INFINITY;
-    int n = val_absrels(text, v, 256);
+    int n = e2e_val_absrels(text, v, 256);
     for (int i = n / 2; i < n; i++) best = v[i] < best ? v[i] : best;
     check(n >= 3 && v[n - 1] <= 1.25 * best,
           "monocular validation AbsRel ends at (within 25% of) its best of the second half: no drift back up",

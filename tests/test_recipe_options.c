@@ -73,8 +73,12 @@ static int pose_run(float rot, float trans, float out[12], float grow[2])
 
 static void test_rotation_scale(void)
 {
-    float same[12], split[12], gs[2], gp[2];
-    if (pose_run(0.5f, 0.5f, same, gs) || pose_run(0.01f, 0.5f, split, gp)) return;
+    float same[12], split[12], follow[12], equal[12], gs[2], gp[2], g3[2];
+    if (pose_run(0.5f, 0.5f, same, gs) || pose_run(0.01f, 0.5f, split, gp) || pose_run(0.0f, 0.3f, follow, g3) ||
+        pose_run(0.3f, 0.3f, equal, g3))
+        return;
+    check(!memcmp(follow, equal, sizeof equal), "rotation_scale: 0 follows pose_scale (same bits at pose_scale 0.3)",
+          "first outputs %.9g vs %.9g", follow[0], equal[0]);
     double worst = 0;
     for (int n = 0; n < 2; n++)
         for (int c = 0; c < 6; c++) {

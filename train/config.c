@@ -46,7 +46,7 @@ const nj_config_field nj_config_fields[] = {
     F("model", "pose_stages", NJ_F_INT, model.pose_stages, 1, NJ_MAX_STAGES, 0, 0),
     F("model", "pose_width", NJ_F_FLOAT, model.pose_width, 0, 8, 1, 0),
     F("model", "pose_scale", NJ_F_FLOAT, model.pose_scale, 0, 10, 1, 0),
-    F("model", "rotation_scale", NJ_F_FLOAT, model.rotation_scale, 0, 10, 1, 0),
+    F("model", "rotation_scale", NJ_F_FLOAT, model.rotation_scale, 0, 10, 0, 0),
     F("model", "bn_momentum", NJ_F_FLOAT, model.bn_momentum, 0, 1, 1, 0),
     F("loss", "ssim_weight", NJ_F_FLOAT, loss.alpha, 0, 1, 0, 0),
     F("loss", "smoothness", NJ_F_FLOAT, loss.smooth_weight, 0, 10, 0, 0),

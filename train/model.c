@@ -17,7 +17,7 @@ void nj_model_config_default(nj_model_config *cfg)
     cfg->pose_stages = 5;
     cfg->pose_width = 1.0f;
     cfg->pose_scale = 0.5f;
-    cfg->rotation_scale = 0.5f;
+    cfg->rotation_scale = 0.0f;   /* follow pose_scale */
     cfg->bn_momentum = 0.1f;
     cfg->seed = 1;
 }
@@ -264,8 +264,9 @@ nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor
     nj_tensor *x = nj_concat(g, standardise(g, first), standardise(g, second));
     for (int i = 0; i < m->npose; i++) x = unit_forward(g, m, &m->units[m->pose_units[i]], x);
     x = nj_global_avgpool(g, x);
-    if (m->cfg.rotation_scale == m->cfg.pose_scale) return nj_affine(g, x, m->cfg.pose_scale, 0.0f);
-    return nj_concat(g, nj_affine(g, nj_slice_channels(g, x, 0, 3), m->cfg.rotation_scale, 0.0f),
+    float rot = m->cfg.rotation_scale > 0 ? m->cfg.rotation_scale : m->cfg.pose_scale;
+    if (rot == m->cfg.pose_scale) return nj_affine(g, x, m->cfg.pose_scale, 0.0f);
+    return nj_concat(g, nj_affine(g, nj_slice_channels(g, x, 0, 3), rot, 0.0f),
                      nj_affine(g, nj_slice_channels(g, x, 3, 3), m->cfg.pose_scale, 0.0f));
 }
 

@@ -10,7 +10,7 @@
  *
  * Pose net: the two frames concatenated on channels (6 channels), a stack of
  * stride-2 convs (7×7, 5×5, then 3×3) + norm + ELU, a 1×1 conv to 6 numbers,
- * spatial mean; the first three times `rotation_scale` are an axis-angle
+ * spatial mean; the first three times `rotation_scale` (pose_scale when 0) are an axis-angle
  * rotation (radians), the last three times `pose_scale` a translation: the
  * motion mapping points of the first frame's camera into the second's.
  *
@@ -40,7 +40,7 @@ typedef struct nj_model_config {
     int pose_stages;       /* stride-2 convs in the pose net (default 5) */
     float pose_width;
     float pose_scale;      /* translation output multiplier (default 0.5) */
-    float rotation_scale;  /* rotation output multiplier (default: see model.c) */
+    float rotation_scale;  /* rotation output multiplier; 0 (default) = pose_scale */
     float bn_momentum;     /* default 0.1 */
     unsigned seed;         /* initialisation seed */
 } nj_model_config;

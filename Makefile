@@ -34,7 +34,7 @@ LDLIBS   += $(SANFLAGS)
 endif
 FLAVOUR  := $(if $(MPIFLAGS),mpi,plain)
 
-LIB_SRC  := $(wildcard nn/*.c losses/*.c data/*.c) $(filter-out train/main.c,$(wildcard train/*.c))
+LIB_SRC  := $(wildcard nn/*.c nn/*/*.c losses/*.c data/*.c) $(filter-out train/cli/main.c,$(wildcard train/*/*.c))
 LIB_OBJ  := $(LIB_SRC:%.c=$(B)/%.o)
 TEST_SRC := $(wildcard tests/test_*.c)
 TEST_BIN := $(TEST_SRC:tests/%.c=$(B)/tests/%)
@@ -78,13 +78,13 @@ $(B)/libnightjar.a: $(LIB_OBJ)
 ifndef NJ_KEEP_FLAVOUR
 $(shell mkdir -p build; [ "$$(cat build/flavour 2>/dev/null)" = "$(FLAVOUR)" ] || echo $(FLAVOUR) > build/flavour)
 endif
-$(BIN): $(B)/train/main.o $(B)/libnightjar.a build/flavour
+$(BIN): $(B)/train/cli/main.o $(B)/libnightjar.a build/flavour
 	$(CC) $(CFLAGS) $(filter %.o %.a,$^) -o $@ $(LDLIBS)
 
 # The MPI build the tests and bench-mpi use, without touching ./nightjar:
 # build/mpi/nightjar (only when mpicc exists; tests/test_mpi.c says why it
 # skips otherwise).
-build/mpi/nightjar: build/mpi/train/main.o build/mpi/libnightjar.a
+build/mpi/nightjar: build/mpi/train/cli/main.o build/mpi/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)
 mpi-test-build:
 	@if command -v mpicc >/dev/null 2>&1; then $(MAKE) --no-print-directory MPI=1 NJ_KEEP_FLAVOUR=1 build/mpi/nightjar; \

@@ -7,8 +7,8 @@
  * timed beside it for context.  Run from the repository root (make
  * bench-export).  Not a test. */
 #include "data/image.h"
-#include "train/checkpoint.h"
-#include "train/infer.h"
+#include "train/loop/checkpoint.h"
+#include "train/model/infer.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

@@ -5,7 +5,7 @@
 #include "losses/pose.h"
 #include "losses/view_synthesis.h"
 #include "nn/ops.h"
-#include "train/model.h"
+#include "train/model/model.h"
 #include <omp.h>
 #include <stdio.h>
 #include <stdlib.h>

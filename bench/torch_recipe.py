@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """bench/torch_recipe.py — nightjar's training recipe written independently in PyTorch.
 
-Same architecture and loss as nightjar's defaults (train/model.h, losses/view_synthesis.h):
+Same architecture and loss as nightjar's defaults (train/model/model.h, losses/view_synthesis.h):
   depth net  5-stage encoder (3x3 convs, stride 2 then 1, zero padding, widths 16..256) with
              batch norm + ELU; decoder per stage: 3x3 conv (reflection padding) + BN + ELU,
              nearest x2 upsampling, concatenation with the encoder skip, 3x3 conv + BN + ELU;
@@ -123,7 +123,7 @@ class PoseNet(nn.Module):
         x = torch.cat([standardise(first), standardise(second)], 1)
         for u in self.convs:
             x = u(x)
-        return self.out(x).mean((2, 3)) * 0.5  # model.pose_scale default (train/model.c)
+        return self.out(x).mean((2, 3)) * 0.5  # model.pose_scale default (train/model/model.c)
 
 
 def nightjar_names(depth, pose):

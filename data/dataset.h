@@ -22,7 +22,7 @@
 #define NJ_DATASET_H
 #include "data/depthio.h"
 #include "data/problems.h"
-#include "losses/camera.h"
+#include "nn/geom/camera.h"
 
 typedef enum { NJ_SPLIT_TRAIN = 0, NJ_SPLIT_VAL = 1, NJ_SPLIT_TEST = 2 } nj_split;
 

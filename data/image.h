@@ -11,14 +11,14 @@
  * (each output pixel is the coverage-weighted mean of the input pixels its
  * footprint overlaps — the same weights as OpenCV's INTER_AREA); along an
  * axis that grows it is bilinear with half-pixel centres.  Pixel centres sit
- * at integer coordinates (see losses/camera.h), so intrinsics follow
+ * at integer coordinates (see nn/geom/camera.h), so intrinsics follow
  * nj_camera_resize: fx' = fx·sx, cx' = (cx + 0.5)·sx − 0.5.
  *
  * PNG writers are atomic (data/atomic.h).
  */
 #ifndef NJ_IMAGE_H
 #define NJ_IMAGE_H
-#include "losses/camera.h"
+#include "nn/geom/camera.h"
 #include <stddef.h>
 #include <stdint.h>
 

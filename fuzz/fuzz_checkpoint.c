@@ -1,11 +1,11 @@
 /* fuzz/fuzz_checkpoint.c — libFuzzer target: checkpoints
- * (train/checkpoint_load.c, nj_checkpoint_load).  The input is a checkpoint
+ * (train/loop/checkpoint_load.c, nj_checkpoint_load).  The input is a checkpoint
  * without its trailing CRC-32: the target appends the correct CRC so the
  * fuzzer explores the parser behind the checksum (a wrong checksum is one
  * comparison, covered by the hostile-file tests). */
 #include "fuzz/fuzz_input.h"
-#include "train/checkpoint.h"
-#include "train/crc32.h"
+#include "train/loop/checkpoint.h"
+#include "train/loop/crc32.h"
 #include <stdlib.h>
 #include <string.h>
 

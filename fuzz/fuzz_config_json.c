@@ -1,8 +1,8 @@
 /* fuzz/fuzz_config_json.c — libFuzzer target: the training configuration
- * (train/config_json.c via nj_train_config_load, which also runs the
+ * (train/loop/config_json.c via nj_train_config_load, which also runs the
  * cross-field checks). */
 #include "fuzz/fuzz_input.h"
-#include "train/config.h"
+#include "train/loop/config.h"
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {

@@ -1,9 +1,9 @@
 /* fuzz/fuzz_safetensors.c — libFuzzer target: safetensors files
- * (train/safetensors_read.c from memory, then — for files that parse —
- * train/safetensors_init.c loading them into a small fixed model). */
+ * (train/loop/safetensors_read.c from memory, then — for files that parse —
+ * train/loop/safetensors_init.c loading them into a small fixed model). */
 #include "fuzz/fuzz_input.h"
-#include "train/config.h"
-#include "train/safetensors.h"
+#include "train/loop/config.h"
+#include "train/loop/safetensors.h"
 #include <stdlib.h>
 
 /* The model of tests/fuzz_corpus/fuzz_safetensors' seeds (kept tiny so the

@@ -7,7 +7,7 @@
 #ifndef NJ_REPROJECT_H
 #define NJ_REPROJECT_H
 #include "nn/graph.h"
-#include "losses/camera.h"
+#include "nn/geom/camera.h"
 
 /* Points closer than this (along the source camera's z) count as behind it. */
 #define NJ_MIN_Z 1e-3f

@@ -22,7 +22,7 @@
 #define NJ_VIEW_SYNTHESIS_H
 #include "nn/graph.h"
 #include "nn/rng.h"
-#include "losses/camera.h"
+#include "nn/geom/camera.h"
 
 #define NJ_MAX_SOURCES 4
 #define NJ_MAX_SCALES 4

@@ -50,7 +50,7 @@ void nj_graph_set_training(nj_graph *g, int training);
 int nj_graph_training(const nj_graph *g);
 
 /* Data-parallel replicas.  When one step's batch is split over several
- * processes (train/dist.h), the ops whose result couples batch items —
+ * processes (train/loop/dist.h), the ops whose result couples batch items —
  * batch-norm statistics (synchronised batch norm) and loss normalisers —
  * combine their per-process partial sums with `sum`, so every process gets
  * the value a single process would compute on the whole batch.  Replicas take

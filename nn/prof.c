@@ -14,7 +14,7 @@ void nj_prof_reset(void)
 }
 
 /* Only thread 0 of the outermost team times: the main thread, or replica 0
- * when a step runs as per-thread replicas (train/step_replicas.h), whose ops
+ * when a step runs as per-thread replicas (train/loop/step_replicas.h), whose ops
  * then stand for every replica's (they run side by side on equal shares). */
 static int timing(void) { return prof_on && omp_get_ancestor_thread_num(1) <= 0; }
 

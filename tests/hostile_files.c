@@ -4,10 +4,10 @@
 #include "data/depthio.h"
 #include "data/image.h"
 #include "data/npy.h"
-#include "train/safetensors.h"
-#include "train/checkpoint.h"
-#include "train/checkpoint_format.h"
-#include "train/crc32.h"
+#include "train/loop/safetensors.h"
+#include "train/loop/checkpoint.h"
+#include "train/loop/checkpoint_format.h"
+#include "train/loop/crc32.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

@@ -1,7 +1,7 @@
 /* tests/run_support.c — see run_support.h. */
 #include "tests/run_support.h"
 #include "tests/e2e_support.h"
-#include "train/checkpoint.h"
+#include "train/loop/checkpoint.h"
 #include <cjson/cJSON.h>
 #include <dirent.h>
 #include <math.h>

@@ -16,7 +16,7 @@
  * whichever is larger; both figures are printed. */
 #include "tests/check.h"
 #include "tests/torch_ref.h"
-#include "train/bench.h"
+#include "train/bench/bench.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

@@ -1,4 +1,4 @@
-/* tests/test_checkpoint.c — checkpoint files (train/checkpoint.h).
+/* tests/test_checkpoint.c — checkpoint files (train/loop/checkpoint.h).
  *  - CRC-32 against Python's zlib.crc32 (outside: tests/ref/crc_zlib.py) on
  *    several buffers, one-shot and in odd-sized pieces, and the published
  *    check value of "123456789" (0xCBF43926, the CRC catalogue's CRC-32);
@@ -17,8 +17,8 @@
  *    and the pose output scale they were trained with, and names the first differing tensor when the architecture differs. */
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include "train/checkpoint.h"
-#include "train/crc32.h"
+#include "train/loop/checkpoint.h"
+#include "train/loop/crc32.h"
 #include <dirent.h>
 #include <math.h>
 #include <sys/stat.h>

@@ -1,5 +1,5 @@
 /* tests/test_colormap.c — the "mothwing" colour map and the OKLab conversions
- * (train/colormap.c).
+ * (train/eval/colormap.c).
  *
  * Sources of truth (tests/ref/colormap_ref.py via /usr/bin/python3):
  *   - scikit-image's sRGB → CIE XYZ followed by Ottosson's published
@@ -17,7 +17,7 @@
 #include "nn/rng.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include "train/colormap.h"
+#include "train/eval/colormap.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

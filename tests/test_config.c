@@ -1,4 +1,4 @@
-/* tests/test_config.c — the training configuration (train/config.h).
+/* tests/test_config.c — the training configuration (train/loop/config.h).
  *  - table-driven: each broken file is refused with its own one-line
  *    "PATH: problem" message and leaves the configuration untouched;
  *  - JSON syntax errors: line and column compared with Python's json module
@@ -15,7 +15,7 @@
 #include "nn/rng.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include "train/config.h"
+#include "train/loop/config.h"
 #include <dirent.h>
 #include <sys/stat.h>
 #include <math.h>

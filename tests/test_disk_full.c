@@ -18,7 +18,7 @@
 #include "tests/e2e_support.h"
 #include "tests/run_support.h"
 #include "tests/torch_ref.h"
-#include "train/runlog.h"
+#include "train/loop/runlog.h"
 #include <errno.h>
 #include <signal.h>
 #include <stdio.h>

@@ -1,5 +1,5 @@
 /* tests/test_drift_alarm.c — the health monitor's drift alarm end to end
- * (train/health.h): two short monocular runs on small synthetic data, side
+ * (train/loop/health.h): two short monocular runs on small synthetic data, side
  * by side (one thread each, 400 steps at 96×64: ~1.5 minutes on the shared
  * 2-core machine):
  *  - a run that drifts: model.pose_scale 0.1, the pose output scale the

@@ -1,5 +1,5 @@
 /* tests/test_eval_regions.c — eval's row-layout oracle, depth bands, obstacle
- * and masked-pixel metrics (train/metrics_regions.c, train/eval_regions.c).
+ * and masked-pixel metrics (train/measure/metrics_regions.c, train/measure/regions.c).
  *
  * Sources of truth:
  *   - hand-worked examples, with the arithmetic written beside each;
@@ -15,8 +15,8 @@
 #include "nn/rng.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include "train/eval_regions.h"
-#include "train/metrics.h"
+#include "train/measure/regions.h"
+#include "train/measure/metrics.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -138,7 +138,7 @@ static void make_data(nj_rng *r, float *gt, float *pred, float *mask)
     for (int e = 0; e < 4; e++) gt[(6 - e) * W + 2 * e] = edges[e];
 }
 
-/* eval's per-image path (train/eval.c score_frame) for the four methods of
+/* eval's per-image path (train/eval/eval.c score_frame) for the four methods of
  * regions_ref.py; whole[m][0..7]: the all-pixel metrics and pixels. */
 static void c_regions(const float *gt, const float *pred, const float *mask, float cap, float *oracle, float *flags,
                       nj_eval_regions *reg, double whole[4][8])

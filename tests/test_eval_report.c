@@ -1,4 +1,4 @@
-/* tests/test_eval_report.c — the report's metric section (train/report_metrics.c)
+/* tests/test_eval_report.c — the report's metric section (train/report/report_metrics.c)
  * shows eval's row-layout oracle and per-region figures when metrics.json has
  * them, and is unchanged for a file without them.
  *
@@ -6,7 +6,7 @@
  * HTML must carry each value (4 decimals) in the right row and column order. */
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include "train/report_parts.h"
+#include "train/report/report_parts.h"
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>

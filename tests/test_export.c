@@ -4,12 +4,12 @@
  * models (4 stages, width 0.25, pose net) get random but fixed weights and
  * non-trivial normalisation parameters — one with batch norm (random running
  * statistics), one with group norm — and are saved with nj_checkpoint_save.
- * The reference output is train/infer.c's depth on the test split's frames.
+ * The reference output is train/model/infer.c's depth on the test split's frames.
  *
  * Sources of truth:
  *   - C f32: the emitted .c/.h compiled by gcc -std=c99 -pedantic -Wall
  *     -Wextra -Werror with a firmware-style driver (tests/ref/export_driver.c)
- *     against train/infer.c: max relative depth error <= 1e-4;
+ *     against train/model/infer.c: max relative depth error <= 1e-4;
  *   - C int8: against the f32 export on the same frames (AbsRel of int8 depth
  *     w.r.t. f32 depth <= 2%) and against the renderer's exact depth (the
  *     median-scaled AbsRel of int8 within 2% (relative) of f32's); the weight
@@ -17,7 +17,7 @@
  *   - cross: the same f32 code built by aarch64-linux-gnu-gcc -static and run
  *     under qemu-aarch64 equals the host build within 1e-5 (relative);
  *   - ONNX: onnx.checker and OpenCV's DNN module (tests/ref/onnx_check.py)
- *     against train/infer.c within 1e-4 (relative);
+ *     against train/model/infer.c within 1e-4 (relative);
  *   - safetensors: an independent numpy reader (tests/ref/safetensors_read.py)
  *     parses the file from the format description and compares every tensor
  *     bit-exact with batch norm folded / int8-quantised in numpy from the raw
@@ -30,8 +30,8 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
-#include "train/checkpoint.h"
-#include "train/infer.h"
+#include "train/loop/checkpoint.h"
+#include "train/model/infer.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -219,7 +219,7 @@ static int write_bytes(const char *path, const void *p, size_t n)
     return ok ? 0 : -1;
 }
 
-/* train/infer.c's depth for every frame; also dumps frames and depths as NPY for the ONNX check. */
+/* train/model/infer.c's depth for every frame; also dumps frames and depths as NPY for the ONNX check. */
 static int reference(nj_model *m, const nj_train_config *cfg, const nj_image *ims, float (*ref)[NPIX],
                      const char *npy_prefix)
 {
@@ -442,7 +442,7 @@ static void test_c_f32(void)
         }
     printf("  measured: f32 C vs infer max rel %.3g; reference depth %.3g..%.3g\n", e, lo, hi);
     check(ran && e <= 1e-4 && hi > 1.5f * lo,
-          "export c f32 (batch norm folded) vs train/infer.c depth, 3 synthetic frames: max rel err <= 1e-4",
+          "export c f32 (batch norm folded) vs train/model/infer.c depth, 3 synthetic frames: max rel err <= 1e-4",
           "ran %d max rel %.3g (reference depth range %g..%g)", ran, e, lo, hi);
 }
 
@@ -488,11 +488,11 @@ static void test_c_group_norm(void)
     int ran = built && run_driver("cgn", "", NFR, &outg[0][0]) == 0;
     double e = ran ? max_rel(&outg[0][0], &ref_gn[0][0], (size_t)NFR * NPIX) : INFINITY;
     printf("  measured: group-norm C vs infer max rel %.3g\n", e);
-    check(ran && e <= 1e-4, "export c f32 with group norm (explicit layer) vs train/infer.c: max rel err <= 1e-4",
+    check(ran && e <= 1e-4, "export c f32 with group norm (explicit layer) vs train/model/infer.c: max rel err <= 1e-4",
           "built %d ran %d max rel %.3g", built, ran, e);
 }
 
-/* --size: a 32x32 crop of a frame through a 32x32 export and through train/infer.c at 32x32. */
+/* --size: a 32x32 crop of a frame through a 32x32 export and through train/model/infer.c at 32x32. */
 #define CW 32
 static void test_c_size(void)
 {
@@ -527,7 +527,7 @@ static void test_c_size(void)
     snprintf(path, sizeof path, "%s/csize/nightjar_depth.h", dir);
     char *h = e2e_slurp(path, NULL);
     check(ran && e <= 1e-4 && h && strstr(h, "#define NIGHTJAR_DEPTH_WIDTH 32") && strstr(h, "Trained on 64x48"),
-          "export c --size 32x32 vs train/infer.c at 32x32 on a crop: max rel err <= 1e-4",
+          "export c --size 32x32 vs train/model/infer.c at 32x32 on a crop: max rel err <= 1e-4",
           "ok %d (%s) built %d ran %d max rel %.3g", ok, err, built, ran, e);
     free(h);
     nj_image_free(&im);
@@ -545,7 +545,7 @@ static void test_onnx(const char *model, const char *what)
     snprintf(script, sizeof script, "%s/onnx_check.py", refdir);
     snprintf(args, sizeof args, "'%s/%s.onnx' '%s/frames.npy' '%s/%s_depth.npy'", dir, model, dir, dir, model);
     int ok = rc == 0 && tdu_python(script, args) == 0;
-    snprintf(name, sizeof name, "export onnx (%s): onnx.checker passes, OpenCV DNN output = train/infer.c "
+    snprintf(name, sizeof name, "export onnx (%s): onnx.checker passes, OpenCV DNN output = train/model/infer.c "
              "(max rel <= 1e-4)", what);
     check(ok, name, "export status %d; see the script's message above", rc);
 }
@@ -624,7 +624,7 @@ int main(int argc, char **argv)
     (void)argc;
     find_paths(argv[0]);
     if (!check(access(bin, X_OK) == 0, "./nightjar is built", "build it first: make nightjar")) return test_exit();
-    if (!check(setup() == 0, "export test setup: synthetic frames, checkpoints, train/infer.c references",
+    if (!check(setup() == 0, "export test setup: synthetic frames, checkpoints, train/model/infer.c references",
                "setup failed (see above)")) {
         tdu_rmtree(dir);
         return test_exit();

@@ -1,5 +1,5 @@
 /* tests/test_groundplane.c — robust ground-plane fit and the camera-height
- * scale (train/groundplane.c).
+ * scale (train/measure/groundplane.c).
  *
  * Source of truth: synthetic geometry constructed analytically here — points
  * sampled on a known plane (camera height and tilt chosen), and depth maps
@@ -24,7 +24,7 @@
 #include "nn/rng.h"
 #include "tests/test_data_util.h"
 #include "tests/check.h"
-#include "train/groundplane.h"
+#include "train/measure/groundplane.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

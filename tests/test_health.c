@@ -4,7 +4,7 @@
  * with known answers (no outside reference applies), and for the drift
  * alarm the figure sequences of real runs (below). */
 #include "tests/check.h"
-#include "train/health.h"
+#include "train/loop/health.h"
 #include <math.h>
 #include <stdio.h>
 #include <string.h>

@@ -26,10 +26,10 @@
 #include "tests/e2e_support.h"
 #include "tests/hostile_files.h"
 #include "tests/torch_ref.h"
-#include "train/checkpoint.h"
-#include "train/checkpoint_format.h"
-#include "train/config.h"
-#include "train/safetensors.h"
+#include "train/loop/checkpoint.h"
+#include "train/loop/checkpoint_format.h"
+#include "train/loop/config.h"
+#include "train/loop/safetensors.h"
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>

@@ -20,8 +20,8 @@
 #include "tests/e2e_support.h"
 #include "tests/run_support.h"
 #include "tests/torch_ref.h"
-#include "train/runfiles.h"
-#include "train/runlog.h"
+#include "train/loop/runfiles.h"
+#include "train/loop/runlog.h"
 #include <math.h>
 #include <signal.h>
 #include <stdio.h>

@@ -2,7 +2,7 @@
  * (tests/ref/losses_ref.py): scikit-image SSIM, PyTorch grid_sample and OpenCV
  * remap, SciPy rotations, an independent PyTorch view-synthesis loss, and the
  * Middlebury 2014 motorcycle stereo pair (Scharstein et al. 2014). */
-#include "losses/camera.h"
+#include "nn/geom/camera.h"
 #include "losses/photometric.h"
 #include "losses/pose.h"
 #include "losses/reproject.h"

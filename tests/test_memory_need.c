@@ -17,7 +17,7 @@
 #include "tests/e2e_support.h"
 #include "tests/run_support.h"
 #include "tests/torch_ref.h"
-#include "train/model.h"
+#include "train/model/model.h"
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>

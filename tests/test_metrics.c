@@ -1,5 +1,5 @@
 /* tests/test_metrics.c — depth metrics, median scaling, quantiles and the
- * snippet trajectory error (train/metrics.c, train/ate.c).
+ * snippet trajectory error (train/measure/metrics.c, train/measure/ate.c).
  *
  * Sources of truth:
  *   - hand-worked examples, with the arithmetic written beside each;
@@ -12,7 +12,7 @@
 #include "nn/rng.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include "train/metrics.h"
+#include "train/measure/metrics.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

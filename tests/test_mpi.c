@@ -6,7 +6,7 @@
  *    writes; the checkpoint records the process count; the MPI build run
  *    without mpirun gives the plain build's weights bit for bit; the same
  *    with 2 threads per rank (the rank's batch split again over thread
- *    replicas, train/step_replicas.h) stays within 1e-5;
+ *    replicas, train/loop/step_replicas.h) stays within 1e-5;
  *  - a 2-rank checkpoint at step K/2 resumed with 2 ranks ends equal to the
  *    uninterrupted 2-rank run;
  *  - SIGKILL to rank 1 mid-run: non-zero exit with a message, the newest
@@ -17,8 +17,8 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/torch_ref.h"
-#include "train/checkpoint.h"
-#include "train/runfiles.h"
+#include "train/loop/checkpoint.h"
+#include "train/loop/runfiles.h"
 #include <dirent.h>
 #include <fcntl.h>
 #include <math.h>

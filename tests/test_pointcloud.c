@@ -1,4 +1,4 @@
-/* tests/test_pointcloud.c — binary PLY point clouds (train/pointcloud.c).
+/* tests/test_pointcloud.c — binary PLY point clouds (train/measure/pointcloud.c).
  *
  * Source of truth: an independent reader in NumPy (tests/ref/ply_read.py via
  * /usr/bin/python3) that parses the header by the PLY format description,
@@ -13,7 +13,7 @@
 #include "nn/rng.h"
 #include "tests/check.h"
 #include "tests/test_data_util.h"
-#include "train/pointcloud.h"
+#include "train/measure/pointcloud.h"
 #include <dirent.h>
 #include <math.h>
 #include <stdio.h>

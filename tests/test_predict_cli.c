@@ -28,7 +28,7 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
-#include "train/checkpoint.h"
+#include "train/loop/checkpoint.h"
 #include <cjson/cJSON.h>
 #include <math.h>
 #include <stdio.h>

@@ -16,7 +16,7 @@
 #include "losses/view_synthesis.h"
 #include "nn/graph.h"
 #include "tests/check.h"
-#include "train/model.h"
+#include "train/model/model.h"
 #include <math.h>
 #include <stdio.h>
 #include <string.h>

@@ -22,8 +22,8 @@
  *    page that logs a known console.error message, so the grep can fail. */
 #include "tests/check.h"
 #include "tests/e2e_support.h"
-#include "train/checkpoint.h"
-#include "train/report.h"
+#include "train/loop/checkpoint.h"
+#include "train/report/report.h"
 #include <math.h>
 #include <stb_image.h>
 #include <stdio.h>

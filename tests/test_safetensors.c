@@ -1,5 +1,5 @@
-/* tests/test_safetensors.c — reading safetensors (train/safetensors_read.c)
- * and `--init FILE.safetensors` (train/safetensors_init.c).
+/* tests/test_safetensors.c — reading safetensors (train/loop/safetensors_read.c)
+ * and `--init FILE.safetensors` (train/loop/safetensors_init.c).
  *  - round trip: a small model (batch norm with random statistics; and one
  *    with group norm) is exported with nj_export_safetensors, loaded into a
  *    model of the same architecture built from a different seed, and
@@ -15,8 +15,8 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/torch_ref.h"
-#include "train/export.h"
-#include "train/safetensors.h"
+#include "train/export/export.h"
+#include "train/loop/safetensors.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

@@ -1,7 +1,7 @@
 /* tests/test_step_replicas.c — the training step split over threads as
- * replicas (train/step_replicas.h) computes what the plain step computes.
+ * replicas (train/loop/step_replicas.h) computes what the plain step computes.
  *
- * Reference: the plain step (train/step.h) on the whole batch, itself checked
+ * Reference: the plain step (train/loop/step.h) on the whole batch, itself checked
  * against an independent PyTorch implementation of the recipe
  * (tests/test_bench_equiv.c).  The bench's default nets and synthetic frames
  * (128×64, batch 4, two sources, auto-mask with tie-break noise):
@@ -26,8 +26,8 @@
 #include "nn/graph.h"
 #include "nn/param.h"
 #include "tests/check.h"
-#include "train/bench.h"
-#include "train/step_replicas.h"
+#include "train/bench/bench.h"
+#include "train/loop/step_replicas.h"
 #include <math.h>
 #include <omp.h>
 #include <stdio.h>

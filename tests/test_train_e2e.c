@@ -163,7 +163,7 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
  * 0.48, …, 0.43).  Step-to-step noise of the second half reaches 10.5% (0.234
  * → 0.259); the drift this guards against multiplies AbsRel (×3 to ×17 over
  * the second half with seeds 3 and 4), so the bound is ×1.25 — 2.4× below the
- * smallest drift measured.  The run's drift alarm (train/health.h) must stay
+ * smallest drift measured.  The run's drift alarm (train/loop/health.h) must stay
  * silent as well. */
 static void no_drift(const char *text)
 {

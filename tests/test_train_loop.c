@@ -12,7 +12,7 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/torch_ref.h"
-#include "train/checkpoint.h"
+#include "train/loop/checkpoint.h"
 #include <cjson/cJSON.h>
 #include <math.h>
 #include <stdio.h>

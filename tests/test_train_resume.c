@@ -9,8 +9,8 @@
 #include "tests/e2e_support.h"
 #include "tests/run_support.h"
 #include "tests/torch_ref.h"
-#include "train/checkpoint.h"
-#include "train/runfiles.h"
+#include "train/loop/checkpoint.h"
+#include "train/loop/runfiles.h"
 #include <math.h>
 #include <signal.h>
 #include <stdio.h>

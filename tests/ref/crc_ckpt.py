@@ -1,5 +1,5 @@
 """Outside reference for tests/test_checkpoint.c: an independent reader of the
-".ckpt" layout documented in train/checkpoint_format.h, using Python's struct,
+".ckpt" layout documented in train/loop/checkpoint_format.h, using Python's struct,
 json and zlib modules.
 usage: crc_ckpt.py FILE  → prints one line:
   CRC_OK NTENSORS NFLOATS PARAM_SUM ADAM_V_SUM STEP BEST_VAL LR_SCALE RANKS RUN_NAME

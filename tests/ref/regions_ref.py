@@ -18,7 +18,7 @@ Writes DIR/ref.npy (float64, flat):
     8 numbers: absrel sqrel rmse rmse_log d1 d2 d3 pixels over all valid pixels
     for each region (NB bands, obstacles, mask): absrel d1 ratio pixels images
 
-Protocol, as stated in the brief (issue 18 part C) and train/metrics.h:
+Protocol, as stated in the brief (issue 18 part C) and train/measure/metrics.h:
   valid pixels: finite gt with 1e-3 < gt < MAX_DEPTH (Eigen et al. 2014 /
   Zhou et al. 2017 evaluation, as in tests/ref/metrics_ref.py);
   oracle: every pixel of a row = np.median of the row's valid gt; a row without

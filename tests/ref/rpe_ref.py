@@ -1,6 +1,6 @@
 #!/usr/bin/env python3
 """tests/ref/rpe_ref.py — SciPy reference for the rotation error of frame-pair
-motions (train/rpe.c).
+motions (train/measure/rpe.c).
 Usage: /usr/bin/python3 tests/ref/rpe_ref.py DIR
 Reads DIR/c2w.npy (S, 5, 3, 4) camera-to-world poses and DIR/rel.npy
 (S, 4, 3, 4) predicted motions (rel[s, i] maps points of camera i into camera

@@ -1,0 +1,676 @@
+/* train/eval/eval.c — `nightjar eval`: depth metrics (Eigen et al. 2014) of a
+ * trained model on a dataset split, beside three baselines on the same pixels —
+ * a constant depth (median-scaled), the untrained network (same architecture
+ * and seed) and the row-layout oracle (each row at its median true depth) —
+ * also per band of true depth, on obstacle pixels and on lead-vehicle masks
+ * (regions.c), plus the 5-frame-snippet trajectory error (Zhou et al.
+ * 2017) where ground-truth poses exist.  Prints a table and writes
+ * metrics.json atomically. */
+#include "data/atomic.h"
+#include "data/dataset.h"
+#include "data/image.h"
+#include "data/poses.h"
+#include "train/loop/checkpoint.h"
+#include "train/measure/regions.h"
+#include "train/measure/groundplane.h"
+#include "train/model/infer.h"
+#include "train/measure/metrics.h"
+#include <cjson/cJSON.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+typedef enum { SCALE_MEDIAN, SCALE_METRIC, SCALE_CAMERA } scaling;
+enum { M_MODEL, M_CONSTANT, M_UNTRAINED, M_ORACLE, NMETHODS };
+static const char *const METHOD_NAMES[NMETHODS] = {"model", "constant depth", "untrained network",
+                                                   "row-layout oracle"};
+/* the methods' keys in metrics.json (the model's metrics are at the top level) */
+static const char *const METHOD_KEYS[NMETHODS] = {"model", "baseline_constant", "baseline_untrained",
+                                                  "baseline_row_layout_oracle"};
+_Static_assert(NMETHODS == NJ_EVAL_METHODS, "regions.h counts the same methods");
+
+typedef struct eval_args {
+    const char *model, *data, *out;
+    nj_split split;
+    float max_depth;
+    double camera_height;      /* metres; 0 = not given */
+    int threads;
+} eval_args;
+
+typedef struct eval_run {
+    eval_args a;
+    nj_train_config cfg;
+    nj_model trained, untrained;
+    int have_trained, have_untrained;
+    nj_infer inf[2];           /* trained, untrained */
+    scaling mode;
+    nj_plane_options plane;
+    nj_metrics_acc acc[NMETHODS];
+    nj_eval_regions regions;
+    int frames, no_ground, untrained_no_ground, empty;
+    /* pose */
+    int snippets, pose_sequences;
+    double ate_mean, ate_m2, rmse_sum, scale_sum;
+    int pairs;                 /* consecutive frame pairs with a rotation error */
+    double rot_err_sum, rot_true_sum;   /* radians */
+} eval_run;
+
+#define RAD2DEG(x) ((x) * 57.29577951308232)
+
+static void usage(FILE *f)
+{
+    fprintf(f,
+        "usage: nightjar eval --model CKPT --data DATASET.json [--split test] [--out metrics.json]\n"
+        "                     [--max-depth M] [--camera-height METRES] [--threads N]\n"
+        "  Depth metrics (AbsRel, SqRel, RMSE, RMSE log, delta<1.25^k) over the ground-truth\n"
+        "  pixels closer than the depth cap (default 80 m), for the model and three baselines on\n"
+        "  the same pixels: a constant depth, the untrained network and the row-layout oracle\n"
+        "  (each pixel at the median true depth of its image row: a model that only learned\n"
+        "  \"lower is nearer\" cannot beat it).  Monocular models are scaled per image by the\n"
+        "  median ratio (the spread of the ratios is reported), the oracle too;\n"
+        "  stereo-trained models are evaluated metric, without scaling (the oracle is metric).\n"
+        "  Also, for every method: AbsRel, delta<1.25 and the median of scaled prediction /\n"
+        "  truth (range compression) per band of true depth (0-3, 3-6, 6-10, 10-20, 20-cap m),\n"
+        "  on obstacle pixels (true depth more than 20%% off its row's median) and, where the\n"
+        "  sequences have \"lead_mask\", on the lead vehicle's pixels; per image, then the mean\n"
+        "  over the images that have such pixels (pixels and images counted).\n"
+        "  --camera-height M  metric scale from the camera's height above flat ground (a plane\n"
+        "                     fitted to the lower image region) instead of median scaling;\n"
+        "                     images where no ground plane is found are left out (counted)\n"
+        "  Where the split has ground-truth poses and the model a pose net: trajectory error\n"
+        "  on 5-frame snippets with least-squares scale alignment (Zhou et al. 2017), and the\n"
+        "  rotation error of each consecutive frame pair next to the true rotation.\n"
+        "  Exit status: 0 done, 1 failure, 2 bad usage.\n");
+}
+
+static int bad(const char *fmt, const char *arg)
+{
+    fprintf(stderr, "nightjar eval: ");
+    fprintf(stderr, fmt, arg);
+    fprintf(stderr, " (see 'nightjar eval --help')\n");
+    return -1;
+}
+
+static int parse_number(const char *s, double lo, double hi, double *out)
+{
+    char *end = NULL;
+    double v = strtod(s, &end);
+    if (end == s || *end || !isfinite(v) || v < lo || v > hi) return -1;
+    *out = v;
+    return 0;
+}
+
+static int parse_args(int argc, char **argv, eval_args *a)
+{
+    memset(a, 0, sizeof *a);
+    a->split = NJ_SPLIT_TEST;
+    a->max_depth = NJ_EVAL_MAX_DEPTH;
+    for (int i = 1; i < argc; i++) {
+        const char *o = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
+        double x;
+        if (o[0] != '-') return bad("unexpected argument '%s'", o);
+        if (strcmp(o, "--model") && strcmp(o, "--data") && strcmp(o, "--split") && strcmp(o, "--out") &&
+            strcmp(o, "--max-depth") && strcmp(o, "--camera-height") && strcmp(o, "--threads"))
+            return bad("unknown option '%s'", o);
+        if (!v) return bad("option %s needs a value", o);
+        i++;
+        if (!strcmp(o, "--model")) a->model = v;
+        else if (!strcmp(o, "--data")) a->data = v;
+        else if (!strcmp(o, "--out")) a->out = v;
+        else if (!strcmp(o, "--split")) {
+            if (!strcmp(v, "train")) a->split = NJ_SPLIT_TRAIN;
+            else if (!strcmp(v, "val")) a->split = NJ_SPLIT_VAL;
+            else if (!strcmp(v, "test")) a->split = NJ_SPLIT_TEST;
+            else return bad("--split must be train, val or test, not '%s'", v);
+        } else if (!strcmp(o, "--max-depth")) {
+            if (parse_number(v, 0.01, 1e6, &x)) return bad("--max-depth needs a depth in metres > 0.01, not '%s'", v);
+            a->max_depth = (float)x;
+        } else if (!strcmp(o, "--camera-height")) {
+            if (parse_number(v, 1e-3, 1e4, &x) || x <= 0)
+                return bad("--camera-height needs a positive height in metres, not '%s'", v);
+            a->camera_height = x;
+        } else {
+            if (parse_number(v, 0, 1024, &x) || x != floor(x)) return bad("--threads needs a count >= 0, not '%s'", v);
+            a->threads = (int)x;
+        }
+    }
+    if (!a->model) return bad("%s", "--model CKPT is required");
+    if (!a->data) return bad("%s", "--data DATASET.json is required");
+    return 0;
+}
+
+/* ---- setup ------------------------------------------------------------------ */
+
+static int load_models(eval_run *r, char *err, size_t errlen)
+{
+    if (nj_checkpoint_load(r->a.model, &r->trained, &r->cfg, NULL, err, errlen)) return -1;
+    r->have_trained = 1;
+    char e[512];
+    if (nj_model_init(&r->untrained, &r->trained.cfg, e, sizeof e)) {
+        snprintf(err, errlen, "untrained baseline: %s", e);
+        return -1;
+    }
+    r->have_untrained = 1;
+    nj_model *models[2] = {&r->trained, &r->untrained};
+    for (int k = 0; k < 2; k++)
+        if (nj_infer_init(&r->inf[k], models[k], r->cfg.width, r->cfg.height, r->cfg.loss.min_depth,
+                          r->cfg.loss.max_depth, e, sizeof e)) {
+            snprintf(err, errlen, "%s: %s", r->a.model, e);
+            return -1;
+        }
+    return 0;
+}
+
+static void free_run(eval_run *r)
+{
+    for (int k = 0; k < 2; k++) nj_infer_free(&r->inf[k]);
+    if (r->have_trained) nj_model_free(&r->trained);
+    if (r->have_untrained) nj_model_free(&r->untrained);
+}
+
+/* Parses the description and validates only the sequences of the split. */
+static int open_split(const eval_args *a, nj_dataset *ds, char *err, size_t errlen)
+{
+    nj_problems pr;
+    nj_problems_init(&pr);
+    nj_data_options o;
+    nj_data_options_default(&o);
+    o.k = 0;
+    o.stereo = 0;
+    o.dup_threshold = 0;
+    int n = nj_dataset_parse(a->data, ds, &pr), used = 0;
+    for (int i = 0; !n && i < ds->nseq; i++)
+        if (ds->seq[i].split == a->split) {
+            n += nj_sequence_validate(&ds->seq[i], &o, &pr);
+            used++;
+        }
+    if (n == 1 && pr.n == 1) {
+        snprintf(err, errlen, "%s", pr.msg[0]);
+    } else if (n) {
+        nj_problems_print(&pr, stderr);
+        snprintf(err, errlen, "%s: %d problems in the dataset (run 'nightjar check-data %s')", a->data, n,
+                 a->data);
+    } else if (!used) {
+        snprintf(err, errlen, "%s: no sequence in split \"%s\"", a->data, nj_split_name(a->split));
+        n = 1;
+    }
+    nj_problems_free(&pr);
+    return n ? -1 : 0;
+}
+
+/* ---- depth ------------------------------------------------------------------ */
+
+/* Full-size maps and their selected (valid ground truth) pixels: pred[0]
+ * the model, pred[1] the untrained network, pred[2] the row-layout oracle;
+ * flag[0] obstacle pixels, flag[1] the lead-vehicle mask (when the sequence
+ * has one: has_lead). */
+typedef struct frame_buf {
+    float *gt, *pred[3], *gsel, *psel[3], *flag[2], *fsel[2], *ones, *scratch;
+    int has_lead;
+} frame_buf;
+
+static void frame_buf_free(frame_buf *b)
+{
+    free(b->gt);
+    for (int k = 0; k < 3; k++) {
+        free(b->pred[k]);
+        free(b->psel[k]);
+    }
+    for (int k = 0; k < 2; k++) {
+        free(b->flag[k]);
+        free(b->fsel[k]);
+    }
+    free(b->gsel);
+    free(b->ones);
+    free(b->scratch);
+    memset(b, 0, sizeof *b);
+}
+
+static int frame_buf_alloc(frame_buf *b, size_t n)
+{
+    b->gsel = malloc(n * sizeof(float));
+    b->ones = malloc(n * sizeof(float));
+    b->scratch = malloc(n * sizeof(float));
+    int ok = b->gsel && b->ones && b->scratch;
+    for (int k = 0; k < 3; k++) {
+        b->pred[k] = malloc(n * sizeof(float));
+        b->psel[k] = malloc(n * sizeof(float));
+        ok = ok && b->pred[k] && b->psel[k];
+    }
+    for (int k = 0; k < 2; k++) {
+        b->flag[k] = malloc(n * sizeof(float));
+        b->fsel[k] = malloc(n * sizeof(float));
+        ok = ok && b->flag[k] && b->fsel[k];
+    }
+    for (size_t i = 0; ok && i < n; i++) b->ones[i] = 1.0f;
+    return ok ? 0 : -1;
+}
+
+/* Scale factor of one prediction under the run's mode; NAN when the ground
+ * plane cannot be found. */
+static double prediction_scale(eval_run *r, const float *pred_full, int w, int h, nj_camera cam,
+                               const float *gsel, const float *psel, size_t k, float *scratch)
+{
+    if (r->mode == SCALE_METRIC) return 1.0;
+    if (r->mode == SCALE_MEDIAN) return nj_median_scale(gsel, psel, k, scratch);
+    double s;
+    char e[256];
+    if (nj_ground_scale(pred_full, w, h, cam, r->a.camera_height, &r->plane, &s, NULL, e, sizeof e))
+        return NAN;
+    return s;
+}
+
+static void add_metrics(eval_run *r, int method, const float *gsel, const float *psel, size_t k,
+                        double scale)
+{
+    nj_depth_metrics m;
+    if (nj_depth_metrics_compute(gsel, psel, k, scale, NJ_EVAL_MIN_DEPTH, r->a.max_depth, &m) == 0)
+        nj_metrics_acc_add(&r->acc[method], &m, scale);
+}
+
+/* The row-layout oracle and the obstacle flags of b->gt, then every map's
+ * valid pixels (the same selection for all).  Returns their count. */
+static size_t select_frame(const eval_run *r, frame_buf *b, int w, int h)
+{
+    size_t n = (size_t)w * h;
+    float lo = NJ_EVAL_MIN_DEPTH, hi = r->a.max_depth;
+    nj_row_layout(b->gt, w, h, lo, hi, b->pred[2], b->scratch);
+    nj_obstacle_flags(b->gt, b->pred[2], n, lo, hi, b->flag[0]);
+    size_t k = 0;
+    for (int m = 0; m < 3; m++) k = nj_depth_select(b->gt, b->pred[m], n, lo, hi, b->gsel, b->psel[m]);
+    for (int f = 0; f < 1 + b->has_lead; f++) nj_depth_select(b->gt, b->flag[f], n, lo, hi, b->gsel, b->fsel[f]);
+    return k;
+}
+
+/* Scores the four methods on the valid pixels of one ground-truth map, on
+ * all of them and per region. */
+static void score_frame(eval_run *r, frame_buf *b, int w, int h, nj_camera cam)
+{
+    size_t k = select_frame(r, b, w, h);
+    if (k == 0) {
+        r->empty++;
+        return;
+    }
+    double s0 = prediction_scale(r, b->pred[0], w, h, cam, b->gsel, b->psel[0], k, b->scratch);
+    if (!isfinite(s0)) {      /* no ground plane for the model: the image is left out for all */
+        r->no_ground++;
+        return;
+    }
+    double s1 = prediction_scale(r, b->pred[1], w, h, cam, b->gsel, b->psel[1], k, b->scratch);
+    if (!isfinite(s1)) {
+        r->untrained_no_ground += r->mode == SCALE_CAMERA;
+        s1 = 1.0;
+    }
+    /* the oracle is metric by construction: median-scaled only when the model is */
+    double so = r->mode == SCALE_MEDIAN ? nj_median_scale(b->gsel, b->psel[2], k, b->scratch) : 1.0;
+    const float *psel[NMETHODS] = {b->psel[0], b->ones, b->psel[1], b->psel[2]};
+    const double scale[NMETHODS] = {s0, nj_median_scale(b->gsel, b->ones, k, b->scratch), s1, so};
+    for (int m = 0; m < NMETHODS; m++) add_metrics(r, m, b->gsel, psel[m], k, scale[m]);
+    nj_eval_regions_add(&r->regions, b->gsel, psel, scale, k, b->fsel[0], b->has_lead ? b->fsel[1] : NULL,
+                        b->scratch);
+    r->frames++;
+}
+
+/* The lead-vehicle mask of frame i into flag (w×h, 1 = the vehicle): the
+ * mask's pixel (x, y) is the depth map's pixel (x, y); a mask of another
+ * size is resampled to the depth map's (data/image.h) and thresholded at 0.5. */
+static int load_lead_mask(const nj_sequence *s, int i, int w, int h, float *flag, char *err, size_t errlen)
+{
+    char *path = nj_lead_mask_path(s, i);
+    nj_image m = {0, 0, NULL};
+    int rc = -1;
+    if (!path) {
+        snprintf(err, errlen, "out of memory");
+        return -1;
+    }
+    if (nj_image_load(path, &m, err, errlen)) goto done;
+    if (m.w == w && m.h == h) {
+        for (size_t j = 0; j < (size_t)w * h; j++) flag[j] = m.data[j] > 0;
+    } else {
+        if (nj_resize_plane(m.data, m.w, m.h, flag, w, h)) {
+            snprintf(err, errlen, "%s: out of memory resizing the mask", path);
+            goto done;
+        }
+        for (size_t j = 0; j < (size_t)w * h; j++) flag[j] = flag[j] >= 0.5f;
+    }
+    rc = 0;
+done:
+    free(path);
+    nj_image_free(&m);
+    return rc;
+}
+
+static int eval_frame(eval_run *r, const nj_sequence *s, int i, char *err, size_t errlen)
+{
+    char *img_path = nj_path_join(s->images, s->frames[i]), *gt_path = nj_depth_path(s, i);
+    nj_image im = {0, 0, NULL};
+    frame_buf b;
+    memset(&b, 0, sizeof b);
+    int w = 0, h = 0, rc = -1;
+    if (!img_path || !gt_path) {
+        snprintf(err, errlen, "out of memory");
+        goto done;
+    }
+    if (nj_image_load(img_path, &im, err, errlen) ||
+        nj_depth_read(gt_path, s->depth_format, s->depth_scale, &b.gt, &w, &h, err, errlen))
+        goto done;
+    if (frame_buf_alloc(&b, (size_t)w * h)) {
+        snprintf(err, errlen, "out of memory for a %dx%d depth map", w, h);
+        goto done;
+    }
+    for (int k = 0; k < 2; k++)
+        if (nj_infer_depth(&r->inf[k], &im, w, h, b.pred[k], NULL, err, errlen)) goto done;
+    b.has_lead = s->lead_mask_dir != NULL;
+    if (b.has_lead && load_lead_mask(s, i, w, h, b.flag[1], err, errlen)) goto done;
+    nj_camera cam = s->camera;
+    if (w != s->width || h != s->height) cam = nj_camera_resize(cam, s->width, s->height, w, h);
+    score_frame(r, &b, w, h, cam);
+    rc = 0;
+done:
+    free(img_path);
+    free(gt_path);
+    nj_image_free(&im);
+    frame_buf_free(&b);
+    return rc;
+}
+
+/* ---- camera motion ----------------------------------------------------------- */
+
+static int load_frame(const nj_sequence *s, int i, nj_image *im, char *err, size_t errlen)
+{
+    char *p = nj_path_join(s->images, s->frames[i]);
+    if (!p) {
+        snprintf(err, errlen, "out of memory");
+        return -1;
+    }
+    int rc = nj_image_load(p, im, err, errlen);
+    free(p);
+    return rc;
+}
+
+static void add_snippets(eval_run *r, const double *c2w, const double *rel, int n)
+{
+    for (int st = 0; st + NJ_ATE_SNIPPET <= n; st++) {
+        double gt[3 * NJ_ATE_SNIPPET], pred[3 * NJ_ATE_SNIPPET], scale, rmse;
+        nj_positions_from_c2w(c2w + 12 * st, NJ_ATE_SNIPPET, gt);
+        nj_positions_from_motions(rel + 12 * st, NJ_ATE_SNIPPET, pred);
+        double ate = nj_ate(gt, pred, NJ_ATE_SNIPPET, &scale, &rmse);
+        r->snippets++;
+        double d = ate - r->ate_mean;       /* Welford */
+        r->ate_mean += d / r->snippets;
+        r->ate_m2 += d * (ate - r->ate_mean);
+        r->rmse_sum += rmse;
+        r->scale_sum += scale;
+    }
+}
+
+/* Rotation error of every consecutive pair (the pose net's motion against the
+ * true one), with the true rotation alongside for scale. */
+static void add_rotation_errors(eval_run *r, const double *c2w, const double *rel, int n)
+{
+    for (int i = 0; i + 1 < n; i++) {
+        double gt[12];
+        nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt);
+        r->rot_err_sum += nj_rotation_error(rel + 12 * i, gt);
+        r->rot_true_sum += nj_rotation_angle(gt);
+        r->pairs++;
+    }
+}
+
+static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size_t errlen)
+{
+    double *c2w = NULL, *rel = NULL;
+    nj_image prev = {0, 0, NULL}, cur = {0, 0, NULL};
+    int n = nj_poses_read(s->poses, &c2w, err, errlen), rc = -1;
+    if (n < 0) return -1;
+    if (n < NJ_ATE_SNIPPET) {
+        free(c2w);
+        return 0;
+    }
+    rel = malloc((size_t)12 * (n - 1) * sizeof *rel);
+    if (!rel) {
+        snprintf(err, errlen, "out of memory");
+        goto done;
+    }
+    if (load_frame(s, 0, &prev, err, errlen)) goto done;
+    for (int i = 1; i < n; i++) {
+        if (load_frame(s, i, &cur, err, errlen) ||
+            nj_infer_motion(&r->inf[0], &prev, &cur, rel + 12 * (i - 1), err, errlen))
+            goto done;
+        nj_image_free(&prev);
+        prev = cur;
+        cur.data = NULL;
+    }
+    add_snippets(r, c2w, rel, n);
+    add_rotation_errors(r, c2w, rel, n);
+    r->pose_sequences++;
+    rc = 0;
+done:
+    nj_image_free(&prev);
+    nj_image_free(&cur);
+    free(c2w);
+    free(rel);
+    return rc;
+}
+
+static int run_sequences(eval_run *r, const nj_dataset *ds, char *err, size_t errlen)
+{
+    for (int q = 0; q < ds->nseq; q++) {
+        const nj_sequence *s = &ds->seq[q];
+        if (s->split != r->a.split) continue;
+        int before = r->frames;
+        r->regions.lead_sequences += s->lead_mask_dir && s->depth_dir;
+        for (int i = 0; s->depth_dir && i < s->nframes; i++)
+            if (eval_frame(r, s, i, err, errlen)) return -1;
+        int snip = r->snippets;
+        if (s->poses && r->trained.cfg.pose && eval_pose_sequence(r, s, err, errlen)) return -1;
+        printf("  %-20s %4d frames with depth scored, %4d pose snippets\n", s->name ? s->name : "?",
+               r->frames - before, r->snippets - snip);
+        fflush(stdout);
+    }
+    return 0;
+}
+
+/* ---- report ----------------------------------------------------------------- */
+
+static const char *scaling_name(scaling m)
+{
+    return m == SCALE_MEDIAN ? "median" : m == SCALE_METRIC ? "metric" : "camera_height";
+}
+
+static void print_table(const eval_run *r)
+{
+    printf("\n%-20s %9s %9s %9s %9s %9s %9s %9s\n", "", "AbsRel", "SqRel", "RMSE", "RMSElog",
+           "d<1.25", "d<1.25^2", "d<1.25^3");
+    for (int k = 0; k < NMETHODS; k++) {
+        nj_depth_metrics m;
+        double sm, ss;
+        nj_metrics_acc_result(&r->acc[k], &m, &sm, &ss);
+        if (r->acc[k].images == 0)
+            printf("%-20s %9s %9s %9s %9s %9s %9s %9s\n", METHOD_NAMES[k], "n/a", "n/a", "n/a", "n/a", "n/a",
+                   "n/a", "n/a");
+        else
+            printf("%-20s %9.4f %9.4f %9.3f %9.4f %9.4f %9.4f %9.4f\n", METHOD_NAMES[k], m.absrel, m.sqrel,
+                   m.rmse, m.rmse_log, m.delta1, m.delta2, m.delta3);
+    }
+    nj_depth_metrics m;
+    double sm, ss;
+    nj_metrics_acc_result(&r->acc[M_MODEL], &m, &sm, &ss);
+    printf("\n%d images, %ld pixels, depth cap %g m; scaling: %s", r->frames, m.pixels, r->a.max_depth,
+           scaling_name(r->mode));
+    if (r->mode == SCALE_MEDIAN)
+        printf(" (constant depth: median-scaled too)\n");
+    else if (r->mode == SCALE_METRIC)
+        printf(" (stereo-trained model, no scaling; constant depth median-scaled)\n");
+    else
+        printf(" (camera height %g m; constant depth median-scaled)\n", r->a.camera_height);
+    if (r->mode != SCALE_METRIC && r->frames)
+        printf("per-image scale factor of the model: mean %.4g, std %.4g (%.1f%% of the mean)\n", sm, ss,
+               sm > 0 ? 100.0 * ss / sm : 0.0);
+    if (r->empty)
+        printf("left out: %d images without ground truth within the depth cap\n", r->empty);
+    if (r->no_ground)
+        printf("left out: %d images where no ground plane was found in the model's depth\n", r->no_ground);
+    if (r->untrained_no_ground)
+        printf("untrained network: no ground plane in %d images, scored unscaled there\n",
+               r->untrained_no_ground);
+    if (r->snippets)
+        printf("pose: ATE %.4f +/- %.4f (Zhou et al. 2017 protocol), RMS %.4f, over %d snippets of %d frames\n",
+               r->ate_mean, sqrt(r->ate_m2 / r->snippets), r->rmse_sum / r->snippets, r->snippets,
+               NJ_ATE_SNIPPET);
+    if (r->pairs)
+        printf("pose: rotation error %.3f deg per frame pair (true rotation %.3f deg; an error as large as "
+               "the true rotation means none was learned), over %d pairs\n",
+               RAD2DEG(r->rot_err_sum / r->pairs), RAD2DEG(r->rot_true_sum / r->pairs), r->pairs);
+    if (r->frames) nj_eval_regions_print(&r->regions, METHOD_NAMES);
+}
+
+static void add_depth_json(cJSON *o, const nj_metrics_acc *acc, int with_scale)
+{
+    nj_depth_metrics m;
+    double sm, ss;
+    nj_metrics_acc_result(acc, &m, &sm, &ss);
+    int none = acc->images == 0;
+    const char *keys[7] = {"absrel", "sqrel", "rmse", "rmse_log", "delta_1_25", "delta_1_25_2", "delta_1_25_3"};
+    const double v[7] = {m.absrel, m.sqrel, m.rmse, m.rmse_log, m.delta1, m.delta2, m.delta3};
+    for (int k = 0; k < 7; k++) {
+        if (none) cJSON_AddNullToObject(o, keys[k]);
+        else cJSON_AddNumberToObject(o, keys[k], v[k]);
+    }
+    cJSON_AddNumberToObject(o, "pixels", (double)m.pixels);
+    cJSON_AddNumberToObject(o, "images", acc->images);
+    if (with_scale) {
+        cJSON *s = cJSON_AddObjectToObject(o, "scale");
+        cJSON_AddNumberToObject(s, "mean", sm);
+        cJSON_AddNumberToObject(s, "std", ss);
+    }
+}
+
+static cJSON *report_json(const eval_run *r)
+{
+    cJSON *root = cJSON_CreateObject();
+    add_depth_json(root, &r->acc[M_MODEL], 1);
+    cJSON_AddStringToObject(root, "scaling", scaling_name(r->mode));
+    if (r->mode == SCALE_CAMERA) {
+        cJSON_AddNumberToObject(root, "camera_height", r->a.camera_height);
+        cJSON_AddNumberToObject(root, "images_without_ground_plane", r->no_ground);
+        cJSON_AddNumberToObject(root, "untrained_images_without_ground_plane", r->untrained_no_ground);
+    }
+    cJSON_AddNumberToObject(root, "min_depth", NJ_EVAL_MIN_DEPTH);
+    cJSON_AddNumberToObject(root, "max_depth", r->a.max_depth);
+    cJSON_AddStringToObject(root, "split", nj_split_name(r->a.split));
+    cJSON_AddStringToObject(root, "model", r->a.model);
+    cJSON_AddStringToObject(root, "data", r->a.data);
+    cJSON *c = cJSON_AddObjectToObject(root, "baseline_constant");
+    add_depth_json(c, &r->acc[M_CONSTANT], 0);
+    cJSON_AddStringToObject(c, "scaling", "median");
+    cJSON *u = cJSON_AddObjectToObject(root, "baseline_untrained");
+    add_depth_json(u, &r->acc[M_UNTRAINED], 1);
+    cJSON_AddStringToObject(u, "scaling", scaling_name(r->mode));
+    cJSON *o = cJSON_AddObjectToObject(root, METHOD_KEYS[M_ORACLE]);
+    add_depth_json(o, &r->acc[M_ORACLE], 0);
+    cJSON_AddStringToObject(o, "scaling", r->mode == SCALE_MEDIAN ? "median" : "metric");
+    cJSON_AddStringToObject(o, "rule", "each pixel at the median true depth of its image row");
+    nj_eval_regions_json(&r->regions, root, METHOD_KEYS);
+    if (r->snippets) {
+        cJSON *p = cJSON_AddObjectToObject(root, "pose");
+        cJSON_AddNumberToObject(p, "ate", r->ate_mean);
+        cJSON_AddNumberToObject(p, "ate_std", sqrt(r->ate_m2 / r->snippets));
+        cJSON_AddNumberToObject(p, "rmse", r->rmse_sum / r->snippets);
+        cJSON_AddNumberToObject(p, "scale_mean", r->scale_sum / r->snippets);
+        cJSON_AddNumberToObject(p, "snippets", r->snippets);
+        cJSON_AddNumberToObject(p, "snippet_frames", NJ_ATE_SNIPPET);
+        cJSON_AddNumberToObject(p, "rotation_error_deg", RAD2DEG(r->rot_err_sum / r->pairs));
+        cJSON_AddNumberToObject(p, "rotation_true_deg", RAD2DEG(r->rot_true_sum / r->pairs));
+        cJSON_AddNumberToObject(p, "pairs", r->pairs);
+        cJSON_AddStringToObject(p, "protocol",
+                                "Zhou et al. 2017: first frames aligned, least-squares scale, "
+                                "ate = sqrt(sum |e|^2) / n; rmse = sqrt(sum |e|^2 / n)");
+    }
+    return root;
+}
+
+static int write_json(const char *path, cJSON *root, char *err, size_t errlen)
+{
+    char *text = cJSON_Print(root);
+    nj_atomic_file a;
+    if (!text) {
+        snprintf(err, errlen, "%s: out of memory", path);
+        return -1;
+    }
+    err[0] = 0;
+    int rc = nj_atomic_open(&a, path, err, errlen);
+    if (!rc) {
+        int ok = fputs(text, a.f) >= 0 && fputc('\n', a.f) != EOF;
+        rc = nj_atomic_close(&a, ok, err, errlen);
+    }
+    free(text);
+    return rc;
+}
+
+/* ---- command ---------------------------------------------------------------- */
+
+static int evaluate(eval_run *r, char *err, size_t errlen)
+{
+    nj_dataset ds;
+    memset(&ds, 0, sizeof ds);
+    if (load_models(r, err, errlen)) return -1;
+    r->mode = r->a.camera_height > 0 ? SCALE_CAMERA
+            : (r->cfg.stereo && !r->cfg.video) ? SCALE_METRIC : SCALE_MEDIAN;
+    nj_plane_options_default(&r->plane);
+    for (int k = 0; k < NMETHODS; k++) nj_metrics_acc_init(&r->acc[k]);
+    nj_eval_regions_init(&r->regions, r->a.max_depth);
+    if (open_split(&r->a, &ds, err, errlen)) {
+        nj_dataset_free(&ds);
+        return -1;
+    }
+    printf("eval: %s on split \"%s\" of %s (network input %dx%d, %s scaling)\n", r->a.model,
+           nj_split_name(r->a.split), r->a.data, r->cfg.width, r->cfg.height, scaling_name(r->mode));
+    int rc = run_sequences(r, &ds, err, errlen);
+    nj_dataset_free(&ds);
+    if (rc) return -1;
+    if (r->frames == 0 && r->snippets == 0 && r->no_ground) {
+        snprintf(err, errlen, "no ground plane found in the model's depth for any of the %d images",
+                 r->no_ground);
+        return -1;
+    }
+    if (r->frames == 0 && r->snippets == 0) {
+        snprintf(err, errlen, "%s: split \"%s\" has no usable ground truth (depth within %g m, or poses)",
+                 r->a.data, nj_split_name(r->a.split), r->a.max_depth);
+        return -1;
+    }
+    print_table(r);
+    return 0;
+}
+
+int nj_eval_main(int argc, char **argv)
+{
+    if (argc >= 2 && (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h"))) {
+        usage(stdout);
+        return 0;
+    }
+    eval_run *r = calloc(1, sizeof *r);
+    char err[1024] = "";
+    if (!r) {
+        fprintf(stderr, "nightjar eval: out of memory\n");
+        return 1;
+    }
+    if (parse_args(argc, argv, &r->a)) {
+        free(r);
+        return 2;
+    }
+    nj_threads_init(r->a.threads);
+    int rc = evaluate(r, err, sizeof err);
+    if (!rc && r->a.out) {
+        cJSON *root = report_json(r);
+        rc = root ? write_json(r->a.out, root, err, sizeof err) : -1;
+        if (!root) snprintf(err, sizeof err, "out of memory");
+        cJSON_Delete(root);
+        if (!rc) printf("wrote %s\n", r->a.out);
+    }
+    if (rc) fprintf(stderr, "nightjar eval: %s\n", err);
+    free_run(r);
+    free(r);
+    return rc ? 1 : 0;
+}

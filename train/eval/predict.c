@@ -1,0 +1,458 @@
+/* train/eval/predict.c — `nightjar predict`: depth for single frames or a folder of
+ * frames.  For each input NAME.ext writes into the output folder
+ *   NAME.depth.npy     float32 H×W depth in metres (model units when only up to scale)
+ *   NAME.depth16.png   16-bit depth in millimetres (saturating at 65535)
+ *   NAME.preview.png   disparity coloured with the "mothwing" map (colormap.h)
+ *   NAME.points.ply    with --ply: coloured binary point cloud (pointcloud.h)
+ * all at the input's size, all written atomically. */
+#include "data/dataset.h"
+#include "data/image.h"
+#include "data/npy.h"
+#include "train/loop/checkpoint.h"
+#include "train/eval/colormap.h"
+#include "train/measure/groundplane.h"
+#include "train/model/infer.h"
+#include "train/measure/metrics.h"
+#include "train/measure/pointcloud.h"
+#include <errno.h>
+#include <math.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#define DEFAULT_FOCAL 0.8f           /* assumed fx = fy = 0.8·W without --camera */
+#define PREVIEW_PERCENTILE 0.95      /* disparity mapped to the brightest colour */
+
+typedef struct predict_args {
+    const char *model, *input, *out;
+    int has_camera, ply, threads;
+    nj_camera camera;
+    double camera_height;            /* metres; 0 = not given */
+} predict_args;
+
+typedef struct predictor {
+    predict_args a;
+    nj_train_config cfg;
+    nj_model model;
+    nj_infer inf;
+    nj_plane_options plane;
+    int metric;                      /* stereo-trained */
+    int assumed_printed, scaled, unscaled;
+} predictor;
+
+static void usage(FILE *f)
+{
+    fprintf(f,
+        "usage: nightjar predict --model CKPT --input FRAME_OR_DIR --out DIR [--camera fx,fy,cx,cy]\n"
+        "                        [--ply] [--camera-height METRES] [--threads N]\n"
+        "  For each frame NAME.ext (PNG or JPEG; a folder means all its frames) writes into DIR:\n"
+        "    NAME.depth.npy    float32 HxW depth in metres, at the input's size\n"
+        "    NAME.depth16.png  16-bit depth in millimetres (0 = no depth, saturates at 65.535 m)\n"
+        "    NAME.preview.png  disparity in the mothwing colour map (near = bright)\n"
+        "    NAME.points.ply   with --ply: coloured point cloud (binary PLY, camera frame)\n"
+        "  --camera fx,fy,cx,cy  intrinsics in pixels at the input's size, for the point cloud\n"
+        "                        and the ground plane (default: fx = fy = 0.8*W, centred)\n"
+        "  --camera-height M     metric scale from the camera's height above flat ground,\n"
+        "                        for models trained on monocular video (depth up to scale)\n"
+        "  Exit status: 0 done, 1 failure, 2 bad usage.\n");
+}
+
+static int bad(const char *fmt, const char *arg)
+{
+    fprintf(stderr, "nightjar predict: ");
+    fprintf(stderr, fmt, arg);
+    fprintf(stderr, " (see 'nightjar predict --help')\n");
+    return -1;
+}
+
+static int parse_camera(const char *s, nj_camera *c)
+{
+    double v[4];
+    const char *p = s;
+    for (int k = 0; k < 4; k++) {
+        char *end = NULL;
+        v[k] = strtod(p, &end);
+        if (end == p || !isfinite(v[k])) return -1;
+        if (k < 3 && *end != ',') return -1;
+        if (k == 3 && *end) return -1;
+        p = end + 1;
+    }
+    c->fx = (float)v[0];
+    c->fy = (float)v[1];
+    c->cx = (float)v[2];
+    c->cy = (float)v[3];
+    return nj_camera_valid(*c) ? 0 : -1;
+}
+
+static int parse_value(predict_args *a, const char *o, const char *v)
+{
+    char *end = NULL;
+    if (!strcmp(o, "--model")) a->model = v;
+    else if (!strcmp(o, "--input")) a->input = v;
+    else if (!strcmp(o, "--out")) a->out = v;
+    else if (!strcmp(o, "--camera")) {
+        if (parse_camera(v, &a->camera))
+            return bad("--camera needs fx,fy,cx,cy in pixels with fx, fy > 0, not '%s'", v);
+        a->has_camera = 1;
+    } else if (!strcmp(o, "--camera-height")) {
+        a->camera_height = strtod(v, &end);
+        if (end == v || *end || !(a->camera_height > 0) || !(a->camera_height < 1e4))
+            return bad("--camera-height needs a positive height in metres, not '%s'", v);
+    } else {
+        long t = strtol(v, &end, 10);
+        if (end == v || *end || t < 0 || t > 1024) return bad("--threads needs a count >= 0, not '%s'", v);
+        a->threads = (int)t;
+    }
+    return 0;
+}
+
+static int parse_args(int argc, char **argv, predict_args *a)
+{
+    static const char *const with_value[] = {"--model", "--input", "--out", "--camera",
+                                             "--camera-height", "--threads"};
+    memset(a, 0, sizeof *a);
+    for (int i = 1; i < argc; i++) {
+        const char *o = argv[i];
+        if (!strcmp(o, "--ply")) {
+            a->ply = 1;
+            continue;
+        }
+        int known = 0;
+        for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++) known |= !strcmp(o, with_value[k]);
+        if (!known) return bad(o[0] == '-' ? "unknown option '%s'" : "unexpected argument '%s'", o);
+        if (i + 1 >= argc) return bad("option %s needs a value", o);
+        if (parse_value(a, o, argv[++i])) return -1;
+    }
+    if (!a->model) return bad("%s", "--model CKPT is required");
+    if (!a->input) return bad("%s", "--input FRAME_OR_DIR is required");
+    if (!a->out) return bad("%s", "--out DIR is required");
+    return 0;
+}
+
+/* ---- inputs and outputs ------------------------------------------------------ */
+
+/* The frames to process: the input file itself, or the frames of the folder.
+ * names[] are full paths (malloc'd).  Returns the count or -1 with err. */
+static int list_inputs(const char *input, char ***paths, char *err, size_t errlen)
+{
+    struct stat st;
+    *paths = NULL;
+    if (stat(input, &st) != 0) {
+        snprintf(err, errlen, "%s: %s", input, strerror(errno));
+        return -1;
+    }
+    if (!S_ISDIR(st.st_mode)) {
+        *paths = malloc(sizeof **paths);
+        if (!*paths || !((*paths)[0] = strdup(input))) {
+            snprintf(err, errlen, "out of memory");
+            return -1;
+        }
+        return 1;
+    }
+    char **names = NULL;
+    int n = nj_list_frames(input, &names);
+    if (n <= 0) {
+        snprintf(err, errlen, n < 0 ? "%s: cannot read the folder" : "%s: no PNG or JPEG frames in the folder",
+                 input);
+        nj_free_names(names, n > 0 ? n : 0);
+        return -1;
+    }
+    for (int i = 0; i < n; i++) {
+        char *full = nj_path_join(input, names[i]);
+        if (!full) {
+            snprintf(err, errlen, "out of memory");
+            nj_free_names(names, n);
+            return -1;
+        }
+        free(names[i]);
+        names[i] = full;
+    }
+    *paths = names;
+    return n;
+}
+
+/* NAME of a path: the file name without its last extension. */
+static void stem_of(const char *path, char *out, size_t len)
+{
+    const char *base = strrchr(path, '/');
+    base = base ? base + 1 : path;
+    const char *dot = strrchr(base, '.');
+    size_t n = dot && dot != base ? (size_t)(dot - base) : strlen(base);
+    snprintf(out, len, "%.*s", (int)n, base);
+}
+
+static int cmp_str(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+/* Refuses inputs whose outputs would overwrite each other (a.png and a.jpg). */
+static int check_stems(char **paths, int n, char *err, size_t errlen)
+{
+    char **stems = calloc((size_t)n, sizeof *stems);
+    int rc = stems ? 0 : -1;
+    for (int i = 0; !rc && i < n; i++) {
+        char s[1024];
+        stem_of(paths[i], s, sizeof s);
+        if (!(stems[i] = strdup(s))) rc = -1;
+    }
+    if (rc) snprintf(err, errlen, "out of memory");
+    else qsort(stems, (size_t)n, sizeof *stems, cmp_str);
+    for (int i = 1; !rc && i < n; i++)
+        if (!strcmp(stems[i], stems[i - 1])) {
+            snprintf(err, errlen, "two input frames are both named \"%s\" (outputs would collide)", stems[i]);
+            rc = -1;
+        }
+    for (int i = 0; stems && i < n; i++) free(stems[i]);
+    free(stems);
+    return rc;
+}
+
+/* mkdir -p */
+static int make_dirs(const char *dir, char *err, size_t errlen)
+{
+    char p[4096];
+    snprintf(p, sizeof p, "%s", dir);
+    size_t len = strlen(p);
+    for (size_t i = 1; i <= len; i++) {
+        if (p[i] != '/' && p[i] != 0) continue;
+        char c = p[i];
+        p[i] = 0;
+        if (mkdir(p, 0777) != 0 && errno != EEXIST) {
+            snprintf(err, errlen, "%.900s: cannot create folder: %s", p, strerror(errno));
+            return -1;
+        }
+        p[i] = c;
+    }
+    struct stat st;
+    if (stat(dir, &st) != 0 || !S_ISDIR(st.st_mode)) {
+        snprintf(err, errlen, "%s: not a folder", dir);
+        return -1;
+    }
+    return 0;
+}
+
+static int write_depth16(const char *path, const float *depth, int w, int h, char *err, size_t errlen)
+{
+    size_t n = (size_t)w * h;
+    uint16_t *v = malloc(n * sizeof *v);
+    if (!v) {
+        snprintf(err, errlen, "out of memory for %.900s", path);
+        return -1;
+    }
+    for (size_t i = 0; i < n; i++) {
+        double mm = (double)depth[i] * 1000.0;
+        v[i] = !(mm > 0) || !isfinite(mm) ? 0 : mm >= 65535.0 ? 65535 : (uint16_t)lround(mm);
+    }
+    int rc = nj_png_write_grey16(path, v, w, h, err, errlen);
+    free(v);
+    return rc;
+}
+
+/* Disparity (1/depth) picture: minimum → darkest, 95th percentile → brightest. */
+static int write_preview(const char *path, const float *depth, int w, int h, char *err, size_t errlen)
+{
+    size_t n = (size_t)w * h;
+    float *disp = malloc(n * sizeof *disp), *tmp = malloc(n * sizeof *tmp);
+    nj_image im = {0, 0, NULL};
+    int rc = -1;
+    if (!disp || !tmp) goto oom;
+    size_t k = 0;
+    float lo = INFINITY;
+    for (size_t i = 0; i < n; i++) {
+        disp[i] = depth[i] > 0 && isfinite(depth[i]) ? 1.0f / depth[i] : NAN;
+        if (isfinite(disp[i])) {
+            tmp[k++] = disp[i];
+            if (disp[i] < lo) lo = disp[i];
+        }
+    }
+    float hi = lo;
+    if (k) hi = (float)nj_quantile(tmp, k, PREVIEW_PERCENTILE);
+    if (nj_colormap_image(disp, w, h, lo, hi, &im)) goto oom;
+    rc = nj_png_write_rgb(path, &im, err, errlen);
+    goto done;
+oom:
+    snprintf(err, errlen, "out of memory for %.900s", path);
+done:
+    nj_image_free(&im);
+    free(disp);
+    free(tmp);
+    return rc;
+}
+
+/* ---- one frame ----------------------------------------------------------------- */
+
+static nj_camera camera_for(predictor *p, int w, int h)
+{
+    if (p->a.has_camera) return p->a.camera;
+    nj_camera c = {DEFAULT_FOCAL * (float)w, DEFAULT_FOCAL * (float)w, 0.5f * (float)(w - 1),
+                   0.5f * (float)(h - 1)};
+    if (!p->assumed_printed && (p->a.ply || p->a.camera_height > 0)) {
+        printf("note: no --camera given: ASSUMING intrinsics fx = fy = 0.8*W = %.1f, cx = %.1f, cy = %.1f "
+               "pixels (W = %d); pass --camera fx,fy,cx,cy for true geometry\n", c.fx, c.cx, c.cy, w);
+        p->assumed_printed = 1;
+    }
+    return c;
+}
+
+/* Multiplies depth by the ground-plane scale; returns 1 when scaled. */
+static int apply_camera_height(predictor *p, const char *stem, float *depth, int w, int h, nj_camera cam)
+{
+    double scale;
+    nj_plane plane;
+    char e[512];
+    if (nj_ground_scale(depth, w, h, cam, p->a.camera_height, &p->plane, &scale, &plane, e, sizeof e)) {
+        printf("warning: %s: %s; depth left unscaled\n", stem, e);
+        p->unscaled++;
+        return 0;
+    }
+    for (size_t i = 0; i < (size_t)w * h; i++) depth[i] *= (float)scale;
+    printf("  %s: ground plane %.3f model units below the camera (%d of %d points), scale x%.4g\n", stem,
+           plane.dist, plane.inliers, plane.points, scale);
+    p->scaled++;
+    return 1;
+}
+
+static int write_outputs(predictor *p, const char *stem, const float *depth, const nj_image *im,
+                         nj_camera cam, char *err, size_t errlen)
+{
+    char path[4096];
+    int shape[2] = {im->h, im->w};
+    snprintf(path, sizeof path, "%s/%s.depth.npy", p->a.out, stem);
+    if (nj_npy_write(path, depth, shape, 2, err, errlen)) return -1;
+    snprintf(path, sizeof path, "%s/%s.depth16.png", p->a.out, stem);
+    if (write_depth16(path, depth, im->w, im->h, err, errlen)) return -1;
+    snprintf(path, sizeof path, "%s/%s.preview.png", p->a.out, stem);
+    if (write_preview(path, depth, im->w, im->h, err, errlen)) return -1;
+    if (!p->a.ply) return 0;
+    snprintf(path, sizeof path, "%s/%s.points.ply", p->a.out, stem);
+    return nj_ply_write(path, depth, im, cam, NULL, err, errlen);
+}
+
+static int predict_frame(predictor *p, const char *input, char *err, size_t errlen)
+{
+    nj_image im = {0, 0, NULL};
+    char stem[1024];
+    float *depth = NULL;
+    int rc = -1;
+    stem_of(input, stem, sizeof stem);
+    if (nj_image_load(input, &im, err, errlen)) return -1;
+    depth = malloc((size_t)im.w * im.h * sizeof *depth);
+    if (!depth) {
+        snprintf(err, errlen, "%s: out of memory", input);
+        goto done;
+    }
+    if (nj_infer_depth(&p->inf, &im, im.w, im.h, depth, NULL, err, errlen)) goto done;
+    nj_camera cam = camera_for(p, im.w, im.h);
+    if (p->a.camera_height > 0) apply_camera_height(p, stem, depth, im.w, im.h, cam);
+    if (write_outputs(p, stem, depth, &im, cam, err, errlen)) goto done;
+    float *tmp = malloc((size_t)im.w * im.h * sizeof *tmp);
+    if (tmp) {
+        memcpy(tmp, depth, (size_t)im.w * im.h * sizeof *tmp);
+        printf("  %s: %dx%d, median depth %.3f\n", stem, im.w, im.h, nj_median(tmp, (size_t)im.w * im.h));
+        free(tmp);
+    }
+    rc = 0;
+done:
+    free(depth);
+    nj_image_free(&im);
+    return rc;
+}
+
+/* ---- command -------------------------------------------------------------------- */
+
+/* Checks every input's header before any work, so a bad input fails fast. */
+static int probe_inputs(char **paths, int n, char *err, size_t errlen)
+{
+    for (int i = 0; i < n; i++) {
+        int w, h;
+        if (nj_image_probe(paths[i], &w, &h, err, errlen)) return -1;
+    }
+    return 0;
+}
+
+static void print_notes(const predictor *p, int done)
+{
+    if (done) printf("wrote %d frame%s into %s/\n", done, done == 1 ? "" : "s", p->a.out);
+    if (p->a.camera_height > 0) {
+        printf("depth: scaled to metres from the camera height %g m on %d frame%s", p->a.camera_height,
+               p->scaled, p->scaled == 1 ? "" : "s");
+        if (p->unscaled) printf("; %d left as the model gave them (no ground plane found)", p->unscaled);
+        printf("\n");
+    } else if (p->metric) {
+        printf("depth: metric — the model was trained on rectified stereo pairs with a known baseline\n");
+    } else {
+        printf("note: this model learned from monocular video, so its depth is right only up to an\n"
+               "      unknown scale factor (values are in the model's own units, not metres).  For\n"
+               "      metric depth pass --camera-height METRES: the camera's height above flat ground.\n");
+    }
+    printf("caution: learned monocular depth is an estimate, not a certified safety sensor; do not\n"
+           "         rely on it alone for collision avoidance or any other safety function.\n");
+}
+
+static int setup(predictor *p, char **paths, int n, char *err, size_t errlen)
+{
+    if (check_stems(paths, n, err, errlen) || probe_inputs(paths, n, err, errlen)) return -1;
+    if (nj_checkpoint_load(p->a.model, &p->model, &p->cfg, NULL, err, errlen)) return -1;
+    char e[512];
+    if (nj_infer_init(&p->inf, &p->model, p->cfg.width, p->cfg.height, p->cfg.loss.min_depth,
+                      p->cfg.loss.max_depth, e, sizeof e)) {
+        snprintf(err, errlen, "%s: %s", p->a.model, e);
+        nj_model_free(&p->model);
+        return -1;
+    }
+    if (make_dirs(p->a.out, err, errlen)) {
+        nj_infer_free(&p->inf);
+        nj_model_free(&p->model);
+        return -1;
+    }
+    p->metric = p->cfg.stereo && !p->cfg.video;
+    nj_plane_options_default(&p->plane);
+    return 0;
+}
+
+int nj_predict_main(int argc, char **argv)
+{
+    if (argc >= 2 && (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h"))) {
+        usage(stdout);
+        return 0;
+    }
+    predictor *p = calloc(1, sizeof *p);
+    char err[1024] = "", **paths = NULL;
+    if (!p) {
+        fprintf(stderr, "nightjar predict: out of memory\n");
+        return 1;
+    }
+    if (parse_args(argc, argv, &p->a)) {
+        free(p);
+        return 2;
+    }
+    nj_threads_init(p->a.threads);
+    int n = list_inputs(p->a.input, &paths, err, sizeof err), done = 0, failed = 0;
+    if (n < 0 || setup(p, paths, n, err, sizeof err)) {
+        fprintf(stderr, "nightjar predict: %s\n", err);
+        if (n > 0) nj_free_names(paths, n);
+        free(p);
+        return 1;
+    }
+    printf("predict: %d frame%s with %s (network input %dx%d, depth range %g..%g)\n", n, n == 1 ? "" : "s",
+           p->a.model, p->cfg.width, p->cfg.height, p->cfg.loss.min_depth, p->cfg.loss.max_depth);
+    for (int i = 0; i < n; i++) {
+        if (predict_frame(p, paths[i], err, sizeof err)) {
+            fprintf(stderr, "nightjar predict: %s\n", err);
+            failed++;
+        } else {
+            done++;
+        }
+        fflush(stdout);
+    }
+    print_notes(p, done);
+    if (failed) fprintf(stderr, "nightjar predict: %d of %d frames failed\n", failed, n);
+    nj_free_names(paths, n);
+    nj_infer_free(&p->inf);
+    nj_model_free(&p->model);
+    free(p);
+    return failed ? 1 : 0;
+}

@@ -1,0 +1,89 @@
+/* train/export/export.h — `nightjar export`: a trained model for use outside nightjar.
+ *
+ * Every export starts from an nj_export_net: the checkpoint's layers with
+ * batch normalisation folded into the preceding conv (Ioffe & Szegedy 2015:
+ * inference-mode BN is a per-channel affine map, so it merges into the conv's
+ * weights and bias).  Group normalisation (Wu & He 2018) uses per-frame
+ * statistics and cannot be folded; it is kept as an explicit layer with its
+ * group count, gamma and beta, and the C and ONNX exports compute it.
+ *
+ * With int8 weights each folded conv also gets a per-output-channel
+ * symmetric quantisation: scale[o] = max|w[o,:]| / 127 (1 for an all-zero
+ * channel), q = round-half-even(w / scale) clamped to [-127, 127]; a conv is
+ * then computed as bias[o] + scale[o]·Σ q·x with float activations.
+ *
+ * Formats (each file written atomically, data/atomic.h):
+ *   c            PATH.c + PATH.h: dependency-free C99 depth runtime (export_c.c)
+ *   onnx         PATH: opset-13 ONNX graph of the depth net (export_onnx.c)
+ *   safetensors  PATH: every folded tensor + architecture/config JSON
+ *                (export_safetensors.c)
+ * The C and ONNX exports compute only the depth net's finest disparity
+ * (scale 0) and depth at a fixed input size.
+ */
+#ifndef NJ_EXPORT_H
+#define NJ_EXPORT_H
+#include "train/loop/config.h"
+#include "train/model/model.h"
+#include <stddef.h>
+#include <stdint.h>
+
+/* Input standardisation of the networks (train/model/model.c): (x - mean) / std. */
+#define NJ_EXPORT_MEAN 0.45f
+#define NJ_EXPORT_STD 0.225f
+
+typedef struct nj_export_layer {
+    char name[64];            /* unit name, e.g. "enc0.1", "head0", "pose2" */
+    int cin, cout, k, stride, pad;
+    nj_pad_mode pad_mode;
+    nj_act_kind act;
+    float *w;                 /* folded weights cout×cin×k×k */
+    float *b;                 /* folded bias, cout */
+    int8_t *q;                /* int8 weights (int8 exports) or NULL */
+    float *scale;             /* per-output-channel scales (int8) or NULL */
+    int groups;               /* group norm: number of groups; 0 = none */
+    const float *gamma, *beta;/* group norm affine (owned by the model) */
+} nj_export_layer;
+
+typedef struct nj_export_net {
+    const nj_model *model;
+    const nj_train_config *cfg;
+    nj_export_layer layers[NJ_MAX_UNITS];   /* indexed like model->units */
+    int nlayers;
+    int int8;                 /* weights quantised */
+    int width, height;        /* fixed input size of the C and ONNX exports */
+    float min_depth, max_depth;
+    int metric;               /* trained on stereo only: depth in metres */
+    const char *source;       /* checkpoint file name, for comments and metadata */
+} nj_export_net;
+
+/* Builds the export view of a loaded model: folds batch norm, quantises when
+ * int8, checks that width×height suits the depth net.  Returns 0 or -1 with
+ * a one-line message. */
+int nj_export_prepare(nj_export_net *net, const nj_model *m, const nj_train_config *cfg,
+                      int int8, int width, int height, char *err, size_t errlen);
+void nj_export_release(nj_export_net *net);
+
+/* Group count used by the model's group-norm layers with `channels` channels
+ * (the rule of train/model/model.c). */
+int nj_export_norm_groups(int channels);
+
+/* Quantises n_out rows of `per_out` weights (symmetric, per row) into q and
+ * scale as described above. */
+void nj_export_quantise(const float *w, int n_out, int per_out, int8_t *q, float *scale);
+
+/* Writers.  `path` is the --out argument.  Each returns 0 or -1 with a
+ * one-line message naming the file.  *bytes receives the total size written
+ * (for the C export: .c plus .h). */
+int nj_export_c(const nj_export_net *net, const char *path, long *bytes, char *err, size_t errlen);
+int nj_export_onnx(const nj_export_net *net, const char *path, long *bytes, char *err, size_t errlen);
+int nj_export_safetensors(const nj_export_net *net, const char *path, long *bytes, char *err,
+                          size_t errlen);
+
+/* The architecture as a JSON object text (malloc'd): model config, channel
+ * widths, input normalisation, depth range and every layer. */
+char *nj_export_architecture_json(const nj_export_net *net);
+
+/* The command; argv[0] is "export".  Returns the exit status. */
+int nj_export_main(int argc, char **argv);
+
+#endif

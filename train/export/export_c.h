@@ -1,0 +1,29 @@
+/* train/export/export_c.h — pieces of the C export shared between its files:
+ * the runtime text every emitted .c carries, and the scratch-memory plan. */
+#ifndef NJ_EXPORT_C_H
+#define NJ_EXPORT_C_H
+#include <stdio.h>
+#include <stddef.h>
+
+/* Writes the runtime (layer struct, convolution with zero/reflection padding
+ * and stride 1/2, group norm, ELU/sigmoid, nearest x2 upsampling, input
+ * standardisation, disparity → depth) into f.  `int8` selects the weight type
+ * (signed char with per-channel scales, or float). */
+void nj_export_c_runtime(FILE *f, int int8);
+
+/* First-fit placement of buffers inside one scratch array (offsets and sizes
+ * in floats); `peak` is the highest end ever used. */
+#define NJ_PLAN_MAX 32
+typedef struct nj_scratch_plan {
+    long off[NJ_PLAN_MAX], size[NJ_PLAN_MAX];
+    int n;
+    long peak;
+} nj_scratch_plan;
+
+/* Returns the offset of a new live buffer of `size` floats, or -1 when more
+ * than NJ_PLAN_MAX buffers would be live. */
+long nj_plan_alloc(nj_scratch_plan *p, long size);
+/* Ends the life of the buffer at `off`. */
+void nj_plan_free(nj_scratch_plan *p, long off);
+
+#endif

@@ -1,0 +1,84 @@
+/* train/loop/config.h — training configuration: a JSON file with our own keys,
+ * validated with one-line errors (unknown key, wrong type, out of range), and
+ * command-line overrides on top.
+ *
+ * File layout (every key optional; defaults from nj_train_config_default):
+ * {
+ *   "run":   { "name": "yard-night", "seed": 1, "threads": 0, "minutes": 5, "hours": 0,
+ *              "max_steps": 0, "log_every": 10, "validate_every": 200,
+ *              "checkpoint_minutes": 10, "checkpoint_steps": 0,
+ *              "keep_last": 3 },
+ *   "data":  { "dataset": "path/to/dataset.json", "width": 320, "height": 96, "batch": 4,
+ *              "frame_offsets": [1], "video": true, "stereo": false,
+ *              "duplicate_threshold": 0.0,
+ *              "augment": { "brightness": 0.2, "contrast": 0.2, "saturation": 0.2,
+ *                           "hue": 0.05, "flip": 0.5 } },
+ *   "model": { "stages": 5, "width": 1.0, "scales": 4, "norm": "batch" | "group" | "none",
+ *              "head_init": 0.1, "pose_stages": 5, "pose_width": 1.0, "pose_scale": 0.5,
+ *              "pose": true, "bn_momentum": 0.1 },
+ *   "loss":  { "ssim_weight": 0.85, "smoothness": 0.001, "min_depth": 0.1, "max_depth": 100,
+ *              "automask": true, "automask_from_step": 0, "tie_break": 1e-5,
+ *              "saturation_guard": 0 },
+ *   "optim": { "lr": 1e-4, "lr_min": 1e-6, "warmup_steps": 100, "schedule": "cosine" | "step",
+ *              "step_every": 1000, "step_gamma": 0.5, "weight_decay": 0, "grad_clip": 1.0,
+ *              "init": "", "freeze_encoder": false }
+ * }
+ * Relative paths inside the file resolve against the file's folder.
+ * "hours" is written back as "minutes"; run.seed also seeds the networks
+ * (model.seed).  Loading ends with nj_train_config_check.  Syntax errors read
+ * "PATH:LINE:COLUMN: bad JSON near '...'".
+ */
+#ifndef NJ_CONFIG_H
+#define NJ_CONFIG_H
+#include "train/model/model.h"
+#include "losses/view_synthesis.h"
+#include <stddef.h>
+
+#define NJ_PATH_MAX 1024
+#define NJ_MAX_OFFSETS 4
+
+typedef struct nj_train_config {
+    /* run */
+    char name[64];
+    unsigned seed;
+    int threads;              /* 0 = all cores */
+    double minutes;           /* time budget; 0 = none */
+    long max_steps;           /* step budget; 0 = none (one of the budgets must be set) */
+    int log_every, validate_every, keep_last;
+    double checkpoint_minutes;
+    long checkpoint_steps;    /* also checkpoint every N steps; 0 = only by time */
+    /* data */
+    char dataset[NJ_PATH_MAX];
+    int width, height, batch;
+    int offsets[NJ_MAX_OFFSETS], noffsets;
+    int video, stereo;
+    float duplicate_threshold;
+    float brightness, contrast, saturation, hue, flip;
+    /* model and loss */
+    nj_model_config model;
+    nj_vs_config loss;
+    long automask_from;       /* auto-masking (when on) starts at this step; 0 = from the start */
+    /* optimiser */
+    float lr, lr_min, step_gamma, weight_decay, grad_clip;
+    int warmup_steps, step_every;
+    int cosine;               /* 1 cosine, 0 step schedule */
+    char init[NJ_PATH_MAX];
+    int freeze_encoder;
+} nj_train_config;
+
+void nj_train_config_default(nj_train_config *c);
+/* Reads and validates `path` on top of the current values of *c.
+ * Returns 0, or -1 with "PATH: problem" in err. */
+int nj_train_config_load(nj_train_config *c, const char *path, char *err, size_t errlen);
+/* Cross-field validation (budgets, sizes divisible by 2^stages, ranges).
+ * Returns 0 or -1 with a message. */
+int nj_train_config_check(const nj_train_config *c, char *err, size_t errlen);
+/* The whole configuration as a JSON text (malloc'd), loadable again by
+ * nj_train_config_load_text; used inside checkpoints. */
+char *nj_train_config_to_json(const nj_train_config *c);
+int nj_train_config_load_text(nj_train_config *c, const char *json, const char *origin,
+                              char *err, size_t errlen);
+/* Learning rate at `step` (warm-up, then cosine to lr_min or step decay). */
+float nj_train_config_lr(const nj_train_config *c, long step, long total_steps);
+
+#endif

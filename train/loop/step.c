@@ -1,0 +1,120 @@
+/* train/loop/step.c — the training recipe for one batch (see step.h). */
+#include "train/loop/step.h"
+#include "losses/pose.h"
+#include <math.h>
+#include <string.h>
+
+/* Source j of every item, gathered into one N×3×H×W tensor. */
+static nj_tensor *gather_source(nj_graph *g, const nj_batch *b, const float *all, int j)
+{
+    nj_tensor *t = nj_tensor_new(g, b->n, 3, b->h, b->w, 0);
+    if (!t) return NULL;
+    size_t img = (size_t)3 * b->h * b->w;
+    for (int i = 0; i < b->n; i++)
+        memcpy(t->data + i * img, all + ((size_t)i * b->nsrc + j) * img, img * sizeof(float));
+    return t;
+}
+
+static nj_tensor *wrap(nj_graph *g, const nj_batch *b, float *data)
+{
+    return nj_tensor_wrap(g, b->n, 3, b->h, b->w, data, NULL);
+}
+
+static float mean_translation(const nj_tensor *v)
+{
+    double s = 0;
+    for (int n = 0; n < v->n; n++) {
+        const float *p = v->data + 6 * n + 3;
+        s += sqrt((double)p[0] * p[0] + (double)p[1] * p[1] + (double)p[2] * p[2]);
+    }
+    return (float)(s / v->n);
+}
+
+/* Temporal sources: pose net on (earlier, later) frame pairs; the pair with
+ * the earlier source is inverted so every pose maps target → source. */
+/* Scale-free slips below this translation length count as standing still. */
+#define SLIP_EPS 1e-3f
+
+static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
+                     nj_tensor *tgt_in, nj_vs_input *in, float *translation, nj_tensor **slip)
+{
+    float t = 0;
+    for (int j = 0; j < b->nsrc && in->nsources < NJ_MAX_SOURCES; j++) {
+        nj_tensor *src = gather_source(g, b, b->sources, j);
+        nj_tensor *src_in = b->sources_in == b->sources ? src : gather_source(g, b, b->sources_in, j);
+        nj_tensor *vec = j == 0 ? nj_pose_forward(g, m, src_in, tgt_in) : nj_pose_forward(g, m, tgt_in, src_in);
+        nj_tensor *T = nj_pose_from_vec(g, vec);
+        if (j == 0) T = nj_pose_invert(g, T);
+        if (cfg->loss.arc_motion > 0) {
+            nj_tensor *s = nj_mean(g, nj_arc_slip(g, vec, SLIP_EPS), NJ_AXIS_ALL);
+            *slip = *slip ? nj_add(g, *slip, s) : s;
+        }
+        if (!T) return -1;
+        t += mean_translation(vec);
+        in->sources[in->nsources] = src;
+        in->poses[in->nsources++] = T;
+    }
+    *translation = b->nsrc ? t / (float)b->nsrc : 0.0f;
+    return 0;
+}
+
+static int add_stereo(nj_graph *g, const nj_batch *b, nj_vs_input *in)
+{
+    for (int i = 0; i < b->n; i++)
+        if (!b->has_partner[i]) {
+            nj_graph_fail(g, "training batch item %d has no stereo partner", i);
+            return -1;
+        }
+    in->sources[in->nsources] = wrap(g, b, b->partner);
+    in->poses[in->nsources++] = nj_pose_stereo(g, b->n, b->stereo_tx);
+    return nj_graph_failed(g) ? -1 : 0;
+}
+
+static float saturation_share(const nj_tensor *d)
+{
+    size_t k = nj_numel(d), s = 0;
+    for (size_t i = 0; i < k; i++) s += d->data[i] < 1e-3f || d->data[i] > 0.999f;
+    return (float)s / (float)k;
+}
+
+void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES])
+{
+    float *f[NJ_STEP_FIGURES] = {&r->loss, &r->photometric, &r->smoothness, &r->mask_fraction, &r->saturated,
+                                 &r->translation};
+    memcpy(out, f, sizeof f);
+}
+
+int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
+                  nj_rng *rng, int backward, nj_step_result *r)
+{
+    memset(r, 0, sizeof *r);
+    nj_vs_input in;
+    memset(&in, 0, sizeof in);
+    nj_tensor *tgt_in = wrap(g, b, b->target_in);
+    in.target = wrap(g, b, b->target);
+    in.cams = b->camera;
+    in.rng = rng;
+    in.nscales = m->cfg.scales;
+    if (nj_depth_forward(g, m, tgt_in, in.disp)) return -1;
+    nj_tensor *slip = NULL;
+    if (cfg->video && b->nsrc > 0 && add_video(g, m, cfg, b, tgt_in, &in, &r->translation, &slip)) return -1;
+    if (cfg->stereo && b->stereo && add_stereo(g, b, &in)) return -1;
+    if (in.nsources == 0) {
+        nj_graph_fail(g, "training batch has no source frame (check frame_offsets / stereo settings)");
+        return -1;
+    }
+    nj_vs_output out;
+    if (nj_view_synthesis_loss(g, &cfg->loss, &in, &out)) return -1;
+    if (slip) out.total = nj_add(g, out.total, nj_affine(g, slip, cfg->loss.arc_motion / (float)b->nsrc, 0.0f));
+    if (nj_graph_failed(g)) return -1;
+    r->loss = out.total->data[0];
+    r->photometric = out.photometric;
+    r->smoothness = out.smoothness;
+    r->mask_fraction = out.mask_fraction;
+    r->saturated = saturation_share(in.disp[0]);
+    r->disp0 = in.disp[0];
+    r->automask = out.automask;
+    r->error = out.error;
+    if (backward && nj_backward(g, out.total)) return -1;
+    return 0;
+}

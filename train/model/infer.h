@@ -1,0 +1,35 @@
+/* train/model/infer.h — running a trained model on single frames (evaluation,
+ * prediction): inference mode (batch-norm running statistics, no gradient
+ * recording), input resized to the model's training size, the finest
+ * disparity resized back to the requested size (bilinear, half-pixel
+ * centres) and converted to depth with the model's depth range
+ * (losses/depth.h). */
+#ifndef NJ_INFER_H
+#define NJ_INFER_H
+#include "data/image.h"
+#include "train/model/model.h"
+#include <stddef.h>
+
+typedef struct nj_infer {
+    nj_model *model;
+    nj_graph *graph;
+    int width, height;          /* network input size (the training size) */
+    float min_depth, max_depth; /* depth range of the disparity heads */
+} nj_infer;
+
+/* Returns 0, or -1 with a message when the size does not suit the model or
+ * memory runs out.  The model must outlive the nj_infer. */
+int nj_infer_init(nj_infer *in, nj_model *m, int width, int height, float min_depth,
+                  float max_depth, char *err, size_t errlen);
+void nj_infer_free(nj_infer *in);
+/* Depth (out_w·out_h floats, row-major) of an image of any size.  When
+ * `disp` is non-NULL it receives the sigmoid disparity at the same size.
+ * Returns 0 or -1 with err. */
+int nj_infer_depth(nj_infer *in, const nj_image *im, int out_w, int out_h, float *depth,
+                   float *disp, char *err, size_t errlen);
+/* Camera motion between two frames: T (row-major 3×4 [R | t]) maps points of
+ * the first frame's camera into the second's.  Returns 0 or -1 with err. */
+int nj_infer_motion(nj_infer *in, const nj_image *first, const nj_image *second, double T[12],
+                    char *err, size_t errlen);
+
+#endif

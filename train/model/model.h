@@ -1,0 +1,90 @@
+/* train/model/model.h — nightjar's depth and pose networks.
+ *
+ * Depth net: encoder of `stages` stages at strides 2..2^stages, each two 3×3
+ * convs (the first with stride 2) + normalisation + ELU, channel widths
+ * 16·2^i·width; decoder mirroring it: 3×3 conv + norm + ELU, nearest ×2
+ * upsampling, concatenation with the encoder feature of the same resolution
+ * (skip), 3×3 conv + norm + ELU; sigmoid disparity heads (3×3 conv) at the
+ * finest `scales` decoder levels.  Decoder convs use reflection padding.
+ * Output scale s has size H/2^s × W/2^s; H and W must be divisible by 2^stages.
+ *
+ * Pose net: the two frames concatenated on channels (6 channels), a stack of
+ * stride-2 convs (7×7, 5×5, then 3×3) + norm + ELU, a 1×1 conv to 6 numbers,
+ * spatial mean; the first three times `rotation_scale` (pose_scale when 0) are an axis-angle
+ * rotation (radians), the last three times `pose_scale` a translation: the
+ * motion mapping points of the first frame's camera into the second's.
+ *
+ * Parameters are registered in groups: 0 depth encoder, 1 depth decoder,
+ * 2 pose net; batch-norm running statistics are kept in `buffers`.
+ */
+#ifndef NJ_MODEL_H
+#define NJ_MODEL_H
+#include "nn/param.h"
+#include "nn/ops.h"
+#include <stdint.h>
+
+#define NJ_MAX_STAGES 6
+#define NJ_MAX_UNITS 48
+
+enum { NJ_GROUP_ENCODER = 0, NJ_GROUP_DECODER = 1, NJ_GROUP_POSE = 2 };
+typedef enum { NJ_NORM_NONE = 0, NJ_NORM_BATCH = 1, NJ_NORM_GROUP = 2 } nj_norm_kind;
+typedef enum { NJ_ACT_NONE = 0, NJ_ACT_ELU = 1, NJ_ACT_SIGMOID = 2 } nj_act_kind;
+
+typedef struct nj_model_config {
+    int stages;            /* depth encoder stages, 1..6 (default 5) */
+    float width;           /* channel multiplier (default 1) */
+    int scales;            /* disparity outputs, 1..4 (default 4) */
+    nj_norm_kind norm;     /* default batch */
+    float head_init;       /* initial sigmoid output of the heads (default 0.01: far) */
+    int pose;              /* 1: build the pose net */
+    int pose_stages;       /* stride-2 convs in the pose net (default 5) */
+    float pose_width;
+    float pose_scale;      /* translation output multiplier (default 0.5) */
+    float rotation_scale;  /* rotation output multiplier; 0 (default) = pose_scale */
+    float bn_momentum;     /* default 0.1 */
+    unsigned seed;         /* initialisation seed */
+} nj_model_config;
+
+/* conv + optional normalisation + optional activation */
+typedef struct nj_unit {
+    nj_param *w, *b, *gamma, *beta, *run_mean, *run_var;
+    int cin, cout, k, stride, pad;
+    nj_pad_mode pad_mode;
+    nj_norm_kind norm;
+    nj_act_kind act;
+} nj_unit;
+
+typedef struct nj_model {
+    nj_model_config cfg;
+    nj_params params, buffers;
+    nj_unit units[NJ_MAX_UNITS];
+    int nunits;
+    int enc[NJ_MAX_STAGES][2];     /* unit indices */
+    int dec[NJ_MAX_STAGES][2];
+    int head[4];
+    int pose_units[NJ_MAX_STAGES + 1], npose;
+} nj_model;
+
+void nj_model_config_default(nj_model_config *cfg);
+/* Builds and initialises the model; returns 0 or -1 with a message in err. */
+int nj_model_init(nj_model *m, const nj_model_config *cfg, char *err, size_t errlen);
+void nj_model_free(nj_model *m);
+/* Scalars the architecture would hold — parameters and batch-norm buffers —
+ * computed without building it (readers bound a file's claims with it
+ * before allocating).  Both 0 for an invalid stage/scale count. */
+void nj_model_count(const nj_model_config *cfg, uint64_t *params, uint64_t *buffers);
+
+/* Depth net forward on N×3×H×W images in [0, 1]; disp[s] receives the
+ * sigmoid disparity at scale s for s < cfg.scales. */
+int nj_depth_forward(nj_graph *g, nj_model *m, nj_tensor *img, nj_tensor **disp);
+/* Pose net forward on two N×3×H×W frames → N×6×1×1 (first → second camera). */
+nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor *second);
+
+/* Forward multiply-adds ×2 (FLOPs) of the depth net at h×w, and of one pose pair. */
+double nj_depth_flops(const nj_model *m, int h, int w);
+double nj_pose_flops(const nj_model *m, int h, int w);
+/* Non-zero when h and w are usable input sizes: multiples of 2^stages with at
+ * least 2 pixels per side at the coarsest level. */
+int nj_model_size_ok(const nj_model *m, int h, int w);
+
+#endif

@@ -1,0 +1,334 @@
+/* train/report/report_gallery.c — the report's gallery: up to three fixed frames
+ * of the run's dataset (validation split, else test, else train; evenly
+ * spaced, no augmentation) passed through the training step without
+ * gradients (train/loop/step.h) at up to three checkpoints of the run (the oldest
+ * numbered, final, best, then newer numbered ones; distinct steps, shown
+ * in step order).
+ * Shown per frame: the input; per checkpoint the scale-0 disparity in the
+ * "mothwing" map (minimum → 95th percentile, as `predict`), the auto-mask
+ * (white = pixel used) and the minimum photometric error (grey, black 0 →
+ * white at the frame's 99th percentile over all shown checkpoints). */
+#include "train/report/report_parts.h"
+#include "train/eval/colormap.h"
+#include "train/measure/metrics.h"
+#include "train/loop/runfiles.h"
+#include "train/loop/step.h"
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#define MAX_FRAMES 3
+#define MAX_CANDIDATES 16
+#define MAX_SHOWN 3
+
+typedef struct shot {
+    long step;
+    char file[32];
+    float *disp, *mask, *err;    /* nframes × h × w each; mask NULL without auto-mask */
+} shot;
+
+typedef struct gallery {
+    nj_train_config cfg;
+    nj_dataset ds;
+    int ds_open;
+    nj_sample picked[MAX_FRAMES];
+    int nframes, w, h;
+    nj_split split;
+    float *input;                /* nframes × 3 × h × w */
+    shot shots[MAX_SHOWN];
+    int nshots;
+    char note[512];
+} gallery;
+
+/* Candidate checkpoint file names in order of preference: the oldest
+ * numbered, final, best, then the other numbered ones newest first. */
+static int candidates(const char *run_dir, char names[MAX_CANDIDATES][32])
+{
+    long steps[MAX_CANDIDATES];
+    int ns = nj_run_list_steps(run_dir, steps, MAX_CANDIDATES - 2), n = 0;
+    if (ns > 0) snprintf(names[n++], 32, "step-%08ld.ckpt", steps[ns - 1]);
+    const char *named[2] = {"final.ckpt", "best.ckpt"};
+    for (int i = 0; i < 2; i++) {
+        char path[NJ_PATH_MAX + 40];
+        snprintf(path, sizeof path, "%s/%s", run_dir, named[i]);
+        if (access(path, R_OK) == 0) snprintf(names[n++], 32, "%s", named[i]);
+    }
+    for (int i = 0; i < ns - 1; i++) snprintf(names[n++], 32, "step-%08ld.ckpt", steps[i]);
+    return n;
+}
+
+/* Validates the sequences of the first split with samples and picks frames. */
+static int pick_frames(gallery *G, char *err, size_t errlen)
+{
+    nj_data_options o;
+    nj_data_options_default(&o);
+    o.k = G->cfg.video ? G->cfg.offsets[0] : 0;
+    o.stereo = G->cfg.stereo;
+    o.dup_threshold = G->cfg.duplicate_threshold;
+    nj_problems pr;
+    nj_problems_init(&pr);
+    int bad = nj_dataset_parse(G->cfg.dataset, &G->ds, &pr);
+    G->ds_open = 1;
+    const nj_split order[3] = {NJ_SPLIT_VAL, NJ_SPLIT_TEST, NJ_SPLIT_TRAIN};
+    int n = 0;
+    nj_sample *all = NULL;
+    for (int k = 0; !bad && k < 3 && n <= 0; k++) {
+        for (int i = 0; i < G->ds.nseq; i++)
+            if (G->ds.seq[i].split == order[k]) bad += nj_sequence_validate(&G->ds.seq[i], &o, &pr);
+        free(all);
+        all = NULL;
+        n = bad ? 0 : nj_dataset_samples(&G->ds, order[k], &o, &all);
+        G->split = order[k];
+    }
+    nj_problems_free(&pr);
+    if (bad || n <= 0) {
+        snprintf(err, errlen, "%.500s: %s", G->cfg.dataset, bad ? "the dataset has problems (see check-data)"
+                                                                 : "no samples in any split");
+        free(all);
+        return -1;
+    }
+    G->nframes = n < MAX_FRAMES ? n : MAX_FRAMES;
+    for (int i = 0; i < G->nframes; i++)
+        G->picked[i] = all[G->nframes == 1 ? 0 : (long)i * (n - 1) / (G->nframes - 1)];
+    free(all);
+    return 0;
+}
+
+static float *copy_plane(const nj_tensor *t, size_t n)
+{
+    float *p = t ? malloc(n * sizeof *p) : NULL;
+    if (p) memcpy(p, t->data, n * sizeof *p);
+    return p;
+}
+
+/* Runs the loss step of checkpoint `file` on batch b into a new shot. */
+static int run_checkpoint(gallery *G, const char *run_dir, const char *file, const nj_batch *b,
+                          char *err, size_t errlen)
+{
+    char path[NJ_PATH_MAX + 40];
+    snprintf(path, sizeof path, "%s/%s", run_dir, file);
+    nj_model m;
+    nj_train_config cfg;
+    nj_train_state st;
+    if (nj_checkpoint_load(path, &m, &cfg, &st, err, errlen)) return -1;
+    for (int i = 0; i < G->nshots; i++)
+        if (G->shots[i].step == st.step) { nj_model_free(&m); return 0; }
+    nj_graph *g = nj_graph_new((size_t)32 << 20);
+    int rc = -1;
+    nj_step_result r;
+    if (g) {
+        nj_graph_set_grad(g, 0);
+        nj_graph_set_training(g, 0);
+        if (nj_train_step(g, &m, &cfg, b, NULL, 0, &r) == 0 && r.disp0 && r.error) rc = 0;
+        else snprintf(err, errlen, "%s: %s", file, nj_graph_error(g) ? nj_graph_error(g) : "no loss outputs");
+    } else {
+        snprintf(err, errlen, "out of memory");
+    }
+    if (rc == 0) {
+        size_t n = (size_t)G->nframes * G->w * G->h;
+        shot *s = &G->shots[G->nshots++];
+        s->step = st.step;
+        snprintf(s->file, sizeof s->file, "%.31s", file);
+        s->disp = copy_plane(r.disp0, n);
+        s->err = copy_plane(r.error, n);
+        s->mask = copy_plane(r.automask, n);
+        if (!s->disp || !s->err) rc = -1, snprintf(err, errlen, "out of memory");
+    }
+    if (g) nj_graph_free(g);
+    nj_model_free(&m);
+    return rc;
+}
+
+static int load_batch_and_run(gallery *G, const char *run_dir, char names[][32], int nc,
+                              char *err, size_t errlen)
+{
+    nj_loader_config lc;
+    nj_loader_config_default(&lc);
+    lc.width = G->w = G->cfg.width;
+    lc.height = G->h = G->cfg.height;
+    lc.batch = G->nframes;
+    lc.seed = 12345;
+    lc.jitter = 0;
+    lc.flip_prob = 0;
+    nj_loader *L = nj_loader_create(&G->ds, G->picked, G->nframes, &lc, err, errlen);
+    if (!L) return -1;
+    const nj_batch *b = nj_loader_next(L, err, errlen);
+    int rc = b ? 0 : -1;
+    size_t n = (size_t)G->nframes * 3 * G->w * G->h;
+    if (b && (G->input = malloc(n * sizeof *G->input))) memcpy(G->input, b->target, n * sizeof *G->input);
+    for (int i = 0; b && i < nc && G->nshots < MAX_SHOWN; i++)
+        if (run_checkpoint(G, run_dir, names[i], b, err, errlen)) { rc = -1; break; }
+    nj_loader_destroy(L);
+    return rc;
+}
+
+static int by_step(const void *a, const void *b)
+{
+    long x = ((const shot *)a)->step, y = ((const shot *)b)->step;
+    return (x > y) - (x < y);
+}
+
+/* The shots in step order. */
+static void choose_shown(gallery *G, int *idx, int *nshown)
+{
+    qsort(G->shots, (size_t)G->nshots, sizeof *G->shots, by_step);
+    *nshown = G->nshots;
+    for (int i = 0; i < G->nshots; i++) idx[i] = i;
+}
+
+/* Float values → interleaved 8-bit RGB through the mothwing map or grey. */
+static unsigned char *to_rgb(const float *v, int w, int h, float lo, float hi, int colour)
+{
+    size_t n = (size_t)w * h;
+    unsigned char *px = malloc(3 * n);
+    if (!px) return NULL;
+    nj_image im = {0, 0, NULL};
+    if (colour && nj_colormap_image(v, w, h, lo, hi, &im)) { free(px); return NULL; }
+    for (size_t i = 0; i < n; i++)
+        for (int c = 0; c < 3; c++) {
+            float t = colour ? im.data[c * n + i] : (hi > lo ? (v[i] - lo) / (hi - lo) : 0.0f);
+            t = isfinite(t) ? (t < 0 ? 0 : t > 1 ? 1 : t) : 0;
+            px[3 * i + c] = (unsigned char)lrintf(t * 255.0f);
+        }
+    nj_image_free(&im);
+    return px;
+}
+
+static void emit_image(FILE *f, const unsigned char *px, int w, int h, const char *cls, const char *caption)
+{
+    fprintf(f, "<figure class=\"%s\"><img width=\"%d\" height=\"%d\" alt=\"", cls, w, h);
+    nj_html_text(f, caption);
+    fputs("\" src=\"", f);
+    if (!px || nj_png_data_uri(f, px, w, h)) fputs("data:,", f);
+    fputs("\"><figcaption>", f);
+    nj_html_text(f, caption);
+    fputs("</figcaption></figure>\n", f);
+}
+
+static void emit_plane(FILE *f, const float *v, int w, int h, float lo, float hi, int colour,
+                       const char *caption)
+{
+    unsigned char *px = to_rgb(v, w, h, lo, hi, colour);
+    emit_image(f, px, w, h, colour ? "disp" : "grey", caption);
+    free(px);
+}
+
+static void disp_range(const float *v, size_t n, float *lo, float *hi)
+{
+    float *tmp = malloc(n * sizeof *tmp);
+    *lo = INFINITY;
+    size_t k = 0;
+    for (size_t i = 0; i < n; i++)
+        if (isfinite(v[i])) { if (tmp) tmp[k++] = v[i]; if (v[i] < *lo) *lo = v[i]; }
+    *hi = tmp && k ? (float)nj_quantile(tmp, k, 0.95) : *lo;
+    free(tmp);
+}
+
+static float error_top(const gallery *G, const int *idx, int nshown, int frame)
+{
+    size_t n = (size_t)G->w * G->h, k = 0;
+    float *tmp = malloc(n * (size_t)nshown * sizeof *tmp);
+    if (!tmp) return 1.0f;
+    for (int j = 0; j < nshown; j++)
+        for (size_t i = 0; i < n; i++) {
+            float e = G->shots[idx[j]].err[frame * n + i];
+            if (isfinite(e)) tmp[k++] = e;
+        }
+    float top = k ? (float)nj_quantile(tmp, k, 0.99) : 1.0f;
+    free(tmp);
+    return top > 0 ? top : 1.0f;
+}
+
+static void emit_frame(FILE *f, const gallery *G, int fr, const int *idx, int nshown)
+{
+    int w = G->w, h = G->h;
+    size_t n = (size_t)w * h;
+    const nj_sequence *s = &G->ds.seq[G->picked[fr].seq];
+    fputs("<div class=\"frame\"><h3>", f);
+    nj_html_text(f, s->name);
+    fputs(" · ", f);
+    nj_html_text(f, s->frames[G->picked[fr].target]);
+    fputs("</h3>\n<div class=\"tiles\">\n", f);
+    unsigned char *px = malloc(3 * n);
+    for (size_t i = 0; px && i < n; i++)
+        for (int c = 0; c < 3; c++)
+            px[3 * i + c] = (unsigned char)lrintf(fminf(fmaxf(G->input[(fr * 3 + c) * n + i], 0), 1) * 255.0f);
+    emit_image(f, px, w, h, "input", "input");
+    fputs("</div>\n", f);
+    free(px);
+    float top = error_top(G, idx, nshown, fr);
+    for (int j = 0; j < nshown; j++) {
+        const shot *sh = &G->shots[idx[j]];
+        char cap[96];
+        float lo, hi;
+        disp_range(sh->disp + fr * n, n, &lo, &hi);
+        fputs("<div class=\"tiles\">\n", f);
+        snprintf(cap, sizeof cap, "step %ld disparity", sh->step);
+        emit_plane(f, sh->disp + fr * n, w, h, lo, hi, 1, cap);
+        if (sh->mask) {
+            snprintf(cap, sizeof cap, "step %ld auto-mask", sh->step);
+            emit_plane(f, sh->mask + fr * n, w, h, 0, 1, 0, cap);
+        }
+        snprintf(cap, sizeof cap, "step %ld photometric error", sh->step);
+        emit_plane(f, sh->err + fr * n, w, h, 0, top, 0, cap);
+        fputs("</div>\n", f);
+    }
+    fputs("</div>\n", f);
+}
+
+static void emit(FILE *f, const gallery *G, const char *problem)
+{
+    fputs("<section id=\"gallery\"><h2>Gallery</h2>\n", f);
+    if (problem) {
+        fputs("<p class=\"note\">No gallery: ", f);
+        nj_html_text(f, problem);
+        fputs("</p></section>\n", f);
+        return;
+    }
+    int idx[MAX_SHOWN], nshown;
+    choose_shown((gallery *)G, idx, &nshown);
+    fprintf(f, "<p class=\"note\">%d %s frame%s at %d checkpoint%s (", G->nframes, nj_split_name(G->split),
+            G->nframes == 1 ? "" : "s", nshown, nshown == 1 ? "" : "s");
+    for (int j = 0; j < nshown; j++)
+        fprintf(f, "%s%s", j ? ", " : "", G->shots[idx[j]].file);
+    fputs("). Disparity: " NJ_COLORMAP_NAME " colour map, dark = far, bright = near, per picture from its "
+          "minimum to its 95th percentile. Auto-mask: white = pixel used by the loss. Photometric error: "
+          "black = 0, white = the frame's 99th percentile over the checkpoints shown.</p>\n", f);
+    for (int fr = 0; fr < G->nframes; fr++) emit_frame(f, G, fr, idx, nshown);
+    fputs("</section>\n", f);
+}
+
+static void release(gallery *G)
+{
+    for (int i = 0; i < G->nshots; i++) {
+        free(G->shots[i].disp);
+        free(G->shots[i].mask);
+        free(G->shots[i].err);
+    }
+    free(G->input);
+    if (G->ds_open) nj_dataset_free(&G->ds);
+}
+
+void nj_report_gallery(FILE *f, const char *run_dir)
+{
+    gallery *G = calloc(1, sizeof *G);
+    char names[MAX_CANDIDATES][32], err[600] = "";
+    int nc = candidates(run_dir, names);
+    int ok = G && nc > 0;
+    if (!G) snprintf(err, sizeof err, "out of memory");
+    else if (nc == 0) snprintf(err, sizeof err, "no checkpoint in the run folder yet");
+    if (ok) {
+        char path[NJ_PATH_MAX + 40];
+        nj_model m;
+        snprintf(path, sizeof path, "%s/%s", run_dir, names[0]);
+        ok = nj_checkpoint_load(path, &m, &G->cfg, NULL, err, sizeof err) == 0;
+        if (ok) nj_model_free(&m);
+    }
+    ok = ok && pick_frames(G, err, sizeof err) == 0;
+    ok = ok && load_batch_and_run(G, run_dir, names, nc, err, sizeof err) == 0 && G->input;
+    if (ok && !G->nshots) ok = 0, snprintf(err, sizeof err, "no checkpoint could be evaluated");
+    emit(f, G, ok ? NULL : err);
+    if (G) release(G);
+    free(G);
+}

@@ -81,10 +81,11 @@ nj_tensor *nj_photometric_error(nj_graph *g, nj_tensor *a, nj_tensor *b, float a
     if (!S) return NULL;
     double t0 = nj_prof_start();
     ssim_planes(g, a, b, S);
-    nj_prof_stop(NJ_PROF_SSIM, t0);
+    nj_prof_stop("ssim", t0);
     combine(a, b, S, alpha, pe->data);
     nj_op *op = nj_graph_record(g, "photometric_error", photometric_backward, pe, in, 2);
     if (op) {
+        op->prof = "ssim";
         op->f[0] = alpha;
         op->aux = S;
     }

@@ -116,10 +116,11 @@ nj_tensor *nj_reproject(nj_graph *g, nj_tensor *depth, nj_tensor *T,
             reproject_row(depth, T->data + 12 * n, cams[n], n, v, xo, xo + plane,
                           ok ? ok->data + n * plane + (size_t)v * W : NULL);
         }
-    nj_prof_stop(NJ_PROF_WARP, t0);
+    nj_prof_stop("warping", t0);
     if (valid) *valid = ok;
     nj_op *op = nj_graph_record(g, "reproject", reproject_backward, out, in, 2);
     if (op) {
+        op->prof = "warping";
         reproj_aux *aux = nj_graph_alloc(g, sizeof *aux);
         nj_camera *c = nj_graph_alloc(g, sizeof *c * (size_t)N);
         if (!aux || !c) return NULL;

@@ -117,7 +117,8 @@ nj_tensor *nj_sample_bilinear(nj_graph *g, nj_tensor *img, nj_tensor *coords)
     if (!out) return NULL;
     double t0 = nj_prof_start();
     sample_forward(img, coords, out);
-    nj_prof_stop(NJ_PROF_WARP, t0);
-    nj_graph_record(g, "sample_bilinear", sample_backward, out, in, 2);
+    nj_prof_stop("warping", t0);
+    nj_op *op = nj_graph_record(g, "sample_bilinear", sample_backward, out, in, 2);
+    if (op) op->prof = "warping";
     return out;
 }

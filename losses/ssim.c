@@ -40,7 +40,8 @@ nj_tensor *nj_ssim(nj_graph *g, nj_tensor *a, nj_tensor *b)
     for (int p = 0; p < planes; p++)
         nj_ssim_plane_forward(a->data + p * ps, b->data + p * ps, a->h, a->w, s->data + p * ps,
                               scratch + sf * (size_t)omp_get_thread_num());
-    nj_prof_stop(NJ_PROF_SSIM, t0);
-    nj_graph_record(g, "ssim", ssim_backward, s, in, 2);
+    nj_prof_stop("ssim", t0);
+    nj_op *op = nj_graph_record(g, "ssim", ssim_backward, s, in, 2);
+    if (op) op->prof = "ssim";
     return s;
 }

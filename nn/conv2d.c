@@ -415,9 +415,10 @@ nj_tensor *nj_conv2d(nj_graph *g, nj_tensor *x, nj_tensor *w, nj_tensor *b,
     if (!y) return NULL;
     double t0 = nj_prof_start();
     if (!conv_forward(g, &G, x, w, b, y)) return NULL;
-    nj_prof_stop(NJ_PROF_CONV_FWD, t0);
+    nj_prof_stop("conv_forward", t0);
     nj_op *op = nj_graph_record(g, "conv2d", conv2d_backward, y, in, 3);
     if (op) {
+        op->prof = "conv_backward";
         op->i[0] = stride;
         op->i[1] = pad;
         op->i[2] = (int)mode;

@@ -253,6 +253,7 @@ nj_op *nj_graph_record(nj_graph *g, const char *name, nj_backward_fn bw,
     memset(op, 0, sizeof *op);
     op->backward = bw;
     op->name = name;
+    op->prof = NULL;
     op->out = out;
     for (int k = 0; k < nin && k < 4; k++) op->in[k] = in[k];
     return op;
@@ -266,10 +267,7 @@ static int replay(nj_graph *g)
         for (int i = 0; i < 4; i++) settle(op->in[i]);
         double t0 = nj_prof_start();
         op->backward(g, op);
-        if (t0 > 0) {
-            int kind = nj_prof_kind_of(op->name);
-            if (kind >= 0) nj_prof_stop((nj_prof_kind)kind, t0);
-        }
+        if (t0 > 0) nj_prof_stop(op->prof, t0);
     }
     settle_all(g);
     return g->failed ? -1 : 0;

@@ -35,6 +35,7 @@ struct nj_op {
     float f[6];
     int i[8];
     void *aux;
+    const char *prof;   /* profile category of the backward (nn/prof.h); NULL: not timed */
 };
 
 nj_graph *nj_graph_new(size_t arena_chunk_bytes);

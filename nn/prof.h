@@ -1,32 +1,33 @@
-/* nn/prof.h — an optional per-op-kind wall-clock profile of a training step.
+/* nn/prof.h — an optional per-category wall-clock profile of a training step.
  *
  * Off by default: nj_prof_start() then returns 0 and nj_prof_stop() does
  * nothing, so instrumented ops pay one branch.  When enabled (./nightjar bench
- * --profile), the instrumented ops (conv forward, the graph's replay of conv
- * backward, reprojection + bilinear sampling, SSIM) add their elapsed time to
- * their kind's total.  Only the main thread's ops count (they parallelise
- * inside), or replica 0's when a step runs as per-thread replicas, so the
- * totals need no locking. */
+ * --profile), an instrumented op adds its elapsed time to a category it names
+ * itself ("conv_forward", "warping", ...): the categories are registered by the
+ * ops on first use, so this file knows no op by name.  An op's backward is
+ * timed by the tape replay (nn/graph.c) under the category the op stored in
+ * its tape entry (nj_op.prof; NULL = not timed).  Only the main thread's ops
+ * count (they parallelise inside), or replica 0's when a step runs as
+ * per-thread replicas, so the totals need no locking. */
 #ifndef NJ_PROF_H
 #define NJ_PROF_H
 
-typedef enum {
-    NJ_PROF_CONV_FWD = 0,
-    NJ_PROF_CONV_BWD,
-    NJ_PROF_WARP,       /* reprojection and bilinear sampling, forward and backward */
-    NJ_PROF_SSIM,       /* SSIM (and the fused photometric error built on it), forward and backward */
-    NJ_PROF_KINDS
-} nj_prof_kind;
+/* At most this many categories; later new names are not timed. */
+#define NJ_PROF_MAX 16
 
 void nj_prof_enable(int on);
-/* Zeroes every total. */
+/* Zeroes every total (the categories stay registered). */
 void nj_prof_reset(void);
 /* A start time (seconds) when profiling, else 0. */
 double nj_prof_start(void);
-/* Adds now − t0 to kind k's total when profiling. */
-void nj_prof_stop(nj_prof_kind k, double t0);
-double nj_prof_seconds(nj_prof_kind k);
-/* The kind an op's backward belongs to, by the name it was recorded with; -1: none. */
-int nj_prof_kind_of(const char *op_name);
+/* Adds now − t0 to the category's total when profiling, registering the
+ * category on its first use.  `category` must outlive the program (a literal). */
+void nj_prof_stop(const char *category, double t0);
+/* The registered categories, in order of first use. */
+int nj_prof_count(void);
+const char *nj_prof_name(int i);
+double nj_prof_seconds(int i);
+/* The total of a category by name; 0 when it never ran. */
+double nj_prof_seconds_of(const char *category);
 
 #endif

@@ -146,16 +146,16 @@ static double sgemm_gflops(void)
 
 static void print_profile(double total, double conv_flops_total)
 {
-    const char *names[NJ_PROF_KINDS] = {"conv_forward", "conv_backward", "warping", "ssim"};
+    /* the categories the ops registered (nn/prof.h), in order of first use */
     double rest = total;
     printf("profile (share of step time):");
-    for (int k = 0; k < NJ_PROF_KINDS; k++) {
-        double s = nj_prof_seconds((nj_prof_kind)k);
+    for (int k = 0; k < nj_prof_count(); k++) {
+        double s = nj_prof_seconds(k);
         rest -= s;
-        printf(" %s=%.1f%%", names[k], 100 * s / total);
+        printf(" %s=%.1f%%", nj_prof_name(k), 100 * s / total);
     }
     printf(" rest=%.1f%%\n", 100 * rest / total);
-    double conv = nj_prof_seconds(NJ_PROF_CONV_FWD) + nj_prof_seconds(NJ_PROF_CONV_BWD);
+    double conv = nj_prof_seconds_of("conv_forward") + nj_prof_seconds_of("conv_backward");
     printf("conv_gflops=%.2f (conv FLOPs over time inside conv forward+backward)\n",
            conv > 0 ? conv_flops_total / conv * 1e-9 : 0.0);
 }

@@ -42,9 +42,7 @@ typedef struct member {
 
 typedef struct replica {
     nj_graph *g;             /* own graph (rank ≥ 1; rank 0 runs in the caller's) */
-    nj_model m;              /* rank ≥ 1: the model with private gradients and BN buffers */
-    nj_param *shadow;        /* rank ≥ 1: the parameter records m's units point to */
-    float *store;            /* their gradient and buffer storage */
+    nj_model_twin tw;        /* rank ≥ 1: the model with private gradients and BN buffers */
     member mem;
     nj_rng rng;
     nj_step_result res;
@@ -180,70 +178,26 @@ static int member_sum(double *buf, int n, void *ctx)
 
 /* ---- setting up --------------------------------------------------------- */
 
-/* The parameter slots of a unit: learned ones first, then the BN buffers. */
-static nj_param **unit_slot(nj_unit *u, int k)
-{
-    nj_param **slots[6] = {&u->w, &u->b, &u->gamma, &u->beta, &u->run_mean, &u->run_var};
-    return slots[k];
-}
-
-static size_t model_floats(nj_model *m)
-{
-    size_t f = 0;
-    for (int i = 0; i < m->nunits; i++)
-        for (int k = 0; k < 6; k++)
-            if (*unit_slot(&m->units[i], k)) f += nj_param_numel(*unit_slot(&m->units[i], k));
-    return f;
-}
-
-/* Replica rank r ≥ 1: m's units pointing to private records — learned
- * parameters share the data and get their own gradient, BN buffers get
- * their own copy (training mode never reads them; each replica updates its
- * own copy with the same synchronised statistics). */
+/* Replica rank r ≥ 1: a twin of m (train/model/model.h) with its own
+ * gradients and BN buffers, and its learned parameters listed in the order
+ * of real[]. */
 static int make_twin(nj_step_replicas *s, nj_model *m, int r)
 {
     replica *p = &s->rep[r];
-    p->m = *m;
-    size_t floats = model_floats(m);
-    p->shadow = calloc((size_t)m->nunits * 6, sizeof *p->shadow);
-    p->store = calloc(floats ? floats : 1, sizeof(float));
     s->twin[r] = calloc((size_t)s->npairs, sizeof *s->twin[r]);
-    if (!p->shadow || !p->store || !s->twin[r]) return -1;
-    float *next = p->store;
-    int pair = 0;
-    for (int i = 0; i < m->nunits; i++)
-        for (int k = 0; k < 6; k++) {
-            nj_param *orig = *unit_slot(&m->units[i], k);
-            if (!orig) continue;
-            nj_param *t = &p->shadow[i * 6 + k];
-            *t = *orig;
-            size_t n = nj_param_numel(orig);
-            if (k < 4) {
-                t->grad = next;
-                s->twin[r][pair++] = t;
-            } else {
-                t->data = next;
-                memcpy(t->data, orig->data, sizeof(float) * n);
-            }
-            next += n;
-            *unit_slot(&p->m.units[i], k) = t;
-        }
-    return 0;
+    if (!s->twin[r] || nj_model_twin_init(&p->tw, m)) return -1;
+    return nj_model_learned(&p->tw.m, s->twin[r], s->npairs) == s->npairs ? 0 : -1;
 }
 
 /* The model's learned parameters in unit order, and the combine blocks. */
 static int list_params(nj_step_replicas *s, nj_model *m)
 {
-    s->real = calloc((size_t)m->nunits * 4 + 1, sizeof *s->real);
+    int n = nj_model_learned(m, NULL, 0);
+    s->real = calloc((size_t)n + 1, sizeof *s->real);
     if (!s->real) return -1;
+    s->npairs = nj_model_learned(m, s->real, n);
     size_t blocks = 0;
-    for (int i = 0; i < m->nunits; i++)
-        for (int k = 0; k < 4; k++) {
-            nj_param *p = *unit_slot(&m->units[i], k);
-            if (!p) continue;
-            s->real[s->npairs++] = p;
-            blocks += (nj_param_numel(p) + BLOCK_FLOATS - 1) / BLOCK_FLOATS;
-        }
+    for (int i = 0; i < s->npairs; i++) blocks += (nj_param_numel(s->real[i]) + BLOCK_FLOATS - 1) / BLOCK_FLOATS;
     if (s->npairs != m->params.count) return -2;
     s->blocks = calloc(blocks + 1, sizeof *s->blocks);
     if (!s->blocks) return -1;
@@ -257,11 +211,8 @@ static int list_params(nj_step_replicas *s, nj_model *m)
 static void unbind(nj_step_replicas *s)
 {
     for (int r = 1; r < s->R; r++) {
-        free(s->rep[r].shadow);
-        free(s->rep[r].store);
+        nj_model_twin_free(&s->rep[r].tw);
         free(s->twin[r]);
-        s->rep[r].shadow = NULL;
-        s->rep[r].store = NULL;
         s->twin[r] = NULL;
     }
     free(s->real);
@@ -275,13 +226,12 @@ static void unbind(nj_step_replicas *s)
 /* 1 when the lists describe model m (a reloaded model has new records). */
 static int bound_to(const nj_step_replicas *s, nj_model *m)
 {
-    int k = 0;
-    for (int i = 0; i < m->nunits; i++)
-        for (int j = 0; j < 4; j++) {
-            nj_param *p = *unit_slot(&m->units[i], j);
-            if (p && (k >= s->npairs || s->real[k++] != p)) return 0;
-        }
-    return k == s->npairs && s->real;
+    if (!s->real || nj_model_learned(m, NULL, 0) != s->npairs) return 0;
+    nj_param *cur[NJ_MAX_UNITS * 4];
+    int n = nj_model_learned(m, cur, NJ_MAX_UNITS * 4);
+    for (int k = 0; k < n; k++)
+        if (s->real[k] != cur[k]) return 0;
+    return 1;
 }
 
 /* (Re)builds the lists, model records and graphs of R replicas of m.  0, or
@@ -394,10 +344,10 @@ static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj
     replica *p = &s->rep[r];
     omp_set_num_threads(inner); /* for this task's ops only (the ICV is per task) */
     nj_graph *g = r ? p->g : g0;
-    nj_model *mr = r ? &p->m : m;
+    nj_model *mr = r ? &p->tw.m : m;
     if (r) {
         nj_graph_reset(g);
-        memcpy(p->m.params.frozen, m->params.frozen, sizeof m->params.frozen);
+        memcpy(p->tw.m.params.frozen, m->params.frozen, sizeof m->params.frozen);
         /* zeroed by the last combine, or at allocation */
         for (int i = 0; s->dirty && i < s->npairs; i++)
             memset(s->twin[r][i]->grad, 0, sizeof(float) * nj_param_numel(s->twin[r][i]));

@@ -80,6 +80,25 @@ int nj_depth_forward(nj_graph *g, nj_model *m, nj_tensor *img, nj_tensor **disp)
 /* Pose net forward on two N×3×H×W frames → N×6×1×1 (first → second camera). */
 nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor *second);
 
+/* m's learned parameters (weights, biases, norm scales and shifts) in unit
+ * order, the order replicas combine gradients in; writes up to cap of them
+ * into out (may be NULL) and returns how many the units hold. */
+int nj_model_learned(nj_model *m, nj_param **out, int cap);
+
+/* A twin of m for a thread replica (train/loop/step_replicas.h): the same
+ * architecture whose learned parameters share m's values but have their own
+ * gradient buffers, and whose batch-norm buffers are private copies (training
+ * mode never reads them; each replica updates its own copy with the same
+ * synchronised statistics).  Owns only `records` and `store`. */
+typedef struct nj_model_twin {
+    nj_model m;
+    nj_param *records;     /* the parameter records the twin's units point to */
+    float *store;          /* their gradients and buffers */
+} nj_model_twin;
+/* 0, or -1 when out of memory (nothing held). */
+int nj_model_twin_init(nj_model_twin *t, nj_model *m);
+void nj_model_twin_free(nj_model_twin *t);
+
 /* Forward multiply-adds ×2 (FLOPs) of the depth net at h×w, and of one pose pair. */
 double nj_depth_flops(const nj_model *m, int h, int w);
 double nj_pose_flops(const nj_model *m, int h, int w);

@@ -78,53 +78,6 @@ void nj_loader_step_samples(uint64_t seed, long step, int batch, int nsamples, i
 
 /* ---- batch buffers ------------------------------------------------------ */
 
-static void batch_free(nj_batch *b, int jitter)
-{
-    free(b->target);
-    free(b->sources);
-    free(b->partner);
-    if (jitter) {
-        free(b->target_in);
-        free(b->sources_in);
-        free(b->partner_in);
-    }
-    free(b->camera);
-    free(b->stereo_tx);
-    free(b->has_partner);
-    free(b->flipped);
-    free(b->sample);
-}
-
-static float *images(int count, size_t n)
-{
-    return malloc((size_t)(count ? count : 1) * n * sizeof(float));
-}
-
-static int batch_alloc(nj_batch *b, const nj_loader_config *c, int nsrc, int stereo)
-{
-    memset(b, 0, sizeof *b);
-    size_t n = (size_t)3 * c->width * c->height;
-    b->n = c->shard_count > 0 ? c->shard_count : c->batch;
-    b->w = c->width;
-    b->h = c->height;
-    b->nsrc = nsrc;
-    b->stereo = stereo;
-    b->target = images(b->n, n);
-    b->sources = images(b->n * nsrc, n);
-    b->partner = stereo ? images(b->n, n) : NULL;
-    b->target_in = c->jitter ? images(b->n, n) : b->target;
-    b->sources_in = c->jitter ? images(b->n * nsrc, n) : b->sources;
-    b->partner_in = stereo ? (c->jitter ? images(b->n, n) : b->partner) : NULL;
-    b->camera = malloc((size_t)b->n * sizeof(nj_camera));
-    b->stereo_tx = malloc((size_t)b->n * sizeof(float));
-    b->has_partner = malloc((size_t)b->n * sizeof(int));
-    b->flipped = malloc((size_t)b->n * sizeof(int));
-    b->sample = malloc((size_t)b->n * sizeof(int));
-    return b->target && b->sources && b->target_in && b->sources_in && (!stereo || (b->partner && b->partner_in)) &&
-                   b->camera && b->stereo_tx && b->has_partner && b->flipped && b->sample
-               ? 0 : -1;
-}
-
 /* ---- workers ------------------------------------------------------------ */
 
 /* The sample indices of this loader's items of step `step` (its shard). */
@@ -199,7 +152,7 @@ static int check_config(const nj_loader_config *c, int nsamples, char *err, size
 
 static void loader_free(nj_loader *L)
 {
-    for (int i = 0; L->slots && i < L->nslots; i++) batch_free(&L->slots[i].b, L->cfg.jitter);
+    for (int i = 0; L->slots && i < L->nslots; i++) nj_batch_free(&L->slots[i].b);
     free(L->slots);
     free(L->samples);
     free(L->threads);
@@ -217,7 +170,9 @@ static int setup(nj_loader *L, const nj_sample *samples, int nsamples)
     if (!L->samples || !L->slots || !L->threads) return -1;
     memcpy(L->samples, samples, (size_t)nsamples * sizeof(nj_sample));
     for (int i = 0; i < L->nslots; i++)
-        if (batch_alloc(&L->slots[i].b, &L->cfg, nsrc, stereo)) return -1;
+        if (nj_batch_alloc(&L->slots[i].b, L->cfg.shard_count > 0 ? L->cfg.shard_count : L->cfg.batch,
+                           L->cfg.height, L->cfg.width, nsrc, stereo, L->cfg.jitter))
+            return -1;
     return 0;
 }
 

@@ -15,6 +15,7 @@
  */
 #ifndef NJ_LOADER_H
 #define NJ_LOADER_H
+#include "data/batch.h"
 #include "data/dataset.h"
 #include <stdint.h>
 
@@ -39,25 +40,7 @@ typedef struct nj_loader_config {
  * 0.2/0.2/0.2/0.05, flip probability 0.5, no shard. */
 void nj_loader_config_default(nj_loader_config *c);
 
-typedef struct nj_batch {
-    long step;
-    int n, w, h;
-    int nsrc;                /* temporal sources per item (0 or 2) */
-    int stereo;              /* partner arrays present (some item has a partner) */
-    /* Clean images, for the loss (planar RGB in [0,1]): */
-    float *target;           /* n×3×h×w */
-    float *sources;          /* n×nsrc×3×h×w: source j of item i at (i·nsrc + j)·3·h·w; j=0 is t−k, j=1 is t+k */
-    float *partner;          /* n×3×h×w, or NULL when !stereo */
-    /* The same images with the item's colour jitter, for the network input
-     * (they alias the clean arrays when jitter is off): */
-    float *target_in, *sources_in, *partner_in;
-    nj_camera *camera;       /* n: intrinsics at w×h (after flip) */
-    float *stereo_tx;        /* n: x of the target→partner transform, for nj_pose_stereo:
-                                −baseline normally, +baseline after a flip; 0 without partner */
-    int *has_partner;        /* n */
-    int *flipped;            /* n */
-    int *sample;             /* n: indices into the loader's sample list */
-} nj_batch;
+/* nj_batch: data/batch.h */
 
 typedef struct nj_loader nj_loader;
 

@@ -17,9 +17,7 @@
 #include "train/loop/step.h"
 
 typedef struct nj_bench_batch {
-    nj_batch b;
-    float *buf;              /* one allocation behind the image arrays */
-    nj_camera *cams;
+    nj_batch b;              /* made by nj_batch_alloc (data/batch.h) */
 } nj_bench_batch;
 
 /* Fills bb with n items at h×w (seeded); 0, or -1 when out of memory. */

@@ -36,16 +36,10 @@ int nj_bench_batch_make(nj_bench_batch *bb, int n, int h, int w, unsigned seed)
 {
     memset(bb, 0, sizeof *bb);
     size_t img = (size_t)3 * h * w;
-    bb->buf = malloc(sizeof(float) * img * 3 * (size_t)n);
-    bb->cams = malloc(sizeof(nj_camera) * (size_t)n);
-    if (!bb->buf || !bb->cams) { nj_bench_batch_free(bb); return -1; }
+    nj_batch *b = &bb->b;
+    if (nj_batch_alloc(b, n, h, w, 2, 0, 0)) return -1;
     nj_rng r;
     nj_rng_seed(&r, seed);
-    nj_batch *b = &bb->b;
-    b->n = n; b->h = h; b->w = w; b->nsrc = 2;
-    b->target = b->target_in = bb->buf;
-    b->sources = b->sources_in = bb->buf + img * n;
-    b->camera = bb->cams;
     for (int i = 0; i < n; i++) {
         wave wv[3 * NWAVES];
         for (int k = 0; k < 3 * NWAVES; k++)
@@ -55,16 +49,14 @@ int nj_bench_batch_make(nj_bench_batch *bb, int n, int h, int w, unsigned seed)
         for (int j = 0; j < 2; j++)
             render(wv, &r, b->sources + ((size_t)i * 2 + j) * img, h, w, j ? 2.0f : -2.0f);
         /* a typical driving-camera field of view at this size */
-        bb->cams[i] = (nj_camera){0.58f * w, 1.92f * h, 0.5f * w, 0.5f * h};
+        b->camera[i] = (nj_camera){0.58f * w, 1.92f * h, 0.5f * w, 0.5f * h};
     }
     return 0;
 }
 
 void nj_bench_batch_free(nj_bench_batch *bb)
 {
-    free(bb->buf);
-    free(bb->cams);
-    memset(bb, 0, sizeof *bb);
+    nj_batch_free(&bb->b);
 }
 
 static double first_unit_flops(const nj_unit *u, int h, int w)

@@ -318,25 +318,6 @@ size_t nj_step_replicas_arena_peak(const nj_step_replicas *s)
 
 /* ---- one step ----------------------------------------------------------- */
 
-/* Items [r·k, (r+1)·k) of b. */
-static void shard(const nj_batch *b, int r, int k, nj_batch *o)
-{
-    size_t i0 = (size_t)r * k, img = (size_t)3 * b->h * b->w;
-    *o = *b;
-    o->n = k;
-    o->target += i0 * img;
-    o->target_in += i0 * img;
-    if (b->sources) o->sources += i0 * (size_t)b->nsrc * img;
-    if (b->sources_in) o->sources_in += i0 * (size_t)b->nsrc * img;
-    if (b->partner) o->partner += i0 * img;
-    if (b->partner_in) o->partner_in += i0 * img;
-    if (b->camera) o->camera += i0;
-    if (b->stereo_tx) o->stereo_tx += i0;
-    if (b->has_partner) o->has_partner += i0;
-    if (b->flipped) o->flipped += i0;
-    if (b->sample) o->sample += i0;
-}
-
 /* Replica r's part of the step, its ops on `inner` threads. */
 static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj_model *m,
                          const nj_train_config *cfg, const nj_batch *b)
@@ -355,7 +336,7 @@ static void replica_step(nj_step_replicas *s, int r, int inner, nj_graph *g0, nj
     nj_replicas rp = {s->h.outer.rank * s->R + r, s->h.outer.count * s->R, member_sum, &p->mem};
     nj_graph_set_replicas(g, &rp);
     nj_batch sb;
-    shard(b, r, b->n / s->R, &sb);
+    nj_batch_view(b, r * (b->n / s->R), b->n / s->R, &sb);
     if (nj_train_step(g, mr, cfg, &sb, &p->rng, 1, &p->res)) hub_abort(&s->h, r);
     nj_graph_set_replicas(g, NULL);
 }

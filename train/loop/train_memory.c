@@ -76,21 +76,12 @@ int nj_trainer_memory_precheck(nj_trainer *t, char *err, size_t errlen)
 /* A blank batch of n items at w×h shaped like the run's training batches. */
 static int probe_batch(const nj_trainer *t, int n, int h, int w, nj_batch *b)
 {
-    memset(b, 0, sizeof *b);
     int nsrc = t->train[0].nsrc, stereo = 0;
     for (int i = 0; i < t->ntrain; i++) stereo |= t->train[i].stereo;
     size_t img = (size_t)3 * h * w;
-    b->n = n; b->w = w; b->h = h; b->nsrc = nsrc; b->stereo = stereo;
-    b->target = b->target_in = malloc(img * n * sizeof(float));
-    b->sources = b->sources_in = malloc(img * n * (nsrc ? nsrc : 1) * sizeof(float));
-    b->partner = b->partner_in = stereo ? malloc(img * n * sizeof(float)) : NULL;
-    b->camera = malloc(n * sizeof *b->camera);
-    b->stereo_tx = malloc(n * sizeof(float));
-    b->has_partner = malloc(n * sizeof(int));
-    if (!b->target || !b->sources || (stereo && !b->partner) || !b->camera || !b->stereo_tx || !b->has_partner)
-        return -1;
+    if (nj_batch_alloc(b, n, h, w, nsrc, stereo, 0)) return -1;
     for (size_t i = 0; i < img * n; i++) b->target[i] = 0.25f + 0.5f * (float)((i * 2654435761u) % 1000) / 1000.0f;
-    for (size_t i = 0; i < img * n * (nsrc ? nsrc : 1); i++) b->sources[i] = b->target[i % (img * n)];
+    for (size_t i = 0; i < img * n * nsrc; i++) b->sources[i] = b->target[i % (img * n)];
     if (stereo) memcpy(b->partner, b->target, img * n * sizeof(float));
     for (int i = 0; i < n; i++) {
         b->camera[i] = (nj_camera){0.6f * w, 0.6f * w, 0.5f * (w - 1), 0.5f * (h - 1)};
@@ -98,12 +89,6 @@ static int probe_batch(const nj_trainer *t, int n, int h, int w, nj_batch *b)
         b->has_partner[i] = stereo;
     }
     return 0;
-}
-
-static void probe_batch_free(nj_batch *b)
-{
-    free(b->target); free(b->sources); free(b->partner);
-    free(b->camera); free(b->stereo_tx); free(b->has_partner);
 }
 
 static char probe_error[256];          /* why the last failed probe step failed */
@@ -135,7 +120,7 @@ static double probe(nj_trainer *t, int n, int h, int w, int train)
             memcpy(bufs->items[i]->data, saved + k, nj_param_numel(bufs->items[i]) * sizeof(float));
         nj_params_zero_grad(&t->model.params);
     }
-    probe_batch_free(&b);
+    nj_batch_free(&b);
     if (g) nj_graph_free(g);
     free(saved);
     return bytes;

@@ -1,0 +1,39 @@
+/* data/batch.h — one step's training batch: images, intrinsics and the
+ * per-item facts the loss needs.  Built only by nj_batch_alloc (the loader's
+ * slots, the trainer's memory probe, the bench's synthetic batch) and
+ * nj_batch_view (a replica's share), so its layout is written down once. */
+#ifndef NJ_BATCH_H
+#define NJ_BATCH_H
+#include "nn/geom/camera.h"
+
+typedef struct nj_batch {
+    long step;
+    int n, w, h;
+    int nsrc;                /* temporal sources per item (0 or 2) */
+    int stereo;              /* partner arrays present (some item has a partner) */
+    /* Clean images, for the loss (planar RGB in [0,1]): */
+    float *target;           /* n×3×h×w */
+    float *sources;          /* n×nsrc×3×h×w: source j of item i at (i·nsrc + j)·3·h·w; j=0 is t−k, j=1 is t+k */
+    float *partner;          /* n×3×h×w, or NULL when !stereo */
+    /* The same images with the item's colour jitter, for the network input
+     * (they alias the clean arrays when jitter is off): */
+    float *target_in, *sources_in, *partner_in;
+    nj_camera *camera;       /* n: intrinsics at w×h (after flip) */
+    float *stereo_tx;        /* n: x of the target→partner transform, for nj_pose_stereo:
+                                −baseline normally, +baseline after a flip; 0 without partner */
+    int *has_partner;        /* n */
+    int *flipped;            /* n */
+    int *sample;             /* n: indices into the loader's sample list */
+} nj_batch;
+
+/* Allocates every array of a batch of n items at w×h with nsrc temporal
+ * sources, partner arrays when `stereo`, and separate network-input copies
+ * when `jitter` (else they alias the clean images).  Everything is zeroed.
+ * 0, or -1 when out of memory (nothing held). */
+int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter);
+/* Frees what nj_batch_alloc allocated; b is zeroed. */
+void nj_batch_free(nj_batch *b);
+/* Items [i0, i0 + k) of b, as a view into b's arrays (nothing copied). */
+void nj_batch_view(const nj_batch *b, int i0, int k, nj_batch *out);
+
+#endif

@@ -1,5 +1,6 @@
 /* data/atomic.c — temp file + fsync + rename (see atomic.h). */
 #include "data/atomic.h"
+#include "nn/testhook.h"
 #include <errno.h>
 #include <fcntl.h>
 #include <stdlib.h>
@@ -57,8 +58,7 @@ static void sync_parent(const char *path)
 
 void nj_atomic_test_pause(FILE *f)
 {
-    const char *s = getenv("NJ_TEST_WRITE_PAUSE_MS");
-    long ms = s ? strtol(s, NULL, 10) : 0;
+    long v[2], ms = nj_test_hook("write_pause_ms", v) == 1 ? v[0] : 0;
     if (ms <= 0) return;
     if (f) fflush(f);
     struct timespec ts = {ms / 1000, (ms % 1000) * 1000000L};

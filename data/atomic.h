@@ -22,7 +22,7 @@ int nj_atomic_open(nj_atomic_file *a, const char *path, char *err, size_t errlen
 int nj_atomic_close(nj_atomic_file *a, int ok, char *err, size_t errlen);
 
 /* Test hook for the kill-at-random test (tests/test_kill_random.c): when the
- * environment variable NJ_TEST_WRITE_PAUSE_MS is a positive number, flushes
+ * hook write_pause_ms=MS (nn/testhook.h) is set to a positive number, flushes
  * `f` and sleeps that long, so a test can kill the process while a partly or
  * completely written temporary file is not yet renamed into place.  Called
  * by nj_atomic_close before fsync and by the checkpoint writer half-way

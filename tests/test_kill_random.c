@@ -8,7 +8,7 @@
  * waits until the run has checkpointed step ≈ i/20 of the budget, then either
  * sleeps a random 0–40 ms or waits (at most 80 ms) until a temporary file
  * appears (a write in progress) and kills a random 0–8 ms later.  The test hook
- * NJ_TEST_WRITE_PAUSE_MS (data/atomic.h) holds every atomic write open for a
+ * NJ_TEST_HOOKS=write_pause_ms=MS (nn/testhook.h) holds every atomic write open for a
  * moment half-way and before its rename, so many kills land inside writes.
  * Checked: at every kill point every *.ckpt in the run folder loads and the
  * JSONL log's complete lines all parse; at the end the weights equal the
@@ -104,7 +104,7 @@ static void kill_loop(const char *ref)
     char out[512], log[600], final[600], err[512];
     snprintf(out, sizeof out, "%s/killed", dir);
     snprintf(log, sizeof log, "%s/killed.txt", dir);
-    setenv("NJ_TEST_WRITE_PAUSE_MS", "12", 1);
+    setenv("NJ_TEST_HOOKS", "write_pause_ms=12", 1);
     srand(SEED);
     printf("# kill seed %u\n", SEED);
     tally t;
@@ -116,7 +116,7 @@ static void kill_loop(const char *ref)
         if (rs_wait(pid) == 128 + SIGKILL) t.kills++;
         inspect(out, &t);
     }
-    unsetenv("NJ_TEST_WRITE_PAUSE_MS");
+    unsetenv("NJ_TEST_HOOKS");
     printf("# %d kills, %d inside a write, %d checkpoint files loaded at kill points\n", t.kills, t.in_write,
            t.ckpt_files);
     int rc = rs_wait(start(out, log));

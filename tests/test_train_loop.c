@@ -2,8 +2,8 @@
  * Auto-masking that starts at loss.automask_from_step: before that step the
  * run is identical to one without auto-masking, from it on it is not.
  * NaN/Inf recovery, driven by the
- * NJ_FAULT_NONFINITE=STEP:COUNT hook (the next COUNT losses from STEP on are
- * NaN):
+ * NJ_TEST_HOOKS=nonfinite=STEP:COUNT hook (nn/testhook.h: the next COUNT losses
+ * from STEP on are NaN):
  *  - one or two bad steps are skipped and logged, training goes on;
  *  - three in a row reload the last good checkpoint with a halved learning
  *    rate, logged, and the run finishes with finite weights;
@@ -68,7 +68,7 @@ static int run_with_fault(const char *name, const char *fault, char *out, size_t
     char cmd[2048], log[700];
     snprintf(out, outlen, "%s/%s", dir, name);
     snprintf(log, sizeof log, "%s.log", out);
-    snprintf(cmd, sizeof cmd, "NJ_FAULT_NONFINITE=%s %s train --config %s --data %s --out %s",
+    snprintf(cmd, sizeof cmd, "NJ_TEST_HOOKS=nonfinite=%s %s train --config %s --data %s --out %s",
              fault, e2e_bin(), cfg, data, out);
     int rc = e2e_run(cmd, log);
     *text = e2e_slurp(log, NULL);

@@ -2,6 +2,7 @@
  * gradient clipping, NaN/Inf handling, logging, validation, checkpoints,
  * budgets and signals. */
 #include "train/loop/trainer.h"
+#include "nn/testhook.h"
 #include "train/report/report.h"
 #include "train/loop/runfiles.h"
 #include "train/loop/step.h"
@@ -66,13 +67,16 @@ static void fix_schedule(nj_trainer *t)
 /* Recoveries (reload + halved LR) allowed in one run before giving up. */
 #define MAX_NAN_RECOVERIES 6
 
-/* Test hook: NJ_FAULT_NONFINITE=STEP:COUNT makes the next COUNT losses from
- * STEP on NaN, so the recovery path below can be exercised end to end. */
+/* Test hook nonfinite=STEP:COUNT (nn/testhook.h): the next COUNT losses from
+ * STEP on are NaN, so the recovery path below can be exercised end to end. */
 static void parse_fault_hook(nj_trainer *t)
 {
-    const char *v = getenv("NJ_FAULT_NONFINITE");
+    long v[2];
     t->fault_left = 0;
-    if (v && sscanf(v, "%ld:%d", &t->fault_step, &t->fault_left) != 2) t->fault_left = 0;
+    if (nj_test_hook("nonfinite", v) == 2 && v[1] > 0 && v[1] < 1000000) {
+        t->fault_step = v[0];
+        t->fault_left = (int)v[1];
+    }
 }
 
 static void inject_fault(nj_trainer *t, nj_step_result *r)

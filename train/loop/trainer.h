@@ -34,7 +34,7 @@ typedef struct nj_trainer {
     double last_ckpt;          /* elapsed seconds at the last checkpoint */
     long last_ckpt_step;
     int bad_steps;             /* consecutive non-finite steps */
-    long fault_step;           /* test hook NJ_FAULT_NONFINITE=STEP:COUNT: from this step on, */
+    long fault_step;           /* test hook nonfinite=STEP:COUNT (nn/testhook.h): from this step on, */
     int fault_left;            /* the next COUNT losses are replaced by NaN */
     float last_val;
     double t10;                /* elapsed seconds at step 10 (schedule estimate) */

@@ -2,9 +2,16 @@
 #include "train/loop/trainer.h"
 #include "train/loop/dist.h"
 #include "train/loop/trainer_dist.h"
+#include "train/report/report.h"
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+
+/* The trainer's report writer (train/loop/trainer.h): the run's own page. */
+static int run_report(const char *run_dir, char *err, size_t errlen)
+{
+    return nj_report_write(run_dir, NULL, err, errlen);
+}
 
 static void usage(FILE *f)
 {
@@ -143,6 +150,7 @@ int nj_train_main(int argc, char **argv)
         return 1;
     }
     print_start(&t);
+    t.write_report = run_report;
     long first = t.st.step;
     int code = nj_trainer_run(&t);
     if (code && t.ranks > 1) nj_trainer_dist_fail(&t, code);

@@ -3,7 +3,6 @@
  * budgets and signals. */
 #include "train/loop/trainer.h"
 #include "nn/testhook.h"
-#include "train/report/report.h"
 #include "train/loop/runfiles.h"
 #include "train/loop/step.h"
 #include "train/loop/trainer_dist.h"
@@ -206,7 +205,8 @@ static int validate(nj_trainer *t)
             return -1;
         }
     }
-    if (nj_report_write(t->dir, NULL, err, sizeof err)) nj_runlog_say(&t->log, "report not written: %s", err);
+    if (t->write_report && t->write_report(t->dir, err, sizeof err))
+        nj_runlog_say(&t->log, "report not written: %s", err);
     return 0;
 }
 
@@ -333,10 +333,10 @@ int nj_trainer_run(nj_trainer *t)
              "\"resumes\":%d,\"nan_recoveries\":%d}", t->st.step, ended, now_elapsed(t),
              t->st.resumes, t->st.nan_recoveries);
     nj_runlog_json(&t->log, line);
-    if (t->rank != 0) {
+    if (t->rank != 0 || !t->write_report) {
     } else if (nj_runlog_error(&t->log)) {
         nj_runlog_say(&t->log, "report not written: the run log is incomplete");
-    } else if (nj_report_write(t->dir, NULL, err, sizeof err)) {
+    } else if (t->write_report(t->dir, err, sizeof err)) {
         nj_runlog_say(&t->log, "report not written: %s", err);
     }
     else nj_runlog_say(&t->log, "report: %s/report.html", t->dir);

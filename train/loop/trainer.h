@@ -42,6 +42,10 @@ typedef struct nj_trainer {
     int rank, ranks;           /* data-parallel processes (trainer_dist.h); 0 of 1 alone */
     float *fused;              /* gradient all-reduce buffer (ranks > 1) */
     struct nj_step_replicas *split; /* the step as per-thread replicas (several threads, one process) */
+    /* Writes the run's report after each validation and at the end; set by
+     * the caller (the train command passes the report module's writer, which
+     * sits above the loop); NULL: no report.  0, or -1 with a message. */
+    int (*write_report)(const char *run_dir, char *err, size_t errlen);
 } nj_trainer;
 
 /* `./nightjar train ...` */

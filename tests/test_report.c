@@ -10,8 +10,16 @@
  *    <svg>, reproduces the log values within the chart's rounding (points
  *    printed with 2 decimals: ±0.005 SVG units), and every numeric tick
  *    label sits where that mapping puts its value (so the drawn axes agree);
- *  - the gallery has input + disparity + auto-mask + error pictures for 3
+ *  - the gallery has input + depth + auto-mask + error pictures for 3
  *    frames at both checkpoints;
+ *  - the gallery's depth colours: one colour bar per frame whose cells are
+ *    the 256 table entries dark → light, whose tick labels sit where the log
+ *    scale stated on its <svg> (data-near/-far, computed here independently)
+ *    puts their depth, with "near = dark" / "far = light" and the unit note
+ *    of a monocular run ("up to scale"); every pixel of every depth picture
+ *    (PNG decoded here) is a table entry or the no-depth colour, and the
+ *    newest checkpoint's picture, to which the frame's scale is fitted, reaches
+ *    both ends of the table (2nd/98th percentiles clamp 2% of pixels each);
  *  - in headless Chromium (Debian package, an independent HTML/SVG/PNG
  *    implementation; networking disabled): every <img> decodes
  *    (naturalWidth > 0), the page does not overflow a 390-px phone width,
@@ -23,6 +31,7 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "train/loop/checkpoint.h"
+#include "train/eval/colormap.h"
 #include "train/report/report.h"
 #include <math.h>
 #include <stb_image.h>
@@ -270,12 +279,140 @@ static void check_static(const char *html)
     check(strstr(html, "<td>0.1235</td><td>0.6543</td><td>0.4322</td>") && strstr(html, "<td>4.2500</td><td>7.5000</td>"),
           "metric table: model, constant and untrained baselines", "metric rows missing");
     /* 3 frames: input + 2 checkpoints × (disparity, auto-mask, error) */
-    int imgs = count_of(html, "<img "), disp = count_of(html, "disparity\" src="),
+    int imgs = count_of(html, "<img "), disp = count_of(html, " depth\" src="),
         mask = count_of(html, "auto-mask\" src="), err = count_of(html, "photometric error\" src=");
     check(imgs == 21 && disp == 6 && mask == 6 && err == 6, "gallery: 3 frames at 2 checkpoints",
-          "%d images (%d disparity, %d auto-mask, %d error), want 21 (6, 6, 6)", imgs, disp, mask, err);
-    check(strstr(html, "step 10 disparity") && strstr(html, "step 22 disparity"), "gallery labels both checkpoints",
+          "%d images (%d depth, %d auto-mask, %d error), want 21 (6, 6, 6)", imgs, disp, mask, err);
+    check(strstr(html, "step 10 depth") && strstr(html, "step 22 depth"), "gallery labels both checkpoints",
           "step labels missing");
+}
+
+/* ---- the gallery's depth colours ---------------------------------------------- */
+
+static int b64_value(char c)
+{
+    static const char A[] = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    const char *p = c ? strchr(A, c) : NULL;
+    return p ? (int)(p - A) : -1;
+}
+
+/* Decodes the PNG data URI starting at `uri` ("data:image/png;base64,...")
+ * into 8-bit RGB (stbi_image_free it).  NULL when it does not decode. */
+static unsigned char *decode_uri(const char *uri, int *w, int *h)
+{
+    const char *p = uri + strlen("data:image/png;base64,");
+    size_t len = strcspn(p, "\""), n = 0;
+    unsigned char *bytes = malloc(len);
+    unsigned v = 0;
+    int bits = 0;
+    for (size_t i = 0; bytes && i < len && p[i] != '='; i++) {
+        int d = b64_value(p[i]);
+        if (d < 0) { free(bytes); return NULL; }
+        v = (v << 6) | (unsigned)d;
+        bits += 6;
+        if (bits >= 8) bytes[n++] = (unsigned char)(v >> (bits -= 8));
+    }
+    int comp;
+    unsigned char *px = bytes ? stbi_load_from_memory(bytes, (int)n, w, h, &comp, 3) : NULL;
+    free(bytes);
+    return px;
+}
+
+/* Index of the table entry with this 8-bit colour, N for the no-depth
+ * colour, -1 for anything else. */
+static int entry_of(const unsigned char *q, unsigned char lut8[NJ_COLORMAP_SIZE + 1][3])
+{
+    for (int k = 0; k <= NJ_COLORMAP_SIZE; k++)
+        if (q[0] == lut8[k][0] && q[1] == lut8[k][1] && q[2] == lut8[k][2]) return k;
+    return -1;
+}
+
+/* Checks every depth picture's pixels; the entry range of the step-22 ones. */
+static void check_depth_pixels(const char *html, unsigned char lut8[NJ_COLORMAP_SIZE + 1][3])
+{
+    int pictures = 0, foreign = 0, ends = 0, newest = 0;
+    for (const char *p = strstr(html, " depth\" src=\""); p; p = strstr(p + 1, " depth\" src=\"")) {
+        const char *alt = p;
+        while (alt > html && strncmp(alt, "alt=\"", 5)) alt--;
+        int w = 0, h = 0, lo = NJ_COLORMAP_SIZE, hi = -1;
+        unsigned char *px = decode_uri(p + strlen(" depth\" src=\""), &w, &h);
+        pictures += px != NULL;
+        for (int i = 0; px && i < w * h; i++) {
+            int k = entry_of(px + 3 * i, lut8);
+            if (k < 0) foreign++;
+            else if (k < NJ_COLORMAP_SIZE) lo = k < lo ? k : lo, hi = k > hi ? k : hi;
+        }
+        if (!strncmp(alt, "alt=\"step 22 depth", 18)) newest++, ends += lo <= 5 && hi >= NJ_COLORMAP_SIZE - 6;
+        stbi_image_free(px);
+    }
+    check(pictures == 6 && foreign == 0, "every pixel of the 6 depth pictures is a " NJ_COLORMAP_NAME
+          " entry or the no-depth colour", "%d pictures decoded, %d pixels of other colours", pictures, foreign);
+    check(newest == 3 && ends == 3, "each frame's newest depth picture reaches both ends of the map (its scale)",
+          "%d of %d newest pictures span entries <= 5 .. >= 250", ends, newest);
+}
+
+/* One colour bar: its cells, and its ticks against the stated log scale. */
+static void check_bar(const char *svg, const char *end, unsigned char lut8[NJ_COLORMAP_SIZE + 1][3], int *cells_ok,
+                      int *nticks, double *worst)
+{
+    double nearv = attr(svg, "data-near"), farv = attr(svg, "data-far"), l = attr(svg, "data-left"),
+           w = attr(svg, "data-width");
+    int cells = 0, order = 1;
+    for (const char *p = strstr(svg, "<rect x=\""); p && p < end; p = strstr(p + 1, "<rect x=\"")) {
+        const char *fill = strstr(p, "fill=\"#");
+        unsigned r, g, b;
+        if (!fill || fill > strchr(p, '>') || sscanf(fill + 7, "%2x%2x%2x", &r, &g, &b) != 3) continue;
+        order &= cells < NJ_COLORMAP_SIZE && r == lut8[cells][0] && g == lut8[cells][1] && b == lut8[cells][2];
+        cells++;
+    }
+    *cells_ok = order && cells == NJ_COLORMAP_SIZE;
+    *nticks = 0;
+    *worst = 0;
+    for (const char *p = strstr(svg, " data-depth=\""); p && p < end; p = strstr(p + 1, " data-depth=\"")) {
+        const char *tag = p;
+        while (strncmp(tag, "<text", 5)) tag--;
+        double d = attr(tag, "data-depth"), x = attr(tag, "x");
+        double t = log(d / nearv) / log(farv / nearv);
+        t = t < 0 ? 0 : t > 1 ? 1 : t;
+        *worst = fmax(*worst, fabs(l + t * w - x));
+        (*nticks)++;
+    }
+    if (!(farv > nearv && nearv > 0)) *worst = INFINITY;
+}
+
+static void check_gallery_colours(const char *html)
+{
+    float lut[NJ_COLORMAP_SIZE][3];
+    unsigned char lut8[NJ_COLORMAP_SIZE + 1][3];
+    nj_colormap_table(lut);
+    for (int k = 0; k < NJ_COLORMAP_SIZE; k++)
+        for (int c = 0; c < 3; c++) lut8[k][c] = (unsigned char)lrintf(lut[k][c] * 255.0f);
+    const float none[3] = {NJ_NO_DEPTH_R, NJ_NO_DEPTH_G, NJ_NO_DEPTH_B};
+    for (int c = 0; c < 3; c++) lut8[NJ_COLORMAP_SIZE][c] = (unsigned char)lrintf(none[c] * 255.0f);
+    int bars = 0, cells_ok = 0, labelled = 0, few = 0;
+    double worst = 0;
+    for (const char *p = strstr(html, "<figure class=\"bar\">"); p; p = strstr(p + 1, "<figure class=\"bar\">")) {
+        const char *svg = strstr(p, "<svg "), *end = svg ? strstr(svg, "</svg>") : NULL;
+        if (!end) break;
+        int ok, n;
+        double wb;
+        check_bar(svg, end, lut8, &ok, &n, &wb);
+        bars++;
+        cells_ok += ok;
+        few += n < 3;
+        worst = fmax(worst, wb);
+        const char *nd = strstr(svg, ">near = dark<"), *fl = strstr(svg, ">far = light<"),
+                   *un = strstr(svg, ">depth (model units, up to scale)<");
+        labelled += nd && nd < end && fl && fl < end && un && un < end;
+    }
+    check(bars == 3 && cells_ok == 3, "a colour bar per frame: 256 cells, the table's entries dark to light",
+          "%d bars, %d with the table's cells in order", bars, cells_ok);
+    check(bars == 3 && few == 0 && worst < 0.01, "colour-bar ticks sit where the stated log depth scale puts them",
+          "%d bars with fewer than 3 ticks, worst offset %.4g SVG units", few, worst);
+    check(labelled == 3 && strstr(html, "near = dark, far = light") && strstr(html, "up to an unknown scale"),
+          "legend: near = dark, far = light; monocular depth stated as up to scale",
+          "%d bars labelled; legend or unit note missing", labelled);
+    check_depth_pixels(html, lut8);
 }
 
 static const char PROBE[] =
@@ -443,6 +580,7 @@ int main(void)
     check(html != NULL, "report.html written", "missing %s", report);
     if (html) {
         check_static(html);
+        check_gallery_colours(html);
         check_tidy(report);
         check_charts(html, &v);
         check_browser(root, report);

@@ -4,7 +4,7 @@
 Usage: /usr/bin/python3 tests/ref/colormap_ref.py DIR
 
 Reads (written by tests/test_colormap.c):
-  DIR/table.npy  (256, 3) the "mothwing" table, gamma-encoded sRGB in [0, 1]
+  DIR/table.npy  (256, 3) the "bracken" table, gamma-encoded sRGB in [0, 1]
   DIR/rgb.npy    (N, 3) sample sRGB colours
   DIR/lab.npy    (N, 3) nightjar's OKLab of those colours
 Writes DIR/ref.npy (float64):

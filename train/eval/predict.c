@@ -2,7 +2,8 @@
  * frames.  For each input NAME.ext writes into the output folder
  *   NAME.depth.npy     float32 H×W depth in metres (model units when only up to scale)
  *   NAME.depth16.png   16-bit depth in millimetres (saturating at 65535)
- *   NAME.preview.png   disparity coloured with the "mothwing" map (colormap.h)
+ *   NAME.preview.png   depth in the "bracken" colour map, log depth between the
+ *                      frame's 2nd and 98th percentiles, near = dark (colormap.h)
  *   NAME.points.ply    with --ply: coloured binary point cloud (pointcloud.h)
  * all at the input's size, all written atomically. */
 #include "data/dataset.h"
@@ -23,7 +24,6 @@
 #include <sys/stat.h>
 
 #define DEFAULT_FOCAL 0.8f           /* assumed fx = fy = 0.8·W without --camera */
-#define PREVIEW_PERCENTILE 0.95      /* disparity mapped to the brightest colour */
 
 typedef struct predict_args {
     const char *model, *input, *out;
@@ -50,7 +50,9 @@ static void usage(FILE *f)
         "  For each frame NAME.ext (PNG or JPEG; a folder means all its frames) writes into DIR:\n"
         "    NAME.depth.npy    float32 HxW depth in metres, at the input's size\n"
         "    NAME.depth16.png  16-bit depth in millimetres (0 = no depth, saturates at 65.535 m)\n"
-        "    NAME.preview.png  disparity in the mothwing colour map (near = bright)\n"
+        "    NAME.preview.png  depth picture in the " NJ_COLORMAP_NAME " colour map: near = dark, far = light;\n"
+        "                      log depth from the frame's 2nd (darkest) to its 98th percentile\n"
+        "                      (lightest), printed per frame; slate blue = no depth\n"
         "    NAME.points.ply   with --ply: coloured point cloud (binary PLY, camera frame)\n"
         "  --camera fx,fy,cx,cy  intrinsics in pixels at the input's size, for the point cloud\n"
         "                        and the ground plane (default: fx = fy = 0.8*W, centred)\n"
@@ -251,34 +253,18 @@ static int write_depth16(const char *path, const float *depth, int w, int h, cha
     return rc;
 }
 
-/* Disparity (1/depth) picture: minimum → darkest, 95th percentile → brightest. */
-static int write_preview(const char *path, const float *depth, int w, int h, char *err, size_t errlen)
+/* The depth picture (colormap.h: the same scaling as the report's gallery);
+ * its scale goes to *scale so that the run can print what the colours mean. */
+static int write_preview(const char *path, const float *depth, int w, int h, nj_depth_scale *scale, char *err,
+                         size_t errlen)
 {
-    size_t n = (size_t)w * h;
-    float *disp = malloc(n * sizeof *disp), *tmp = malloc(n * sizeof *tmp);
     nj_image im = {0, 0, NULL};
     int rc = -1;
-    if (!disp || !tmp) goto oom;
-    size_t k = 0;
-    float lo = INFINITY;
-    for (size_t i = 0; i < n; i++) {
-        disp[i] = depth[i] > 0 && isfinite(depth[i]) ? 1.0f / depth[i] : NAN;
-        if (isfinite(disp[i])) {
-            tmp[k++] = disp[i];
-            if (disp[i] < lo) lo = disp[i];
-        }
-    }
-    float hi = lo;
-    if (k) hi = (float)nj_quantile(tmp, k, PREVIEW_PERCENTILE);
-    if (nj_colormap_image(disp, w, h, lo, hi, &im)) goto oom;
-    rc = nj_png_write_rgb(path, &im, err, errlen);
-    goto done;
-oom:
-    snprintf(err, errlen, "out of memory for %.900s", path);
-done:
+    if (nj_depth_scale_fit(depth, (size_t)w * h, scale) < 0 || nj_depth_image(depth, w, h, *scale, &im))
+        snprintf(err, errlen, "out of memory for %.900s", path);
+    else
+        rc = nj_png_write_rgb(path, &im, err, errlen);
     nj_image_free(&im);
-    free(disp);
-    free(tmp);
     return rc;
 }
 
@@ -316,7 +302,7 @@ static int apply_camera_height(predictor *p, const char *stem, float *depth, int
 }
 
 static int write_outputs(predictor *p, const char *stem, const float *depth, const nj_image *im,
-                         nj_camera cam, char *err, size_t errlen)
+                         nj_camera cam, nj_depth_scale *scale, char *err, size_t errlen)
 {
     char path[4096];
     int shape[2] = {im->h, im->w};
@@ -325,7 +311,7 @@ static int write_outputs(predictor *p, const char *stem, const float *depth, con
     snprintf(path, sizeof path, "%s/%s.depth16.png", p->a.out, stem);
     if (write_depth16(path, depth, im->w, im->h, err, errlen)) return -1;
     snprintf(path, sizeof path, "%s/%s.preview.png", p->a.out, stem);
-    if (write_preview(path, depth, im->w, im->h, err, errlen)) return -1;
+    if (write_preview(path, depth, im->w, im->h, scale, err, errlen)) return -1;
     if (!p->a.ply) return 0;
     snprintf(path, sizeof path, "%s/%s.points.ply", p->a.out, stem);
     return nj_ply_write(path, depth, im, cam, NULL, err, errlen);
@@ -347,11 +333,13 @@ static int predict_frame(predictor *p, const char *input, char *err, size_t errl
     if (nj_infer_depth(&p->inf, &im, im.w, im.h, depth, NULL, err, errlen)) goto done;
     nj_camera cam = camera_for(p, im.w, im.h);
     if (p->a.camera_height > 0) apply_camera_height(p, stem, depth, im.w, im.h, cam);
-    if (write_outputs(p, stem, depth, &im, cam, err, errlen)) goto done;
+    nj_depth_scale scale;
+    if (write_outputs(p, stem, depth, &im, cam, &scale, err, errlen)) goto done;
     float *tmp = malloc((size_t)im.w * im.h * sizeof *tmp);
     if (tmp) {
         memcpy(tmp, depth, (size_t)im.w * im.h * sizeof *tmp);
-        printf("  %s: %dx%d, median depth %.3f\n", stem, im.w, im.h, nj_median(tmp, (size_t)im.w * im.h));
+        printf("  %s: %dx%d, median depth %.3f, preview dark %.3g .. light %.3g\n", stem, im.w, im.h,
+               nj_median(tmp, (size_t)im.w * im.h), scale.near, scale.far);
         free(tmp);
     }
     rc = 0;

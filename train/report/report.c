@@ -34,6 +34,8 @@ static const char CSS[] =
     ".tiles{display:grid;grid-template-columns:repeat(3,minmax(0,1fr));gap:8px;max-width:900px;margin-bottom:6px}"
     ".tiles figure{margin:0}.tiles img{width:100%;height:auto;image-rendering:pixelated;display:block}"
     ".tiles figcaption{font-size:.85em;color:#555}"
+    /* the gallery's frame <div> is class "frame" too: keep its stroke off the colour bar's cells */
+    ".bar svg{stroke:none}"
     ".note{color:#555}.scroll{overflow-x:auto}"
     "table{border-collapse:collapse;margin:.5em 0}th,td{padding:3px 10px;border-bottom:1px solid #e1e3ea;"
     "text-align:right}th:first-child{text-align:left}caption{text-align:left;font-weight:600}"

@@ -3,8 +3,9 @@
  * references) summarising a run directory: header (run, data, config,
  * hardware, wall time, how it ended), loss / learning-rate / validation
  * charts from RUN_DIR/log.jsonl, a gallery of fixed validation frames at up
- * to three checkpoints (input, disparity in the "mothwing" map, auto-mask,
- * photometric error) and the metric table of `nightjar eval` when present. */
+ * to three checkpoints (input with a depth colour bar, depth in the "bracken"
+ * map scaled as `predict` scales it with near = dark, auto-mask, photometric
+ * error) and the metric table of `nightjar eval` when present. */
 #ifndef NJ_REPORT_H
 #define NJ_REPORT_H
 #include <stddef.h>

@@ -4,15 +4,24 @@
  * gradients (train/loop/step.h) at up to three checkpoints of the run (the oldest
  * numbered, final, best, then newer numbered ones; distinct steps, shown
  * in step order).
- * Shown per frame: the input; per checkpoint the scale-0 disparity in the
- * "mothwing" map (minimum → 95th percentile, as `predict`), the auto-mask
- * (white = pixel used) and the minimum photometric error (grey, black 0 →
- * white at the frame's 99th percentile over all shown checkpoints). */
+ * Shown per frame: the input and a colour bar; per checkpoint the scale-0
+ * depth (the network's disparity through the configured depth range) in the
+ * "bracken" map with the scaling of `predict` (colormap.h: log depth, near =
+ * dark), the auto-mask (white = pixel used) and the minimum photometric error
+ * (grey, black 0 → white at the frame's 99th percentile over all shown
+ * checkpoints).
+ * One depth scale per frame, fitted to the newest checkpoint shown and shared
+ * by the frame's earlier ones: a reader compares checkpoints by colour, and
+ * one bar reads them all.  Fitted to the newest (not to all pooled) because an
+ * early checkpoint's near-constant output would otherwise take a share of the
+ * percentiles and squeeze the trained picture into a few colours; values of
+ * earlier checkpoints beyond the ends take the end colours. */
 #include "train/report/report_parts.h"
 #include "train/eval/colormap.h"
 #include "train/measure/metrics.h"
 #include "train/loop/runfiles.h"
 #include "train/loop/step.h"
+#include "losses/depth.h"
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -177,20 +186,32 @@ static void choose_shown(gallery *G, int *idx, int *nshown)
     for (int i = 0; i < G->nshots; i++) idx[i] = i;
 }
 
-/* Float values → interleaved 8-bit RGB through the mothwing map or grey. */
-static unsigned char *to_rgb(const float *v, int w, int h, float lo, float hi, int colour)
+/* Float values → interleaved 8-bit RGB: grey from lo (black) to hi (white). */
+static unsigned char *grey_rgb(const float *v, int w, int h, float lo, float hi)
 {
     size_t n = (size_t)w * h;
     unsigned char *px = malloc(3 * n);
     if (!px) return NULL;
+    for (size_t i = 0; i < n; i++) {
+        float t = hi > lo ? (v[i] - lo) / (hi - lo) : 0.0f;
+        t = isfinite(t) ? (t < 0 ? 0 : t > 1 ? 1 : t) : 0;
+        for (int c = 0; c < 3; c++) px[3 * i + c] = (unsigned char)lrintf(t * 255.0f);
+    }
+    return px;
+}
+
+/* Depths → interleaved 8-bit RGB through the colour map and `scale`. */
+static unsigned char *depth_rgb(const float *depth, int w, int h, nj_depth_scale scale)
+{
+    size_t n = (size_t)w * h;
     nj_image im = {0, 0, NULL};
-    if (colour && nj_colormap_image(v, w, h, lo, hi, &im)) { free(px); return NULL; }
+    unsigned char *px = malloc(3 * n);
+    if (!px || nj_depth_image(depth, w, h, scale, &im)) {
+        free(px);
+        return NULL;
+    }
     for (size_t i = 0; i < n; i++)
-        for (int c = 0; c < 3; c++) {
-            float t = colour ? im.data[c * n + i] : (hi > lo ? (v[i] - lo) / (hi - lo) : 0.0f);
-            t = isfinite(t) ? (t < 0 ? 0 : t > 1 ? 1 : t) : 0;
-            px[3 * i + c] = (unsigned char)lrintf(t * 255.0f);
-        }
+        for (int c = 0; c < 3; c++) px[3 * i + c] = (unsigned char)lrintf(im.data[c * n + i] * 255.0f);
     nj_image_free(&im);
     return px;
 }
@@ -206,23 +227,28 @@ static void emit_image(FILE *f, const unsigned char *px, int w, int h, const cha
     fputs("</figcaption></figure>\n", f);
 }
 
-static void emit_plane(FILE *f, const float *v, int w, int h, float lo, float hi, int colour,
-                       const char *caption)
+static void emit_grey(FILE *f, const float *v, int w, int h, float lo, float hi, const char *caption)
 {
-    unsigned char *px = to_rgb(v, w, h, lo, hi, colour);
-    emit_image(f, px, w, h, colour ? "disp" : "grey", caption);
+    unsigned char *px = grey_rgb(v, w, h, lo, hi);
+    emit_image(f, px, w, h, "grey", caption);
     free(px);
 }
 
-static void disp_range(const float *v, size_t n, float *lo, float *hi)
+/* Depth of frame fr at shot sh (malloc'd; NULL when out of memory): the
+ * network's disparity read through the run's depth range, as inference does. */
+static float *shot_depth(const gallery *G, const shot *sh, int fr)
 {
-    float *tmp = malloc(n * sizeof *tmp);
-    *lo = INFINITY;
-    size_t k = 0;
-    for (size_t i = 0; i < n; i++)
-        if (isfinite(v[i])) { if (tmp) tmp[k++] = v[i]; if (v[i] < *lo) *lo = v[i]; }
-    *hi = tmp && k ? (float)nj_quantile(tmp, k, 0.95) : *lo;
-    free(tmp);
+    size_t n = (size_t)G->w * G->h;
+    float *d = malloc(n * sizeof *d);
+    for (size_t i = 0; d && i < n; i++)
+        d[i] = nj_disp_to_depth_value(sh->disp[fr * n + i], G->cfg.loss.min_depth, G->cfg.loss.max_depth);
+    return d;
+}
+
+/* The depth units: metres only for a model trained on stereo pairs alone. */
+static const char *depth_units(const gallery *G)
+{
+    return G->cfg.stereo && !G->cfg.video ? "depth (m)" : "depth (model units, up to scale)";
 }
 
 static float error_top(const gallery *G, const int *idx, int nshown, int frame)
@@ -255,23 +281,32 @@ static void emit_frame(FILE *f, const gallery *G, int fr, const int *idx, int ns
         for (int c = 0; c < 3; c++)
             px[3 * i + c] = (unsigned char)lrintf(fminf(fmaxf(G->input[(fr * 3 + c) * n + i], 0), 1) * 255.0f);
     emit_image(f, px, w, h, "input", "input");
-    fputs("</div>\n", f);
     free(px);
+    nj_depth_scale scale = {1.0f, 1.0f};
+    float *newest = shot_depth(G, &G->shots[idx[nshown - 1]], fr);
+    if (newest) nj_depth_scale_fit(newest, n, &scale);
+    free(newest);
+    char cap[160];
+    snprintf(cap, sizeof cap, "colour bar: step %ld, shared by this frame's depth pictures",
+             G->shots[idx[nshown - 1]].step);
+    nj_svg_depth_bar(f, scale, depth_units(G), cap);
+    fputs("</div>\n", f);
     float top = error_top(G, idx, nshown, fr);
     for (int j = 0; j < nshown; j++) {
         const shot *sh = &G->shots[idx[j]];
-        char cap[96];
-        float lo, hi;
-        disp_range(sh->disp + fr * n, n, &lo, &hi);
         fputs("<div class=\"tiles\">\n", f);
-        snprintf(cap, sizeof cap, "step %ld disparity", sh->step);
-        emit_plane(f, sh->disp + fr * n, w, h, lo, hi, 1, cap);
+        snprintf(cap, sizeof cap, "step %ld depth", sh->step);
+        float *depth = shot_depth(G, sh, fr);
+        unsigned char *dpx = depth ? depth_rgb(depth, w, h, scale) : NULL;
+        emit_image(f, dpx, w, h, "depth", cap);
+        free(dpx);
+        free(depth);
         if (sh->mask) {
             snprintf(cap, sizeof cap, "step %ld auto-mask", sh->step);
-            emit_plane(f, sh->mask + fr * n, w, h, 0, 1, 0, cap);
+            emit_grey(f, sh->mask + fr * n, w, h, 0, 1, cap);
         }
         snprintf(cap, sizeof cap, "step %ld photometric error", sh->step);
-        emit_plane(f, sh->err + fr * n, w, h, 0, top, 0, cap);
+        emit_grey(f, sh->err + fr * n, w, h, 0, top, cap);
         fputs("</div>\n", f);
     }
     fputs("</div>\n", f);
@@ -292,9 +327,16 @@ static void emit(FILE *f, const gallery *G, const char *problem)
             G->nframes == 1 ? "" : "s", nshown, nshown == 1 ? "" : "s");
     for (int j = 0; j < nshown; j++)
         fprintf(f, "%s%s", j ? ", " : "", G->shots[idx[j]].file);
-    fputs("). Disparity: " NJ_COLORMAP_NAME " colour map, dark = far, bright = near, per picture from its "
-          "minimum to its 95th percentile. Auto-mask: white = pixel used by the loss. Photometric error: "
-          "black = 0, white = the frame's 99th percentile over the checkpoints shown.</p>\n", f);
+    fprintf(f, "). Depth: " NJ_COLORMAP_NAME " colour map, <strong>near = dark, far = light</strong>, log depth "
+               "from the 2nd percentile (darkest) to the 98th (lightest) of the newest checkpoint's depth; "
+               "that one scale is shared by the frame's earlier checkpoints (beyond its ends they take the end "
+               "colours) and read back by the colour bar beside the input; slate blue = no depth. %s "
+               "Auto-mask: white = pixel used by the loss. Photometric error: black = 0, white = the frame's "
+               "99th percentile over the checkpoints shown.</p>\n",
+            G->cfg.stereo && !G->cfg.video
+                ? "Depth in metres (trained on stereo pairs with a known baseline)."
+                : "Monocular training: depth in the model's own units, right only up to an unknown scale "
+                  "(not metres, not median-scaled).");
     for (int fr = 0; fr < G->nframes; fr++) emit_frame(f, G, fr, idx, nshown);
     fputs("</section>\n", f);
 }

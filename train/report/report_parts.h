@@ -3,6 +3,7 @@
 #ifndef NJ_REPORT_PARTS_H
 #define NJ_REPORT_PARTS_H
 #include "train/loop/checkpoint.h"
+#include "train/eval/colormap.h"
 #include <stdio.h>
 
 /* The records of log.jsonl that the report shows. */
@@ -50,6 +51,15 @@ typedef struct nj_series {
  * with two decimals. */
 void nj_svg_chart(FILE *f, const char *title, const char *xlabel, const char *ylabel,
                   const nj_series *s, int ns);
+
+/* Writes <figure class="bar"> with an SVG colour bar of the depth colour map
+ * under `scale` (colormap.h): near (dark) at the left, far (light) at the
+ * right, the table's entries as equal-width cells, ticks at round depths
+ * (1-2-5 or 1..9 × 10^k on the log axis, else linear steps for a narrow range)
+ * labelled with their value and the axis title `units`, and `caption`.  The
+ * mapping is stated on the <svg> (data-near, data-far, data-left, data-width)
+ * and each tick label carries its depth (data-depth) so it can be read back. */
+void nj_svg_depth_bar(FILE *f, nj_depth_scale scale, const char *units, const char *caption);
 
 /* Writes "data:image/png;base64,..." of an 8-bit RGB w×h image (interleaved)
  * to f.  Returns 0, or -1 when encoding fails. */

@@ -133,3 +133,99 @@ void nj_svg_chart(FILE *f, const char *title, const char *xlabel, const char *yl
     legend(f, s, ns);
     fputs("</svg></figure>\n", f);
 }
+
+/* ---- depth colour bar ------------------------------------------------------------ */
+
+#define BAR_W 300
+#define BAR_H 76
+#define BAR_L 12.0
+#define BAR_T 4.0
+#define BAR_PW 276.0
+#define BAR_PH 18.0
+#define MAX_TICKS 12
+
+#define MIN_GAP 24.0             /* SVG units between neighbouring tick labels */
+
+static double bar_x(nj_depth_scale s, double depth)
+{
+    return BAR_L + nj_depth_scale_pos(s, (float)depth) * BAR_PW;
+}
+
+/* Ticks of mantissa set k (1; 1-2-5; 1..9 × 10^k) inside [near, far]; the
+ * smallest gap between neighbours goes to *gap. */
+static int set_ticks(nj_depth_scale s, int k, double *t, double *gap)
+{
+    static const int sets[3][9] = {{1}, {1, 2, 5}, {1, 2, 3, 4, 5, 6, 7, 8, 9}};
+    static const int sizes[3] = {1, 3, 9};
+    int n = 0;
+    *gap = INFINITY;
+    for (int e = (int)floor(log10(s.near)) - 1; e <= (int)ceil(log10(s.far)); e++)
+        for (int m = 0; m < sizes[k] && n < MAX_TICKS; m++) {
+            double v = sets[k][m] * pow(10.0, e);
+            if (v < s.near * (1 - 1e-6) || v > s.far * (1 + 1e-6)) continue;
+            if (n) *gap = fmin(*gap, bar_x(s, v) - bar_x(s, t[n - 1]));
+            t[n++] = v;
+        }
+    return n;
+}
+
+/* Round depths inside [near, far] whose labels do not crowd: the coarsest
+ * set on the log axis with three or more ticks, else the fullest with two,
+ * else linear nice steps (a range narrower than a factor of about 2). */
+static int bar_ticks(nj_depth_scale s, double *t)
+{
+    if (!(s.far > s.near) || !(s.near > 0)) { t[0] = s.near; return 1; }
+    int best = -1, nbest = 1;
+    for (int k = 0; k < 3; k++) {
+        double gap, tmp[MAX_TICKS];
+        int n = set_ticks(s, k, tmp, &gap);
+        if (n < 2 || gap < MIN_GAP || n <= nbest) continue;
+        best = k;
+        nbest = n;
+        if (n >= 3) break;
+    }
+    double gap;
+    if (best >= 0) return set_ticks(s, best, t, &gap);
+    double step = nice_step((s.far - s.near) / 4);
+    int n = 0;
+    for (double v = ceil(s.near / step) * step; v <= s.far * (1 + 1e-6) && n < MAX_TICKS; v += step) t[n++] = v;
+    return n;
+}
+
+void nj_svg_depth_bar(FILE *f, nj_depth_scale scale, const char *units, const char *caption)
+{
+    float lut[NJ_COLORMAP_SIZE][3];
+    nj_colormap_table(lut);
+    fputs("<figure class=\"bar\"><svg viewBox=\"0 0 " , f);
+    fprintf(f, "%d %d\" role=\"img\" aria-label=\"", BAR_W, BAR_H);
+    nj_html_text(f, caption);
+    fprintf(f, "\" data-near=\"%.9g\" data-far=\"%.9g\" data-left=\"%g\" data-width=\"%g\">\n", scale.near,
+            scale.far, BAR_L, BAR_PW);
+    double cw = BAR_PW / NJ_COLORMAP_SIZE;
+    /* crisp edges and a small overlap: anti-aliased cell edges would show as stripes */
+    fputs("<g shape-rendering=\"crispEdges\">", f);
+    for (int i = 0; i < NJ_COLORMAP_SIZE; i++)
+        fprintf(f, "<rect x=\"%.3f\" y=\"%g\" width=\"%.3f\" height=\"%g\" fill=\"#%02x%02x%02x\"/>", BAR_L + i * cw,
+                BAR_T, cw + 0.3, BAR_PH, (unsigned)lrintf(lut[i][0] * 255), (unsigned)lrintf(lut[i][1] * 255),
+                (unsigned)lrintf(lut[i][2] * 255));
+    fprintf(f, "</g>\n<rect class=\"frame\" x=\"%g\" y=\"%g\" width=\"%g\" height=\"%g\"/>\n", BAR_L, BAR_T, BAR_PW,
+            BAR_PH);
+    double t[MAX_TICKS];
+    int n = bar_ticks(scale, t);
+    for (int i = 0; i < n; i++) {
+        double x = bar_x(scale, t[i]);
+        fprintf(f, "<line class=\"frame\" x1=\"%.2f\" y1=\"%g\" x2=\"%.2f\" y2=\"%g\"/>", x, BAR_T + BAR_PH, x,
+                BAR_T + BAR_PH + 5);
+        fprintf(f, "<text x=\"%.2f\" y=\"%g\" text-anchor=\"middle\" data-depth=\"%.9g\">%.3g</text>\n", x,
+                BAR_T + BAR_PH + 17, t[i], t[i]);
+    }
+    fprintf(f, "<text class=\"axis\" x=\"%g\" y=\"%d\" text-anchor=\"start\">near = dark</text>"
+               "<text class=\"axis\" x=\"%g\" y=\"%d\" text-anchor=\"end\">far = light</text>\n",
+            BAR_L, BAR_H - 20, BAR_L + BAR_PW, BAR_H - 20);
+    fprintf(f, "<text class=\"axis\" x=\"%g\" y=\"%d\" text-anchor=\"middle\">", BAR_L + BAR_PW / 2, BAR_H - 4);
+    nj_html_text(f, units);
+    fputs("</text>\n", f);
+    fputs("</svg><figcaption>", f);
+    nj_html_text(f, caption);
+    fputs("</figcaption></figure>\n", f);
+}

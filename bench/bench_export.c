@@ -138,12 +138,12 @@ static int bench_kind(const char *weights, const char *flags, double flops)
     return 0;
 }
 
-static void bench_infer(nj_model *m, const nj_train_config *cfg, const nj_image *im, double flops)
+static void bench_infer(nj_model *m, const nj_image *im, double flops)
 {
     nj_infer inf;
     char err[512];
     float *depth = malloc(sizeof(float) * BW * BH);
-    if (!depth || nj_infer_init(&inf, m, BW, BH, cfg->loss.min_depth, cfg->loss.max_depth, err, sizeof err)) {
+    if (!depth || nj_infer_init(&inf, m, BW, BH, err, sizeof err)) {
         free(depth);
         return;
     }
@@ -181,7 +181,7 @@ int main(void)
                     fprintf(stderr, "bench_export: export, compile or run failed\n");
                     rc = 1;
                 }
-        bench_infer(&m, &cfg, &im, flops);
+        bench_infer(&m, &im, flops);
         nj_model_free(&m);
     }
     nj_image_free(&im);

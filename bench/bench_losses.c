@@ -31,7 +31,8 @@ static double time_loss(nj_graph *g, nj_rng *r, float *imgs)
     nj_camera cams[N];
     for (int i = 0; i < N; i++) cams[i] = (nj_camera){0.58f * W, 1.92f * H, W / 2.0f, H / 2.0f};
     nj_vs_input in = {.target = nj_tensor_wrap(g, N, 3, H, W, imgs, NULL), .nsources = 2,
-                      .cams = cams, .nscales = 4, .rng = r};
+                      .cams = cams, .nscales = 4, .depth_range = {NJ_MODEL_DEPTH_NEAR, NJ_MODEL_DEPTH_FAR},
+                      .rng = r};
     for (int s = 0; s < 2; s++) {
         in.sources[s] = nj_tensor_wrap(g, N, 3, H, W, imgs + (s + 1) * isz, NULL);
         nj_tensor *v = nj_tensor_new(g, N, 6, 1, 1, 1);

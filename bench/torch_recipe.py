@@ -45,7 +45,7 @@ import torch.nn.functional as F
 
 WIDTHS = [16, 32, 64, 128, 256]
 POSE_K = [7, 5, 3, 3, 3]
-MIN_DEPTH, MAX_DEPTH = 0.1, 100.0
+DEPTH_NEAR, DEPTH_FAR = 0.1, 100.0    # model.depth_range of nightjar's default config
 ALPHA, SMOOTH, PENALTY, MIN_Z, TIE = 0.85, 1e-3, 1e3, 1e-3, 1e-5
 
 
@@ -227,7 +227,7 @@ def recipe_loss(depth_net, pose_net, target, sources, cams, tie_break):
         pyramid = [target]
         for s in range(1, 4):
             pyramid.append(F.interpolate(pyramid[-1], size=(H >> s, W >> s), mode="bilinear", align_corners=False))
-    lo, hi = 1 / MAX_DEPTH, 1 / MIN_DEPTH
+    lo, hi = 1 / DEPTH_FAR, 1 / DEPTH_NEAR
     total = 0
     for s in range(4):
         up = disp[s] if s == 0 else F.interpolate(disp[s], size=(H, W), mode="bilinear", align_corners=False)

@@ -16,8 +16,6 @@ void nj_vs_config_default(nj_vs_config *cfg)
 {
     cfg->alpha = 0.85f;
     cfg->smooth_weight = 1e-3f;
-    cfg->min_depth = 0.1f;
-    cfg->max_depth = 100.0f;
     cfg->automask = 1;
     cfg->tie_break = 1e-5f;
     cfg->saturation_guard = 0.0f;
@@ -149,7 +147,7 @@ static nj_tensor *scale_loss(nj_graph *g, const nj_vs_config *cfg, const nj_vs_i
 {
     nj_tensor *t = in->target, *d = in->disp[s];
     nj_tensor *up = (d->h == t->h && d->w == t->w) ? d : nj_resize_bilinear(g, d, t->h, t->w);
-    nj_tensor *rmin = reprojection_min(g, cfg, in, nj_disp_to_depth(g, up, cfg->min_depth, cfg->max_depth));
+    nj_tensor *rmin = reprojection_min(g, cfg, in, nj_depth_from_disparity(g, up, in->depth_range));
     if (!rmin) return NULL;
     float used = 0;
     nj_tensor *mask = make_mask(g, rmin, cfg->automask ? ident : NULL, &used);

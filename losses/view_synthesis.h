@@ -1,8 +1,9 @@
 /* losses/view_synthesis.h — the self-supervised training signal.
  *
  * For each disparity scale s (0 = full resolution): upsample the disparity to
- * the input size, convert to depth, warp every source frame into the target
- * view with its pose, and take the per-pixel photometric error.  Then:
+ * the input size, convert to depth (in the input's depth range), warp every
+ * source frame into the target view with its pose, and take the per-pixel
+ * photometric error.  Then:
  *  - per-pixel minimum over sources (Godard et al. 2019);
  *  - auto-masking (Godard et al. 2019): the un-warped sources' errors, plus a
  *    tiny random tie-break, compete; pixels where an un-warped source is at
@@ -23,6 +24,7 @@
 #include "nn/graph.h"
 #include "nn/rng.h"
 #include "nn/geom/camera.h"
+#include "losses/depth.h"
 
 #define NJ_MAX_SOURCES 4
 #define NJ_MAX_SCALES 4
@@ -30,7 +32,6 @@
 typedef struct nj_vs_config {
     float alpha;           /* SSIM weight in the photometric error, 0.85 */
     float smooth_weight;   /* 1e-3 */
-    float min_depth, max_depth;
     int automask;          /* 1: auto-mask static pixels */
     float tie_break;       /* std-dev of the identity errors' noise, 1e-5; 0 = none */
     float saturation_guard;/* weight of the saturation guard (below), 0 = none */
@@ -46,6 +47,8 @@ typedef struct nj_vs_input {
     int nsources;
     const nj_camera *cams;                  /* N intrinsics at H×W */
     nj_tensor *disp[NJ_MAX_SCALES];         /* sigmoid outputs, N×1×(H/2^s)×(W/2^s) */
+    nj_depth_range depth_range;             /* what the disparities mean (the model's
+                                               depth range, losses/depth.h) */
     int nscales;
     nj_rng *rng;                            /* tie-break noise; NULL = none */
 } nj_vs_input;

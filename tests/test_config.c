@@ -4,7 +4,9 @@
  *  - JSON syntax errors: line and column compared with Python's json module
  *    (outside source: tests/ref/data_json_pos.py);
  *  - accepted files: hours → minutes, relative paths resolved against the
- *    file's folder, loading on top of earlier values;
+ *    file's folder, loading on top of earlier values, model.depth_range
+ *    (default NJ_MODEL_DEPTH_NEAR..FAR; the keys loss.min_depth/max_depth it
+ *    replaced are refused as unknown keys);
  *  - every shipped configs/NAME.json loads and passes nj_train_config_check;
  *  - to_json → load_text gives back an identical struct, field by field, for
  *    the defaults and for random configurations; Python's json module
@@ -59,7 +61,8 @@ static int same_config(const nj_train_config *a, const nj_train_config *b, char 
     SAME_NUM(model.stages) SAME_NUM(model.width) SAME_NUM(model.scales) SAME_NUM(model.norm)
     SAME_NUM(model.head_init) SAME_NUM(model.pose) SAME_NUM(model.pose_stages) SAME_NUM(model.pose_width)
     SAME_NUM(model.pose_scale) SAME_NUM(model.bn_momentum) SAME_NUM(model.seed)
-    SAME_NUM(loss.alpha) SAME_NUM(loss.smooth_weight) SAME_NUM(loss.min_depth) SAME_NUM(loss.max_depth)
+    SAME_NUM(model.depth_range.near) SAME_NUM(model.depth_range.far)
+    SAME_NUM(loss.alpha) SAME_NUM(loss.smooth_weight)
     SAME_NUM(loss.automask) SAME_NUM(automask_from) SAME_NUM(loss.tie_break)
     SAME_NUM(loss.saturation_guard)
     SAME_NUM(lr) SAME_NUM(lr_min) SAME_NUM(step_gamma) SAME_NUM(weight_decay) SAME_NUM(grad_clip)
@@ -110,8 +113,33 @@ static const bad_case BAD[] = {
      "data.height 96 must be divisible by 64 (2^model.stages)"},
     {"scales_over_stages", "{\"data\": {\"width\": 64, \"height\": 32}, \"model\": {\"stages\": 3, \"scales\": 4}}",
      "model.scales (4) cannot exceed model.stages (3)"},
-    {"depth_range", "{\"loss\": {\"min_depth\": 10, \"max_depth\": 5}}",
-     "loss.min_depth (10) must be less than loss.max_depth (5)"},
+    /* the depth range's keys before model.depth_range: renamed, not aliased */
+    {"old_key_min_depth", "{\"loss\": {\"min_depth\": 0.1}}", "unknown key \"min_depth\" in section \"loss\""},
+    {"old_key_max_depth", "{\"loss\": {\"max_depth\": 100}}", "unknown key \"max_depth\" in section \"loss\""},
+    {"depth_range_in_loss", "{\"loss\": {\"depth_range\": [0.1, 100]}}",
+     "unknown key \"depth_range\" in section \"loss\""},
+    {"depth_range_not_array", "{\"model\": {\"depth_range\": 100}}",
+     "model.depth_range must be an array [near, far] of two numbers (got a number)"},
+    {"depth_range_object", "{\"model\": {\"depth_range\": {\"near\": 0.1, \"far\": 100}}}",
+     "model.depth_range must be an array [near, far] of two numbers (got an object)"},
+    {"depth_range_one_value", "{\"model\": {\"depth_range\": [0.1]}}",
+     "model.depth_range must be an array [near, far] of two numbers (got 1 value)"},
+    {"depth_range_three_values", "{\"model\": {\"depth_range\": [0.1, 50, 100]}}",
+     "model.depth_range must be an array [near, far] of two numbers (got 3 values)"},
+    {"depth_range_empty", "{\"model\": {\"depth_range\": []}}",
+     "model.depth_range must be an array [near, far] of two numbers (got 0 values)"},
+    {"depth_range_string", "{\"model\": {\"depth_range\": [0.1, \"far\"]}}",
+     "model.depth_range[1] must be a number (got a string)"},
+    {"depth_range_near_zero", "{\"model\": {\"depth_range\": [0, 100]}}",
+     "model.depth_range[0] must be more than 0 and at most 1000000 (got 0)"},
+    {"depth_range_near_negative", "{\"model\": {\"depth_range\": [-0.5, 100]}}",
+     "model.depth_range[0] must be more than 0 and at most 1000000 (got -0.5)"},
+    {"depth_range_far_huge", "{\"model\": {\"depth_range\": [0.1, 2e6]}}",
+     "model.depth_range[1] must be more than 0 and at most 1000000 (got 2000000)"},
+    {"depth_range_reversed", "{\"model\": {\"depth_range\": [10, 5]}}",
+     "model.depth_range: near (10) must be less than far (5)"},
+    {"depth_range_empty_interval", "{\"model\": {\"depth_range\": [5, 5]}}",
+     "model.depth_range: near (5) must be less than far (5)"},
     {"lr_min_above_lr", "{\"optim\": {\"lr\": 0.001, \"lr_min\": 0.01}}",
      "optim.lr_min (0.01) must not exceed optim.lr (0.001)"},
     {"offset_zero", "{\"data\": {\"frame_offsets\": [0]}}",
@@ -220,9 +248,10 @@ static void test_other_refusals(void)
     check(rc == -1 && !strcmp(err, "run.max_steps must be between 0 and 1000000000000 (got -1)"),
           "config_check_long_range", "rc %d: %s", rc, err);
     nj_train_config_default(&c);
-    c.loss.max_depth = NAN;
+    c.model.depth_range.far = NAN;
     rc = nj_train_config_check(&c, err, sizeof err);
-    check(rc == -1 && !strncmp(err, "loss.max_depth must be", 22), "config_check_nan", "rc %d: %s", rc, err);
+    check(rc == -1 && !strcmp(err, "model.depth_range[1] must be more than 0 and at most 1000000 (got nan)"),
+          "config_check_nan", "rc %d: %s", rc, err);
 
     rc = nj_train_config_load_text(&c, "{\"data\": {\"batch\": -3}}", "checkpoint.ckpt", err, sizeof err);
     check(rc == -1 && !strcmp(err, "checkpoint.ckpt: data.batch must be between 1 and 1024 (got -3)"),
@@ -271,6 +300,18 @@ static void test_accepted(void)
     check(rc == 0 && c.batch == 7 && c.seed == 42 && c.model.seed == 42 && c.loss.automask == 0,
           "config_loads_on_top_of_current_values", "rc %d batch %d seed %u model.seed %u: %s", rc, c.batch, c.seed,
           c.model.seed, err);
+
+    nj_train_config_default(&c);
+    check(c.model.depth_range.near == NJ_MODEL_DEPTH_NEAR && c.model.depth_range.far == NJ_MODEL_DEPTH_FAR &&
+              NJ_MODEL_DEPTH_NEAR == 0.1f && NJ_MODEL_DEPTH_FAR == 100.0f,
+          "config_depth_range_default_0.1_100", "%g..%g", c.model.depth_range.near, c.model.depth_range.far);
+    rc = load_string(&c, file, "{\"model\": {\"depth_range\": [0.25, 40]}}", err, sizeof err);
+    char *text = rc == 0 ? nj_train_config_to_json(&c) : NULL;
+    check(rc == 0 && c.model.depth_range.near == 0.25f && c.model.depth_range.far == 40.0f && text &&
+              strstr(text, "\"depth_range\":\t[0.25, 40]") && !strstr(text, "min_depth") && !strstr(text, "max_depth"),
+          "config_reads_and_writes_model_depth_range", "rc %d range %g..%g: %s\n%s", rc, c.model.depth_range.near,
+          c.model.depth_range.far, err, text ? text : "");
+    free(text);
 
     nj_train_config d;
     nj_train_config_default(&c);
@@ -402,8 +443,8 @@ static void random_model_optim(nj_train_config *c, nj_rng *r)
     c->model.bn_momentum = uni(r, 1e-3, 1);
     c->loss.alpha = uni(r, 0, 1);
     c->loss.smooth_weight = uni(r, 0, 1);
-    c->loss.min_depth = uni(r, 1e-3, 1);
-    c->loss.max_depth = uni(r, 2, 1000);
+    c->model.depth_range.near = uni(r, 1e-3, 1);
+    c->model.depth_range.far = uni(r, 2, 1000);
     c->loss.automask = (int)nj_rng_below(r, 2);
     c->automask_from = (long)nj_rng_below(r, 100000);
     c->loss.tie_break = uni(r, 0, 1e-3);

@@ -12,7 +12,9 @@
  * Sources of truth:
  *   - the contract: every key the earlier metrics.json had is still there with
  *     its type (the values of those keys are checked against NumPy by
- *     tests/test_predict_cli.c); the new keys exist; no "lead_vehicle_pixels"
+ *     tests/test_predict_cli.c), except that the scored depth interval is
+ *     "scored_depth": [1e-3, cap] (the default cap 80 m; it replaced the keys
+ *     "min_depth" and "max_depth"); the new keys exist; no "lead_vehicle_pixels"
  *     without masks; adding masks changes nothing but adding that key;
  *   - sums: the bands' pixel counts add up to the all-pixel count; the lead
  *     pixels are the mask's pixels with valid ground truth, counted here from
@@ -28,6 +30,7 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
+#include "train/measure/metrics.h"
 #include <cjson/cJSON.h>
 #include <math.h>
 #include <stb_image_write.h>
@@ -146,10 +149,15 @@ static void check_contract(const cJSON *j)
     const cJSON *sc = get(j, "scale"), *c = get(j, "baseline_constant"), *u = get(j, "baseline_untrained"),
                 *p = get(j, "pose");
     int ok = has_depth_keys(j) && cJSON_IsNumber(get(sc, "mean")) && cJSON_IsNumber(get(sc, "std")) &&
-             cJSON_IsString(get(j, "scaling")) && cJSON_IsNumber(get(j, "min_depth")) &&
-             cJSON_IsNumber(get(j, "max_depth")) && cJSON_IsString(get(j, "split")) &&
+             cJSON_IsString(get(j, "scaling")) && cJSON_IsString(get(j, "split")) &&
              cJSON_IsString(get(j, "model")) && cJSON_IsString(get(j, "data"));
-    check(ok, "old keys: the model's metrics, scale, scaling, depth range, split, model, data", "a key is missing");
+    check(ok, "old keys: the model's metrics, scale, scaling, split, model, data", "a key is missing");
+    const cJSON *sd = get(j, "scored_depth");
+    ok = cJSON_IsArray(sd) && cJSON_GetArraySize(sd) == 2 && cJSON_IsNumber(cJSON_GetArrayItem(sd, 0)) &&
+         cJSON_IsNumber(cJSON_GetArrayItem(sd, 1)) && cJSON_GetArrayItem(sd, 0)->valuedouble == NJ_EVAL_DEPTH_FLOOR &&
+         cJSON_GetArrayItem(sd, 1)->valuedouble == NJ_EVAL_DEPTH_CAP && !get(j, "min_depth") && !get(j, "max_depth");
+    check(ok, "scored depth interval: \"scored_depth\": [1e-3, 80] (default --max-depth), no min_depth/max_depth",
+          "missing, malformed or old keys present");
     check(has_depth_keys(c) && cJSON_IsString(get(c, "scaling")) && has_depth_keys(u) &&
               cJSON_IsObject(get(u, "scale")) && cJSON_IsString(get(u, "scaling")),
           "old keys: baseline_constant and baseline_untrained blocks", "a key is missing");

@@ -40,17 +40,17 @@ static void test_hand_oracle(void)
 {
     const float gt[12] = {10, 12, 0, 14, 0, 0, NAN, 100, 2, 4, 6, 8};
     float o[12], flag[12], scratch[12];
-    size_t k = nj_row_layout(gt, 4, 3, NJ_EVAL_MIN_DEPTH, 80.0f, o, scratch);
+    size_t k = nj_row_layout(gt, 4, 3, NJ_EVAL_DEPTH_FLOOR, 80.0f, o, scratch);
     int ok = k == 7;
     for (int x = 0; x < 4; x++) ok &= o[x] == 12 && o[4 + x] == 8 && o[8 + x] == 5;
     check(ok, "hand: row-layout oracle (row medians, empty row takes the image median)",
           "k %zu rows %g %g %g", k, o[0], o[4], o[8]);
-    size_t nf = nj_obstacle_flags(gt, o, 12, NJ_EVAL_MIN_DEPTH, 80.0f, flag);
+    size_t nf = nj_obstacle_flags(gt, o, 12, NJ_EVAL_DEPTH_FLOOR, 80.0f, flag);
     const float want[12] = {0, 0, 0, 0, 0, 0, 0, 0, 1, 0, 0, 1};
     check(nf == 2 && !memcmp(flag, want, sizeof want), "hand: obstacle flags (strictly more than 20% off)",
           "%zu flagged", nf);
     const float none[2] = {0, NAN};
-    k = nj_row_layout(none, 2, 1, NJ_EVAL_MIN_DEPTH, 80.0f, o, scratch);
+    k = nj_row_layout(none, 2, 1, NJ_EVAL_DEPTH_FLOOR, 80.0f, o, scratch);
     check(k == 0 && isnan(o[0]) && isnan(o[1]), "hand: no valid pixel gives a NaN oracle", "k %zu", k);
 }
 
@@ -82,19 +82,19 @@ static void test_hand_region(void)
     const float gt[4] = {2, 3, 5, 6}, pred[4] = {1, 3, 10, 6}, flag[4] = {1, 0, 1, 1};
     float scratch[4];
     nj_region_metrics m;
-    int rc = nj_region_metrics_compute(gt, pred, NULL, 4, 3, 6, 1.0, NJ_EVAL_MIN_DEPTH, 80, scratch, &m);
+    int rc = nj_region_metrics_compute(gt, pred, NULL, 4, 3, 6, 1.0, NJ_EVAL_DEPTH_FLOOR, 80, scratch, &m);
     check(rc == 0 && m.pixels == 2 && rel_close(m.absrel, 0.5, 1e-12) && m.delta1 == 0.5 && m.ratio == 1.5,
           "hand: band [3, 6) metrics", "rc %d pixels %ld absrel %g d1 %g ratio %g", rc, m.pixels, m.absrel, m.delta1,
           m.ratio);
-    rc = nj_region_metrics_compute(gt, pred, flag, 4, 0, INFINITY, 1.0, NJ_EVAL_MIN_DEPTH, 80, scratch, &m);
+    rc = nj_region_metrics_compute(gt, pred, flag, 4, 0, INFINITY, 1.0, NJ_EVAL_DEPTH_FLOOR, 80, scratch, &m);
     check(rc == 0 && m.pixels == 3 && rel_close(m.absrel, 0.5, 1e-12) && rel_close(m.delta1, 1.0 / 3, 1e-12) &&
               m.ratio == 1.0,
           "hand: flagged pixels metrics", "rc %d pixels %ld absrel %g d1 %g ratio %g", rc, m.pixels, m.absrel,
           m.delta1, m.ratio);
-    rc = nj_region_metrics_compute(gt, pred, NULL, 4, 0, 3, 2.0, NJ_EVAL_MIN_DEPTH, 80, scratch, &m);
+    rc = nj_region_metrics_compute(gt, pred, NULL, 4, 0, 3, 2.0, NJ_EVAL_DEPTH_FLOOR, 80, scratch, &m);
     check(rc == 0 && m.pixels == 1 && m.absrel == 0 && m.ratio == 1.0, "hand: the image's scale is applied",
           "absrel %g ratio %g", m.absrel, m.ratio);
-    rc = nj_region_metrics_compute(gt, pred, NULL, 4, 20, 80, 1.0, NJ_EVAL_MIN_DEPTH, 80, scratch, &m);
+    rc = nj_region_metrics_compute(gt, pred, NULL, 4, 20, 80, 1.0, NJ_EVAL_DEPTH_FLOOR, 80, scratch, &m);
     check(rc == -1 && m.pixels == 0, "hand: an empty region is not scored", "rc %d", rc);
     /* accumulation: images with ratio 0.5 (2 pixels) and 1.5 (3 pixels) → 1.0, 5 pixels, 2 images */
     nj_region_acc a;
@@ -152,21 +152,21 @@ static void c_regions(const float *gt, const float *pred, const float *mask, flo
     for (int i = 0; i < IMGS; i++) {
         size_t off = (size_t)i * H * W, n = H * W;
         const float *g = gt + off;
-        nj_row_layout(g, W, H, NJ_EVAL_MIN_DEPTH, cap, oracle + off, scratch);
-        nj_obstacle_flags(g, oracle + off, n, NJ_EVAL_MIN_DEPTH, cap, flags + off);
-        size_t k = nj_depth_select(g, pred + off, n, NJ_EVAL_MIN_DEPTH, cap, gsel, ps[0]);
-        nj_depth_select(g, ones, n, NJ_EVAL_MIN_DEPTH, cap, gsel, ps[1]);
-        nj_depth_select(g, pred + off, n, NJ_EVAL_MIN_DEPTH, cap, gsel, ps[2]);
-        nj_depth_select(g, oracle + off, n, NJ_EVAL_MIN_DEPTH, cap, gsel, ps[3]);
-        nj_depth_select(g, flags + off, n, NJ_EVAL_MIN_DEPTH, cap, gsel, fsel);
-        nj_depth_select(g, mask + off, n, NJ_EVAL_MIN_DEPTH, cap, gsel, msel);
+        nj_row_layout(g, W, H, NJ_EVAL_DEPTH_FLOOR, cap, oracle + off, scratch);
+        nj_obstacle_flags(g, oracle + off, n, NJ_EVAL_DEPTH_FLOOR, cap, flags + off);
+        size_t k = nj_depth_select(g, pred + off, n, NJ_EVAL_DEPTH_FLOOR, cap, gsel, ps[0]);
+        nj_depth_select(g, ones, n, NJ_EVAL_DEPTH_FLOOR, cap, gsel, ps[1]);
+        nj_depth_select(g, pred + off, n, NJ_EVAL_DEPTH_FLOOR, cap, gsel, ps[2]);
+        nj_depth_select(g, oracle + off, n, NJ_EVAL_DEPTH_FLOOR, cap, gsel, ps[3]);
+        nj_depth_select(g, flags + off, n, NJ_EVAL_DEPTH_FLOOR, cap, gsel, fsel);
+        nj_depth_select(g, mask + off, n, NJ_EVAL_DEPTH_FLOOR, cap, gsel, msel);
         if (k == 0) continue;
         double scale[4];
         const float *psel[4] = {ps[0], ps[1], ps[2], ps[3]};
         for (int m = 0; m < 4; m++) {
             scale[m] = m == 2 ? 1.0 : nj_median_scale(gsel, ps[m], k, scratch);
             nj_depth_metrics dm;
-            if (nj_depth_metrics_compute(gsel, ps[m], k, scale[m], NJ_EVAL_MIN_DEPTH, cap, &dm) == 0)
+            if (nj_depth_metrics_compute(gsel, ps[m], k, scale[m], NJ_EVAL_DEPTH_FLOOR, cap, &dm) == 0)
                 nj_metrics_acc_add(&acc[m], &dm, scale[m]);
         }
         nj_eval_regions_add(reg, gsel, psel, scale, k, fsel, msel, scratch);

@@ -22,6 +22,12 @@
  *     parses the file from the format description and compares every tensor
  *     bit-exact with batch norm folded / int8-quantised in numpy from the raw
  *     parameters this test dumps as NPY;
+ *   - the model's facts (train/model/model.h): the emitted C reads back, bit
+ *     for bit, the input standardisation (ND_IN_SCALE, ND_IN_SHIFT) and the
+ *     group-norm eps of NJ_MODEL_INPUT_MEAN/STD and NJ_MODEL_NORM_EPS, and
+ *     the header documents the same mean and std (the numeric equivalence
+ *     itself is the C/ONNX-vs-infer checks above, and the safetensors
+ *     check's numpy folding with its own eps 1e-5);
  *   - refusals: unreadable checkpoints and bad options → one stderr line,
  *     non-zero exit.
  */
@@ -31,6 +37,7 @@
 #include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
 #include "train/loop/checkpoint.h"
+#include "train/export/export.h"
 #include "train/model/infer.h"
 #include <math.h>
 #include <stdio.h>
@@ -130,8 +137,7 @@ static void model_config(nj_train_config *cfg, nj_norm_kind norm)
     cfg->model.pose_width = 0.25f;
     cfg->model.pose_stages = 3;
     cfg->model.norm = norm;
-    cfg->loss.min_depth = 0.1f;
-    cfg->loss.max_depth = 100.0f;
+    cfg->model.depth_range = (nj_depth_range){0.1f, 100.0f};   /* the header check's MIN and MAX */
 }
 
 /* Saves the checkpoint and dumps the raw parameters as NPY when rawdir != NULL. */
@@ -225,7 +231,8 @@ static int reference(nj_model *m, const nj_train_config *cfg, const nj_image *im
 {
     nj_infer inf;
     char err[512], path[512];
-    if (nj_infer_init(&inf, m, FW, FH, cfg->loss.min_depth, cfg->loss.max_depth, err, sizeof err)) return -1;
+    (void)cfg;
+    if (nj_infer_init(&inf, m, FW, FH, err, sizeof err)) return -1;
     int rc = 0;
     for (int k = 0; k < NFR && !rc; k++) rc = nj_infer_depth(&inf, &ims[k], FW, FH, ref[k], NULL, err, sizeof err);
     nj_infer_free(&inf);
@@ -365,6 +372,38 @@ static void check_header(const char *sub)
     free(c);
 }
 
+/* The float after `key` in `text` read back exactly; NAN when absent. */
+static float float_after(const char *text, const char *key)
+{
+    const char *p = text ? strstr(text, key) : NULL;
+    return p ? strtof(p + strlen(key), NULL) : NAN;
+}
+
+/* The emitted C carries the model's facts as printed from train/model/model.h. */
+static void check_facts(const char *sub)
+{
+    char path[512], mean[32], std[32], doc[96];
+    snprintf(path, sizeof path, "%s/%s/nightjar_depth.c", dir, sub);
+    char *c = e2e_slurp(path, NULL);
+    snprintf(path, sizeof path, "%s/%s/nightjar_depth.h", dir, sub);
+    char *h = e2e_slurp(path, NULL);
+    const float scale = float_after(c, "#define ND_IN_SCALE "), shift = float_after(c, "#define ND_IN_SHIFT ");
+    const float eps = float_after(c, "sqrt(q / (double)n + (double)");
+    check(scale == 1.0f / NJ_MODEL_INPUT_STD && shift == -NJ_MODEL_INPUT_MEAN / NJ_MODEL_INPUT_STD &&
+              eps == NJ_MODEL_NORM_EPS,
+          "export c: input standardisation and group-norm eps are the model's (NJ_MODEL_INPUT_MEAN/STD, "
+          "NJ_MODEL_NORM_EPS), bit for bit", "scale %.9g (want %.9g), shift %.9g (want %.9g), eps %.9g (want %.9g)",
+          scale, 1.0f / NJ_MODEL_INPUT_STD, shift, -NJ_MODEL_INPUT_MEAN / NJ_MODEL_INPUT_STD, eps, NJ_MODEL_NORM_EPS);
+    snprintf(doc, sizeof doc, "x = (v - %s) / %s per channel",
+             nj_export_float_text(NJ_MODEL_INPUT_MEAN, mean, sizeof mean),
+             nj_export_float_text(NJ_MODEL_INPUT_STD, std, sizeof std));
+    check(h && strstr(h, doc) && strtof(mean, NULL) == NJ_MODEL_INPUT_MEAN && strtof(std, NULL) == NJ_MODEL_INPUT_STD,
+          "export c: header documents the model's standardisation (printed from the constants, reads back exactly)",
+          "want \"%s\" in the header", doc);
+    free(c);
+    free(h);
+}
+
 static float out32[NFR][NPIX], out8[NFR][NPIX], outx[NPIX];
 
 static double absrel_vs(const float *a, const float *ref, size_t n)
@@ -488,6 +527,7 @@ static void test_c_group_norm(void)
     int ran = built && run_driver("cgn", "", NFR, &outg[0][0]) == 0;
     double e = ran ? max_rel(&outg[0][0], &ref_gn[0][0], (size_t)NFR * NPIX) : INFINITY;
     printf("  measured: group-norm C vs infer max rel %.3g\n", e);
+    if (built) check_facts("cgn");
     check(ran && e <= 1e-4, "export c f32 with group norm (explicit layer) vs train/model/infer.c: max rel err <= 1e-4",
           "built %d ran %d max rel %.3g", built, ran, e);
 }
@@ -516,7 +556,7 @@ static void test_c_size(void)
             }
     snprintf(path, sizeof path, "%s/crop.rgb", dir);
     ok = ok && write_bytes(path, rgb, sizeof rgb) == 0 &&
-         nj_infer_init(&inf, &m, CW, CW, cfg.loss.min_depth, cfg.loss.max_depth, err, sizeof err) == 0;
+         nj_infer_init(&inf, &m, CW, CW, err, sizeof err) == 0;
     if (ok) {
         ok = nj_infer_depth(&inf, &crop, CW, CW, ref, NULL, err, sizeof err) == 0;
         nj_infer_free(&inf);

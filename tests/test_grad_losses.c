@@ -108,7 +108,7 @@ static nj_tensor *b_smooth(nj_graph *g, nj_tensor *const *in, void *ctx)
 static nj_tensor *b_depth(nj_graph *g, nj_tensor *const *in, void *ctx)
 {
     (void)ctx;
-    return nj_disp_to_depth(g, nj_affine(g, in[0], 0.45f, 0.5f), 0.5f, 20.0f);
+    return nj_depth_from_disparity(g, nj_affine(g, in[0], 0.45f, 0.5f), (nj_depth_range){0.5f, 20.0f});
 }
 
 static nj_tensor *b_arc_slip(nj_graph *g, nj_tensor *const *in, void *ctx)
@@ -177,7 +177,8 @@ static void automask_check(void)
      * source at x − SHIFT, where it holds world(x) */
     nj_camera cam = {20.0f, 20.0f, (W - 1) / 2.0f, (H - 1) / 2.0f};
     float tx = -1.0f, depth = 20.0f / SHIFT;
-    float s = nj_depth_to_disp_value(depth, 0.1f, 100.0f);
+    const nj_depth_range range = {0.1f, 100.0f};
+    float s = nj_disparity_from_depth_value(depth, range);
     nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
     for (size_t i = 0; i < (size_t)H * W; i++) disp->data[i] = s;
     nj_vs_config cfg;
@@ -185,7 +186,8 @@ static void automask_check(void)
     nj_rng rng;
     nj_rng_seed(&rng, 5);
     nj_vs_input in = {.target = tgt, .sources = {src}, .poses = {nj_pose_stereo(g, 1, &tx)},
-                      .nsources = 1, .cams = &cam, .disp = {disp}, .nscales = 1, .rng = &rng};
+                      .nsources = 1, .cams = &cam, .disp = {disp}, .nscales = 1, .depth_range = range,
+                      .rng = &rng};
     nj_vs_output out;
     if (nj_view_synthesis_loss(g, &cfg, &in, &out)) {
         check(0, "auto-mask drops a patch moving with the camera", "%s", nj_graph_error(g));

@@ -217,25 +217,26 @@ static void drift_alarm(void)
           "drift alarm: its hint names the drift", "%s", nj_health_message(NJ_HEALTH_DRIFT));
 }
 
-/* The figure on constructed disparity maps: 2 images 8×4 (max 100 m, min 0.1 m). */
+/* The figure on constructed disparity maps: 2 images 8×4 (depth range 0.1 to 100 m). */
 static void disp_figures(void)
 {
+    const nj_depth_range range = {0.1f, 100.0f};
     float d[2 * 8 * 4];
     for (int i = 0; i < 2; i++)
         for (int y = 0; y < 8; y++)
             for (int x = 0; x < 4; x++)   /* image 0: nearer towards the bottom; image 1: the reverse */
                 d[(i * 8 + y) * 4 + x] = i == 0 ? 0.01f * (float)(y + 1) : 0.01f * (float)(8 - y);
     nj_disp_figures f;
-    nj_health_disp_figures(d, 1, 8, 4, 0.1f, 100.0f, &f);
+    nj_health_disp_figures(d, 1, 8, 4, range, &f);
     check(f.inverted == 0.0f, "inverted figure: 0 when the ground is nearer than the top", "%g", f.inverted);
-    nj_health_disp_figures(d + 32, 1, 8, 4, 0.1f, 100.0f, &f);
+    nj_health_disp_figures(d + 32, 1, 8, 4, range, &f);
     check(f.inverted == 1.0f, "inverted figure: 1 when the whole lower half lies beyond the top's median", "%g",
           f.inverted);
-    nj_health_disp_figures(d, 2, 8, 4, 0.1f, 100.0f, &f);
+    nj_health_disp_figures(d, 2, 8, 4, range, &f);
     check(fabsf(f.inverted - 0.5f) < 1e-6f, "inverted figure: averaged over the batch", "%g", f.inverted);
     /* d = 0.04: depth = 1 / (0.01 + 9.99 * 0.04) = 2.44 m */
     for (int k = 0; k < 32; k++) d[k] = k < 8 ? 0.0f : 0.04f;
-    nj_health_disp_figures(d, 1, 8, 4, 0.1f, 100.0f, &f);
+    nj_health_disp_figures(d, 1, 8, 4, range, &f);
     check(fabsf(f.far_half - 0.25f) < 1e-6f && fabsf(f.depth_p50 - 2.44f) < 0.05f,
           "far share and median depth of a constructed map", "far %g, median %g m", f.far_half, f.depth_p50);
 }

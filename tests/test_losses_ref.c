@@ -121,6 +121,7 @@ static void test_vsloss(nj_graph *g, const char *mode, float guard)
     in.target = losses_ref_tensor(g, dir, "target", 0);
     in.nsources = 2;
     in.nscales = 4;
+    in.depth_range = (nj_depth_range){0.1f, 100.0f};   /* the reference's min_d, max_d */
     nj_tensor *pv[2];
     char nm[32];
     for (int i = 0; i < 2; i++) {

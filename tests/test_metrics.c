@@ -38,9 +38,9 @@ static void test_hand_metric(void)
 {
     const float gt[7] = {1, 2, 4, 8, 0, 100, NAN}, pred[7] = {1, 2.5f, 3, 8, 5, 5, 5};
     float g[7], p[7];
-    size_t k = nj_depth_select(gt, pred, 7, NJ_EVAL_MIN_DEPTH, 80.0f, g, p);
+    size_t k = nj_depth_select(gt, pred, 7, NJ_EVAL_DEPTH_FLOOR, 80.0f, g, p);
     nj_depth_metrics m;
-    int rc = nj_depth_metrics_compute(g, p, k, 1.0, NJ_EVAL_MIN_DEPTH, 80.0f, &m);
+    int rc = nj_depth_metrics_compute(g, p, k, 1.0, NJ_EVAL_DEPTH_FLOOR, 80.0f, &m);
     double rlog = sqrt((pow(log(0.8), 2) + pow(log(4.0 / 3.0), 2)) / 4);
     check(k == 4 && rc == 0 && m.pixels == 4, "hand: valid pixels", "k=%zu rc=%d pixels=%ld", k, rc, m.pixels);
     check(close_to(m.absrel, 0.125, 1e-12) && close_to(m.sqrel, 0.09375, 1e-12) &&
@@ -60,7 +60,7 @@ static void test_hand_scaling(void)
     float g3[3] = {2, 4, 6}, p3[3] = {1, 3, 2}, scratch[4];
     double s = nj_median_scale(g3, p3, 3, scratch);
     nj_depth_metrics m;
-    nj_depth_metrics_compute(g3, p3, 3, s, NJ_EVAL_MIN_DEPTH, 80.0f, &m);
+    nj_depth_metrics_compute(g3, p3, 3, s, NJ_EVAL_DEPTH_FLOOR, 80.0f, &m);
     check(s == 2.0 && close_to(m.absrel, 5.0 / 18.0, 1e-12), "hand: median scaling (odd count)",
           "scale %g absrel %.9g", s, m.absrel);
     float g4[4] = {10, 1, 3, 2}, p4[4] = {2, 1, 2, 1};
@@ -68,9 +68,9 @@ static void test_hand_scaling(void)
     check(close_to(s4, 5.0 / 3.0, 1e-12) && g4[0] == 10 && p4[0] == 2, "hand: median scaling (even count)",
           "scale %.9g (inputs must be unchanged)", s4);
     float g1[1] = {50}, p1[1] = {1000};
-    nj_depth_metrics_compute(g1, p1, 1, 1.0, NJ_EVAL_MIN_DEPTH, 80.0f, &m);
+    nj_depth_metrics_compute(g1, p1, 1, 1.0, NJ_EVAL_DEPTH_FLOOR, 80.0f, &m);
     check(close_to(m.absrel, 0.6, 1e-12), "hand: prediction clamped to the cap", "absrel %.9g", m.absrel);
-    check(nj_depth_metrics_compute(g1, p1, 0, 1.0, NJ_EVAL_MIN_DEPTH, 80.0f, &m) == -1,
+    check(nj_depth_metrics_compute(g1, p1, 0, 1.0, NJ_EVAL_DEPTH_FLOOR, 80.0f, &m) == -1,
           "hand: no pixels is an error", "returned 0");
 }
 
@@ -230,10 +230,10 @@ static void c_depth_metrics(const float *gt, const float *pred, int median, doub
     float g[H * W], p[H * W], scratch[H * W];
     for (int i = 0; i < IMGS; i++) {
         size_t k = nj_depth_select(gt + (size_t)i * H * W, pred + (size_t)i * H * W, H * W,
-                                   NJ_EVAL_MIN_DEPTH, NJ_EVAL_MAX_DEPTH, g, p);
+                                   NJ_EVAL_DEPTH_FLOOR, NJ_EVAL_DEPTH_CAP, g, p);
         double s = median ? nj_median_scale(g, p, k, scratch) : 1.0;
         nj_depth_metrics m;
-        if (nj_depth_metrics_compute(g, p, k, s, NJ_EVAL_MIN_DEPTH, NJ_EVAL_MAX_DEPTH, &m) == 0)
+        if (nj_depth_metrics_compute(g, p, k, s, NJ_EVAL_DEPTH_FLOOR, NJ_EVAL_DEPTH_CAP, &m) == 0)
             nj_metrics_acc_add(&acc, &m, s);
     }
     nj_depth_metrics m;
@@ -277,7 +277,7 @@ static void test_numpy(const char *argv0)
     int wrc = save(dir, "gt.npy", gt, s3, 3) | save(dir, "pred.npy", pred, s3, 3) | save(dir, "q.npy", q, s1, 1) |
               save(dir, "c2w.npy", c2w, sc, 4) | save(dir, "rel.npy", rel, sr, 4);
     tdu_ref_path(argv0, "metrics_ref.py", script, sizeof script);
-    snprintf(args, sizeof args, "'%s' %g", dir, (double)NJ_EVAL_MAX_DEPTH);
+    snprintf(args, sizeof args, "'%s' %g", dir, (double)NJ_EVAL_DEPTH_CAP);
     float *ref = NULL;
     int shape[4], nd;
     snprintf(path, sizeof path, "%s/ref.npy", dir);

@@ -102,8 +102,7 @@ static int make_checkpoint(const char *path, int stereo)
     cfg.stereo = stereo;
     cfg.video = !stereo;
     cfg.model.pose = !stereo;
-    cfg.loss.min_depth = 0.1f;
-    cfg.loss.max_depth = 100.0f;
+    cfg.model.depth_range = (nj_depth_range){0.1f, 100.0f};
     nj_model m;
     nj_train_state st;
     memset(&st, 0, sizeof st);
@@ -274,6 +273,15 @@ static double num(const cJSON *o, const char *k)
     return cJSON_IsNumber(v) ? v->valuedouble : NAN;
 }
 
+/* The upper end of metrics.json's "scored_depth" [floor, cap] (--max-depth); NAN when malformed. */
+static double scored_cap(const cJSON *o)
+{
+    const cJSON *r = cJSON_GetObjectItemCaseSensitive(o, "scored_depth");
+    if (!cJSON_IsArray(r) || cJSON_GetArraySize(r) != 2 || !cJSON_IsNumber(cJSON_GetArrayItem(r, 0))) return NAN;
+    const cJSON *cap = cJSON_GetArrayItem(r, 1);
+    return cJSON_IsNumber(cap) ? cap->valuedouble : NAN;
+}
+
 static int same_metrics(const cJSON *a, const cJSON *b, double tol, char *why, size_t n)
 {
     for (int k = 0; k < 8; k++) {
@@ -348,7 +356,7 @@ static void test_eval_stereo(void)
     cJSON *j = load_json(path);
     const cJSON *sc = cJSON_GetObjectItemCaseSensitive(j, "scaling");
     check(rc == 0 && j && has_keys(j) && cJSON_IsString(sc) && !strcmp(sc->valuestring, "metric") &&
-          num(j, "max_depth") == 50 && !cJSON_GetObjectItemCaseSensitive(j, "pose"),
+          scored_cap(j) == 50 && !cJSON_GetObjectItemCaseSensitive(j, "pose"),
           "stereo-trained model: metric, --split val, --max-depth, no pose net", "status %d", rc);
     cJSON_Delete(j);
 }

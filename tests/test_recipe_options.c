@@ -106,7 +106,8 @@ static float identity_loss(float gain, int match)
     float tx = 0.0f;
     nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
     nj_vs_input in = {.target = tgt, .sources = {src}, .poses = {nj_pose_stereo(g, 1, &tx)},
-                      .nsources = 1, .cams = &cam, .disp = {disp}, .nscales = 1, .rng = NULL};
+                      .nsources = 1, .cams = &cam, .disp = {disp}, .nscales = 1,
+                      .depth_range = {0.1f, 100.0f}, .rng = NULL};
     nj_vs_config cfg;
     nj_vs_config_default(&cfg);
     cfg.automask = 0;

@@ -133,7 +133,8 @@ static void run_loss(nj_graph *g, const loss_inputs *li, int first, int n, loss_
     cfg.tie_break = 1e-3f;       /* large enough to decide some ties */
     nj_rng_seed(&res->rng, 77);
     nj_vs_input in = {.target = tgt, .sources = {src}, .poses = {nj_pose_stereo(g, n, li->tx + first)},
-                      .nsources = 1, .cams = li->cams + first, .disp = {disp}, .nscales = 1, .rng = &res->rng};
+                      .nsources = 1, .cams = li->cams + first, .disp = {disp}, .nscales = 1,
+                      .depth_range = {0.1f, 100.0f}, .rng = &res->rng};
     nj_vs_output out;
     res->failed = nj_view_synthesis_loss(g, &cfg, &in, &out) || nj_backward(g, out.total);
     if (res->failed) return;

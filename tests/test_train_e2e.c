@@ -74,8 +74,8 @@ static const char *STEREO_CONFIG =
     "           \"validate_every\": 0, \"checkpoint_minutes\": 50, \"keep_last\": 1 },\n"
     "  \"data\": { \"width\": 320, \"height\": 96, \"batch\": 4, \"frame_offsets\": [],\n"
     "            \"video\": false, \"stereo\": true },\n"
-    "  \"model\": { \"pose\": false },\n"
-    "  \"loss\": { \"max_depth\": 40, \"automask\": false },\n"
+    "  \"model\": { \"pose\": false, \"depth_range\": [0.1, 40] },\n"
+    "  \"loss\": { \"automask\": false },\n"
     "  \"optim\": { \"lr\": 4e-4, \"lr_min\": 1e-5, \"warmup_steps\": 50 } }\n";
 
 static const char *MONO_REDUCED =
@@ -91,8 +91,7 @@ static const char *STEREO_REDUCED =
     "           \"validate_every\": 0, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
     "  \"data\": { \"width\": 64, \"height\": 32, \"batch\": 2, \"frame_offsets\": [],\n"
     "            \"video\": false, \"stereo\": true },\n"
-    "  \"model\": { \"pose\": false, \"width\": 0.5, \"stages\": 4 },\n"
-    "  \"loss\": { \"max_depth\": 40 },\n"
+    "  \"model\": { \"pose\": false, \"width\": 0.5, \"stages\": 4, \"depth_range\": [0.1, 40] },\n"
     "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 10 } }\n";
 
 /* Mean "loss" of the first and last `k` step lines of a run's log. */

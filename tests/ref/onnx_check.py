@@ -8,7 +8,8 @@ Checks: the checker passes; opset >= 13; input "image" 1x3xHxW and outputs
 "disparity", "depth" 1x1xHxW, each with a doc string; OpenCV's output
 "depth" for every frame within 1e-4 relative of EXPECTED, and "disparity"
 in (0, 1) and consistent with "depth" through the map documented in the
-metadata (depth = 1 / (1/max + (1/min - 1/max) * disparity)).  Exit 0 when all hold,
+metadata (depth = 1 / (1/far + (1/near - 1/far) * disparity), [near, far] =
+the architecture's "depth_range").  Exit 0 when all hold,
 else 1 with a message."""
 import json
 import sys
@@ -52,8 +53,9 @@ def main():
     try:
         arch = json.loads(meta["nightjar.architecture"])
         json.loads(meta["nightjar.training_config"])
-        lo, hi = 1.0 / arch["max_depth"], 1.0 / arch["min_depth"]
-    except (KeyError, ValueError) as e:
+        near, far = arch["depth_range"]
+        lo, hi = 1.0 / far, 1.0 / near
+    except (KeyError, ValueError, TypeError) as e:
         fail("metadata nightjar.architecture / nightjar.training_config missing or not JSON (%s)" % e)
     net = cv2.dnn.readNetFromONNX(path)
     worst = 0.0

@@ -33,7 +33,7 @@ _Static_assert(NMETHODS == NJ_EVAL_METHODS, "regions.h counts the same methods")
 typedef struct eval_args {
     const char *model, *data, *out;
     nj_split split;
-    float max_depth;
+    float depth_cap;
     double camera_height;      /* metres; 0 = not given */
     int threads;
 } eval_args;
@@ -105,7 +105,7 @@ static int parse_args(int argc, char **argv, eval_args *a)
 {
     memset(a, 0, sizeof *a);
     a->split = NJ_SPLIT_TEST;
-    a->max_depth = NJ_EVAL_MAX_DEPTH;
+    a->depth_cap = NJ_EVAL_DEPTH_CAP;
     for (int i = 1; i < argc; i++) {
         const char *o = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
         double x;
@@ -125,7 +125,7 @@ static int parse_args(int argc, char **argv, eval_args *a)
             else return bad("--split must be train, val or test, not '%s'", v);
         } else if (!strcmp(o, "--max-depth")) {
             if (parse_number(v, 0.01, 1e6, &x)) return bad("--max-depth needs a depth in metres > 0.01, not '%s'", v);
-            a->max_depth = (float)x;
+            a->depth_cap = (float)x;
         } else if (!strcmp(o, "--camera-height")) {
             if (parse_number(v, 1e-3, 1e4, &x) || x <= 0)
                 return bad("--camera-height needs a positive height in metres, not '%s'", v);
@@ -154,8 +154,7 @@ static int load_models(eval_run *r, char *err, size_t errlen)
     r->have_untrained = 1;
     nj_model *models[2] = {&r->trained, &r->untrained};
     for (int k = 0; k < 2; k++)
-        if (nj_infer_init(&r->inf[k], models[k], r->cfg.width, r->cfg.height, r->cfg.loss.min_depth,
-                          r->cfg.loss.max_depth, e, sizeof e)) {
+        if (nj_infer_init(&r->inf[k], models[k], r->cfg.width, r->cfg.height, e, sizeof e)) {
             snprintf(err, errlen, "%s: %s", r->a.model, e);
             return -1;
         }
@@ -265,7 +264,7 @@ static void add_metrics(eval_run *r, int method, const float *gsel, const float 
                         double scale)
 {
     nj_depth_metrics m;
-    if (nj_depth_metrics_compute(gsel, psel, k, scale, NJ_EVAL_MIN_DEPTH, r->a.max_depth, &m) == 0)
+    if (nj_depth_metrics_compute(gsel, psel, k, scale, NJ_EVAL_DEPTH_FLOOR, r->a.depth_cap, &m) == 0)
         nj_metrics_acc_add(&r->acc[method], &m, scale);
 }
 
@@ -274,7 +273,7 @@ static void add_metrics(eval_run *r, int method, const float *gsel, const float 
 static size_t select_frame(const eval_run *r, frame_buf *b, int w, int h)
 {
     size_t n = (size_t)w * h;
-    float lo = NJ_EVAL_MIN_DEPTH, hi = r->a.max_depth;
+    float lo = NJ_EVAL_DEPTH_FLOOR, hi = r->a.depth_cap;
     nj_row_layout(b->gt, w, h, lo, hi, b->pred[2], b->scratch);
     nj_obstacle_flags(b->gt, b->pred[2], n, lo, hi, b->flag[0]);
     size_t k = 0;
@@ -497,7 +496,7 @@ static void print_table(const eval_run *r)
     nj_depth_metrics m;
     double sm, ss;
     nj_metrics_acc_result(&r->acc[M_MODEL], &m, &sm, &ss);
-    printf("\n%d images, %ld pixels, depth cap %g m; scaling: %s", r->frames, m.pixels, r->a.max_depth,
+    printf("\n%d images, %ld pixels, depth cap %g m; scaling: %s", r->frames, m.pixels, r->a.depth_cap,
            scaling_name(r->mode));
     if (r->mode == SCALE_MEDIAN)
         printf(" (constant depth: median-scaled too)\n");
@@ -557,8 +556,9 @@ static cJSON *report_json(const eval_run *r)
         cJSON_AddNumberToObject(root, "images_without_ground_plane", r->no_ground);
         cJSON_AddNumberToObject(root, "untrained_images_without_ground_plane", r->untrained_no_ground);
     }
-    cJSON_AddNumberToObject(root, "min_depth", NJ_EVAL_MIN_DEPTH);
-    cJSON_AddNumberToObject(root, "max_depth", r->a.max_depth);
+    cJSON *scored = cJSON_AddArrayToObject(root, "scored_depth");   /* ground truth inside it is scored */
+    cJSON_AddItemToArray(scored, cJSON_CreateNumber(NJ_EVAL_DEPTH_FLOOR));
+    cJSON_AddItemToArray(scored, cJSON_CreateNumber(r->a.depth_cap));
     cJSON_AddStringToObject(root, "split", nj_split_name(r->a.split));
     cJSON_AddStringToObject(root, "model", r->a.model);
     cJSON_AddStringToObject(root, "data", r->a.data);
@@ -620,7 +620,7 @@ static int evaluate(eval_run *r, char *err, size_t errlen)
             : (r->cfg.stereo && !r->cfg.video) ? SCALE_METRIC : SCALE_MEDIAN;
     nj_plane_options_default(&r->plane);
     for (int k = 0; k < NMETHODS; k++) nj_metrics_acc_init(&r->acc[k]);
-    nj_eval_regions_init(&r->regions, r->a.max_depth);
+    nj_eval_regions_init(&r->regions, r->a.depth_cap);
     if (open_split(&r->a, &ds, err, errlen)) {
         nj_dataset_free(&ds);
         return -1;
@@ -637,7 +637,7 @@ static int evaluate(eval_run *r, char *err, size_t errlen)
     }
     if (r->frames == 0 && r->snippets == 0) {
         snprintf(err, errlen, "%s: split \"%s\" has no usable ground truth (depth within %g m, or poses)",
-                 r->a.data, nj_split_name(r->a.split), r->a.max_depth);
+                 r->a.data, nj_split_name(r->a.split), r->a.depth_cap);
         return -1;
     }
     print_table(r);

@@ -385,8 +385,7 @@ static int setup(predictor *p, char **paths, int n, char *err, size_t errlen)
     if (check_stems(paths, n, err, errlen) || probe_inputs(paths, n, err, errlen)) return -1;
     if (nj_checkpoint_load(p->a.model, &p->model, &p->cfg, NULL, err, errlen)) return -1;
     char e[512];
-    if (nj_infer_init(&p->inf, &p->model, p->cfg.width, p->cfg.height, p->cfg.loss.min_depth,
-                      p->cfg.loss.max_depth, e, sizeof e)) {
+    if (nj_infer_init(&p->inf, &p->model, p->cfg.width, p->cfg.height, e, sizeof e)) {
         snprintf(err, errlen, "%s: %s", p->a.model, e);
         nj_model_free(&p->model);
         return -1;
@@ -426,7 +425,7 @@ int nj_predict_main(int argc, char **argv)
         return 1;
     }
     printf("predict: %d frame%s with %s (network input %dx%d, depth range %g..%g)\n", n, n == 1 ? "" : "s",
-           p->a.model, p->cfg.width, p->cfg.height, p->cfg.loss.min_depth, p->cfg.loss.max_depth);
+           p->a.model, p->cfg.width, p->cfg.height, p->model.cfg.depth_range.near, p->model.cfg.depth_range.far);
     for (int i = 0; i < n; i++) {
         if (predict_frame(p, paths[i], err, sizeof err)) {
             fprintf(stderr, "nightjar predict: %s\n", err);

@@ -1,5 +1,9 @@
 /* train/export/export.h — `nightjar export`: a trained model for use outside nightjar.
  *
+ * The networks' fixed numbers (normalisation eps, input standardisation,
+ * group-count rule) come from train/model/model.h; the depth range from the
+ * model's config.
+ *
  * Every export starts from an nj_export_net: the checkpoint's layers with
  * batch normalisation folded into the preceding conv (Ioffe & Szegedy 2015:
  * inference-mode BN is a per-channel affine map, so it merges into the conv's
@@ -27,10 +31,6 @@
 #include <stddef.h>
 #include <stdint.h>
 
-/* Input standardisation of the networks (train/model/model.c): (x - mean) / std. */
-#define NJ_EXPORT_MEAN 0.45f
-#define NJ_EXPORT_STD 0.225f
-
 typedef struct nj_export_layer {
     char name[64];            /* unit name, e.g. "enc0.1", "head0", "pose2" */
     int cin, cout, k, stride, pad;
@@ -51,7 +51,7 @@ typedef struct nj_export_net {
     int nlayers;
     int int8;                 /* weights quantised */
     int width, height;        /* fixed input size of the C and ONNX exports */
-    float min_depth, max_depth;
+    nj_depth_range depth_range;   /* the model's (model.depth_range) */
     int metric;               /* trained on stereo only: depth in metres */
     const char *source;       /* checkpoint file name, for comments and metadata */
 } nj_export_net;
@@ -63,9 +63,11 @@ int nj_export_prepare(nj_export_net *net, const nj_model *m, const nj_train_conf
                       int int8, int width, int height, char *err, size_t errlen);
 void nj_export_release(nj_export_net *net);
 
-/* Group count used by the model's group-norm layers with `channels` channels
- * (the rule of train/model/model.c). */
-int nj_export_norm_groups(int channels);
+/* The shortest "%.Ng" text (N = 1..9) that reads back as exactly v: how the
+ * model's facts (train/model/model.h: eps, input standardisation) are written
+ * into generated code, doc strings and JSON texts, never typed again.
+ * Returns buf. */
+const char *nj_export_float_text(float v, char *buf, size_t n);
 
 /* Quantises n_out rows of `per_out` weights (symmetric, per row) into q and
  * scale as described above. */

@@ -2,6 +2,12 @@
  * carries (C99, libm only, no allocation, no threads), and the first-fit
  * planner that places the network's buffers in the caller's scratch array. */
 #include "train/export/export_c.h"
+#include "train/export/export.h"
+#include <string.h>
+
+/* Stands in the runtime's text for the model's normalisation eps, which
+ * nj_export_c_runtime prints from NJ_MODEL_NORM_EPS (train/model/model.h). */
+#define NORM_EPS "@NORM_EPS@"
 
 static const char *const RUNTIME[] = {
     "/* ---- runtime ---------------------------------------------------------- */",
@@ -110,7 +116,7 @@ static const char *const RUNTIME[] = {
     "        mu = s / (double)n;",
     "        for (i = 0; i < n; i++) q += (p[i] - mu) * (p[i] - mu);",
     "        mean = (float)mu;",
-    "        invstd = (float)(1.0 / sqrt(q / (double)n + (double)1e-5f));",
+    "        invstd = (float)(1.0 / sqrt(q / (double)n + (double)" NORM_EPS "));",
     "        for (c = 0; c < cpg; c++) {",
     "            const float alpha = l->gamma[g * cpg + c] * invstd;",
     "            const float shift = l->beta[g * cpg + c] - mean * alpha;",
@@ -204,8 +210,16 @@ static const char *const RUNTIME[] = {
 
 void nj_export_c_runtime(FILE *f, int int8)
 {
+    char eps[32];
+    nj_export_float_text(NJ_MODEL_NORM_EPS, eps, sizeof eps);
     fprintf(f, "typedef %s nd_weight;\n\n", int8 ? "signed char" : "float");
-    for (size_t i = 0; i < sizeof RUNTIME / sizeof *RUNTIME; i++) fprintf(f, "%s\n", RUNTIME[i]);
+    for (size_t i = 0; i < sizeof RUNTIME / sizeof *RUNTIME; i++) {
+        const char *line = RUNTIME[i], *at = strstr(line, NORM_EPS);
+        if (at)
+            fprintf(f, "%.*s%sf%s\n", (int)(at - line), line, eps, at + strlen(NORM_EPS));
+        else
+            fprintf(f, "%s\n", line);
+    }
 }
 
 /* ---- scratch planner ------------------------------------------------------ */

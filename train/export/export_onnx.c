@@ -240,7 +240,7 @@ static void group_norm(onnx_writer *o, const nj_export_layer *l, const char *x, 
     const char *in[3] = {nm[1], nm[2], nm[3]};
     node n;
     node_begin(&n, "InstanceNormalization", in, 3, nm[4]);
-    attr_float(&n, "epsilon", 1e-5f);
+    attr_float(&n, "epsilon", NJ_MODEL_NORM_EPS);
     node_end(o, &n);
     simple(o, "Reshape", nm[4], nm[5], nm[6]);
     simple(o, "Mul", nm[6], nm[7], scaled);
@@ -311,10 +311,11 @@ static void depth_graph(onnx_writer *o)
     const int S = m->cfg.stages;
     char cur[96], feat[NJ_MAX_STAGES][96], t[96];
     int h = o->net->height, w = o->net->width;
-    const float lo = 1.0f / o->net->max_depth, hi = 1.0f / o->net->min_depth, up[4] = {1, 1, 2, 2};
+    const nj_depth_range r = o->net->depth_range;
+    const float lo = 1.0f / r.far, hi = 1.0f / r.near, up[4] = {1, 1, 2, 2};
     int64_t four[1] = {4};
-    scalar(o, "input_scale", 1.0f / NJ_EXPORT_STD);
-    scalar(o, "input_shift", -NJ_EXPORT_MEAN / NJ_EXPORT_STD);
+    scalar(o, "input_scale", 1.0f / NJ_MODEL_INPUT_STD);
+    scalar(o, "input_shift", -NJ_MODEL_INPUT_MEAN / NJ_MODEL_INPUT_STD);
     scalar(o, "disparity_span", hi - lo);
     scalar(o, "disparity_low", lo);
     float_tensor(o, "upsample_scales", four, 1, up, 4);
@@ -383,16 +384,18 @@ static void value_info(nj_pb *parent, int field, const char *name, int c, int h,
 static void graph_io(onnx_writer *o)
 {
     const nj_export_net *net = o->net;
-    char doc[512];
+    char doc[512], mean[32], std[32];
     const int H = net->height, W = net->width;
     snprintf(doc, sizeof doc, "camera frame, RGB planar (NCHW) float32 in [0,1] (8-bit value / 255), "
-             "1x3x%dx%d; standardised inside as (x - 0.45) / 0.225", H, W);
+             "1x3x%dx%d; standardised inside as (x - %s) / %s", H, W,
+             nj_export_float_text(NJ_MODEL_INPUT_MEAN, mean, sizeof mean),
+             nj_export_float_text(NJ_MODEL_INPUT_STD, std, sizeof std));
     value_info(&o->graph, 11, "image", 3, H, W, doc);
     value_info(&o->graph, 12, "disparity", 1, H, W,
                "sigmoid output s in (0,1) of the finest disparity head; near = large");
     snprintf(doc, sizeof doc, "depth = 1 / (1/%g + (1/%g - 1/%g) * disparity), between %g and %g, %s",
-             (double)net->max_depth, (double)net->min_depth, (double)net->max_depth, (double)net->min_depth,
-             (double)net->max_depth,
+             (double)net->depth_range.far, (double)net->depth_range.near, (double)net->depth_range.far,
+             (double)net->depth_range.near, (double)net->depth_range.far,
              net->metric ? "in metres" : "in model units (monocular training: up to an unknown scale)");
     value_info(&o->graph, 12, "depth", 1, H, W, doc);
 }

@@ -8,11 +8,13 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define BN_EPS 1e-5f   /* the eps of train/model/model.c's batch norm */
-
-int nj_export_norm_groups(int channels)
+const char *nj_export_float_text(float v, char *buf, size_t n)
 {
-    return channels % 8 == 0 ? 8 : (channels % 4 == 0 ? 4 : 1);
+    for (int prec = 1; prec <= 9; prec++) {   /* 9 significant digits always round-trip a float */
+        snprintf(buf, n, "%.*g", prec, (double)v);
+        if (strtof(buf, NULL) == v) break;
+    }
+    return buf;
 }
 
 void nj_export_quantise(const float *w, int n_out, int per_out, int8_t *q, float *scale)
@@ -59,9 +61,9 @@ static int prepare_layer(nj_export_layer *l, const nj_unit *u, int int8)
     memcpy(l->b, u->b->data, (size_t)u->cout * sizeof *l->b);
     if (u->norm == NJ_NORM_BATCH)
         nj_batchnorm_fold(l->w, l->b, u->cout, per_out, u->gamma->data, u->beta->data, u->run_mean->data,
-                          u->run_var->data, BN_EPS);
+                          u->run_var->data, NJ_MODEL_NORM_EPS);
     else if (u->norm == NJ_NORM_GROUP) {
-        l->groups = nj_export_norm_groups(u->cout);
+        l->groups = nj_model_norm_groups(u->cout);
         l->gamma = u->gamma->data;
         l->beta = u->beta->data;
     }
@@ -98,9 +100,9 @@ int nj_export_prepare(nj_export_net *net, const nj_model *m, const nj_train_conf
 {
     memset(net, 0, sizeof *net);
     if (check_size(m, width, height, err, errlen)) return -1;
-    if (!(cfg->loss.min_depth > 0) || !(cfg->loss.max_depth > cfg->loss.min_depth)) {
-        snprintf(err, errlen, "bad depth range %g..%g in the checkpoint's config", cfg->loss.min_depth,
-                 cfg->loss.max_depth);
+    const nj_depth_range r = m->cfg.depth_range;
+    if (!nj_depth_range_ok(r)) {
+        snprintf(err, errlen, "bad depth range %g..%g in the checkpoint's config", r.near, r.far);
         return -1;
     }
     net->model = m;
@@ -108,8 +110,7 @@ int nj_export_prepare(nj_export_net *net, const nj_model *m, const nj_train_conf
     net->int8 = int8;
     net->width = width;
     net->height = height;
-    net->min_depth = cfg->loss.min_depth;
-    net->max_depth = cfg->loss.max_depth;
+    net->depth_range = r;
     net->metric = cfg->stereo && !cfg->video;
     for (int i = 0; i < m->nunits; i++) {
         net->nlayers = i + 1;
@@ -194,7 +195,12 @@ char *nj_export_architecture_json(const nj_export_net *net)
     cJSON_AddNumberToObject(o, "scales", c->scales);
     cJSON_AddItemToObject(o, "channels", int_array(ch, c->stages));
     cJSON_AddStringToObject(o, "norm", norm_name(c->norm));
-    cJSON_AddStringToObject(o, "batch_norm", "folded into the preceding conv (eps 1e-5)");
+    char eps[32], mean[32], std[32], text[160];
+    nj_export_float_text(NJ_MODEL_NORM_EPS, eps, sizeof eps);
+    nj_export_float_text(NJ_MODEL_INPUT_MEAN, mean, sizeof mean);
+    nj_export_float_text(NJ_MODEL_INPUT_STD, std, sizeof std);
+    snprintf(text, sizeof text, "folded into the preceding conv (eps %s)", eps);
+    cJSON_AddStringToObject(o, "batch_norm", text);
     cJSON_AddBoolToObject(o, "pose_net", c->pose);
     if (c->pose) {
         cJSON_AddNumberToObject(o, "pose_stages", c->pose_stages);
@@ -202,12 +208,15 @@ char *nj_export_architecture_json(const nj_export_net *net)
         cJSON_AddNumberToObject(o, "pose_scale", c->pose_scale);
         cJSON_AddNumberToObject(o, "rotation_scale", c->rotation_scale);
     }
-    cJSON_AddStringToObject(o, "input", "RGB in [0,1], standardised as (x - 0.45) / 0.225");
-    cJSON_AddNumberToObject(o, "input_mean", NJ_EXPORT_MEAN);
-    cJSON_AddNumberToObject(o, "input_std", NJ_EXPORT_STD);
-    cJSON_AddStringToObject(o, "depth", "depth = 1 / (1/max_depth + (1/min_depth - 1/max_depth) * disparity)");
-    cJSON_AddNumberToObject(o, "min_depth", net->min_depth);
-    cJSON_AddNumberToObject(o, "max_depth", net->max_depth);
+    snprintf(text, sizeof text, "RGB in [0,1], standardised as (x - %s) / %s", mean, std);
+    cJSON_AddStringToObject(o, "input", text);
+    cJSON_AddNumberToObject(o, "input_mean", NJ_MODEL_INPUT_MEAN);
+    cJSON_AddNumberToObject(o, "input_std", NJ_MODEL_INPUT_STD);
+    cJSON_AddStringToObject(o, "depth",
+                            "depth = 1 / (1/far + (1/near - 1/far) * disparity), [near, far] = depth_range");
+    cJSON *range = cJSON_AddArrayToObject(o, "depth_range");
+    cJSON_AddItemToArray(range, cJSON_CreateNumber(net->depth_range.near));
+    cJSON_AddItemToArray(range, cJSON_CreateNumber(net->depth_range.far));
     cJSON_AddStringToObject(o, "depth_units", net->metric ? "metres" : "model units (monocular: up to scale)");
     cJSON_AddStringToObject(o, "weights", net->int8 ? "int8" : "f32");
     cJSON *layers = cJSON_AddArrayToObject(o, "layers");

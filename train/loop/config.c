@@ -48,10 +48,9 @@ const nj_config_field nj_config_fields[] = {
     F("model", "pose_scale", NJ_F_FLOAT, model.pose_scale, 0, 10, 1, 0),
     F("model", "rotation_scale", NJ_F_FLOAT, model.rotation_scale, 0, 10, 0, 0),
     F("model", "bn_momentum", NJ_F_FLOAT, model.bn_momentum, 0, 1, 1, 0),
+    F("model", "depth_range", NJ_F_RANGE, model.depth_range, 0, 1e6, 1, 0),
     F("loss", "ssim_weight", NJ_F_FLOAT, loss.alpha, 0, 1, 0, 0),
     F("loss", "smoothness", NJ_F_FLOAT, loss.smooth_weight, 0, 10, 0, 0),
-    F("loss", "min_depth", NJ_F_FLOAT, loss.min_depth, 0, 1e6, 1, 0),
-    F("loss", "max_depth", NJ_F_FLOAT, loss.max_depth, 0, 1e6, 1, 0),
     TEXT("loss", "automask", NJ_F_BOOL, loss.automask),
     F("loss", "automask_from_step", NJ_F_LONG, automask_from, 0, 1e12, 0, 0),
     F("loss", "tie_break", NJ_F_FLOAT, loss.tie_break, 0, 1, 0, 0),
@@ -120,6 +119,19 @@ int nj_config_range_ok(const nj_config_field *f, double v, char *msg, size_t n)
     return 0;
 }
 
+int nj_config_range_ends_ok(const nj_config_field *f, const double ends[2], char *msg, size_t n)
+{
+    for (int i = 0; i < 2; i++) {
+        char key[48];
+        snprintf(key, sizeof key, "%s[%d]", f->key, i);
+        nj_config_field e = *f;   /* the message names the element */
+        e.key = key;
+        e.kind = NJ_F_FLOAT;
+        if (!nj_config_range_ok(&e, ends[i], msg, n)) return 0;
+    }
+    return 1;
+}
+
 int nj_config_name_ok(const char *name, char *msg, size_t n)
 {
     size_t len = strlen(name);
@@ -169,6 +181,13 @@ static int check_offsets(const nj_train_config *c, const nj_config_field *f, cha
     return 0;
 }
 
+static int range_ends_ok(const nj_train_config *c, const nj_config_field *f, char *err, size_t errlen)
+{
+    const nj_depth_range *r = (const nj_depth_range *)((const char *)c + f->off);
+    const double ends[2] = {r->near, r->far};
+    return nj_config_range_ends_ok(f, ends, err, errlen);
+}
+
 /* Every field inside its range (the table's bounds). */
 static int check_fields(const nj_train_config *c, char *err, size_t errlen)
 {
@@ -180,6 +199,8 @@ static int check_fields(const nj_train_config *c, char *err, size_t errlen)
         } else if (f->kind == NJ_F_NAME && !nj_config_name_ok(c->name, err, errlen)) {
             return -1;
         } else if (f->kind == NJ_F_OFFSETS && check_offsets(c, f, err, errlen)) {
+            return -1;
+        } else if (f->kind == NJ_F_RANGE && !range_ends_ok(c, f, err, errlen)) {
             return -1;
         } else if (f->kind == NJ_F_NORM && (c->model.norm < NJ_NORM_NONE || c->model.norm > NJ_NORM_GROUP)) {
             snprintf(err, errlen, "model.norm must be \"batch\", \"group\" or \"none\"");
@@ -222,9 +243,9 @@ static int check_model(const nj_train_config *c, char *err, size_t errlen)
 
 static int check_rest(const nj_train_config *c, char *err, size_t errlen)
 {
-    if (!(c->loss.min_depth < c->loss.max_depth))
-        snprintf(err, errlen, "loss.min_depth (%g) must be less than loss.max_depth (%g)", c->loss.min_depth,
-                 c->loss.max_depth);
+    if (!(c->model.depth_range.near < c->model.depth_range.far))
+        snprintf(err, errlen, "model.depth_range: near (%g) must be less than far (%g)", c->model.depth_range.near,
+                 c->model.depth_range.far);
     else if (c->lr_min > c->lr)
         snprintf(err, errlen, "optim.lr_min (%g) must not exceed optim.lr (%g)", c->lr_min, c->lr);
     else if (c->minutes <= 0 && c->max_steps <= 0)

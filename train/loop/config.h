@@ -15,8 +15,8 @@
  *                           "hue": 0.05, "flip": 0.5 } },
  *   "model": { "stages": 5, "width": 1.0, "scales": 4, "norm": "batch" | "group" | "none",
  *              "head_init": 0.1, "pose_stages": 5, "pose_width": 1.0, "pose_scale": 0.5,
- *              "pose": true, "bn_momentum": 0.1 },
- *   "loss":  { "ssim_weight": 0.85, "smoothness": 0.001, "min_depth": 0.1, "max_depth": 100,
+ *              "pose": true, "bn_momentum": 0.1, "depth_range": [0.1, 100] },
+ *   "loss":  { "ssim_weight": 0.85, "smoothness": 0.001,
  *              "automask": true, "automask_from_step": 0, "tie_break": 1e-5,
  *              "saturation_guard": 0 },
  *   "optim": { "lr": 1e-4, "lr_min": 1e-6, "warmup_steps": 100, "schedule": "cosine" | "step",
@@ -24,6 +24,8 @@
  *              "init": "", "freeze_encoder": false }
  * }
  * Relative paths inside the file resolve against the file's folder.
+ * model.depth_range is [near, far]: the depths that disparity 1 and 0 stand
+ * for (losses/depth.h), 0 < near < far.
  * "hours" is written back as "minutes"; run.seed also seeds the networks
  * (model.seed).  Loading ends with nj_train_config_check.  Syntax errors read
  * "PATH:LINE:COLUMN: bad JSON near '...'".

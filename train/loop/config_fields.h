@@ -16,6 +16,7 @@ typedef enum {
     NJ_F_NORM,                         /* nj_norm_kind ↔ "batch" | "group" | "none" */
     NJ_F_SCHEDULE,                     /* cosine flag ↔ "cosine" | "step" */
     NJ_F_OFFSETS,                      /* offsets[] + noffsets ↔ array of whole numbers */
+    NJ_F_RANGE,                        /* nj_depth_range ↔ [near, far]; lo/hi bound each */
     NJ_F_HOURS                         /* read only: sets minutes = 60 × hours */
 } nj_field_kind;
 
@@ -37,6 +38,9 @@ extern const int nj_config_nsections;
 /* 1 when v lies in the field's range; otherwise 0 and `msg` gets
  * "SECTION.KEY must be between A and B (got V)". */
 int nj_config_range_ok(const nj_config_field *f, double v, char *msg, size_t n);
+/* Each end of a NJ_F_RANGE field inside the field's bounds; 0 with
+ * "SECTION.KEY[i] must be ... (got V)" in `msg` otherwise. */
+int nj_config_range_ends_ok(const nj_config_field *f, const double ends[2], char *msg, size_t n);
 /* Validity of a run name; 0 with a message when unusable. */
 int nj_config_name_ok(const char *name, char *msg, size_t n);
 

@@ -161,6 +161,30 @@ static int read_offsets(reader *r, const nj_config_field *f, const cJSON *v)
     return 0;
 }
 
+/* [near, far]: exactly two numbers, each inside the field's bounds; near < far
+ * is a cross-field check (nj_train_config_check) like the other ranges. */
+static int read_range(reader *r, const nj_config_field *f, const cJSON *v, nj_depth_range *dst)
+{
+    int n = cJSON_IsArray(v) ? cJSON_GetArraySize(v) : -1;
+    if (n != 2) {
+        char got[40];
+        if (n < 0) snprintf(got, sizeof got, "%s", type_name(v));
+        else snprintf(got, sizeof got, "%d value%s", n, n == 1 ? "" : "s");
+        return fail(r, "%s.%s must be an array [near, far] of two numbers (got %s)", f->section, f->key, got);
+    }
+    double ends[2];
+    int i = 0;
+    for (const cJSON *e = v->child; e; e = e->next, i++) {
+        if (!cJSON_IsNumber(e))
+            return fail(r, "%s.%s[%d] must be a number (got %s)", f->section, f->key, i, type_name(e));
+        ends[i] = e->valuedouble;
+    }
+    char msg[256];
+    if (!nj_config_range_ends_ok(f, ends, msg, sizeof msg)) return fail(r, "%s", msg);
+    *dst = (nj_depth_range){(float)ends[0], (float)ends[1]};
+    return 0;
+}
+
 static int read_path(reader *r, const nj_config_field *f, const cJSON *v, char *dst)
 {
     if (!cJSON_IsString(v)) return fail(r, "%s.%s must be a string (got %s)", f->section, f->key, type_name(v));
@@ -213,6 +237,7 @@ static int read_text_field(reader *r, const nj_config_field *f, const cJSON *v, 
         if (read_choice(r, f, v, SCHEDULE_NAMES, 2, &k)) return -1;
         *(int *)p = k;
         return 0;
+    case NJ_F_RANGE: return read_range(r, f, v, (nj_depth_range *)p);
     default: return read_offsets(r, f, v);
     }
 }
@@ -430,6 +455,15 @@ static cJSON *field_json(const nj_train_config *c, const nj_config_field *f)
         return cJSON_CreateString(NORM_NAMES[k >= 0 && k < 3 ? k : NJ_NORM_BATCH]);
     }
     case NJ_F_SCHEDULE: return cJSON_CreateString(SCHEDULE_NAMES[*(const int *)p != 0]);
+    case NJ_F_RANGE: {
+        const nj_depth_range *d = (const nj_depth_range *)p;
+        cJSON *a = cJSON_CreateArray();
+        if (a) {
+            cJSON_AddItemToArray(a, cJSON_CreateNumber(short_float(d->near)));
+            cJSON_AddItemToArray(a, cJSON_CreateNumber(short_float(d->far)));
+        }
+        return a;
+    }
     case NJ_F_OFFSETS: {
         int n = c->noffsets < 0 ? 0 : (c->noffsets > NJ_MAX_OFFSETS ? NJ_MAX_OFFSETS : c->noffsets);
         return cJSON_CreateIntArray(c->offsets, n);

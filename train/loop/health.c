@@ -82,7 +82,7 @@ const char *nj_health_message(int condition)
 {
     switch (condition) {
     case NJ_HEALTH_SATURATED:
-        return "disparity saturated at a range bound on >80% of pixels: check min_depth/max_depth, "
+        return "disparity saturated at a range bound on >80% of pixels: check model.depth_range, "
                "lower the learning rate or raise loss.smoothness";
     case NJ_HEALTH_NO_TRANSLATION:
         return "predicted translation collapsed to ~0: the camera may rarely move in this data, or "
@@ -136,12 +136,11 @@ static int median_bin(const long *hist, long count)
  * 1.35% bin counts as not farther: within 0.011 of NumPy's exact share on
  * the recorded runs' maps from step 100 on, up to 0.07 below it on the
  * near-uniform maps of the first 30 steps, which the alarm skips). */
-void nj_health_disp_figures(const float *d, int n, int h, int w, float min_depth, float max_depth,
-                            nj_disp_figures *f)
+void nj_health_disp_figures(const float *d, int n, int h, int w, nj_depth_range r, nj_disp_figures *f)
 {
     long all[DISP_BINS] = {0}, total = 0, far = 0;
-    double lo = 1.0 / max_depth, span = 1.0 / min_depth - 1.0 / max_depth;
-    double lmin = log(min_depth), lspan = log(max_depth) - lmin, inv_sum = 0;
+    double lo = 1.0 / r.far, span = 1.0 / r.near - 1.0 / r.far;
+    double lmin = log(r.near), lspan = log(r.far) - lmin, inv_sum = 0;
     int images = 0;
     memset(f, 0, sizeof *f);
     for (int i = 0; i < n; i++) {
@@ -157,7 +156,7 @@ void nj_health_disp_figures(const float *d, int n, int h, int w, float min_depth
                     int b = depth_bin(depth, lmin, lspan);
                     all[b]++;
                     total++;
-                    far += depth > 0.5 * max_depth;
+                    far += depth > 0.5 * r.far;
                     if (!pass) { up[b]++; nup++; }
                     else { nlow++; farther += b > ub; }
                 }

@@ -25,7 +25,8 @@
  * haze with no order.  It is printed and logged ({"type":"health"}) once per
  * run; "drifting" stays in the step lines' "health" summary while it holds.
  * Step lines carry the figures as "inverted", "far_half" (share beyond half
- * of max_depth) and "depth_p50" (median depth, m).  It assumes a forward-looking camera on a
+ * of the depth range's far end) and "depth_p50" (median depth, m).  It
+ * assumes a forward-looking camera on a
  * ground vehicle with the ground in the lower half of the (upright) image,
  * which is what nightjar trains on.
  * Measured (tests/test_health.c replays the recorded sequences), e2e data
@@ -48,6 +49,7 @@
  * 290), but with 1.5× margin on the healthy side. */
 #ifndef NJ_HEALTH_H
 #define NJ_HEALTH_H
+#include "losses/depth.h"
 
 #define NJ_HEALTH_WINDOW 20
 /* The drift alarm's threshold on the windowed median of `inverted`, and the
@@ -67,14 +69,13 @@ enum {
 /* Figures of one step's scale-0 disparity map (no ground truth needed). */
 typedef struct nj_disp_figures {
     float inverted;    /* share of lower-half pixels farther than the upper half's median depth */
-    float far_half;    /* share of pixels beyond half of max_depth */
+    float far_half;    /* share of pixels beyond half of the range's far end */
     float depth_p50;   /* median depth (m) */
 } nj_disp_figures;
 
-/* Figures of a sigmoid disparity tensor d (N×1×H×W; depth = 1 / (1/max +
- * (1/min − 1/max)·d), the losses' mapping). */
-void nj_health_disp_figures(const float *d, int n, int h, int w, float min_depth, float max_depth,
-                            nj_disp_figures *f);
+/* Figures of a sigmoid disparity tensor d (N×1×H×W) read as depth in range r
+ * (the losses' mapping, losses/depth.h). */
+void nj_health_disp_figures(const float *d, int n, int h, int w, nj_depth_range r, nj_disp_figures *f);
 
 typedef struct nj_health {
     int streak[4];          /* consecutive observations per condition */

@@ -7,8 +7,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define BN_EPS 1e-5f   /* the eps of train/model/model.c's batch norm */
-
 /* The unit's export name: its weight parameter's name without ".w". */
 static void unit_name(const nj_unit *u, char *out, size_t n)
 {
@@ -93,7 +91,7 @@ static void copy_unit(const nj_safetensors *st, nj_unit *u, const unit_src *s)
             u->gamma->data[o] = 1.0f;
             u->beta->data[o] = 0.0f;
             u->run_mean->data[o] = 0.0f;
-            u->run_var->data[o] = 1.0f - BN_EPS;
+            u->run_var->data[o] = 1.0f - NJ_MODEL_NORM_EPS;   /* var + eps = 1: the identity */
         }
 }
 

@@ -95,6 +95,7 @@ int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj
     in.cams = b->camera;
     in.rng = rng;
     in.nscales = m->cfg.scales;
+    in.depth_range = m->cfg.depth_range;   /* the model's own: a resumed run keeps its checkpoint's */
     if (nj_depth_forward(g, m, tgt_in, in.disp)) return -1;
     nj_tensor *slip = NULL;
     if (cfg->video && b->nsrc > 0 && add_video(g, m, cfg, b, tgt_in, &in, &r->translation, &slip)) return -1;

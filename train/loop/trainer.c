@@ -160,7 +160,7 @@ static void check_health(nj_trainer *t, const nj_step_result *r)
     /* the drift alarm's figures come from this step's scale-0 disparity */
     const nj_tensor *d = r->disp0;
     nj_disp_figures df;
-    if (d) nj_health_disp_figures(d->data, d->n, d->h, d->w, t->cfg.loss.min_depth, t->cfg.loss.max_depth, &df);
+    if (d) nj_health_disp_figures(d->data, d->n, d->h, d->w, t->model.cfg.depth_range, &df);
     int fired = nj_health_observe(&t->health, t->st.step, r->loss, r->saturated, r->translation,
                                   r->mask_fraction, d ? &df : NULL);
     for (int bit = 1; bit <= NJ_HEALTH_LAST; bit <<= 1)

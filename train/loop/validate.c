@@ -40,12 +40,12 @@ static void add_depth_metrics(const nj_trainer *t, const nj_batch *b, const nj_t
     for (int i = 0; i < b->n; i++) {
         if (!item_truth(t, b, i, gt)) continue;
         for (size_t k = 0; k < n; k++)
-            pred[k] = nj_disp_to_depth_value(disp->data[i * n + k], t->cfg.loss.min_depth, t->cfg.loss.max_depth);
-        size_t m = nj_depth_select(gt, pred, n, (float)NJ_EVAL_MIN_DEPTH, NJ_EVAL_MAX_DEPTH, gsel, psel);
+            pred[k] = nj_depth_from_disparity_value(disp->data[i * n + k], t->model.cfg.depth_range);
+        size_t m = nj_depth_select(gt, pred, n, (float)NJ_EVAL_DEPTH_FLOOR, NJ_EVAL_DEPTH_CAP, gsel, psel);
         double scale = metric ? 1.0 : nj_median_scale(gsel, psel, m, gt);
         nj_depth_metrics dm;
-        if (m && scale > 0 && nj_depth_metrics_compute(gsel, psel, m, scale, (float)NJ_EVAL_MIN_DEPTH,
-                                                       NJ_EVAL_MAX_DEPTH, &dm) == 0)
+        if (m && scale > 0 && nj_depth_metrics_compute(gsel, psel, m, scale, (float)NJ_EVAL_DEPTH_FLOOR,
+                                                       NJ_EVAL_DEPTH_CAP, &dm) == 0)
             nj_metrics_acc_add(acc, &dm, scale);
     }
 }

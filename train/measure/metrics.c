@@ -4,13 +4,13 @@
 #include <math.h>
 #include <string.h>
 
-size_t nj_depth_select(const float *gt, const float *pred, size_t n, float min_depth,
-                       float max_depth, float *gt_out, float *pred_out)
+size_t nj_depth_select(const float *gt, const float *pred, size_t n, float depth_floor,
+                       float depth_cap, float *gt_out, float *pred_out)
 {
     size_t k = 0;
     for (size_t i = 0; i < n; i++) {
         float g = gt[i];
-        if (!isfinite(g) || !(g > min_depth) || !(g < max_depth)) continue;
+        if (!isfinite(g) || !(g > depth_floor) || !(g < depth_cap)) continue;
         gt_out[k] = g;
         pred_out[k] = pred[i];
         k++;
@@ -73,21 +73,21 @@ double nj_median_scale(const float *gt, const float *pred, size_t n, float *scra
     return mp > 0 ? mg / mp : NAN;
 }
 
-static double clamp_pred(double p, float min_depth, float max_depth)
+static double clamp_pred(double p, float depth_floor, float depth_cap)
 {
-    if (!(p >= min_depth)) return min_depth;      /* also NaN */
-    return p > max_depth ? max_depth : p;
+    if (!(p >= depth_floor)) return depth_floor;      /* also NaN */
+    return p > depth_cap ? depth_cap : p;
 }
 
 int nj_depth_metrics_compute(const float *gt, const float *pred, size_t n, double scale,
-                             float min_depth, float max_depth, nj_depth_metrics *out)
+                             float depth_floor, float depth_cap, nj_depth_metrics *out)
 {
     memset(out, 0, sizeof *out);
     if (n == 0) return -1;
     double absrel = 0, sqrel = 0, sq = 0, sqlog = 0;
     long d1 = 0, d2 = 0, d3 = 0;
     for (size_t i = 0; i < n; i++) {
-        double g = gt[i], p = clamp_pred(pred[i] * scale, min_depth, max_depth);
+        double g = gt[i], p = clamp_pred(pred[i] * scale, depth_floor, depth_cap);
         double diff = g - p, ratio = g > p ? g / p : p / g, dl = log(g) - log(p);
         absrel += fabs(diff) / g;
         sqrel += diff * diff / g;

@@ -1,12 +1,13 @@
 /* train/measure/metrics.h — depth and camera-motion accuracy against ground truth.
  *
  * Depth (Eigen et al. 2014), over the valid ground-truth pixels of an image —
- * finite gt with min_depth < gt < max_depth (the depth cap):
+ * finite gt with depth_floor < gt < depth_cap (the scored interval, written
+ * to metrics.json as "scored_depth"):
  *   absrel   = mean |gt − p| / gt          sqrel    = mean (gt − p)² / gt
  *   rmse     = sqrt(mean (gt − p)²)        rmse_log = sqrt(mean (ln gt − ln p)²)
  *   delta_k  = share of pixels with max(gt/p, p/gt) < 1.25^k, k = 1, 2, 3
  * where p is the prediction times a scale factor, then clamped to
- * [min_depth, max_depth].  Monocular models are scaled per image by
+ * [depth_floor, depth_cap].  Monocular models are scaled per image by
  * median(gt)/median(p) (Zhou et al. 2017; medians as numpy: the mean of the two
  * middle values for an even count); metric models use scale 1.  Images are
  * accumulated the usual way: the metrics of each image, then their mean over
@@ -26,8 +27,8 @@
 #define NJ_METRICS_H
 #include <stddef.h>
 
-#define NJ_EVAL_MIN_DEPTH 1e-3      /* ground truth at or below this is "no data" */
-#define NJ_EVAL_MAX_DEPTH 80.0f     /* default depth cap */
+#define NJ_EVAL_DEPTH_FLOOR 1e-3    /* ground truth at or below this is "no data" */
+#define NJ_EVAL_DEPTH_CAP 80.0f     /* default depth cap (eval --max-depth) */
 #define NJ_ATE_SNIPPET 5
 
 typedef struct nj_depth_metrics {
@@ -35,10 +36,10 @@ typedef struct nj_depth_metrics {
     long pixels;
 } nj_depth_metrics;
 
-/* Copies the pairs (gt[i], pred[i]) with a valid gt (finite, min_depth < gt <
- * max_depth) into gt_out/pred_out (room for n each).  Returns their count. */
-size_t nj_depth_select(const float *gt, const float *pred, size_t n, float min_depth,
-                       float max_depth, float *gt_out, float *pred_out);
+/* Copies the pairs (gt[i], pred[i]) with a valid gt (finite, depth_floor < gt <
+ * depth_cap) into gt_out/pred_out (room for n each).  Returns their count. */
+size_t nj_depth_select(const float *gt, const float *pred, size_t n, float depth_floor,
+                       float depth_cap, float *gt_out, float *pred_out);
 /* Quantile q ∈ [0, 1] of x[0..n-1] with numpy's default (linear)
  * interpolation between order statistics; x is reordered.  NaN when n = 0. */
 double nj_quantile(float *x, size_t n, double q);
@@ -49,9 +50,9 @@ double nj_median(float *x, size_t n);
  * `scratch` needs room for n floats).  NaN when n = 0 or median(pred) ≤ 0. */
 double nj_median_scale(const float *gt, const float *pred, size_t n, float *scratch);
 /* Metrics of n selected pairs with pred multiplied by `scale` and clamped to
- * [min_depth, max_depth].  Returns 0, or -1 when n = 0. */
+ * [depth_floor, depth_cap].  Returns 0, or -1 when n = 0. */
 int nj_depth_metrics_compute(const float *gt, const float *pred, size_t n, double scale,
-                             float min_depth, float max_depth, nj_depth_metrics *out);
+                             float depth_floor, float depth_cap, nj_depth_metrics *out);
 
 /* Mean of per-image metrics and of the per-image scale factors. */
 typedef struct nj_metrics_acc {
@@ -93,17 +94,17 @@ void nj_metrics_acc_result(const nj_metrics_acc *a, nj_depth_metrics *mean,
 #define NJ_OBSTACLE_REL 0.2
 #define NJ_DEPTH_BANDS 5
 
-/* The bands below max_depth: from[b], to[b] (metres, room for
+/* The bands below depth_cap: from[b], to[b] (metres, room for
  * NJ_DEPTH_BANDS each).  Returns their count. */
-int nj_depth_bands(float max_depth, float *from, float *to);
+int nj_depth_bands(float depth_cap, float *from, float *to);
 /* Fills out (w·h) with the row-layout oracle of gt (w·h); `scratch` needs
  * room for w·h floats.  Returns the number of valid pixels; when 0, out is
  * NaN everywhere. */
-size_t nj_row_layout(const float *gt, int w, int h, float min_depth, float max_depth, float *out,
+size_t nj_row_layout(const float *gt, int w, int h, float depth_floor, float depth_cap, float *out,
                      float *scratch);
 /* flag[i] = 1 where gt[i] is valid and |gt[i] − row[i]| > NJ_OBSTACLE_REL·row[i]
  * (row: nj_row_layout's output for the same gt), else 0.  Returns the count. */
-size_t nj_obstacle_flags(const float *gt, const float *row, size_t n, float min_depth, float max_depth,
+size_t nj_obstacle_flags(const float *gt, const float *row, size_t n, float depth_floor, float depth_cap,
                          float *flag);
 
 typedef struct nj_region_metrics {
@@ -113,10 +114,10 @@ typedef struct nj_region_metrics {
 
 /* Region metrics over those of n selected pairs with lo <= gt[i] < hi and
  * (flag NULL or flag[i] != 0); pred is multiplied by `scale` and clamped to
- * [min_depth, max_depth].  `scratch` needs room for n floats.  Returns 0, or
+ * [depth_floor, depth_cap].  `scratch` needs room for n floats.  Returns 0, or
  * -1 (out zeroed) when no pair is in the region. */
 int nj_region_metrics_compute(const float *gt, const float *pred, const float *flag, size_t n, float lo,
-                              float hi, double scale, float min_depth, float max_depth, float *scratch,
+                              float hi, double scale, float depth_floor, float depth_cap, float *scratch,
                               nj_region_metrics *out);
 
 typedef struct nj_region_acc {

@@ -7,52 +7,52 @@
 
 static const float BAND_FROM[NJ_DEPTH_BANDS] = {0, 3, 6, 10, 20};
 
-int nj_depth_bands(float max_depth, float *from, float *to)
+int nj_depth_bands(float depth_cap, float *from, float *to)
 {
     int n = 0;
-    for (int b = 0; b < NJ_DEPTH_BANDS && BAND_FROM[b] < max_depth; b++, n++) {
-        float hi = b + 1 < NJ_DEPTH_BANDS ? BAND_FROM[b + 1] : max_depth;
+    for (int b = 0; b < NJ_DEPTH_BANDS && BAND_FROM[b] < depth_cap; b++, n++) {
+        float hi = b + 1 < NJ_DEPTH_BANDS ? BAND_FROM[b + 1] : depth_cap;
         from[b] = BAND_FROM[b];
-        to[b] = hi < max_depth ? hi : max_depth;
+        to[b] = hi < depth_cap ? hi : depth_cap;
     }
     return n;
 }
 
-static int valid(float g, float min_depth, float max_depth)
+static int valid(float g, float depth_floor, float depth_cap)
 {
-    return isfinite(g) && g > min_depth && g < max_depth;
+    return isfinite(g) && g > depth_floor && g < depth_cap;
 }
 
 /* Valid values of gt[0..n-1] into dst; returns their count. */
-static size_t gather_valid(const float *gt, size_t n, float min_depth, float max_depth, float *dst)
+static size_t gather_valid(const float *gt, size_t n, float depth_floor, float depth_cap, float *dst)
 {
     size_t k = 0;
     for (size_t i = 0; i < n; i++)
-        if (valid(gt[i], min_depth, max_depth)) dst[k++] = gt[i];
+        if (valid(gt[i], depth_floor, depth_cap)) dst[k++] = gt[i];
     return k;
 }
 
-size_t nj_row_layout(const float *gt, int w, int h, float min_depth, float max_depth, float *out,
+size_t nj_row_layout(const float *gt, int w, int h, float depth_floor, float depth_cap, float *out,
                      float *scratch)
 {
-    size_t n = (size_t)w * h, k = gather_valid(gt, n, min_depth, max_depth, scratch);
+    size_t n = (size_t)w * h, k = gather_valid(gt, n, depth_floor, depth_cap, scratch);
     float image_median = (float)nj_median(scratch, k);      /* NaN when k = 0 */
     for (int y = 0; y < h; y++) {
         const float *row = gt + (size_t)y * w;
-        size_t m = gather_valid(row, (size_t)w, min_depth, max_depth, scratch);
+        size_t m = gather_valid(row, (size_t)w, depth_floor, depth_cap, scratch);
         float v = m ? (float)nj_median(scratch, m) : image_median;
         for (int x = 0; x < w; x++) out[(size_t)y * w + x] = v;
     }
     return k;
 }
 
-size_t nj_obstacle_flags(const float *gt, const float *row, size_t n, float min_depth, float max_depth,
+size_t nj_obstacle_flags(const float *gt, const float *row, size_t n, float depth_floor, float depth_cap,
                          float *flag)
 {
     size_t k = 0;
     for (size_t i = 0; i < n; i++) {
         double g = gt[i], m = row[i];
-        int is = valid(gt[i], min_depth, max_depth) && fabs(g - m) > NJ_OBSTACLE_REL * m;
+        int is = valid(gt[i], depth_floor, depth_cap) && fabs(g - m) > NJ_OBSTACLE_REL * m;
         flag[i] = (float)is;
         k += (size_t)is;
     }
@@ -60,14 +60,14 @@ size_t nj_obstacle_flags(const float *gt, const float *row, size_t n, float min_
 }
 
 /* As nj_depth_metrics_compute clamps: NaN to the near bound. */
-static double clamp_pred(double p, float min_depth, float max_depth)
+static double clamp_pred(double p, float depth_floor, float depth_cap)
 {
-    if (!(p >= min_depth)) return min_depth;
-    return p > max_depth ? max_depth : p;
+    if (!(p >= depth_floor)) return depth_floor;
+    return p > depth_cap ? depth_cap : p;
 }
 
 int nj_region_metrics_compute(const float *gt, const float *pred, const float *flag, size_t n, float lo,
-                              float hi, double scale, float min_depth, float max_depth, float *scratch,
+                              float hi, double scale, float depth_floor, float depth_cap, float *scratch,
                               nj_region_metrics *out)
 {
     memset(out, 0, sizeof *out);
@@ -77,7 +77,7 @@ int nj_region_metrics_compute(const float *gt, const float *pred, const float *f
     for (size_t i = 0; i < n; i++) {
         double g = gt[i];
         if (!(g >= lo && g < hi) || (flag && flag[i] == 0)) continue;
-        double p = clamp_pred(pred[i] * scale, min_depth, max_depth), ratio = g > p ? g / p : p / g;
+        double p = clamp_pred(pred[i] * scale, depth_floor, depth_cap), ratio = g > p ? g / p : p / g;
         absrel += fabs(g - p) / g;
         d1 += ratio < 1.25;
         scratch[k++] = (float)(p / g);

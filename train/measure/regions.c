@@ -6,11 +6,11 @@
 #include <stdio.h>
 #include <string.h>
 
-void nj_eval_regions_init(nj_eval_regions *r, float max_depth)
+void nj_eval_regions_init(nj_eval_regions *r, float depth_cap)
 {
     memset(r, 0, sizeof *r);
-    r->max_depth = max_depth;
-    r->nbands = nj_depth_bands(max_depth, r->from, r->to);
+    r->depth_cap = depth_cap;
+    r->nbands = nj_depth_bands(depth_cap, r->from, r->to);
     for (int m = 0; m < NJ_EVAL_METHODS; m++)
         for (int g = 0; g < NJ_REGIONS; g++) nj_region_acc_init(&r->acc[m][g]);
 }
@@ -20,7 +20,7 @@ static void add_region(nj_eval_regions *r, int region, const float *gsel, const 
 {
     for (int m = 0; m < NJ_EVAL_METHODS; m++) {
         nj_region_metrics rm;
-        if (nj_region_metrics_compute(gsel, psel[m], flag, k, lo, hi, scale[m], NJ_EVAL_MIN_DEPTH, r->max_depth,
+        if (nj_region_metrics_compute(gsel, psel[m], flag, k, lo, hi, scale[m], NJ_EVAL_DEPTH_FLOOR, r->depth_cap,
                                       scratch, &rm) == 0)
             nj_region_acc_add(&r->acc[m][region], &rm);
     }

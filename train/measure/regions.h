@@ -13,14 +13,14 @@
 enum { NJ_REGION_OBSTACLE = NJ_DEPTH_BANDS, NJ_REGION_LEAD, NJ_REGIONS };
 
 typedef struct nj_eval_regions {
-    float max_depth;
+    float depth_cap;
     int nbands;
     float from[NJ_DEPTH_BANDS], to[NJ_DEPTH_BANDS];
     int lead_sequences;        /* sequences of the split with lead-vehicle masks */
     nj_region_acc acc[NJ_EVAL_METHODS][NJ_REGIONS];
 } nj_eval_regions;
 
-void nj_eval_regions_init(nj_eval_regions *r, float max_depth);
+void nj_eval_regions_init(nj_eval_regions *r, float depth_cap);
 /* One image: the k selected ground-truth depths gsel, each method's selected
  * prediction psel[m] and scale factor scale[m], the selected obstacle flags
  * and lead-vehicle flags (NULL when the image has no mask).  `scratch` needs

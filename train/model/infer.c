@@ -7,8 +7,7 @@
 
 #define INFER_ARENA_CHUNK (16u << 20)
 
-int nj_infer_init(nj_infer *in, nj_model *m, int width, int height, float min_depth,
-                  float max_depth, char *err, size_t errlen)
+int nj_infer_init(nj_infer *in, nj_model *m, int width, int height, char *err, size_t errlen)
 {
     memset(in, 0, sizeof *in);
     if (!nj_model_size_ok(m, height, width)) {
@@ -16,8 +15,8 @@ int nj_infer_init(nj_infer *in, nj_model *m, int width, int height, float min_de
                  1 << m->cfg.stages);
         return -1;
     }
-    if (!(min_depth > 0) || !(max_depth > min_depth)) {
-        snprintf(err, errlen, "bad depth range %g..%g", min_depth, max_depth);
+    if (!nj_depth_range_ok(m->cfg.depth_range)) {
+        snprintf(err, errlen, "bad depth range %g..%g", m->cfg.depth_range.near, m->cfg.depth_range.far);
         return -1;
     }
     in->graph = nj_graph_new(INFER_ARENA_CHUNK);
@@ -30,8 +29,6 @@ int nj_infer_init(nj_infer *in, nj_model *m, int width, int height, float min_de
     in->model = m;
     in->width = width;
     in->height = height;
-    in->min_depth = min_depth;
-    in->max_depth = max_depth;
     return 0;
 }
 
@@ -76,7 +73,7 @@ int nj_infer_depth(nj_infer *in, const nj_image *im, int out_w, int out_h, float
     if (!s) return graph_error(in, err, errlen);
     size_t n = (size_t)out_w * out_h;
     for (size_t i = 0; i < n; i++) {
-        depth[i] = nj_disp_to_depth_value(s->data[i], in->min_depth, in->max_depth);
+        depth[i] = nj_depth_from_disparity_value(s->data[i], in->model->cfg.depth_range);
         if (disp) disp[i] = s->data[i];
     }
     return 0;

@@ -3,7 +3,7 @@
  * recording), input resized to the model's training size, the finest
  * disparity resized back to the requested size (bilinear, half-pixel
  * centres) and converted to depth with the model's depth range
- * (losses/depth.h). */
+ * (model.cfg.depth_range, losses/depth.h). */
 #ifndef NJ_INFER_H
 #define NJ_INFER_H
 #include "data/image.h"
@@ -14,13 +14,11 @@ typedef struct nj_infer {
     nj_model *model;
     nj_graph *graph;
     int width, height;          /* network input size (the training size) */
-    float min_depth, max_depth; /* depth range of the disparity heads */
 } nj_infer;
 
-/* Returns 0, or -1 with a message when the size does not suit the model or
- * memory runs out.  The model must outlive the nj_infer. */
-int nj_infer_init(nj_infer *in, nj_model *m, int width, int height, float min_depth,
-                  float max_depth, char *err, size_t errlen);
+/* Returns 0, or -1 with a message when the size does not suit the model, its
+ * depth range is invalid or memory runs out.  The model must outlive the nj_infer. */
+int nj_infer_init(nj_infer *in, nj_model *m, int width, int height, char *err, size_t errlen);
 void nj_infer_free(nj_infer *in);
 /* Depth (out_w·out_h floats, row-major) of an image of any size.  When
  * `disp` is non-NULL it receives the sigmoid disparity at the same size.

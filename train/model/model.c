@@ -19,6 +19,7 @@ void nj_model_config_default(nj_model_config *cfg)
     cfg->pose_scale = 0.5f;
     cfg->rotation_scale = 0.0f;   /* follow pose_scale */
     cfg->bn_momentum = 0.1f;
+    cfg->depth_range = (nj_depth_range){NJ_MODEL_DEPTH_NEAR, NJ_MODEL_DEPTH_FAR};
     cfg->seed = 1;
 }
 
@@ -214,27 +215,32 @@ static nj_tensor *P(nj_graph *g, nj_model *m, nj_param *p)
     return p ? nj_param_tensor(g, &m->params, p) : NULL;
 }
 
+int nj_model_norm_groups(int channels)
+{
+    return channels % 8 == 0 ? 8 : (channels % 4 == 0 ? 4 : 1);
+}
+
 static nj_tensor *unit_forward(nj_graph *g, nj_model *m, const nj_unit *u, nj_tensor *x)
 {
     nj_tensor *y = nj_conv2d(g, x, P(g, m, u->w), P(g, m, u->b), u->stride, u->pad, u->pad_mode);
     if (u->norm == NJ_NORM_BATCH && u->act == NJ_ACT_ELU)   /* fused: one activation buffer fewer */
         return nj_batchnorm_elu(g, y, P(g, m, u->gamma), P(g, m, u->beta), u->run_mean->data,
-                                u->run_var->data, m->cfg.bn_momentum, 1e-5f);
+                                u->run_var->data, m->cfg.bn_momentum, NJ_MODEL_NORM_EPS);
     if (u->norm == NJ_NORM_BATCH)
         y = nj_batchnorm(g, y, P(g, m, u->gamma), P(g, m, u->beta), u->run_mean->data,
-                         u->run_var->data, m->cfg.bn_momentum, 1e-5f);
+                         u->run_var->data, m->cfg.bn_momentum, NJ_MODEL_NORM_EPS);
     else if (u->norm == NJ_NORM_GROUP)
-        y = nj_groupnorm(g, y, u->cout % 8 == 0 ? 8 : (u->cout % 4 == 0 ? 4 : 1),
-                         P(g, m, u->gamma), P(g, m, u->beta), 1e-5f);
+        y = nj_groupnorm(g, y, nj_model_norm_groups(u->cout), P(g, m, u->gamma), P(g, m, u->beta),
+                         NJ_MODEL_NORM_EPS);
     if (u->act == NJ_ACT_ELU) y = nj_elu(g, y);
     else if (u->act == NJ_ACT_SIGMOID) y = nj_sigmoid(g, y);
     return y;
 }
 
-/* Fixed input standardisation: (x − 0.45)/0.225. */
+/* Fixed input standardisation: (x − NJ_MODEL_INPUT_MEAN)/NJ_MODEL_INPUT_STD. */
 static nj_tensor *standardise(nj_graph *g, nj_tensor *img)
 {
-    return nj_affine(g, img, 1.0f / 0.225f, -0.45f / 0.225f);
+    return nj_affine(g, img, 1.0f / NJ_MODEL_INPUT_STD, -NJ_MODEL_INPUT_MEAN / NJ_MODEL_INPUT_STD);
 }
 
 int nj_depth_forward(nj_graph *g, nj_model *m, nj_tensor *img, nj_tensor **disp)

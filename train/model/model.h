@@ -16,12 +16,27 @@
  *
  * Parameters are registered in groups: 0 depth encoder, 1 depth decoder,
  * 2 pose net; batch-norm running statistics are kept in `buffers`.
+ *
+ * The facts below are the networks' own numbers that code outside this
+ * module must repeat exactly (exporters write them into C and ONNX files,
+ * weight loaders invert them): they are defined here once, and everything
+ * else uses these names, so a change here cannot leave an exporter behind.
  */
 #ifndef NJ_MODEL_H
 #define NJ_MODEL_H
 #include "nn/param.h"
 #include "nn/ops.h"
+#include "losses/depth.h"
 #include <stdint.h>
+
+/* Epsilon of every normalisation layer (batch and group norm): x̂ = (x − μ)/√(σ² + eps). */
+#define NJ_MODEL_NORM_EPS 1e-5f
+/* Fixed input standardisation of both nets, every channel: (x − MEAN)/STD, x in [0, 1]. */
+#define NJ_MODEL_INPUT_MEAN 0.45f
+#define NJ_MODEL_INPUT_STD 0.225f
+/* Default depth range (model.depth_range): disparity 1 is NEAR, 0 is FAR (losses/depth.h). */
+#define NJ_MODEL_DEPTH_NEAR 0.1f
+#define NJ_MODEL_DEPTH_FAR 100.0f
 
 #define NJ_MAX_STAGES 6
 #define NJ_MAX_UNITS 48
@@ -42,6 +57,9 @@ typedef struct nj_model_config {
     float pose_scale;      /* translation output multiplier (default 0.5) */
     float rotation_scale;  /* rotation output multiplier; 0 (default) = pose_scale */
     float bn_momentum;     /* default 0.1 */
+    nj_depth_range depth_range; /* what the disparity heads' outputs mean (default
+                              NJ_MODEL_DEPTH_NEAR..FAR); the nets do not use it,
+                              the loss, inference and exports do */
     unsigned seed;         /* initialisation seed */
 } nj_model_config;
 
@@ -73,6 +91,10 @@ void nj_model_free(nj_model *m);
  * computed without building it (readers bound a file's claims with it
  * before allocating).  Both 0 for an invalid stage/scale count. */
 void nj_model_count(const nj_model_config *cfg, uint64_t *params, uint64_t *buffers);
+
+/* Groups of a group-norm layer with `channels` channels: 8 when they divide
+ * evenly, else 4, else 1. */
+int nj_model_norm_groups(int channels);
 
 /* Depth net forward on N×3×H×W images in [0, 1]; disp[s] receives the
  * sigmoid disparity at scale s for s < cfg.scales. */

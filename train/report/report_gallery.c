@@ -241,7 +241,7 @@ static float *shot_depth(const gallery *G, const shot *sh, int fr)
     size_t n = (size_t)G->w * G->h;
     float *d = malloc(n * sizeof *d);
     for (size_t i = 0; d && i < n; i++)
-        d[i] = nj_disp_to_depth_value(sh->disp[fr * n + i], G->cfg.loss.min_depth, G->cfg.loss.max_depth);
+        d[i] = nj_depth_from_disparity_value(sh->disp[fr * n + i], G->cfg.model.depth_range);
     return d;
 }
 

@@ -23,6 +23,7 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "train/loop/checkpoint.h"
+#include "train/cli/commands.h"
 #include "train/report/report.h"
 #include <math.h>
 #include <stb_image.h>
@@ -32,8 +33,6 @@
 #include <sys/stat.h>
 #include <sys/wait.h>
 #include <unistd.h>
-
-int nj_synth_main(int argc, char **argv);
 
 #define NSTEP 12
 #define NVAL 3

@@ -44,9 +44,6 @@ typedef struct nj_trainer {
     struct nj_step_replicas *split; /* the step as per-thread replicas (several threads, one process) */
 } nj_trainer;
 
-/* `./nightjar train ...` */
-int nj_train_main(int argc, char **argv);
-
 /* Setup (train_setup.c): dataset, samples, model (fresh, --init or resumed),
  * optimiser, loader.  Returns 0 or -1 with a message. */
 int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen);

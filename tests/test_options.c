@@ -16,6 +16,7 @@
 #include "tests/run_support.h"
 #include "train/cli/commands.h"
 #include "train/cli/options.h"
+#include <math.h>
 #include <stdarg.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -38,7 +39,8 @@ typedef struct dests {
 
 static dests D;
 static nj_opt OPTS[11];
-static nj_opt_spec SPEC = {"test", "  ABOUT-TEXT line\n", "  EPILOGUE-TEXT line\n", OPTS, 11};
+static nj_opt_spec SPEC = {.command = "test", .about = "  ABOUT-TEXT line\n", .epilogue = "  EPILOGUE-TEXT line\n",
+                           .opts = OPTS, .nopts = 11, .exit_status = "EXIT-STATUS"};
 
 /* Fresh defaults and table (the parser writes `given` into it). */
 static void reset(void)
@@ -57,7 +59,7 @@ static void reset(void)
         {.name = "--colour", .kind = NJ_OPT_CHOICE, .choices = COLOURS, .help = "a choice", .i = &D.colour},
         {.name = "--size", .kind = NJ_OPT_SIZE, .meta = "WxH", .lo = 8, .hi = 8192, .help = "a size",
          .size = D.size},
-        {.name = "--camera", .kind = NJ_OPT_NUMBERS, .meta = "fx,fy,cx,cy", .count = 4, .lo = -1e4, .hi = 1e4,
+        {.name = "--camera", .kind = NJ_OPT_NUMBERS, .meta = "fx,fy,cx,cy", .count = 4, .lo = -INFINITY, .hi = INFINITY,
          .help = "four numbers\non two lines", .dflt = "centred", .list = D.cam},
     };
     memcpy(OPTS, t, sizeof t);
@@ -114,6 +116,20 @@ static void expect_error(const char *what, int rc, const char *msg, const char *
           "rc %d status %d, message \"%s\", want \"%s\"", rc, nj_opt_status(rc), msg, want);
 }
 
+/* Each of values[n] given to opt is refused: "nightjar test: OPT needs WHAT, not 'VALUE'". */
+static void expect_refused(const char *opt, const char *what, char *const *values, size_t n)
+{
+    for (size_t k = 0; k < n; k++) {
+        char m[512], want[300], name[128];
+        snprintf(want, sizeof want, "nightjar test: %s needs %s, not '%s'", opt, what, values[k]);
+        snprintf(name, sizeof name, "%s '%s' refused", opt, values[k]);
+        expect_error(name, PARSE(m, "f", (char *)opt, values[k]), m, want);
+    }
+}
+
+#define REFUSED(opt, what, ...) \
+    expect_refused(opt, what, (char *const[]){__VA_ARGS__}, sizeof((char *[]){__VA_ARGS__}) / sizeof(char *))
+
 static void test_errors(void)
 {
     char m[512];
@@ -125,52 +141,23 @@ static void test_errors(void)
     expect_error("missing value", PARSE(m, "f", "--name", "n", "--count"), m,
                  "nightjar test: --count needs an integer from -10 to 10, none given");
     expect_error("missing string value", PARSE(m, "f", "--name"), m, "nightjar test: --name needs NAME, none given");
-    expect_error("int above range", PARSE(m, "f", "--count", "11"), m,
-                 "nightjar test: --count needs an integer from -10 to 10, not '11'");
-    expect_error("int below range", PARSE(m, "f", "--count", "-11"), m,
-                 "nightjar test: --count needs an integer from -10 to 10, not '-11'");
-    static char *const bad_int[] = {"3x", "", " 3", "3.0", "1e1", "0x5", "99999999999999999999"};
-    for (size_t k = 0; k < sizeof bad_int / sizeof *bad_int; k++) {
-        char want[200], what[64];
-        snprintf(want, sizeof want, "nightjar test: --count needs an integer from -10 to 10, not '%s'", bad_int[k]);
-        snprintf(what, sizeof what, "malformed int '%s'", bad_int[k]);
-        expect_error(what, PARSE(m, "f", "--count", bad_int[k]), m, want);
-    }
-    expect_error("long above range", PARSE(m, "f", "--big", "1000000000001"), m,
-                 "nightjar test: --big needs an integer from 0 to 1000000000000, not '1000000000001'");
-    expect_error("negative u64", PARSE(m, "f", "--seed", "-1"), m,
-                 "nightjar test: --seed needs an integer from 0 to 18446744073709551615, not '-1'");
-    expect_error("u64 overflow", PARSE(m, "f", "--seed", "18446744073709551616"), m,
-                 "nightjar test: --seed needs an integer from 0 to 18446744073709551615, not '18446744073709551616'");
-    static char *const bad_num[] = {"nan", "inf", "-inf", "1e999", "", "3x", "0.2499", "4.0001", " 1"};
-    for (size_t k = 0; k < sizeof bad_num / sizeof *bad_num; k++) {
-        char want[200], what[64];
-        snprintf(want, sizeof want, "nightjar test: --ratio needs a number from 0.25 to 4, not '%s'", bad_num[k]);
-        snprintf(what, sizeof what, "bad number '%s'", bad_num[k]);
-        expect_error(what, PARSE(m, "f", "--ratio", bad_num[k]), m, want);
-    }
-    expect_error("float out of range", PARSE(m, "f", "--gain", "1.5"), m,
-                 "nightjar test: --gain needs a number from 0 to 1, not '1.5'");
-    expect_error("unknown choice", PARSE(m, "f", "--colour", "Red"), m,
-                 "nightjar test: --colour needs one of red, green or blue, not 'Red'");
-    static char *const bad_size[] = {"12x", "x12", "12x12x", "12*12", "7x100", "100x8193", "1.5x20", ""};
-    for (size_t k = 0; k < sizeof bad_size / sizeof *bad_size; k++) {
-        char want[200], what[64];
-        snprintf(want, sizeof want, "nightjar test: --size needs WxH with integers from 8 to 8192, not '%s'",
-                 bad_size[k]);
-        snprintf(what, sizeof what, "bad size '%s'", bad_size[k]);
-        expect_error(what, PARSE(m, "f", "--size", bad_size[k]), m, want);
-    }
-    check(D.size[0] == 320 && D.size[1] == 96, "a refused size leaves the destination alone", "%dx%d", D.size[0],
-          D.size[1]);
-    static char *const bad_list[] = {"1,2,3", "1,2,3,4,5", "1,,3,4", "1,2,3,nan", "1,2,3,20000", "1;2;3;4"};
-    for (size_t k = 0; k < sizeof bad_list / sizeof *bad_list; k++) {
-        char want[200], what[64];
-        snprintf(want, sizeof want,
-                 "nightjar test: --camera needs fx,fy,cx,cy: 4 numbers from -10000 to 10000, not '%s'", bad_list[k]);
-        snprintf(what, sizeof what, "bad list '%s'", bad_list[k]);
-        expect_error(what, PARSE(m, "f", "--camera", bad_list[k]), m, want);
-    }
+    /* out of range (bounds are inclusive: the values just outside) and malformed */
+    REFUSED("--count", "an integer from -10 to 10", "11", "-11", "3x", "", " 3", "3.0", "1e1", "0x5",
+            "99999999999999999999");
+    REFUSED("--big", "an integer from 0 to 1000000000000", "1000000000001", "-1");
+    REFUSED("--seed", "an integer from 0 to 18446744073709551615", "-1", "18446744073709551616", "+1");
+    REFUSED("--ratio", "a number from 0.25 to 4", "0.2499", "4.0001", "nan", "inf", "-inf", "1e999", "", "3x",
+            " 1");
+    REFUSED("--gain", "a number from 0 to 1", "1.5", "-0.001");
+    REFUSED("--colour", "one of red, green or blue", "Red", "", "re");
+    REFUSED("--size", "WxH with integers from 8 to 8192", "7x100", "100x8193", "12x", "x12", "12x12x", "12*12",
+            "1.5x20", "");
+    int rc = PARSE(m, "f", "--size", "100x7");
+    check(rc == NJ_OPT_BAD && D.size[0] == 320 && D.size[1] == 96, "a refused size leaves the destination alone",
+          "%dx%d", D.size[0], D.size[1]);
+    /* unbounded: nan and inf are still refused */
+    REFUSED("--camera", "fx,fy,cx,cy: 4 numbers", "1,2,3,nan", "1,2,inf,4", "-inf,2,3,4", "1,2,3,1e999", "1,2,3",
+            "1,2,3,4,5", "1,,3,4", "1;2;3;4");
     expect_error("given twice", PARSE(m, "f", "--name", "a", "--count", "1", "--count", "1"), m,
                  "nightjar test: --count given twice");
     expect_error("flag given twice", PARSE(m, "f", "--name", "a", "--flag", "--flag"), m,
@@ -207,16 +194,16 @@ static void test_help(void)
         snprintf(help, sizeof help, "%.*s", (int)strcspn(o->help, "\n"), o->help);
         if ((!strstr(text, line) || !strstr(text, help)) && !missing++) snprintf(first, sizeof first, "%s", line + 3);
     }
-    check(missing == 0, "help lists every option of the table with its placeholder and help", "%d missing, first '%s':\n%s",
-          missing, first, text);
+    check(missing == 0, "help lists every option of the table with its placeholder and help",
+          "%d missing, first '%s':\n%s", missing, first, text);
     const char *usage = "usage: nightjar test FILE --name NAME [--flag] [--count N] [--big N] [--seed N]";
-    check(!strncmp(text, usage, strlen(usage)) &&
-              strstr(text, "[--colour red|green|blue]") && strstr(text, "ABOUT-TEXT") && strstr(text, "EPILOGUE-TEXT") &&
-              strstr(text, "\n  --help, -h "),
-          "help: usage line from the table, about and epilogue text, --help itself", "%s", text);
+    check(!strncmp(text, usage, strlen(usage)) && strstr(text, "[--colour red|green|blue]") &&
+              strstr(text, "ABOUT-TEXT") && strstr(text, "EPILOGUE-TEXT") &&
+              strstr(text, "\n  Exit status: EXIT-STATUS.\n") && strstr(text, "\n  --help, -h "),
+          "help: usage line from the table, about and epilogue text, exit status, --help itself", "%s", text);
     check(strstr(text, "(required)") && strstr(text, "(from -10 to 10; default 3)") && strstr(text, "default blue") &&
-              strstr(text, "default 320x96") && strstr(text, "default centred") && strstr(text, "\n  NAME") == NULL &&
-              strstr(text, "on two lines"),
+              strstr(text, "default 320x96") && strstr(text, "on two lines (default centred)") &&
+              strstr(text, "\n  NAME") == NULL,
           "help: ranges and defaults as the parser enforces them", "%s", text);
     free(text);
 }

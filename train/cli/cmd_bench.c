@@ -9,7 +9,7 @@ static const char ABOUT[] =
 
 static const char EPILOGUE[] =
     "  --paced is for alternating step by step with another implementation\n"
-    "  (bench/side_by_side.py).  Exit status: 0 done, 1 failure, 2 bad usage.\n";
+    "  (bench/side_by_side.py).\n";
 
 int nj_bench_main(int argc, char **argv)
 {
@@ -21,8 +21,7 @@ int nj_bench_main(int argc, char **argv)
          .help = "frame size; W and H multiples of 2^stages of the nets", .size = size},
         {.name = "--batch", .kind = NJ_OPT_INT, .meta = "N", .lo = 1, .hi = 256, .help = "frames per step",
          .i = &o.batch},
-        {.name = "--threads", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = 1024, .help = "threads; 0 = all cores",
-         .i = &o.threads},
+        NJ_OPT_THREADS(&o.threads, 1024, NULL),
         {.name = "--steps", .kind = NJ_OPT_INT, .meta = "N", .lo = 1, .hi = 100000, .help = "timed steps",
          .i = &o.steps},
         {.name = "--warmup", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = 1000,
@@ -35,7 +34,8 @@ int nj_bench_main(int argc, char **argv)
                  "end of the input",
          .flag = &o.paced},
     };
-    nj_opt_spec spec = {"bench", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "bench", .about = ABOUT, .epilogue = EPILOGUE,
+                        .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     o.w = size[0];

@@ -10,8 +10,6 @@ static const char ABOUT[] =
     "  decoded), sizes, stereo partners, ground truth; reports per sequence the frame\n"
     "  count, resolution, usable samples and near-duplicate frames skipped.\n";
 
-static const char EPILOGUE[] = "  Exit status: 0 usable, 1 problems found, 2 bad usage.\n";
-
 int nj_check_data_main(int argc, char **argv)
 {
     nj_data_options o;
@@ -31,7 +29,8 @@ int nj_check_data_main(int argc, char **argv)
                  "and removing the frames' estimated sensor noise",
          .f = &o.dup_threshold},
     };
-    nj_opt_spec spec = {"check-data", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "check-data", .about = ABOUT, .opts = opts, .nopts = NJ_OPT_COUNT(opts),
+                        .exit_status = "0 usable, 1 problems found, 2 bad usage"};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     if (no_stereo) o.stereo = 0;

@@ -22,8 +22,7 @@ static const char ABOUT[] =
 static const char EPILOGUE[] =
     "  Where the split has ground-truth poses and the model a pose net: trajectory error\n"
     "  on 5-frame snippets with least-squares scale alignment (Zhou et al. 2017), and the\n"
-    "  rotation error of each consecutive frame pair next to the true rotation.\n"
-    "  Exit status: 0 done, 1 failure, 2 bad usage.\n";
+    "  rotation error of each consecutive frame pair next to the true rotation.\n";
 
 int nj_eval_main(int argc, char **argv)
 {
@@ -45,10 +44,10 @@ int nj_eval_main(int argc, char **argv)
                  "fitted to the lower image region) instead of median scaling;\n"
                  "images where no ground plane is found are left out (counted)",
          .dflt = "", .d = &o.camera_height},
-        {.name = "--threads", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = 1024, .help = "threads; 0 = all cores",
-         .i = &o.threads},
+        NJ_OPT_THREADS(&o.threads, 1024, NULL),
     };
-    nj_opt_spec spec = {"eval", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "eval", .about = ABOUT, .epilogue = EPILOGUE,
+                        .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     o.split = (nj_split)split;

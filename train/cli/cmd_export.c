@@ -15,8 +15,6 @@ static const char ABOUT[] =
     "  safetensors  PATH: every weight, with the architecture and training config as JSON\n"
     "  Batch norm is folded into the convs; group norm is kept as an explicit layer.\n";
 
-static const char EPILOGUE[] = "  Exit status: 0 done, 1 failure, 2 bad usage.\n";
-
 int nj_export_main(int argc, char **argv)
 {
     nj_export_options o = {0};
@@ -35,7 +33,7 @@ int nj_export_main(int argc, char **argv)
         {.name = "--out", .kind = NJ_OPT_STRING, .meta = "PATH", .help = "output file (c: PATH.c and PATH.h)",
          .required = 1, .str = &o.out},
     };
-    nj_opt_spec spec = {"export", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "export", .about = ABOUT, .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     o.format = (nj_export_format)format;

@@ -11,8 +11,6 @@ static const char ABOUT[] =
     "    NAME.preview.png  disparity in the mothwing colour map (near = bright)\n"
     "    NAME.points.ply   with --ply: coloured point cloud (binary PLY, camera frame)\n";
 
-static const char EPILOGUE[] = "  Exit status: 0 done, 1 failure, 2 bad usage.\n";
-
 int nj_predict_main(int argc, char **argv)
 {
     nj_predict_options o;
@@ -34,10 +32,9 @@ int nj_predict_main(int argc, char **argv)
          .help = "metric scale from the camera's height above flat ground,\n"
                  "for models trained on monocular video (depth up to scale)",
          .dflt = "", .d = &o.camera_height},
-        {.name = "--threads", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = 1024, .help = "threads; 0 = all cores",
-         .i = &o.threads},
+        NJ_OPT_THREADS(&o.threads, 1024, NULL),
     };
-    nj_opt_spec spec = {"predict", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "predict", .about = ABOUT, .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     if (nj_opt_find(&spec, "--camera")->given) {

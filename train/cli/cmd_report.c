@@ -9,8 +9,7 @@ static const char ABOUT[] =
     "  learning-rate charts, a gallery of validation frames at up to three checkpoints,\n"
     "  and the metric table.\n";
 
-static const char EPILOGUE[] =
-    "  Prints the page's path.  Exit status: 0 done, 1 failure, 2 bad usage.\n";
+static const char EPILOGUE[] = "  Prints the page's path.\n";
 
 int nj_report_main(int argc, char **argv)
 {
@@ -25,7 +24,8 @@ int nj_report_main(int argc, char **argv)
         {.name = "--export", .kind = NJ_OPT_STRING, .meta = "DIR", .help = "folder of exported models to list",
          .dflt = "RUN_DIR/export", .str = &o.export_dir},
     };
-    nj_opt_spec spec = {"report", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "report", .about = ABOUT, .epilogue = EPILOGUE,
+                        .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     char err[1024];

@@ -10,8 +10,7 @@ static const char ABOUT[] =
 
 static const char EPILOGUE[] =
     "  The fleet nuisances (--lead-cart, --halts, --turns, --exposure-drift,\n"
-    "  --sensor-noise) are off by default; without them the output does not change.\n"
-    "  Exit status: 0 done, 1 failure, 2 bad usage.\n";
+    "  --sensor-noise) are off by default; without them the output does not change.\n";
 
 int nj_synth_main(int argc, char **argv)
 {
@@ -50,7 +49,8 @@ int nj_synth_main(int argc, char **argv)
                  "--sensor-noise 0.01 (unless given) --moving",
          .flag = &fleet},
     };
-    nj_opt_spec spec = {"synth", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "synth", .about = ABOUT, .epilogue = EPILOGUE,
+                        .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     c.width = size[0];

@@ -47,12 +47,12 @@ static int parse_args(int argc, char **argv, train_args *a)
          .help = "start from another run's weights (same architecture): a\n"
                  "checkpoint, or an export made with --format safetensors",
          .str = &a->init},
-        {.name = "--threads", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = 256, .help = "threads; 0 = all cores",
-         .dflt = "run.threads", .i = &a->threads},
+        NJ_OPT_THREADS(&a->threads, 256, "run.threads"),
         {.name = "--seed", .kind = NJ_OPT_LONG, .meta = "N", .lo = 0, .hi = 4294967295.0, .help = "random seed",
          .dflt = "run.seed", .l = &a->seed},
     };
-    nj_opt_spec spec = {"train", ABOUT, EPILOGUE, opts, NJ_OPT_COUNT(opts)};
+    nj_opt_spec spec = {.command = "train", .about = ABOUT, .epilogue = EPILOGUE,
+                        .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc == NJ_OPT_OK && a->minutes >= 0 && a->hours >= 0)
         rc = nj_opt_fail(&spec, "--minutes and --hours are both given: give the time budget once");

@@ -303,20 +303,18 @@ static void default_text(const nj_opt *o, char *buf, size_t len)
 /* "(required)", "(from 0 to 1024; default 0)", "" — what the parser enforces. */
 static void note_text(const nj_opt *o, char *buf, size_t len)
 {
-    char r[96] = "", d[256];
+    char part[3][128], r[96] = "", d[112];
+    int n = 0;
+    if (o->required) snprintf(part[n++], sizeof part[0], "required");
     if (o->kind == NJ_OPT_INT || o->kind == NJ_OPT_LONG || o->kind == NJ_OPT_NUMBER || o->kind == NJ_OPT_FLOAT ||
         o->kind == NJ_OPT_SIZE || o->kind == NJ_OPT_NUMBERS)
         range_text(o, r, sizeof r);
+    if (r[0]) snprintf(part[n++], sizeof part[0], "%s", r);
     default_text(o, d, sizeof d);
-    const char *parts[3] = {o->required ? "required" : "", r, d[0] ? "default " : ""};
-    size_t at = 0;
+    if (d[0]) snprintf(part[n++], sizeof part[0], "default %s", d);
     buf[0] = 0;
-    for (int k = 0; k < 3; k++) {
-        if (!parts[k][0]) continue;
-        at += (size_t)snprintf(buf + at, len - at, "%s%s%s", at ? "; " : "(", parts[k], k == 2 ? d : "");
-        if (at >= len) return;
-    }
-    if (at && at + 1 < len) strcat(buf, ")");
+    if (n) snprintf(buf, len, "(%s%s%s%s%s)", part[0], n > 1 ? "; " : "", n > 1 ? part[1] : "", n > 2 ? "; " : "",
+                    n > 2 ? part[2] : "");
 }
 
 static void usage_line(const nj_opt_spec *s, FILE *f)
@@ -381,4 +379,5 @@ void nj_opt_usage(const nj_opt_spec *s, FILE *f)
     for (int k = 0; k < s->nopts; k++) option_lines(&s->opts[k], column, f);
     fprintf(f, "  %-*s  this text\n", column, "--help, -h");
     if (s->epilogue) fputs(s->epilogue, f);
+    fprintf(f, "  Exit status: %s.\n", s->exit_status ? s->exit_status : NJ_OPT_EXIT_STATUS);
 }

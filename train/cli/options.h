@@ -70,14 +70,23 @@ typedef struct nj_opt {
 typedef struct nj_opt_spec {
     const char *command;         /* "eval": messages start "nightjar eval: " */
     const char *about;           /* printed after the usage line, as written */
-    const char *epilogue;        /* printed after the options (outputs, exit status), as written */
+    const char *epilogue;        /* printed after the options (outputs), as written */
     nj_opt *opts;
     int nopts;
+    const char *exit_status;     /* the help's last line "Exit status: ..."; NULL: NJ_OPT_EXIT_STATUS */
 } nj_opt_spec;
+
+#define NJ_OPT_EXIT_STATUS "0 done, 1 failure, 2 bad usage"
 
 enum { NJ_OPT_OK = 0, NJ_OPT_HELP = 1, NJ_OPT_BAD = 2 };
 
 #define NJ_OPT_COUNT(table) (int)(sizeof(table) / sizeof((table)[0]))
+
+/* The --threads option of the commands that compute (0 = all cores);
+ * dflt as in nj_opt (NULL: the destination's value). */
+#define NJ_OPT_THREADS(dest, max, default_text) \
+    {.name = "--threads", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = (max), .help = "threads; 0 = all cores", \
+     .dflt = (default_text), .i = (dest)}
 
 /* Parses argv[1..argc-1] into the destinations.  NJ_OPT_BAD leaves the
  * one-line message (no newline) in msg; NJ_OPT_HELP prints nothing. */

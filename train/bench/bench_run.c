@@ -19,7 +19,6 @@
 #include <omp.h>
 #include <stdio.h>
 #include <stdlib.h>
-#include <string.h>
 #include <sys/resource.h>
 
 /* One step as the trainer runs it: zero grads, forward + backward (split over

@@ -3,7 +3,6 @@
 #include "train/loop/checkpoint.h"
 #include "train/export/export.h"
 #include <stdio.h>
-#include <stdlib.h>
 #include <string.h>
 
 static int write_export(const nj_export_net *net, const nj_export_options *a, long *bytes, char *err,

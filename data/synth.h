@@ -59,9 +59,8 @@ typedef struct nj_synth_config {
 
 /* Defaults: seed 1, 200 frames, 3 sequences, 320x240, mono, static scene. */
 void nj_synth_config_default(nj_synth_config *c);
-/* Renders and writes everything.  Returns 0, or -1 with a message in err. */
+/* Renders and writes everything.  Returns 0, or -1 with a message in err.
+ * (The `nightjar synth` command line is train/cli/cmd_synth.c.) */
 int nj_synth_run(const nj_synth_config *c, char *err, unsigned long errlen);
-/* The command; argv[0] is "synth".  Returns the exit status. */
-int nj_synth_main(int argc, char **argv);
 
 #endif

@@ -3,7 +3,7 @@
  * dataset — one per problem — exits non-zero with its one-line message naming
  * the file.  Outside source: the JSON syntax error position is compared with
  * Python's json module (tests/ref/data_json_pos.py). */
-#include "train/cli/check_data.h"
+#include "train/cli/commands.h"
 #include "data/image.h"
 #include "data/npy.h"
 #include "tests/check.h"

@@ -32,6 +32,7 @@
 #include "tests/e2e_support.h"
 #include "train/loop/checkpoint.h"
 #include "train/eval/colormap.h"
+#include "train/cli/commands.h"
 #include "train/report/report.h"
 #include <math.h>
 #include <stb_image.h>
@@ -41,8 +42,6 @@
 #include <sys/stat.h>
 #include <sys/wait.h>
 #include <unistd.h>
-
-int nj_synth_main(int argc, char **argv);
 
 #define NSTEP 12
 #define NVAL 3

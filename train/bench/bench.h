@@ -39,7 +39,22 @@ void nj_bench_config(nj_train_config *cfg, int w, int h, int batch);
 int nj_bench_dump(const char *dir, const nj_model *m, const nj_bench_batch *bb,
                   char *err, size_t errlen);
 
-/* `./nightjar bench [--size WxH] [--batch N] [--threads N] [--steps N] [--profile]` */
-int nj_bench_main(int argc, char **argv);
+/* What `./nightjar bench` times (bench_run.c; its command line is
+ * train/cli/cmd_bench.c). */
+typedef struct nj_bench_options {
+    int w, h, batch;
+    int threads;             /* 0 = all cores */
+    int steps, warmup;       /* timed steps, untimed steps before them */
+    int profile;             /* time shares of conv, warping, SSIM */
+    int paced;               /* each step waits for a line on standard input */
+} nj_bench_options;
+
+/* 320x96, batch 4, all cores, 10 steps after 3 warm-up. */
+void nj_bench_options_default(nj_bench_options *o);
+/* Runs the steps and prints the figures on stdout.  Returns 0; -1 with a
+ * one-line message; NJ_BENCH_BAD_SIZE (with a message) when the size does
+ * not suit the nets. */
+#define NJ_BENCH_BAD_SIZE -2
+int nj_bench_run(const nj_bench_options *o, char *err, size_t errlen);
 
 #endif

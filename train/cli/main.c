@@ -1,40 +1,26 @@
 /* train/cli/main.c — the ./nightjar command: dispatches subcommands. */
-#include "train/cli/check_data.h"
-#include "data/synth.h"
+#include "train/cli/commands.h"
 #include "train/loop/dist.h"
-#include "train/bench/bench.h"
-#include "train/loop/trainer.h"
 #include "train/version.h"
 #include <cblas.h>
 #include <stdio.h>
 #include <string.h>
 
-typedef struct command {
-    const char *name;
-    const char *summary;
-    int (*run)(int argc, char **argv);
-} command;
-
 static int cmd_version(int argc, char **argv);
 static int cmd_help(int argc, char **argv);
-int nj_eval_main(int argc, char **argv);
-int nj_predict_main(int argc, char **argv);
-int nj_export_main(int argc, char **argv);
-int nj_report_main(int argc, char **argv);
 
-static const command COMMANDS[] = {
+/* help and version are the program's own; the subcommands come from commands.h */
+static const nj_command OWN[] = {
     {"help", "show this help", cmd_help},
     {"version", "print the version and the libraries in use", cmd_version},
-    {"check-data", "check a dataset description and its files", nj_check_data_main},
-    {"synth", "render synthetic robot-yard sequences with exact ground truth", nj_synth_main},
-    {"train", "train the depth and pose networks on a dataset", nj_train_main},
-    {"eval", "depth and pose metrics of a model against two baselines", nj_eval_main},
-    {"predict", "depth maps, pictures and point clouds for frames", nj_predict_main},
-    {"export", "export a model as C99 code, ONNX or safetensors", nj_export_main},
-    {"report", "a self-contained HTML page about a training run", nj_report_main},
-    {"bench", "time one training step (speed and memory)", nj_bench_main},
 };
-#define NCOMMANDS (int)(sizeof COMMANDS / sizeof COMMANDS[0])
+#define NOWN (int)(sizeof OWN / sizeof OWN[0])
+
+/* The i-th of all NOWN + nj_ncommands commands, in listing order. */
+static const nj_command *command_at(int i)
+{
+    return i < NOWN ? &OWN[i] : &nj_commands[i - NOWN];
+}
 
 static void usage(FILE *f)
 {
@@ -44,8 +30,8 @@ static void usage(FILE *f)
         "usage: nightjar <command> [options]\n"
         "\n"
         "commands:\n");
-    for (int i = 0; i < NCOMMANDS; i++)
-        fprintf(f, "  %-10s %s\n", COMMANDS[i].name, COMMANDS[i].summary);
+    for (int i = 0; i < NOWN + nj_ncommands; i++)
+        fprintf(f, "  %-10s %s\n", command_at(i)->name, command_at(i)->summary);
     fprintf(f, "\n'nightjar <command> --help' describes a command's options.\n");
 }
 
@@ -75,8 +61,8 @@ int main(int argc, char **argv)
     const char *name = argv[1];
     if (!strcmp(name, "--help") || !strcmp(name, "-h")) return cmd_help(argc - 1, argv + 1);
     if (!strcmp(name, "--version")) return cmd_version(argc - 1, argv + 1);
-    for (int i = 0; i < NCOMMANDS; i++)
-        if (!strcmp(name, COMMANDS[i].name)) return COMMANDS[i].run(argc - 1, argv + 1);
+    for (int i = 0; i < NOWN + nj_ncommands; i++)
+        if (!strcmp(name, command_at(i)->name)) return command_at(i)->run(argc - 1, argv + 1);
     fprintf(stderr, "nightjar: unknown command '%s' (see 'nightjar --help')\n", name);
     return 2;
 }

@@ -6,6 +6,7 @@
  * (regions.c), plus the 5-frame-snippet trajectory error (Zhou et al.
  * 2017) where ground-truth poses exist.  Prints a table and writes
  * metrics.json atomically. */
+#include "train/eval/eval.h"
 #include "data/atomic.h"
 #include "data/dataset.h"
 #include "data/image.h"
@@ -30,16 +31,8 @@ static const char *const METHOD_KEYS[NMETHODS] = {"model", "baseline_constant", 
                                                   "baseline_row_layout_oracle"};
 _Static_assert(NMETHODS == NJ_EVAL_METHODS, "regions.h counts the same methods");
 
-typedef struct eval_args {
-    const char *model, *data, *out;
-    nj_split split;
-    float depth_cap;
-    double camera_height;      /* metres; 0 = not given */
-    int threads;
-} eval_args;
-
 typedef struct eval_run {
-    eval_args a;
+    nj_eval_options a;
     nj_train_config cfg;
     nj_model trained, untrained;
     int have_trained, have_untrained;
@@ -57,88 +50,6 @@ typedef struct eval_run {
 } eval_run;
 
 #define RAD2DEG(x) ((x) * 57.29577951308232)
-
-static void usage(FILE *f)
-{
-    fprintf(f,
-        "usage: nightjar eval --model CKPT --data DATASET.json [--split test] [--out metrics.json]\n"
-        "                     [--max-depth M] [--camera-height METRES] [--threads N]\n"
-        "  Depth metrics (AbsRel, SqRel, RMSE, RMSE log, delta<1.25^k) over the ground-truth\n"
-        "  pixels closer than the depth cap (default 80 m), for the model and three baselines on\n"
-        "  the same pixels: a constant depth, the untrained network and the row-layout oracle\n"
-        "  (each pixel at the median true depth of its image row: a model that only learned\n"
-        "  \"lower is nearer\" cannot beat it).  Monocular models are scaled per image by the\n"
-        "  median ratio (the spread of the ratios is reported), the oracle too;\n"
-        "  stereo-trained models are evaluated metric, without scaling (the oracle is metric).\n"
-        "  Also, for every method: AbsRel, delta<1.25 and the median of scaled prediction /\n"
-        "  truth (range compression) per band of true depth (0-3, 3-6, 6-10, 10-20, 20-cap m),\n"
-        "  on obstacle pixels (true depth more than 20%% off its row's median) and, where the\n"
-        "  sequences have \"lead_mask\", on the lead vehicle's pixels; per image, then the mean\n"
-        "  over the images that have such pixels (pixels and images counted).\n"
-        "  --camera-height M  metric scale from the camera's height above flat ground (a plane\n"
-        "                     fitted to the lower image region) instead of median scaling;\n"
-        "                     images where no ground plane is found are left out (counted)\n"
-        "  Where the split has ground-truth poses and the model a pose net: trajectory error\n"
-        "  on 5-frame snippets with least-squares scale alignment (Zhou et al. 2017), and the\n"
-        "  rotation error of each consecutive frame pair next to the true rotation.\n"
-        "  Exit status: 0 done, 1 failure, 2 bad usage.\n");
-}
-
-static int bad(const char *fmt, const char *arg)
-{
-    fprintf(stderr, "nightjar eval: ");
-    fprintf(stderr, fmt, arg);
-    fprintf(stderr, " (see 'nightjar eval --help')\n");
-    return -1;
-}
-
-static int parse_number(const char *s, double lo, double hi, double *out)
-{
-    char *end = NULL;
-    double v = strtod(s, &end);
-    if (end == s || *end || !isfinite(v) || v < lo || v > hi) return -1;
-    *out = v;
-    return 0;
-}
-
-static int parse_args(int argc, char **argv, eval_args *a)
-{
-    memset(a, 0, sizeof *a);
-    a->split = NJ_SPLIT_TEST;
-    a->depth_cap = NJ_EVAL_DEPTH_CAP;
-    for (int i = 1; i < argc; i++) {
-        const char *o = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
-        double x;
-        if (o[0] != '-') return bad("unexpected argument '%s'", o);
-        if (strcmp(o, "--model") && strcmp(o, "--data") && strcmp(o, "--split") && strcmp(o, "--out") &&
-            strcmp(o, "--max-depth") && strcmp(o, "--camera-height") && strcmp(o, "--threads"))
-            return bad("unknown option '%s'", o);
-        if (!v) return bad("option %s needs a value", o);
-        i++;
-        if (!strcmp(o, "--model")) a->model = v;
-        else if (!strcmp(o, "--data")) a->data = v;
-        else if (!strcmp(o, "--out")) a->out = v;
-        else if (!strcmp(o, "--split")) {
-            if (!strcmp(v, "train")) a->split = NJ_SPLIT_TRAIN;
-            else if (!strcmp(v, "val")) a->split = NJ_SPLIT_VAL;
-            else if (!strcmp(v, "test")) a->split = NJ_SPLIT_TEST;
-            else return bad("--split must be train, val or test, not '%s'", v);
-        } else if (!strcmp(o, "--max-depth")) {
-            if (parse_number(v, 0.01, 1e6, &x)) return bad("--max-depth needs a depth in metres > 0.01, not '%s'", v);
-            a->depth_cap = (float)x;
-        } else if (!strcmp(o, "--camera-height")) {
-            if (parse_number(v, 1e-3, 1e4, &x) || x <= 0)
-                return bad("--camera-height needs a positive height in metres, not '%s'", v);
-            a->camera_height = x;
-        } else {
-            if (parse_number(v, 0, 1024, &x) || x != floor(x)) return bad("--threads needs a count >= 0, not '%s'", v);
-            a->threads = (int)x;
-        }
-    }
-    if (!a->model) return bad("%s", "--model CKPT is required");
-    if (!a->data) return bad("%s", "--data DATASET.json is required");
-    return 0;
-}
 
 /* ---- setup ------------------------------------------------------------------ */
 
@@ -169,7 +80,7 @@ static void free_run(eval_run *r)
 }
 
 /* Parses the description and validates only the sequences of the split. */
-static int open_split(const eval_args *a, nj_dataset *ds, char *err, size_t errlen)
+static int open_split(const nj_eval_options *a, nj_dataset *ds, char *err, size_t errlen)
 {
     nj_problems pr;
     nj_problems_init(&pr);
@@ -644,33 +555,31 @@ static int evaluate(eval_run *r, char *err, size_t errlen)
     return 0;
 }
 
-int nj_eval_main(int argc, char **argv)
+void nj_eval_options_default(nj_eval_options *o)
 {
-    if (argc >= 2 && (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h"))) {
-        usage(stdout);
-        return 0;
-    }
+    memset(o, 0, sizeof *o);
+    o->split = NJ_SPLIT_TEST;
+    o->depth_cap = NJ_EVAL_DEPTH_CAP;
+}
+
+int nj_eval_run(const nj_eval_options *o, char *err, size_t errlen)
+{
     eval_run *r = calloc(1, sizeof *r);
-    char err[1024] = "";
     if (!r) {
-        fprintf(stderr, "nightjar eval: out of memory\n");
-        return 1;
+        snprintf(err, errlen, "out of memory");
+        return -1;
     }
-    if (parse_args(argc, argv, &r->a)) {
-        free(r);
-        return 2;
-    }
+    r->a = *o;
     nj_threads_init(r->a.threads);
-    int rc = evaluate(r, err, sizeof err);
+    int rc = evaluate(r, err, errlen);
     if (!rc && r->a.out) {
         cJSON *root = report_json(r);
-        rc = root ? write_json(r->a.out, root, err, sizeof err) : -1;
-        if (!root) snprintf(err, sizeof err, "out of memory");
+        rc = root ? write_json(r->a.out, root, err, errlen) : -1;
+        if (!root) snprintf(err, errlen, "out of memory");
         cJSON_Delete(root);
         if (!rc) printf("wrote %s\n", r->a.out);
     }
-    if (rc) fprintf(stderr, "nightjar eval: %s\n", err);
     free_run(r);
     free(r);
-    return rc ? 1 : 0;
+    return rc;
 }

@@ -6,6 +6,7 @@
  *                      frame's 2nd and 98th percentiles, near = dark (colormap.h)
  *   NAME.points.ply    with --ply: coloured binary point cloud (pointcloud.h)
  * all at the input's size, all written atomically. */
+#include "train/eval/eval.h"
 #include "data/dataset.h"
 #include "data/image.h"
 #include "data/npy.h"
@@ -25,15 +26,8 @@
 
 #define DEFAULT_FOCAL 0.8f           /* assumed fx = fy = 0.8·W without --camera */
 
-typedef struct predict_args {
-    const char *model, *input, *out;
-    int has_camera, ply, threads;
-    nj_camera camera;
-    double camera_height;            /* metres; 0 = not given */
-} predict_args;
-
 typedef struct predictor {
-    predict_args a;
+    nj_predict_options a;
     nj_train_config cfg;
     nj_model model;
     nj_infer inf;
@@ -41,97 +35,6 @@ typedef struct predictor {
     int metric;                      /* stereo-trained */
     int assumed_printed, scaled, unscaled;
 } predictor;
-
-static void usage(FILE *f)
-{
-    fprintf(f,
-        "usage: nightjar predict --model CKPT --input FRAME_OR_DIR --out DIR [--camera fx,fy,cx,cy]\n"
-        "                        [--ply] [--camera-height METRES] [--threads N]\n"
-        "  For each frame NAME.ext (PNG or JPEG; a folder means all its frames) writes into DIR:\n"
-        "    NAME.depth.npy    float32 HxW depth in metres, at the input's size\n"
-        "    NAME.depth16.png  16-bit depth in millimetres (0 = no depth, saturates at 65.535 m)\n"
-        "    NAME.preview.png  depth picture in the " NJ_COLORMAP_NAME " colour map: near = dark, far = light;\n"
-        "                      log depth from the frame's 2nd (darkest) to its 98th percentile\n"
-        "                      (lightest), printed per frame; slate blue = no depth\n"
-        "    NAME.points.ply   with --ply: coloured point cloud (binary PLY, camera frame)\n"
-        "  --camera fx,fy,cx,cy  intrinsics in pixels at the input's size, for the point cloud\n"
-        "                        and the ground plane (default: fx = fy = 0.8*W, centred)\n"
-        "  --camera-height M     metric scale from the camera's height above flat ground,\n"
-        "                        for models trained on monocular video (depth up to scale)\n"
-        "  Exit status: 0 done, 1 failure, 2 bad usage.\n");
-}
-
-static int bad(const char *fmt, const char *arg)
-{
-    fprintf(stderr, "nightjar predict: ");
-    fprintf(stderr, fmt, arg);
-    fprintf(stderr, " (see 'nightjar predict --help')\n");
-    return -1;
-}
-
-static int parse_camera(const char *s, nj_camera *c)
-{
-    double v[4];
-    const char *p = s;
-    for (int k = 0; k < 4; k++) {
-        char *end = NULL;
-        v[k] = strtod(p, &end);
-        if (end == p || !isfinite(v[k])) return -1;
-        if (k < 3 && *end != ',') return -1;
-        if (k == 3 && *end) return -1;
-        p = end + 1;
-    }
-    c->fx = (float)v[0];
-    c->fy = (float)v[1];
-    c->cx = (float)v[2];
-    c->cy = (float)v[3];
-    return nj_camera_valid(*c) ? 0 : -1;
-}
-
-static int parse_value(predict_args *a, const char *o, const char *v)
-{
-    char *end = NULL;
-    if (!strcmp(o, "--model")) a->model = v;
-    else if (!strcmp(o, "--input")) a->input = v;
-    else if (!strcmp(o, "--out")) a->out = v;
-    else if (!strcmp(o, "--camera")) {
-        if (parse_camera(v, &a->camera))
-            return bad("--camera needs fx,fy,cx,cy in pixels with fx, fy > 0, not '%s'", v);
-        a->has_camera = 1;
-    } else if (!strcmp(o, "--camera-height")) {
-        a->camera_height = strtod(v, &end);
-        if (end == v || *end || !(a->camera_height > 0) || !(a->camera_height < 1e4))
-            return bad("--camera-height needs a positive height in metres, not '%s'", v);
-    } else {
-        long t = strtol(v, &end, 10);
-        if (end == v || *end || t < 0 || t > 1024) return bad("--threads needs a count >= 0, not '%s'", v);
-        a->threads = (int)t;
-    }
-    return 0;
-}
-
-static int parse_args(int argc, char **argv, predict_args *a)
-{
-    static const char *const with_value[] = {"--model", "--input", "--out", "--camera",
-                                             "--camera-height", "--threads"};
-    memset(a, 0, sizeof *a);
-    for (int i = 1; i < argc; i++) {
-        const char *o = argv[i];
-        if (!strcmp(o, "--ply")) {
-            a->ply = 1;
-            continue;
-        }
-        int known = 0;
-        for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++) known |= !strcmp(o, with_value[k]);
-        if (!known) return bad(o[0] == '-' ? "unknown option '%s'" : "unexpected argument '%s'", o);
-        if (i + 1 >= argc) return bad("option %s needs a value", o);
-        if (parse_value(a, o, argv[++i])) return -1;
-    }
-    if (!a->model) return bad("%s", "--model CKPT is required");
-    if (!a->input) return bad("%s", "--input FRAME_OR_DIR is required");
-    if (!a->out) return bad("%s", "--out DIR is required");
-    return 0;
-}
 
 /* ---- inputs and outputs ------------------------------------------------------ */
 
@@ -400,35 +303,33 @@ static int setup(predictor *p, char **paths, int n, char *err, size_t errlen)
     return 0;
 }
 
-int nj_predict_main(int argc, char **argv)
+void nj_predict_options_default(nj_predict_options *o)
 {
-    if (argc >= 2 && (!strcmp(argv[1], "--help") || !strcmp(argv[1], "-h"))) {
-        usage(stdout);
-        return 0;
-    }
+    memset(o, 0, sizeof *o);
+}
+
+int nj_predict_run(const nj_predict_options *o, char *err, size_t errlen)
+{
     predictor *p = calloc(1, sizeof *p);
-    char err[1024] = "", **paths = NULL;
+    char **paths = NULL;
     if (!p) {
-        fprintf(stderr, "nightjar predict: out of memory\n");
-        return 1;
+        snprintf(err, errlen, "out of memory");
+        return -1;
     }
-    if (parse_args(argc, argv, &p->a)) {
-        free(p);
-        return 2;
-    }
+    p->a = *o;
     nj_threads_init(p->a.threads);
-    int n = list_inputs(p->a.input, &paths, err, sizeof err), done = 0, failed = 0;
-    if (n < 0 || setup(p, paths, n, err, sizeof err)) {
-        fprintf(stderr, "nightjar predict: %s\n", err);
+    int n = list_inputs(p->a.input, &paths, err, errlen), done = 0, failed = 0;
+    if (n < 0 || setup(p, paths, n, err, errlen)) {
         if (n > 0) nj_free_names(paths, n);
         free(p);
-        return 1;
+        return -1;
     }
     printf("predict: %d frame%s with %s (network input %dx%d, depth range %g..%g)\n", n, n == 1 ? "" : "s",
            p->a.model, p->cfg.width, p->cfg.height, p->model.cfg.depth_range.near, p->model.cfg.depth_range.far);
     for (int i = 0; i < n; i++) {
-        if (predict_frame(p, paths[i], err, sizeof err)) {
-            fprintf(stderr, "nightjar predict: %s\n", err);
+        char e[1024] = "";
+        if (predict_frame(p, paths[i], e, sizeof e)) {
+            fprintf(stderr, "nightjar predict: %s\n", e);
             failed++;
         } else {
             done++;
@@ -436,10 +337,10 @@ int nj_predict_main(int argc, char **argv)
         fflush(stdout);
     }
     print_notes(p, done);
-    if (failed) fprintf(stderr, "nightjar predict: %d of %d frames failed\n", failed, n);
+    if (failed) snprintf(err, errlen, "%d of %d frames failed", failed, n);
     nj_free_names(paths, n);
     nj_infer_free(&p->inf);
     nj_model_free(&p->model);
     free(p);
-    return failed ? 1 : 0;
+    return failed ? -1 : 0;
 }

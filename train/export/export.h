@@ -85,7 +85,19 @@ int nj_export_safetensors(const nj_export_net *net, const char *path, long *byte
  * widths, input normalisation, depth range and every layer. */
 char *nj_export_architecture_json(const nj_export_net *net);
 
-/* The command; argv[0] is "export".  Returns the exit status. */
-int nj_export_main(int argc, char **argv);
+/* The formats, in the order `--format` lists them (train/cli/cmd_export.c). */
+typedef enum { NJ_EXPORT_C, NJ_EXPORT_ONNX, NJ_EXPORT_SAFETENSORS } nj_export_format;
+
+typedef struct nj_export_options {
+    const char *model;        /* checkpoint */
+    const char *out;          /* PATH (the C export writes PATH.c and PATH.h) */
+    nj_export_format format;
+    int int8;                 /* int8 weights, else f32 */
+    int width, height;        /* input size of the c and onnx exports; 0: the training size */
+} nj_export_options;
+
+/* Loads o->model, prepares and writes the export, prints one "export: wrote"
+ * line.  Returns 0, or -1 with a one-line message. */
+int nj_export_run(const nj_export_options *o, char *err, size_t errlen);
 
 #endif

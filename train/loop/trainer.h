@@ -48,9 +48,6 @@ typedef struct nj_trainer {
     int (*write_report)(const char *run_dir, char *err, size_t errlen);
 } nj_trainer;
 
-/* `./nightjar train ...` */
-int nj_train_main(int argc, char **argv);
-
 /* Setup (train_setup.c): dataset, samples, model (fresh, --init or resumed),
  * optimiser, loader.  Returns 0 or -1 with a message. */
 int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen);

@@ -13,10 +13,6 @@
 #include <time.h>
 #include <unistd.h>
 
-typedef struct report_options {
-    const char *run_dir, *out, *metrics, *export_dir;
-} report_options;
-
 static const char CSS[] =
     "*{box-sizing:border-box}"
     "body{margin:0;font:15px/1.45 system-ui,-apple-system,'Segoe UI',sans-serif;color:#1d2230;background:#fbfbfd}"
@@ -184,7 +180,7 @@ static void charts(FILE *f, const nj_run_log *log)
     free(a);
 }
 
-static void page(FILE *f, const report_options *o, const nj_run_log *log, const char *metrics,
+static void page(FILE *f, const nj_report_options *o, const nj_run_log *log, const char *metrics,
                  const char *export_dir)
 {
     fputs("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\n"
@@ -201,7 +197,7 @@ static void page(FILE *f, const report_options *o, const nj_run_log *log, const 
     fprintf(f, "<footer class=\"note\"><p>nightjar %s, %s</p></footer>\n</main></body></html>\n", NJ_VERSION, when);
 }
 
-static int write_report(const report_options *o, char *err, size_t errlen)
+int nj_report_run(const nj_report_options *o, char *err, size_t errlen)
 {
     char out[4200], logp[4200], met[4200], exp[4200];
     snprintf(out, sizeof out, "%s", o->out ? o->out : "");
@@ -224,41 +220,6 @@ static int write_report(const report_options *o, char *err, size_t errlen)
 
 int nj_report_write(const char *run_dir, const char *out_path, char *err, size_t errlen)
 {
-    report_options o = {run_dir, out_path, NULL, NULL};
-    return write_report(&o, err, errlen);
-}
-
-static void usage(FILE *f)
-{
-    fprintf(f, "usage: nightjar report RUN_DIR [--out FILE] [--metrics FILE] [--export DIR]\n"
-               "  Writes one self-contained HTML page about a training run: summary, loss and\n"
-               "  learning-rate charts, a gallery of validation frames at up to three checkpoints,\n"
-               "  and the metric table.\n"
-               "  --out FILE      output (default RUN_DIR/report.html)\n"
-               "  --metrics FILE  `nightjar eval --out` JSON (default RUN_DIR/metrics.json if present)\n"
-               "  --export DIR    folder of exported models to list (default RUN_DIR/export)\n");
-}
-
-int nj_report_main(int argc, char **argv)
-{
-    report_options o = {NULL, NULL, NULL, NULL};
-    for (int i = 1; i < argc; i++) {
-        const char **slot = !strcmp(argv[i], "--out") ? &o.out : !strcmp(argv[i], "--metrics") ? &o.metrics
-                            : !strcmp(argv[i], "--export") ? &o.export_dir : NULL;
-        if (!strcmp(argv[i], "--help") || !strcmp(argv[i], "-h")) { usage(stdout); return 0; }
-        if (slot && i + 1 < argc) { *slot = argv[++i]; continue; }
-        if (!slot && argv[i][0] != '-' && !o.run_dir) { o.run_dir = argv[i]; continue; }
-        fprintf(stderr, "nightjar report: unexpected argument '%s'\n", argv[i]);
-        usage(stderr);
-        return 2;
-    }
-    if (!o.run_dir) { usage(stderr); return 2; }
-    char err[1024];
-    if (write_report(&o, err, sizeof err)) {
-        fprintf(stderr, "nightjar report: %s\n", err);
-        return 1;
-    }
-    if (o.out) printf("%s\n", o.out);
-    else printf("%s/report.html\n", o.run_dir);
-    return 0;
+    nj_report_options o = {run_dir, out_path, NULL, NULL};
+    return nj_report_run(&o, err, errlen);
 }

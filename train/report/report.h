@@ -10,11 +10,18 @@
 #define NJ_REPORT_H
 #include <stddef.h>
 
-/* Writes the report of run_dir to out_path (NULL: RUN_DIR/report.html)
- * atomically, using RUN_DIR/metrics.json and RUN_DIR/export/ when present.
+typedef struct nj_report_options {
+    const char *run_dir;
+    const char *out;          /* NULL: RUN_DIR/report.html */
+    const char *metrics;      /* `nightjar eval --out` JSON; NULL: RUN_DIR/metrics.json when present */
+    const char *export_dir;   /* exported models to list; NULL: RUN_DIR/export */
+} nj_report_options;
+
+/* Writes the report page atomically (the command: train/cli/cmd_report.c).
  * Returns 0, or -1 with a one-line message in err. */
+int nj_report_run(const nj_report_options *o, char *err, size_t errlen);
+/* nj_report_run with the defaults but for out_path (the trainer's report at
+ * the end of a run). */
 int nj_report_write(const char *run_dir, const char *out_path, char *err, size_t errlen);
-/* `nightjar report RUN_DIR [--out FILE] [--metrics FILE] [--export DIR]`. */
-int nj_report_main(int argc, char **argv);
 
 #endif

@@ -1,4 +1,4 @@
-/* train/bench/bench_cli.c — `./nightjar bench`: times the default training step
+/* train/bench/bench_run.c — `./nightjar bench`: times the default training step
  * (see bench.h) and ends with the line
  *     ms_per_step=X peak_rss_mb=Y gflops=Z
  * (median step time after warm-up, peak resident set of the process, conv
@@ -19,65 +19,7 @@
 #include <omp.h>
 #include <stdio.h>
 #include <stdlib.h>
-#include <string.h>
 #include <sys/resource.h>
-
-typedef struct {
-    int w, h, batch, threads, steps, warmup, profile, paced;
-} bench_args;
-
-static int usage(FILE *f)
-{
-    fprintf(f, "usage: nightjar bench [--size WxH] [--batch N] [--threads N] [--steps N] [--warmup N] [--profile]\n"
-               "                      [--paced]\n"
-               "  times one training step of the default depth+pose nets (full loss, Adam) on synthetic frames;\n"
-               "  defaults: --size 320x96 --batch 4 --threads 0 (all cores) --steps 10 --warmup 3\n"
-               "  --paced   each step waits for a line on standard input and is followed by a line step_ms=X;\n"
-               "            the closing figures wait for one more line or the end of the input\n"
-               "            (for alternating step by step with another implementation)\n");
-    return f == stdout ? 0 : 2;
-}
-
-static int int_arg(const char *opt, const char *v, int lo, int hi, int *out)
-{
-    char *end;
-    long x = v ? strtol(v, &end, 10) : 0;
-    if (!v || *end || x < lo || x > hi) {
-        fprintf(stderr, "nightjar bench: %s needs an integer in %d..%d, got '%s'\n", opt, lo, hi, v ? v : "");
-        return -1;
-    }
-    *out = (int)x;
-    return 0;
-}
-
-static int parse(int argc, char **argv, bench_args *a)
-{
-    *a = (bench_args){.w = 320, .h = 96, .batch = 4, .threads = 0, .steps = 10, .warmup = 3};
-    for (int i = 1; i < argc; i++) {
-        const char *o = argv[i], *v = i + 1 < argc ? argv[i + 1] : NULL;
-        int rc = 0;
-        if (!strcmp(o, "--help") || !strcmp(o, "-h")) return 1;
-        if (!strcmp(o, "--profile")) { a->profile = 1; continue; }
-        if (!strcmp(o, "--paced")) { a->paced = 1; continue; }
-        if (!strcmp(o, "--size")) {
-            if (!v || sscanf(v, "%dx%d", &a->w, &a->h) != 2 || a->w < 8 || a->h < 8 || a->w > 8192 || a->h > 8192) {
-                fprintf(stderr, "nightjar bench: --size needs WxH (e.g. 320x96), got '%s'\n", v ? v : "");
-                return -1;
-            }
-        } else if (!strcmp(o, "--batch")) rc = int_arg(o, v, 1, 256, &a->batch);
-        else if (!strcmp(o, "--threads")) rc = int_arg(o, v, 0, 1024, &a->threads);
-        else if (!strcmp(o, "--steps")) rc = int_arg(o, v, 1, 100000, &a->steps);
-        else if (!strcmp(o, "--warmup")) rc = int_arg(o, v, 0, 1000, &a->warmup);
-        else {
-            fprintf(stderr, "nightjar bench: unknown option '%s' (see 'nightjar bench --help')\n", o);
-            return -1;
-        }
-        if (rc) return -1;
-        i++;
-    }
-    return 0;
-}
-
 
 /* One step as the trainer runs it: zero grads, forward + backward (split over
  * the threads as replicas when rep is set, see train/loop/step_replicas.h), clip,
@@ -160,32 +102,36 @@ static void print_profile(double total, double conv_flops_total)
            conv > 0 ? conv_flops_total / conv * 1e-9 : 0.0);
 }
 
-static int run(const bench_args *a)
+void nj_bench_options_default(nj_bench_options *o)
+{
+    *o = (nj_bench_options){.w = 320, .h = 96, .batch = 4, .threads = 0, .steps = 10, .warmup = 3};
+}
+
+int nj_bench_run(const nj_bench_options *a, char *err, size_t errlen)
 {
     int threads = nj_threads_init(a->threads);
     nj_train_config cfg;
     nj_bench_config(&cfg, a->w, a->h, a->batch);
-    char err[512];
     nj_model m;
-    if (nj_model_init(&m, &cfg.model, err, sizeof err)) { fprintf(stderr, "nightjar bench: %s\n", err); return 1; }
+    if (nj_model_init(&m, &cfg.model, err, errlen)) return -1;
     if (!nj_model_size_ok(&m, a->h, a->w)) {
-        fprintf(stderr, "nightjar bench: --size %dx%d: width and height must be multiples of %d (at least %d)\n",
-                a->w, a->h, 1 << m.cfg.stages, 2 << m.cfg.stages);
+        snprintf(err, errlen, "--size %dx%d: width and height must be multiples of %d (at least %d)", a->w, a->h,
+                 1 << m.cfg.stages, 2 << m.cfg.stages);
         nj_model_free(&m);
-        return 2;
+        return NJ_BENCH_BAD_SIZE;
     }
-    nj_bench_batch bb;
+    nj_bench_batch bb = {0};
     nj_graph *g = nj_graph_new(NJ_STEP_ARENA_CHUNK);
     double *t = malloc(sizeof(double) * (size_t)a->steps);
-    if (!g || !t || nj_bench_batch_make(&bb, a->batch, a->h, a->w, 7)) {
-        fprintf(stderr, "nightjar bench: out of memory\n");
-        return 1;
-    }
     nj_step_replicas *rep = NULL;
-    if (threads > 1 && !(rep = nj_step_replicas_new(threads, NJ_STEP_ARENA_CHUNK, err, sizeof err))) {
-        fprintf(stderr, "nightjar bench: %s\n", err);
-        return 1;
+    int rc = 0;
+    if (!g || !t || nj_bench_batch_make(&bb, a->batch, a->h, a->w, 7)) {
+        snprintf(err, errlen, "out of memory");
+        rc = -1;
+    } else if (threads > 1 && !(rep = nj_step_replicas_new(threads, NJ_STEP_ARENA_CHUNK, err, errlen))) {
+        rc = -1;
     }
+    if (rc) goto done;
     nj_adam opt;
     nj_adam_init(&opt, cfg.lr);
     nj_rng rng;
@@ -196,19 +142,18 @@ static int run(const bench_args *a)
            nj_params_numel(&m.params), m.cfg.scales);
     printf("conv_gflop_per_step=%.3f (forward + backward)\n", flops * 1e-9);
     float loss = 0;
-    int rc = 0;
     double cpu0 = 0;
     for (int i = 0; i < a->warmup + a->steps && !rc; i++) {
         if (a->paced && wait_line()) {
-            fprintf(stderr, "nightjar bench: --paced: standard input ended before step %d\n", i + 1);
-            rc = 1;
+            snprintf(err, errlen, "--paced: standard input ended before step %d", i + 1);
+            rc = -1;
             break;
         }
         if (i == a->warmup) { nj_prof_enable(a->profile); nj_prof_reset(); cpu0 = cpu_seconds(); }
         double s;
         if (one_step(g, rep, &m, &cfg, &bb.b, &rng, &opt, &s, &loss)) {
-            fprintf(stderr, "nightjar bench: step failed: %s\n", nj_graph_error(g));
-            rc = 1;
+            snprintf(err, errlen, "step failed: %s", nj_graph_error(g));
+            rc = -1;
         } else if (i >= a->warmup) t[i - a->warmup] = s;
         if (a->paced && !rc) {
             printf("step_ms=%.2f\n", s * 1e3);
@@ -240,6 +185,7 @@ static int run(const bench_args *a)
         printf("ms_per_step=%.1f peak_rss_mb=%.1f gflops=%.2f\n", med * 1e3, ru.ru_maxrss / 1024.0,
                flops / med * 1e-9);
     }
+done:
     free(t);
     nj_step_replicas_free(rep);
     nj_graph_free(g);
@@ -248,11 +194,3 @@ static int run(const bench_args *a)
     return rc;
 }
 
-int nj_bench_main(int argc, char **argv)
-{
-    bench_args a;
-    int p = parse(argc, argv, &a);
-    if (p > 0) return usage(stdout);
-    if (p < 0) return 2;
-    return run(&a);
-}

@@ -13,8 +13,7 @@
 #define NJ_BENCH_H
 #include "data/loader.h"
 #include "nn/adam.h"
-#include "train/loop/config.h"
-#include "train/loop/step.h"
+#include "train/loop/loop.h"
 
 typedef struct nj_bench_batch {
     nj_batch b;              /* made by nj_batch_alloc (data/batch.h) */

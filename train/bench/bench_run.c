@@ -13,7 +13,7 @@
  * before the sgemm measurement allocates its buffers). */
 #include "train/bench/bench.h"
 #include "nn/prof.h"
-#include "train/loop/step_replicas.h"
+#include "train/loop/loop.h"
 #include <cblas.h>
 #include <math.h>
 #include <omp.h>

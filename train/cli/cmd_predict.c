@@ -1,7 +1,6 @@
 /* train/cli/cmd_predict.c — `nightjar predict`: options → nj_predict_run (train/eval/eval.h). */
 #include "train/cli/commands.h"
 #include "train/cli/options.h"
-#include "train/eval/colormap.h"
 #include "train/eval/eval.h"
 #include <math.h>
 

@@ -1,9 +1,7 @@
 /* train/cli/cmd_train.c — `nightjar train`: options, config, run. */
 #include "train/cli/commands.h"
 #include "train/cli/options.h"
-#include "train/loop/trainer.h"
-#include "train/loop/dist.h"
-#include "train/loop/trainer_dist.h"
+#include "train/loop/loop.h"
 #include "train/report/report.h"
 #include <stdio.h>
 #include <string.h>

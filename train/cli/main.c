@@ -1,6 +1,6 @@
 /* train/cli/main.c — the ./nightjar command: dispatches subcommands. */
 #include "train/cli/commands.h"
-#include "train/loop/dist.h"
+#include "train/loop/loop.h"
 #include "train/version.h"
 #include <cblas.h>
 #include <stdio.h>

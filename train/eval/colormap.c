@@ -2,7 +2,7 @@
  * of the "bracken" colour map and the depth scaling of every depth picture
  * (see colormap.h). */
 #include "train/eval/colormap.h"
-#include "train/measure/metrics.h"
+#include "train/measure/measure.h"
 #include <math.h>
 #include <stdlib.h>
 

@@ -11,11 +11,9 @@
 #include "data/dataset.h"
 #include "data/image.h"
 #include "data/poses.h"
-#include "train/loop/checkpoint.h"
-#include "train/measure/regions.h"
-#include "train/measure/groundplane.h"
-#include "train/model/infer.h"
-#include "train/measure/metrics.h"
+#include "train/loop/loop.h"
+#include "train/measure/measure.h"
+#include "train/model/model.h"
 #include <cjson/cJSON.h>
 #include <math.h>
 #include <stdio.h>

@@ -6,6 +6,7 @@
 #ifndef NJ_EVAL_H
 #define NJ_EVAL_H
 #include "data/dataset.h"
+#include "train/eval/colormap.h"   /* depth pictures: part of this module's public face */
 #include "nn/geom/camera.h"
 #include <stddef.h>
 

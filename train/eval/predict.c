@@ -10,12 +10,10 @@
 #include "data/dataset.h"
 #include "data/image.h"
 #include "data/npy.h"
-#include "train/loop/checkpoint.h"
+#include "train/loop/loop.h"
 #include "train/eval/colormap.h"
-#include "train/measure/groundplane.h"
-#include "train/model/infer.h"
-#include "train/measure/metrics.h"
-#include "train/measure/pointcloud.h"
+#include "train/measure/measure.h"
+#include "train/model/model.h"
 #include <errno.h>
 #include <math.h>
 #include <stdint.h>

@@ -1,6 +1,6 @@
 /* train/export/export.c — `nightjar export`: loads the checkpoint, prepares the
  * export view and writes the chosen format (export.h). */
-#include "train/loop/checkpoint.h"
+#include "train/loop/loop.h"
 #include "train/export/export.h"
 #include <stdio.h>
 #include <string.h>

@@ -26,7 +26,7 @@
  */
 #ifndef NJ_EXPORT_H
 #define NJ_EXPORT_H
-#include "train/loop/config.h"
+#include "train/loop/loop.h"
 #include "train/model/model.h"
 #include <stddef.h>
 #include <stdint.h>

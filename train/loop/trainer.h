@@ -10,7 +10,7 @@
 #include "train/loop/health.h"
 #include "train/model/model.h"
 #include "train/loop/memneed.h"
-#include "train/measure/metrics.h"
+#include "train/measure/measure.h"
 #include "train/loop/runlog.h"
 
 typedef struct nj_trainer {

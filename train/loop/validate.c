@@ -7,7 +7,7 @@
  * stereo-only ones). */
 #include "train/loop/trainer.h"
 #include "losses/depth.h"
-#include "train/measure/metrics.h"
+#include "train/measure/measure.h"
 #include "train/loop/step.h"
 #include <stdlib.h>
 

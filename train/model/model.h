@@ -128,4 +128,8 @@ double nj_pose_flops(const nj_model *m, int h, int w);
  * least 2 pixels per side at the coarsest level. */
 int nj_model_size_ok(const nj_model *m, int h, int w);
 
+/* Running a trained model on single frames is part of this module's public
+ * face (after the declarations it builds on). */
+#include "train/model/infer.h"
+
 #endif

@@ -5,7 +5,7 @@
 #include "train/report/report.h"
 #include "train/report/report_parts.h"
 #include "data/atomic.h"
-#include "train/loop/runfiles.h"
+#include "train/loop/loop.h"
 #include "train/version.h"
 #include <math.h>
 #include <stdlib.h>

@@ -17,10 +17,9 @@
  * percentiles and squeeze the trained picture into a few colours; values of
  * earlier checkpoints beyond the ends take the end colours. */
 #include "train/report/report_parts.h"
-#include "train/eval/colormap.h"
-#include "train/measure/metrics.h"
-#include "train/loop/runfiles.h"
-#include "train/loop/step.h"
+#include "train/eval/eval.h"
+#include "train/measure/measure.h"
+#include "train/loop/loop.h"
 #include "losses/depth.h"
 #include <math.h>
 #include <stdlib.h>

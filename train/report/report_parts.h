@@ -2,8 +2,8 @@
  * the parsed log, the SVG line chart, the gallery and the PNG/base64 embedding. */
 #ifndef NJ_REPORT_PARTS_H
 #define NJ_REPORT_PARTS_H
-#include "train/loop/checkpoint.h"
-#include "train/eval/colormap.h"
+#include "train/loop/loop.h"
+#include "train/eval/eval.h"
 #include <stdio.h>
 
 /* The records of log.jsonl that the report shows. */

@@ -101,8 +101,9 @@ static int logged_losses(const char *run, double *loss, int max)
 static int train(const char *launcher, const char *config, const char *out, const char *extra, const char *log)
 {
     char cmd[3072];
-    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s --threads 1 %s", launcher, config, data,
-             out, extra);
+    /* one thread per rank unless `extra` sets --threads (an option may be given once) */
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s %s %s", launcher, config, data, out,
+             strstr(extra, "--threads") ? "" : "--threads 1", extra);
     return e2e_run(cmd, log);
 }
 

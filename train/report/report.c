@@ -200,6 +200,8 @@ static void page(FILE *f, const nj_report_options *o, const nj_run_log *log, con
 int nj_report_run(const nj_report_options *o, char *err, size_t errlen)
 {
     char out[4200], logp[4200], met[4200], exp[4200];
+    /* nj_atomic_close keeps a caller's message already in err: start clean */
+    if (err && errlen) err[0] = 0;
     snprintf(out, sizeof out, "%s", o->out ? o->out : "");
     if (!o->out) snprintf(out, sizeof out, "%s/report.html", o->run_dir);
     snprintf(logp, sizeof logp, "%s/log.jsonl", o->run_dir);

@@ -145,9 +145,9 @@ static void bad_input(void)
     snprintf(bad, sizeof bad, "%s/bad.json", dir);
     e2e_write(bad, "{ \"data\": { \"batch\": 0 } }");
     const bad_case cases[] = {
-        {"", 2, "--config FILE is required"},
+        {"", 2, "--config FILE.json is required"},
         {"--config CFG --bogus", 2, "unknown option '--bogus'"},
-        {"--config CFG --minutes abc", 2, "--minutes expects a number"},
+        {"--config CFG --minutes abc", 2, "--minutes needs a number from 0 to 1000000, not 'abc'"},
         {"--config /nonexistent/x.json", 2, "/nonexistent/x.json"},
         {"--config BAD", 2, "batch"},
         {"--config CFG --data /nonexistent/d.json --steps 1", 1, "/nonexistent/d.json"},

@@ -244,12 +244,13 @@ static void test_failure(const nj_train_config *base)
     cfg.stereo = 1;
     nj_bench_batch bb;
     if (!check(nj_bench_batch_make(&bb, 4, H, W, 7) == 0, "bench batch for the failure", "out of memory")) return;
-    float tx[4] = {-0.1f, -0.1f, -0.1f, -0.1f};
     int has[4] = {1, 1, 1, 0};
     bb.b.stereo = 1;
     bb.b.partner = bb.b.partner_in = bb.b.target;
-    bb.b.stereo_tx = tx;
-    bb.b.has_partner = has;
+    for (int i = 0; i < 4; i++) {
+        bb.b.stereo_tx[i] = -0.1f;
+        bb.b.has_partner[i] = has[i];
+    }
     alarm(120); /* a replica left waiting would hang the test: fail it instead */
     outcome o;
     run_step(2, &bb, &cfg, &o);
@@ -261,9 +262,7 @@ static void test_failure(const nj_train_config *base)
     nj_model_init(&m, &cfg.model, err, sizeof err);
     outcome_free(&o, &m);
     nj_model_free(&m);
-    bb.b.partner = bb.b.partner_in = NULL;
-    bb.b.stereo_tx = NULL;
-    bb.b.has_partner = NULL;
+    bb.b.partner = bb.b.partner_in = NULL;   /* aliased the target: not the batch's own */
     nj_bench_batch_free(&bb);
 }
 

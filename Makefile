@@ -84,8 +84,10 @@ $(BIN): $(B)/train/cli/main.o $(B)/libnightjar.a build/flavour
 # The MPI build the tests and bench-mpi use, without touching ./nightjar:
 # build/mpi/nightjar (only when mpicc exists; tests/test_mpi.c says why it
 # skips otherwise).
-build/mpi/nightjar: build/mpi/train/cli/main.o build/mpi/libnightjar.a
+ifeq ($(MPI),1)
+$(B)/nightjar: $(B)/train/cli/main.o $(B)/libnightjar.a
 	$(CC) $(CFLAGS) $^ -o $@ $(LDLIBS)
+endif
 mpi-test-build:
 	@if command -v mpicc >/dev/null 2>&1; then $(MAKE) --no-print-directory MPI=1 NJ_KEEP_FLAVOUR=1 build/mpi/nightjar; \
 	else echo "mpicc not found: the MPI tests will be skipped (tools/deps.sh test installs Open MPI)"; fi
@@ -99,12 +101,14 @@ test: deps-test $(BIN) $(TEST_BIN)
 
 # The whole suite under ASan+UBSan in build-san/ (end-to-end training reduced
 # by NJ_TEST_REDUCED=1).  Leak checking is on and needs no suppressions.
-SAN_ENV := NJ_TEST_REDUCED=1 ASAN_OPTIONS=detect_leaks=1:strict_string_checks=1 \
+SAN_ENV := NJ_TEST_REDUCED=1 NJ_TEST_SANITIZED=1 ASAN_OPTIONS=detect_leaks=1:strict_string_checks=1 \
            UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
 sanitize: deps-test
 	@$(MAKE) --no-print-directory B=build-san BIN=build-san/nightjar SAN=1 OPT=-O1 \
 	    build-san/nightjar $(TEST_BIN:$(B)/%=build-san/%)
-	@$(SAN_ENV) NJ_BIN=./build-san/nightjar sh tests/run.sh build-san/tests
+	@if command -v mpicc >/dev/null 2>&1; then $(MAKE) --no-print-directory MPI=1 SAN=1 OPT=-O1 B=build-san/mpi \
+	    NJ_KEEP_FLAVOUR=1 build-san/mpi/nightjar; fi
+	@$(SAN_ENV) NJ_BIN=./build-san/nightjar NJ_MPI_BIN=./build-san/mpi/nightjar sh tests/run.sh build-san/tests
 
 $(B)/fuzzbin/%: $(B)/fuzz/%.o $(B)/fuzz/fuzz_input.o $(B)/libnightjar.a
 	@mkdir -p $(dir $@)

@@ -1,9 +1,12 @@
 #!/bin/sh
 # Runs every test program in DIR (default build/tests), echoing their output,
-# and ends with the summary line "N passed, N failed".  A program that exits
-# non-zero without printing a FAIL line counts as one failure.
+# and ends with the summary line "N passed, N failed, N skipped" (CI reads the
+# "N passed, N failed" prefix).  A program that exits non-zero without
+# printing a FAIL line counts as one failure.  A check that cannot run here
+# prints "SKIP name: why"; the skipped ones are listed again after the summary
+# so they cannot go unnoticed.
 dir=${1:-build/tests}
-pass=0; fail=0
+pass=0; fail=0; skip=0; skipped=""
 for t in "$dir"/test_*; do
   [ -x "$t" ] || continue
   case "$t" in *.o|*.d) continue ;; esac
@@ -12,11 +15,17 @@ for t in "$dir"/test_*; do
   printf '%s\n' "$out"
   p=$(printf '%s\n' "$out" | grep -c '^PASS ')
   f=$(printf '%s\n' "$out" | grep -c '^FAIL ')
+  s=$(printf '%s\n' "$out" | grep -c '^SKIP ')
+  if [ "$s" -gt 0 ]; then
+    skipped="$skipped$(printf '%s\n' "$out" | grep '^SKIP ' | sed "s/^/  $(basename "$t"): /")
+"
+  fi
   if [ "$rc" -ne 0 ] && [ "$f" -eq 0 ]; then
     echo "FAIL $(basename "$t"): exited with status $rc"
     f=1
   fi
-  pass=$((pass + p)); fail=$((fail + f))
+  pass=$((pass + p)); fail=$((fail + f)); skip=$((skip + s))
 done
-echo "$pass passed, $fail failed"
+echo "$pass passed, $fail failed, $skip skipped"
+[ "$skip" -eq 0 ] || printf 'skipped:\n%s' "$skipped"
 [ "$fail" -eq 0 ]

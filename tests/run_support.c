@@ -29,7 +29,7 @@ pid_t rs_spawn(char *const argv[], const char *log, const rs_limits *lim)
         struct rlimit r = {(rlim_t)lim->as, (rlim_t)lim->as};
         if (setrlimit(RLIMIT_AS, &r)) _exit(126);
     }
-    execv("./nightjar", argv);
+    execv(e2e_bin(), argv);   /* the binary under test (NJ_BIN), not always ./nightjar */
     _exit(127);
 }
 

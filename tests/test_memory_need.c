@@ -40,6 +40,17 @@ static const char *WIDE_CONFIG =
 
 static char dir[256], data[512];
 
+/* make sanitize sets NJ_TEST_SANITIZED: the program under test is then built
+ * with AddressSanitizer, which reserves terabytes of shadow address space at
+ * start (so any RLIMIT_AS kills it before main) and roughly doubles the
+ * resident set (shadow + redzones), so the cases that rest on an address-space
+ * limit or on the plain build's resident set are skipped, with that reason. */
+static int sanitized(void)
+{
+    const char *s = getenv("NJ_TEST_SANITIZED");
+    return s && s[0] == '1';
+}
+
 static void write_config(const char *path, int w, int h, int batch)
 {
     char text[2048];
@@ -73,17 +84,25 @@ static void real_run(void)
     write_config(cfg, 128, 64, 4);
     rs_limits lim = {.as = 2LL << 30};
     double peak, need = 0, avail = 0;
-    int rc = train(cfg, out, log, &lim, &peak);
+    int rc = train(cfg, out, log, sanitized() ? NULL : &lim, &peak);
     char *text = e2e_slurp(log, NULL);
     int has = need_line(text, &need, &avail);
     free(text);
-    check(rc == 0 && has && avail <= 2048, "a run that fits under RLIMIT_AS 2 GiB states its need and runs",
-          "exit %d, need line %s (need %.0f, available %.0f MiB), see %s", rc, has ? "present" : "missing", need,
-          avail, log);
+    if (sanitized())
+        check(rc == 0 && has && need > 0, "a run states its need and runs (no RLIMIT_AS under the sanitizer)",
+              "exit %d, need line %s (need %.0f MiB), see %s", rc, has ? "present" : "missing", need, log);
+    else
+        check(rc == 0 && has && avail <= 2048, "a run that fits under RLIMIT_AS 2 GiB states its need and runs",
+              "exit %d, need line %s (need %.0f, available %.0f MiB), see %s", rc, has ? "present" : "missing", need,
+              avail, log);
     double ratio = peak > 0 ? need / peak : 0;
     printf("# memory need %.0f MiB, measured peak RSS %.0f MiB (getrusage of the child): ratio %.2f\n", need, peak, ratio);
-    check(ratio >= 0.8 && ratio <= 1.5, "memory need within 0.8-1.5x of the measured peak resident set",
-          "need %.1f MiB, peak %.1f MiB, ratio %.2f", need, peak, ratio);
+    if (sanitized())
+        printf("SKIP memory need within 0.8-1.5x of the measured peak resident set: AddressSanitizer's shadow "
+               "memory inflates the resident set (ratio here %.2f); checked by make test\n", ratio);
+    else
+        check(ratio >= 0.8 && ratio <= 1.5, "memory need within 0.8-1.5x of the measured peak resident set",
+              "need %.1f MiB, peak %.1f MiB, ratio %.2f", need, peak, ratio);
     snprintf(path, sizeof path, "%s/log.jsonl", out);
     text = e2e_slurp(path, NULL);
     const char *m = text ? strstr(text, "{\"type\":\"memory\"") : NULL;
@@ -159,10 +178,20 @@ int main(void)
         snprintf(cfg, sizeof cfg, "%s/big.json", dir);
         write_config(cfg, 256, 128, 8);
         rs_limits lim = {.as = 1LL << 30};
-        refused("under RLIMIT_AS 1 GiB a larger need is refused with one line naming the limit", cfg, &lim, "RLIMIT_AS");
-        snprintf(cfg, sizeof cfg, "%s/wide.json", dir);
-        e2e_write(cfg, WIDE_CONFIG);
-        refused("a model too wide for RLIMIT_AS 1 GiB is refused before it is built", cfg, &lim, "parameters alone");
+        char wide[600];
+        snprintf(wide, sizeof wide, "%s/wide.json", dir);
+        e2e_write(wide, WIDE_CONFIG);
+        if (sanitized()) {
+            printf("SKIP under RLIMIT_AS 1 GiB a larger need is refused: AddressSanitizer cannot start under an "
+                   "address-space limit; checked by make test\n");
+            printf("SKIP a model too wide for RLIMIT_AS 1 GiB is refused before it is built: the same; checked by "
+                   "make test\n");
+        } else {
+            refused("under RLIMIT_AS 1 GiB a larger need is refused with one line naming the limit", cfg, &lim,
+                    "RLIMIT_AS");
+            refused("a model too wide for RLIMIT_AS 1 GiB is refused before it is built", wide, &lim,
+                    "parameters alone");
+        }
     }
     if (!test_failures()) ref_rmtree(dir);
     else printf("# kept %s for inspection\n", dir);

@@ -122,7 +122,7 @@ static void grad_checks(void)
     gc_spec s = {.nin = 1, .shape = {{3, 6, 1, 1}}, .lo = -2, .hi = 2, .seed = 1};
     gradcheck("grad pose_from_vec (angles up to ~3.4 rad)", b_pose_vec, NULL, &s);
     s.lo = -1; s.hi = 1; s.eps = 1e-2f; s.seed = 2;
-    gradcheck("grad pose_from_vec (angles ~1e-3, series branch)", b_pose_small, NULL, &s);
+    gradcheck("grad pose_from_vec (angles ~1e-3; its a, b coefficients: test_pose_series)", b_pose_small, NULL, &s);
     s.eps = 0; s.seed = 3;
     gradcheck("grad pose_invert", b_invert, NULL, &s);
     s.seed = 9;

@@ -1,7 +1,12 @@
 /* tests/test_losses_ref.c — losses/ against outside references
  * (tests/ref/losses_ref.py): scikit-image SSIM, PyTorch grid_sample and OpenCV
  * remap, SciPy rotations, an independent PyTorch view-synthesis loss, and the
- * Middlebury 2014 motorcycle stereo pair (Scharstein et al. 2014). */
+ * Middlebury 2014 motorcycle stereo pair (Scharstein et al. 2014).  The
+ * PyTorch loss follows the publications named in losses_ref.py (Wang et al.
+ * 2004, Zhou et al. 2017, Godard et al. 2017 and 2019); where it repeats a
+ * choice of nightjar's own (off-view penalty, saturation guard, normaliser),
+ * losses_ref.py says so: those parts check the code against its specification,
+ * not against a publication. */
 #include "nn/geom/camera.h"
 #include "losses/photometric.h"
 #include "losses/pose.h"

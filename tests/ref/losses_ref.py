@@ -13,8 +13,33 @@ Every reference value comes from a library this project did not write:
               so OpenCV's fixed-point coordinate grid represents them exactly.
   rotation    SciPy Rotation.from_rotvec(...).as_matrix(), including angles near 0 and π.
   vsloss      an independent PyTorch (float64) implementation of the whole view-synthesis
-              loss written from the published formulas; value and gradients w.r.t. the
-              disparity pyramid and the 6-number poses.
+              loss; value and gradients w.r.t. the disparity pyramid and the 6-number poses.
+              Written from these publications (and not from nightjar's code):
+                SSIM with a 3x3 box window, C1 = 0.01^2, C2 = 0.03^2 — Wang et al. 2004,
+                  "Image quality assessment: from error visibility to structural similarity";
+                photometric error alpha*(1 - SSIM)/2 + (1 - alpha)*|a - b|, alpha = 0.85 —
+                  Godard et al. 2017 (unsupervised monocular depth with left-right consistency);
+                view synthesis by back-projecting depth, moving by (R, t) and sampling the
+                  source bilinearly — Zhou et al. 2017 (unsupervised depth and ego-motion);
+                Rodrigues' rotation formula R = I + sin(theta) K + (1 - cos(theta)) K^2;
+                per-pixel minimum over sources and auto-masking of pixels where an unwarped
+                  source matches better, multi-scale losses computed at full resolution, depth
+                  from a sigmoid disparity as 1 / (1/max + (1/min - 1/max) s) — Godard et al. 2019
+                  (digging into self-supervised monocular depth estimation);
+                edge-aware smoothness of mean-normalised disparity, |dx d*| exp(-|dx I|),
+                  weighted 1/2^s per scale — Godard et al. 2017 and 2019.
+              These are nightjar's own conventions, reproduced here on purpose so the
+              comparison is like with like, NOT taken from a publication:
+                the off-view penalty (a pixel whose projection falls outside the source or
+                  behind the camera gets error 1e3, so it never wins the minimum, and is left
+                  out of the mean when every source is off-view);
+                the saturation guard weight * mean(relu(-log d - 6) + relu(-log(1 - d) - 6))
+                  (mode vsloss_guard);
+                the normaliser: the mean over the masked pixels (not over all pixels), the
+                  1e-7 in the mean normalisation, and the depth range 0.1 .. 100 m (the
+                  model's default depth_range);
+                border padding and align_corners=True in the sampler, reflection padding of
+                  the SSIM window.
   camera      OpenCV resize(INTER_AREA) and cropping of an image with a sub-pixel dot: where
               the dot's centroid lands checks the intrinsics' resize/crop convention.
   motorcycle  the Middlebury 2014 "motorcycle" stereo pair with ground-truth disparity

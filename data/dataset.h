@@ -114,6 +114,9 @@ const nj_undistort *nj_sequence_undistort(const nj_sequence *s, int right);
  * s->height, sets s->camera to the view's pinhole and, for a rig, s->baseline.
  * Returns the problems added (one line naming the sequence and the reason). */
 int nj_sequence_lens_setup(nj_sequence *s, nj_problems *pr);
+/* check-data's lines on a sequence with a lens or rig: the calibration and
+ * the pinhole intrinsics its frames are resampled to (nothing otherwise). */
+void nj_sequence_lens_describe(const nj_sequence *s, FILE *f);
 
 /* Frame listing: PNG/JPEG file names in `dir` sorted by name (malloc'd).
  * Returns the count, or -1 if the folder cannot be read. */

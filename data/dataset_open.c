@@ -31,12 +31,13 @@ static void report_sequence(const nj_sequence *s, const nj_data_options *o, int 
 {
     fprintf(f, "  %-16s %-5s %5d frames  %dx%d", s->name ? s->name : "?", nj_split_name(s->split),
             s->nframes, s->width, s->height);
-    if (s->right_images) fprintf(f, "  stereo %.3f m", s->baseline);
+    if (s->right_images) fprintf(f, "  stereo %.3f m%s", s->baseline, s->rig ? " (raw rig)" : "");
     if (s->depth_dir) fprintf(f, "  depth %s", nj_depth_format_name(s->depth_format));
     if (s->poses) fprintf(f, "  poses");
     fprintf(f, "  usable samples %d  duplicates skipped %d", nj_sequence_samples(s, o, NULL, i), s->duplicates);
     if (s->problems) fprintf(f, "  problems %d", s->problems);
     fprintf(f, "\n");
+    nj_sequence_lens_describe(s, f);
 }
 
 void nj_dataset_report(const nj_dataset *ds, const nj_data_options *o, const nj_problems *pr, FILE *f)

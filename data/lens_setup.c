@@ -47,3 +47,38 @@ int nj_sequence_lens_setup(nj_sequence *s, nj_problems *pr)
     s->camera = s->undistort[0].view.out;
     return 0;
 }
+
+/* " k1 -0.28 k2 0.07 ..." (the non-zero coefficients; " none" when all are 0). */
+static int coeffs(const nj_lens *L, char *out, size_t len)
+{
+    int n, k = 0, any = 0;
+    const char *const *names = nj_lens_coeff_names(L->kind, &n);
+    out[0] = 0;
+    for (int i = 0; i < n && (size_t)k < len; i++)
+        if (L->c[i] != 0) {
+            k += snprintf(out + k, len - (size_t)k, " %s %.6g", names[i], L->c[i]);
+            any = 1;
+        }
+    if (!any) snprintf(out, len, " (all coefficients 0)");
+    return k;
+}
+
+void nj_sequence_lens_describe(const nj_sequence *s, FILE *f)
+{
+    if (!s->undistort) return;
+    char a[160], b[160];
+    nj_camera r = s->raw_camera, c = s->camera;
+    coeffs(&s->lens, a, sizeof a);
+    fprintf(f, "    camera fx %.6g fy %.6g cx %.6g cy %.6g, lens %s%s\n", r.fx, r.fy, r.cx, r.cy,
+            nj_lens_kind_name(s->lens.kind), a);
+    if (s->rig) {
+        nj_camera q = s->right_camera;
+        coeffs(&s->right_lens, b, sizeof b);
+        fprintf(f, "    right camera fx %.6g fy %.6g cx %.6g cy %.6g, lens %s%s, at (%.4g, %.4g, %.4g) m\n", q.fx,
+                q.fy, q.cx, q.cy, nj_lens_kind_name(s->right_lens.kind), b, s->right_pos[0], s->right_pos[1],
+                s->right_pos[2]);
+    }
+    fprintf(f, "    %s to pinhole fx %.6g fy %.6g cx %.6g cy %.6g at %dx%d (every pixel inside the frame)%s\n",
+            s->rig ? "rectified" : "undistorted", c.fx, c.fy, c.cx, c.cy, s->width, s->height,
+            s->rig ? ", both cameras" : "");
+}

@@ -143,15 +143,17 @@ int nj_lens_undistort(const nj_lens *L, double xd, double yd, double *x, double 
     return 0;
 }
 
-/* Walks the radial function outward in 4000 steps per rd_max until it passes
+/* Walks the radial function outward in 4000 steps per rd_max (steps no finer
+ * than a 4-millionth of the limit below) until it passes
  * rd_max; a derivative ≤ 0 on the way is a fold.  Radii are bounded by
  * r = 100 (89.4°) for radial-tangential and θ = π for fisheye: a function
  * still below rd_max there never reaches the image corner. */
 int nj_lens_monotone(const nj_lens *L, double rd_max, double *fold_at)
 {
     if (L->kind == NJ_LENS_NONE) return 0;
-    double h = rd_max / 4000, limit = L->kind == NJ_LENS_FISHEYE ? M_PI : 100.0;
-    if (!(h > 0) || !isfinite(h)) h = 1e-4;
+    double limit = L->kind == NJ_LENS_FISHEYE ? M_PI : 100.0;
+    double h = fmax(rd_max / 4000, limit / 4e6);     /* at most 4 million steps, whatever the input */
+    if (!isfinite(h)) return -1;
     for (double s = 0; s <= limit; s += h) {
         double d, f;
         if (L->kind == NJ_LENS_FISHEYE) {

@@ -21,6 +21,7 @@
 #include <stdio.h>
 
 #define MIN_BASELINE 1e-4       /* metres: 0.1 mm — below it the two cameras are one */
+#define MAX_BASELINE 1e3        /* metres: beyond it the positions are not metres of a rig */
 
 void nj_mat3_mul(const double A[9], const double B[9], double C[9])
 {
@@ -92,6 +93,11 @@ int nj_rectify_rotations(const double rot[9], const double pos[3], double R1[9],
     if (!(nt >= MIN_BASELINE)) {
         snprintf(why, whylen, "zero baseline: the second camera sits %.3g m from the first (at least %g m needed)", nt,
                  MIN_BASELINE);
+        return -1;
+    }
+    if (!(nt <= MAX_BASELINE)) {
+        snprintf(why, whylen, "the second camera sits %.3g m from the first: not a stereo rig (at most %g m)", nt,
+                 MAX_BASELINE);
         return -1;
     }
     nj_rot_to_vec(R, om);

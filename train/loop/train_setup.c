@@ -62,13 +62,26 @@ static int open_data(nj_trainer *t, char *err, size_t errlen)
     return 0;
 }
 
+/* A float as the shortest decimal that reads back as the same float. */
+static double float_text(float v)
+{
+    char b[32];
+    snprintf(b, sizeof b, "%.9g", v);
+    for (int p = 6; p < 9; p++) {
+        char t[32];
+        snprintf(t, sizeof t, "%.*g", p, v);
+        if (strtof(t, NULL) == v) return strtod(t, NULL);
+    }
+    return strtod(b, NULL);
+}
+
 static cJSON *camera_json(nj_camera c)
 {
     cJSON *o = cJSON_CreateObject();
-    cJSON_AddNumberToObject(o, "fx", c.fx);
-    cJSON_AddNumberToObject(o, "fy", c.fy);
-    cJSON_AddNumberToObject(o, "cx", c.cx);
-    cJSON_AddNumberToObject(o, "cy", c.cy);
+    cJSON_AddNumberToObject(o, "fx", float_text(c.fx));
+    cJSON_AddNumberToObject(o, "fy", float_text(c.fy));
+    cJSON_AddNumberToObject(o, "cx", float_text(c.cx));
+    cJSON_AddNumberToObject(o, "cy", float_text(c.cy));
     return o;
 }
 

@@ -558,12 +558,12 @@ static void test_refusals(void)
     expect_refusal(dir, "zero-focal", "{\"fx\": 100, \"fy\": 0, \"cx\": 79.5, \"cy\": 59.5}", "",
                    "focal length \"camera.fy\" must be positive");
     snprintf(cam, sizeof cam, "%s\"k1\": -0.9}}", rt);
-    expect_refusal(dir, "radial-fold", cam, "", "lens distortion folds the image");
+    expect_refusal(dir, "radial-fold", cam, "", "radial-tangential lens distortion folds the image: its radial function stops increasing");
     snprintf(cam, sizeof cam, "%s\"p1\": 0.6}}", rt);
-    expect_refusal(dir, "tangential-fold", cam, "", "folds the image");
+    expect_refusal(dir, "tangential-fold", cam, "", "folds the image near pixel");
     expect_refusal(dir, "fisheye-fold",
                    "{\"fx\": 100, \"fy\": 100, \"cx\": 79.5, \"cy\": 59.5, \"lens\": {\"model\": \"fisheye\", \"k1\": -0.5}}", "",
-                   "fisheye lens distortion folds the image");
+                   "fisheye lens distortion folds the image: its radial function stops increasing");
     expect_refusal(dir, "zero-baseline", "{\"fx\": 100, \"fy\": 100, \"cx\": 79.5, \"cy\": 59.5}",
                    ", \"right_images\": \"cam1\", \"right_camera\": {\"fx\": 100, \"fy\": 100, \"cx\": 79.5, \"cy\": 59.5, "
                    "\"rotation\": [0, 0, 0], \"position\": [0, 0, 0]}",

@@ -14,7 +14,10 @@ int nj_undistort_init(nj_undistort *u, const nj_lens_view *v, int n, char *why, 
         return -1;
     }
     memcpy(fit, v, (size_t)n * sizeof *v);
-    for (int k = 0; k < n; k++) u[k].map = NULL;
+    for (int k = 0; k < n; k++) {
+        u[k].map = NULL;
+        u[k].borrowed = 0;
+    }
     if (nj_lens_view_fit(fit, n, why, whylen)) return -1;
     for (int k = 0; k < n; k++) {
         u[k].view = fit[k];
@@ -31,8 +34,27 @@ int nj_undistort_init(nj_undistort *u, const nj_lens_view *v, int n, char *why, 
 
 void nj_undistort_free(nj_undistort *u)
 {
-    free(u->map);
+    if (!u->borrowed) free(u->map);
     u->map = NULL;
+    u->borrowed = 0;
+}
+
+static int same_camera(nj_camera a, nj_camera b)
+{
+    return a.fx == b.fx && a.fy == b.fy && a.cx == b.cx && a.cy == b.cy;
+}
+
+int nj_undistort_same(const nj_undistort *a, const nj_undistort *b)
+{
+    const nj_lens_view *x = &a->view, *y = &b->view;
+    if (a->key != b->key || x->w != y->w || x->h != y->h || x->lens.kind != y->lens.kind ||
+        !same_camera(x->src, y->src) || !same_camera(x->out, y->out))
+        return 0;
+    for (int i = 0; i < 5; i++)
+        if (x->lens.c[i] != y->lens.c[i]) return 0;
+    for (int i = 0; i < 9; i++)
+        if (x->R[i] != y->R[i]) return 0;
+    return 1;
 }
 
 /* Bilinear sample of plane p (w×h) at (x, y), clamped to the image. */

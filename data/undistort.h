@@ -14,6 +14,7 @@ typedef struct nj_undistort {
     nj_lens_view view;      /* source camera, lens, rotation and the output pinhole (view.out) */
     float *map;        /* 2·w·h source coordinates (x, y) per output pixel */
     uint64_t key;      /* nj_lens_view_key(&view): a cache of prepared frames must include it */
+    int borrowed;      /* map belongs to another nj_undistort of the same view (not freed here) */
 } nj_undistort;
 
 /* Fits the output intrinsics of n views together (nj_lens_view_fit: 1 camera, or
@@ -21,6 +22,8 @@ typedef struct nj_undistort {
  * the reason in why (the lens folds the image, ...). */
 int nj_undistort_init(nj_undistort *u, const nj_lens_view *v, int n, char *why, size_t whylen);
 void nj_undistort_free(nj_undistort *u);
+/* 1 when a and b resample the same way (same sizes, cameras, lens, rotation). */
+int nj_undistort_same(const nj_undistort *a, const nj_undistort *b);
 
 /* Replaces *im (the view's w×h) by its resampled view (bilinear; source
  * coordinates clamped to the image, which the view's policy keeps them in).

@@ -582,7 +582,7 @@ static void test_refusals(void)
           "train refuses a folding lens, naming the sequence", "status %d: %s", rc, out ? out : "(no output)");
     free(out);
     /* a good lens passes and check-data states the pinhole it is resampled to */
-    char json[4400], text[1024];
+    char json[4400], text[2048];
     snprintf(json, sizeof json, "%s/good.json", dir);
     snprintf(text, sizeof text, "{\"sequences\": [{\"name\": \"yard-good\", \"images\": \"cam0\", \"camera\": "
              "%s\"k1\": -0.2, \"k2\": 0.05, \"p1\": 0.001, \"p2\": -0.001}}}]}\n", rt);
@@ -592,6 +592,33 @@ static void test_refusals(void)
     check(rc == 0 && out && strstr(out, "undistorted to pinhole fx") && strstr(out, "radial-tangential k1 -0.2"),
           "check-data accepts a good lens and prints the pinhole intrinsics", "status %d: %s", rc, out ? out : "");
     free(out);
+    /* two sequences of one calibration resample through one map */
+    snprintf(json, sizeof json, "%s/shared.json", dir);
+    snprintf(text, sizeof text, "{\"sequences\": [{\"name\": \"yard-a\", \"images\": \"cam0\", \"camera\": "
+             "%s\"k1\": -0.1}}}, {\"name\": \"yard-b\", \"images\": \"cam1\", \"camera\": %s\"k1\": -0.1}}}, "
+             "{\"name\": \"yard-c\", \"images\": \"cam1\", \"camera\": %s\"k1\": -0.11}}}]}\n", rt, rt, rt);
+    e2e_write(json, text);
+    nj_dataset ds;
+    nj_problems pr;
+    nj_problems_init(&pr);
+    nj_data_options o;
+    nj_data_options_default(&o);
+    int bad = nj_dataset_open(json, &o, &ds, &pr);
+    if (ds.nseq != 3) {
+        check(0, "sequences of one calibration share one lens map", "%d sequences parsed", ds.nseq);
+        nj_problems_print(&pr, stdout);
+        nj_dataset_free(&ds);
+        nj_problems_free(&pr);
+        ref_rmtree(dir);
+        return;
+    }
+    const nj_undistort *a = nj_sequence_undistort(&ds.seq[0], 0), *b = nj_sequence_undistort(&ds.seq[1], 0),
+                       *c = nj_sequence_undistort(&ds.seq[2], 0);
+    check(!bad && a && b && c && a->map == b->map && b->borrowed && c->map != a->map && !c->borrowed,
+          "sequences of one calibration share one lens map (another calibration has its own)", "%d problems", bad);
+    if (bad) nj_problems_print(&pr, stdout);
+    nj_dataset_free(&ds);
+    nj_problems_free(&pr);
     ref_rmtree(dir);
 }
 

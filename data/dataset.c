@@ -106,6 +106,71 @@ static void positive(ctx *c, const char *key, double v, const char *what)
     if (!(v > 0)) nj_problem(c->pr, "%s: %s: %s \"%s\" must be positive (got %g)", c->path, c->where, what, key, v);
 }
 
+/* A key at the camera level that belongs inside "lens". */
+static int is_coefficient(const char *k)
+{
+    static const char *const names[] = {"k1", "k2", "k3", "k4", "p1", "p2"};
+    for (int i = 0; i < 6; i++)
+        if (k && !strcmp(k, names[i])) return 1;
+    return 0;
+}
+
+/* "lens": {"model": ..., coefficients} inside the camera object `what`. */
+static void parse_lens(ctx *c, const cJSON *cam, const char *what, nj_lens *L)
+{
+    const cJSON *o = member(cam, "lens");
+    memset(L, 0, sizeof *L);
+    if (!o) return;
+    const char *model = NULL;
+    if (!cJSON_IsObject(o) || get_string(c, o, "model", &model) != 1) {
+        nj_problem(c->pr, "%s: %s: \"%s.lens\" must be an object with \"model\": \"radial-tangential\" or \"fisheye\"",
+                   c->path, c->where, what);
+        return;
+    }
+    if (!strcmp(model, "radial-tangential")) L->kind = NJ_LENS_RADTAN;
+    else if (!strcmp(model, "fisheye")) L->kind = NJ_LENS_FISHEYE;
+    else {
+        nj_problem(c->pr, "%s: %s: \"%s.lens.model\" is \"%.40s\"; expected radial-tangential or fisheye", c->path,
+                   c->where, what, model);
+        return;
+    }
+    int n;
+    const char *const *names = nj_lens_coeff_names(L->kind, &n);
+    char prefix[48];
+    snprintf(prefix, sizeof prefix, "%s.lens.", what);
+    for (const cJSON *it = o->child; it; it = it->next) {
+        int k = -1;
+        for (int i = 0; i < n && k < 0; i++)
+            if (it->string && !strcmp(it->string, names[i])) k = i;
+        if (k >= 0) get_number(c, o, prefix, names[k], &L->c[k]);
+        else if (!it->string || strcmp(it->string, "model"))
+            nj_problem(c->pr, "%s: %s: \"%s%.40s\" is not a coefficient of the %s model (%s)", c->path, c->where, prefix,
+                       it->string ? it->string : "?", model, L->kind == NJ_LENS_RADTAN ? "k1, k2, p1, p2, k3" : "k1, k2, k3, k4");
+    }
+}
+
+/* fx, fy, cx, cy (+ "lens") of the camera object `what` ("camera", "right_camera"). */
+static void parse_intrinsics(ctx *c, const cJSON *cam, const char *what, nj_camera *out, nj_lens *L)
+{
+    static const char *keys[4] = {"fx", "fy", "cx", "cy"};
+    double v[4] = {0, 0, 0, 0};
+    char prefix[32];
+    snprintf(prefix, sizeof prefix, "%s.", what);
+    for (int i = 0; i < 4; i++) {
+        char full[48];
+        snprintf(full, sizeof full, "%s.%s", what, keys[i]);
+        int r = get_number(c, cam, prefix, keys[i], &v[i]);
+        if (r == 0) missing(c, full, "");
+        if (r == 1 && i < 2) positive(c, full, v[i], "focal length");
+    }
+    *out = (nj_camera){(float)v[0], (float)v[1], (float)v[2], (float)v[3]};
+    for (const cJSON *it = cam->child; it; it = it->next)
+        if (is_coefficient(it->string))
+            nj_problem(c->pr, "%s: %s: \"%s.%s\": distortion coefficients go inside \"%s.lens\" with its \"model\"",
+                       c->path, c->where, what, it->string, what);
+    parse_lens(c, cam, what, L);
+}
+
 static void parse_camera(ctx *c, const cJSON *seq, nj_sequence *s)
 {
     const cJSON *cam = member(seq, "camera");
@@ -114,25 +179,88 @@ static void parse_camera(ctx *c, const cJSON *seq, nj_sequence *s)
         nj_problem(c->pr, "%s: %s: \"camera\" must be an object with fx, fy, cx, cy", c->path, c->where);
         return;
     }
-    static const char *keys[4] = {"fx", "fy", "cx", "cy"};
-    double v[4] = {0, 0, 0, 0};
-    for (int i = 0; i < 4; i++) {
-        char full[16];
-        snprintf(full, sizeof full, "camera.%s", keys[i]);
-        int r = get_number(c, cam, "camera.", keys[i], &v[i]);
-        if (r == 0) missing(c, full, "");
-        if (r == 1 && i < 2) positive(c, full, v[i], "focal length");
+    parse_intrinsics(c, cam, "camera", &s->camera, &s->lens);
+    s->raw_camera = s->camera;
+}
+
+/* n numbers of the array `key` of obj (n_alt: a second accepted length).
+ * Returns the count read, 0 when absent, -1 after a problem. */
+static int get_numbers(ctx *c, const cJSON *obj, const char *what, const char *key, int n, int n_alt, double *out)
+{
+    const cJSON *a = member(obj, key);
+    if (!a) return 0;
+    int len = cJSON_IsArray(a) ? cJSON_GetArraySize(a) : -1, i = 0;
+    if (len == n || len == n_alt)
+        for (const cJSON *it = a->child; it; it = it->next, i++) {
+            if (!cJSON_IsNumber(it) || !isfinite(it->valuedouble)) break;
+            out[i] = it->valuedouble;
+        }
+    if (len < 0 || i != len || (len != n && len != n_alt)) {
+        if (n_alt) nj_problem(c->pr, "%s: %s: \"%s.%s\" must be an array of %d or %d numbers", c->path, c->where, what, key, n, n_alt);
+        else nj_problem(c->pr, "%s: %s: \"%s.%s\" must be an array of %d numbers", c->path, c->where, what, key, n);
+        return -1;
     }
-    s->camera = (nj_camera){(float)v[0], (float)v[1], (float)v[2], (float)v[3]};
+    return len;
+}
+
+/* "right_camera": the raw rig's second camera and its pose. */
+static void parse_rig(ctx *c, const cJSON *cam, nj_sequence *s)
+{
+    double rot[9], pos[3], det;
+    if (!cJSON_IsObject(cam)) {
+        nj_problem(c->pr, "%s: %s: \"right_camera\" must be an object with fx, fy, cx, cy, rotation, position",
+                   c->path, c->where);
+        return;
+    }
+    static const char *known[] = {"fx", "fy", "cx", "cy", "lens", "rotation", "position"};
+    for (const cJSON *it = cam->child; it; it = it->next) {
+        int ok = is_coefficient(it->string);
+        for (int i = 0; i < 7 && !ok; i++) ok = it->string && !strcmp(it->string, known[i]);
+        if (!ok) nj_warning(c->pr, "%s: %s: unknown key \"right_camera.%s\" ignored", c->path, c->where, it->string ? it->string : "?");
+    }
+    parse_intrinsics(c, cam, "right_camera", &s->right_camera, &s->right_lens);
+    int nr = get_numbers(c, cam, "right_camera", "rotation", 3, 9, rot);
+    int np = get_numbers(c, cam, "right_camera", "position", 3, 0, pos);
+    if (nr == 0) missing(c, "right_camera.rotation", " (a rotation vector in radians, or a 3x3 matrix)");
+    if (np == 0) missing(c, "right_camera.position", " (metres, in the left camera's frame)");
+    if (nr == 9 && (nj_rot_error(rot, &det) > 1e-4 || !(det > 0))) {
+        nj_problem(c->pr, "%s: %s: \"right_camera.rotation\" is not a rotation matrix (|RtR - I| %.2g, det %.4g)",
+                   c->path, c->where, nj_rot_error(rot, &det), det);
+        return;
+    }
+    if (nr <= 0 || np <= 0) return;
+    double vec[3];
+    if (nr == 9) nj_rot_to_vec(rot, vec);     /* back and forth: the nearest exact rotation */
+    else memcpy(vec, rot, sizeof vec);
+    nj_rot_from_vec(vec, s->right_rot);
+    memcpy(s->right_pos, pos, sizeof pos);
+    double R1[9], R2[9], b;
+    char why[256];
+    if (nj_rectify_rotations(s->right_rot, s->right_pos, R1, R2, &b, why, sizeof why))
+        nj_problem(c->pr, "%s: %s: right_camera: %s", c->path, c->where, why);
+    s->rig = 1;
+    s->baseline = (float)b;
 }
 
 static void parse_stereo(ctx *c, const cJSON *seq, nj_sequence *s, const char *root)
 {
     const char *right = NULL;
     double b = 0;
+    const cJSON *rig = member(seq, "right_camera");
     int r = get_string(c, seq, "right_images", &right);
     int rb = get_number(c, seq, "", "baseline", &b);
     if (r == 1) s->right_images = resolve(root, right);
+    if (rig) {
+        if (r == 0) missing(c, "right_images", " (required with \"right_camera\")");
+        if (rb == 1)
+            nj_problem(c->pr, "%s: %s: \"baseline\" is given by \"right_camera.position\" of a raw rig: leave it out",
+                       c->path, c->where);
+        parse_rig(c, rig, s);
+        return;
+    }
+    if (r == 1 && s->lens.kind != NJ_LENS_NONE)
+        nj_problem(c->pr, "%s: %s: \"camera.lens\" with a rectified stereo pair: describe the raw rig with "
+                   "\"right_camera\" (its lens and pose) instead of \"baseline\"", c->path, c->where);
     if (r == 1 && rb == 0) missing(c, "baseline", " (required with \"right_images\")");
     if (r == 1 && rb == 1) positive(c, "baseline", b, "stereo");
     if (r == 0 && rb == 1) nj_warning(c->pr, "%s: %s: \"baseline\" is ignored without \"right_images\"", c->path, c->where);
@@ -183,7 +311,8 @@ static void warn_unknown(ctx *c, const cJSON *obj, const char *const *known, int
 
 static void parse_sequence(ctx *c, const cJSON *seq, int i, nj_sequence *s, const char *root)
 {
-    static const char *known[] = {"name", "images", "camera", "right_images", "baseline", "depth", "poses", "split", "lead_mask"};
+    static const char *known[] = {"name",  "images", "camera", "right_images", "baseline", "right_camera",
+                                  "depth", "poses",  "split",  "lead_mask"};
     snprintf(c->where, sizeof c->where, "sequence %d", i + 1);
     if (!cJSON_IsObject(seq)) {
         nj_problem(c->pr, "%s: %s: must be an object", c->path, c->where);
@@ -292,6 +421,8 @@ char *nj_lead_mask_path(const nj_sequence *s, int frame)
 
 static void sequence_free(nj_sequence *s)
 {
+    for (int k = 0; s->undistort && k < 1 + s->rig; k++) nj_undistort_free(&s->undistort[k]);
+    free(s->undistort);
     free(s->name);
     free(s->images);
     free(s->right_images);

@@ -4,9 +4,23 @@
  * JSON file's folder):
  *   { "sequences": [ { "name": "yard-03",
  *       "images": "yard-03/cam0",            folder of PNG/JPEG frames, ordered by file name
- *       "camera": {"fx":..,"fy":..,"cx":..,"cy":..},   pixels, at the on-disk image size
- *       "right_images": "yard-03/cam1",      optional rectified stereo partner (same file names)
- *       "baseline": 0.12,                    metres, required with right_images
+ *       "camera": {"fx":..,"fy":..,"cx":..,"cy":..,   pixels, at the on-disk image size
+ *                  "lens": {"model": "radial-tangential", "k1":..,"k2":..,"p1":..,"p2":..,"k3":..}
+ *                       or {"model": "fisheye", "k1":..,"k2":..,"k3":..,"k4":..}},
+ *                                            optional lens distortion (Brown 1966 / Kannala &
+ *                                            Brandt 2006; absent coefficients are 0): frames are
+ *                                            undistorted at load time to a pinhole view
+ *       "right_images": "yard-03/cam1",      optional stereo partner (same file names)
+ *       "baseline": 0.12,                    metres, required with right_images of a rectified pair
+ *       "right_camera": {"fx":..,"fy":..,"cx":..,"cy":.., "lens": {..},
+ *                        "rotation": [3 or 9 numbers], "position": [x, y, z]},
+ *                                            instead of "baseline": a raw (unrectified) rig —
+ *                                            the right camera's intrinsics, lens, orientation
+ *                                            (rotation vector in radians, or a row-major 3x3
+ *                                            matrix, taking right-camera directions into the
+ *                                            left camera's frame) and optical centre in the
+ *                                            left camera's frame (metres); both cameras are
+ *                                            rectified at load time and the baseline is |position|
  *       "depth": {"dir": "...", "format": "png16"|"npy"|"pfm", "scale": 1000.0},
  *                                            optional ground truth (scale: png16 only, required there)
  *       "poses": "yard-03/poses.txt",        optional ground truth, 12 numbers per line
@@ -22,6 +36,7 @@
 #define NJ_DATASET_H
 #include "data/depthio.h"
 #include "data/problems.h"
+#include "data/undistort.h"
 #include "nn/geom/camera.h"
 
 typedef enum { NJ_SPLIT_TRAIN = 0, NJ_SPLIT_VAL = 1, NJ_SPLIT_TEST = 2 } nj_split;
@@ -30,9 +45,20 @@ typedef struct nj_sequence {
     /* from the JSON (paths resolved) */
     char *name;
     char *images;            /* folder of frames */
-    nj_camera camera;        /* at the on-disk size */
+    nj_camera camera;        /* at the on-disk size; with a lens or a raw rig, the pinhole
+                                view the frames are resampled to (set by validation) */
     char *right_images;      /* NULL without stereo */
     float baseline;          /* metres */
+    nj_camera raw_camera;    /* "camera" as calibrated (= camera without a lens or rig) */
+    nj_lens lens;            /* its lens; kind NJ_LENS_NONE: frames used as they are */
+    int rig;                 /* 1: "right_camera" given, the pair is rectified at load time */
+    nj_camera right_camera;  /* the rig's right camera as calibrated */
+    nj_lens right_lens;
+    double right_rot[9];     /* right-camera directions → left camera frame */
+    double right_pos[3];     /* right optical centre in the left camera frame, metres */
+    nj_undistort *undistort; /* [0] left, [1] right (rig only); NULL: frames used as they are.
+                                Built by validation; undistort[k].key identifies the resampling
+                                (a cache of prepared frames must include it) */
     char *depth_dir;         /* NULL without depth */
     nj_depth_format depth_format;
     float depth_scale;
@@ -81,6 +107,17 @@ void nj_dataset_free(nj_dataset *ds);
 /* Validation of one parsed sequence (folders, frames, images, partners,
  * ground truth, duplicates).  Returns the problems added. */
 int nj_sequence_validate(nj_sequence *s, const nj_data_options *o, nj_problems *pr);
+/* The resampling of the sequence's left (right = 0) or right (1) frames, or
+ * NULL when they are used as they are. */
+const nj_undistort *nj_sequence_undistort(const nj_sequence *s, int right);
+/* Builds s->undistort from the parsed lens / rig for frames of s->width ×
+ * s->height, sets s->camera to the view's pinhole and, for a rig, s->baseline.
+ * Returns the problems added (one line naming the sequence and the reason). */
+int nj_sequence_lens_setup(nj_sequence *s, nj_problems *pr);
+/* check-data's lines on a sequence with a lens or rig: the calibration and
+ * the pinhole intrinsics its frames are resampled to (nothing otherwise). */
+void nj_sequence_lens_describe(const nj_sequence *s, FILE *f);
+
 /* Frame listing: PNG/JPEG file names in `dir` sorted by name (malloc'd).
  * Returns the count, or -1 if the folder cannot be read. */
 int nj_list_frames(const char *dir, char ***names);

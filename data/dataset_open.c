@@ -1,6 +1,7 @@
 /* data/dataset_open.c — parse + validate a dataset, and the check-data
  * report.  Training calls nj_dataset_open and refuses data with problems. */
 #include "data/dataset.h"
+#include <stdlib.h>
 
 static int split_samples(const nj_dataset *ds, const nj_data_options *o, nj_split split)
 {
@@ -8,6 +9,24 @@ static int split_samples(const nj_dataset *ds, const nj_data_options *o, nj_spli
     for (int i = 0; i < ds->nseq; i++)
         if (ds->seq[i].split == split) n += nj_sequence_samples(&ds->seq[i], o, NULL, i);
     return n;
+}
+
+/* Sequences filmed with one calibration resample through one map: a
+ * 1920×1080 map takes 16 MiB, and a fleet has many sequences per camera. */
+static void share_maps(nj_dataset *ds)
+{
+    for (int i = 0; i < ds->nseq; i++)
+        for (int k = 0; ds->seq[i].undistort && k < 1 + ds->seq[i].rig; k++) {
+            nj_undistort *u = &ds->seq[i].undistort[k];
+            for (int j = 0; j < i && !u->borrowed; j++)
+                for (int m = 0; ds->seq[j].undistort && m < 1 + ds->seq[j].rig && !u->borrowed; m++) {
+                    const nj_undistort *o = &ds->seq[j].undistort[m];
+                    if (o->borrowed || !nj_undistort_same(u, o)) continue;
+                    free(u->map);
+                    u->map = o->map;
+                    u->borrowed = 1;
+                }
+        }
 }
 
 int nj_dataset_open(const char *path, const nj_data_options *o, nj_dataset *ds, nj_problems *pr)
@@ -21,6 +40,7 @@ int nj_dataset_open(const char *path, const nj_data_options *o, nj_dataset *ds, 
             nj_warning(pr, "%s: sequence \"%s\" yields no samples (%d usable frames, k = %d)",
                        s->images, s->name, s->nkept, o->k);
     }
+    share_maps(ds);
     if (pr->n == before && split_samples(ds, o, NJ_SPLIT_TRAIN) == 0)
         nj_problem(pr, "%s: no usable training samples (needs a \"train\" sequence with at least %d usable frames%s)",
                    path, 2 * o->k + 1, o->stereo ? " or a stereo partner" : "");
@@ -31,12 +51,13 @@ static void report_sequence(const nj_sequence *s, const nj_data_options *o, int 
 {
     fprintf(f, "  %-16s %-5s %5d frames  %dx%d", s->name ? s->name : "?", nj_split_name(s->split),
             s->nframes, s->width, s->height);
-    if (s->right_images) fprintf(f, "  stereo %.3f m", s->baseline);
+    if (s->right_images) fprintf(f, "  stereo %.3f m%s", s->baseline, s->rig ? " (raw rig)" : "");
     if (s->depth_dir) fprintf(f, "  depth %s", nj_depth_format_name(s->depth_format));
     if (s->poses) fprintf(f, "  poses");
     fprintf(f, "  usable samples %d  duplicates skipped %d", nj_sequence_samples(s, o, NULL, i), s->duplicates);
     if (s->problems) fprintf(f, "  problems %d", s->problems);
     fprintf(f, "\n");
+    nj_sequence_lens_describe(s, f);
 }
 
 void nj_dataset_report(const nj_dataset *ds, const nj_data_options *o, const nj_problems *pr, FILE *f)

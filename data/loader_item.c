@@ -1,5 +1,6 @@
-/* data/loader_item.c — one batch item: decode, resize to the training size
- * with matching intrinsics, seeded flip and colour jitter. */
+/* data/loader_item.c — one batch item: decode, undistort (a sequence with a
+ * lens or a raw stereo rig), resize to the training size with matching
+ * intrinsics, seeded flip and colour jitter. */
 #include "data/loader_item.h"
 #include "data/augment.h"
 #include "data/image.h"
@@ -18,14 +19,28 @@ uint64_t nj_loader_item_seed(uint64_t seed, long step, int i)
     return mix(mix(seed ^ 0xA5A5F00Dull) + (uint64_t)step * 0x9E3779B97F4A7C15ull + (uint64_t)i);
 }
 
+/* The full-size frame in its sequence's pinhole view, before any resize:
+ * undistorted (and, for a raw stereo rig, rectified) through the sequence's
+ * precomputed map; u is nj_sequence_undistort() — NULL for a pinhole camera,
+ * whose frames pass untouched (bit-identical to no lens support).  What a
+ * cache of prepared frames must key on besides the file: u->key. */
+static int undistort_frame(const nj_undistort *u, nj_image *im, const char *path, char *err, size_t errlen)
+{
+    char why[256];
+    if (!u || !nj_undistort_image(u, im, why, sizeof why)) return 0;
+    snprintf(err, errlen, "%s: %s", path, why);
+    return -1;
+}
+
 /* Decodes DIR/NAME into dst (3×H×W at the training size); *sw, *sh get the
  * on-disk size. */
-static int load_frame(const char *dir, const char *name, int W, int H, float *dst,
+static int load_frame(const char *dir, const char *name, const nj_undistort *u, int W, int H, float *dst,
                       int *sw, int *sh, char *err, size_t errlen)
 {
-    nj_image im, out;
+    nj_image im = {0, 0, NULL}, out;
     char *path = nj_path_join(dir, name);
     int rc = path ? nj_image_load(path, &im, err, errlen) : -1;
+    if (!rc) rc = undistort_frame(u, &im, path, err, errlen);
     if (!rc) {
         *sw = im.w;
         *sh = im.h;
@@ -38,8 +53,8 @@ static int load_frame(const char *dir, const char *name, int W, int H, float *ds
             memcpy(dst, out.data, sizeof(float) * 3 * W * H);
             nj_image_free(&out);
         }
-        nj_image_free(&im);
     }
+    nj_image_free(&im);
     free(path);
     return rc;
 }
@@ -68,12 +83,14 @@ static int load_item(const nj_sequence *q, const nj_sample *s, nj_batch *b, int 
 {
     size_t n = (size_t)3 * b->w * b->h;
     int w2, h2;
-    if (load_frame(q->images, q->frames[s->target], b->w, b->h, b->target + i * n, sw, sh, err, errlen)) return -1;
+    const nj_undistort *left = nj_sequence_undistort(q, 0), *right = nj_sequence_undistort(q, 1);
+    if (load_frame(q->images, q->frames[s->target], left, b->w, b->h, b->target + i * n, sw, sh, err, errlen))
+        return -1;
     for (int k = 0; k < b->nsrc; k++)
-        if (load_frame(q->images, q->frames[s->src[k]], b->w, b->h, b->sources + ((size_t)i * b->nsrc + k) * n,
+        if (load_frame(q->images, q->frames[s->src[k]], left, b->w, b->h, b->sources + ((size_t)i * b->nsrc + k) * n,
                        &w2, &h2, err, errlen))
             return -1;
-    if (partner && load_frame(q->right_images, q->frames[s->target], b->w, b->h, b->partner + i * n,
+    if (partner && load_frame(q->right_images, q->frames[s->target], right, b->w, b->h, b->partner + i * n,
                               &w2, &h2, err, errlen))
         return -1;
     return 0;

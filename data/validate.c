@@ -310,6 +310,7 @@ int nj_sequence_validate(nj_sequence *s, const nj_data_options *o, nj_problems *
     }
     int stereo_ok = s->right_images && !check_folder(s->right_images, "right_images", s, pr);
     scan_images(s, o, stereo_ok, pr);
+    nj_sequence_lens_setup(s, pr);
     check_depth(s, pr);
     check_poses(s, pr);
     if (s->lead_mask_dir) check_folder(s->lead_mask_dir, "lead_mask", s, pr);

@@ -245,6 +245,20 @@ static void test_predict_variants(void)
           (strstr(out, "scaled to metres") != NULL) && strstr(out, "not a certified safety sensor"),
           "predict one file with --camera and --camera-height", "status %d stdout: %s", rc, out ? out : "");
     free(out);
+    /* lens distortion on --camera: the frame is undistorted first and the view is stated */
+    const char *lenses[2] = {"--camera 38.4,38.4,34.06,22.06,-0.1,0.01,0.001,-0.001",
+                             "--fisheye --camera 38.4,38.4,34.06,22.06,0.01,0,0,0"};
+    const char *kinds[2] = {"lens: radial-tangential; frames undistorted to pinhole fx", "lens: fisheye; frames undistorted to pinhole fx"};
+    for (int k = 0; k < 2; k++) {
+        snprintf(args, sizeof args, "predict --model '%s/mono.ckpt' --input '%s/data/yard-00/cam0/000003.png' "
+                 "--out '%s/lens%d' %s --ply", dir, dir, dir, k, lenses[k]);
+        rc = run(args);
+        out = output("out");
+        snprintf(p, sizeof p, "%s/lens%d/000003.points.ply", dir, k);
+        check(rc == 0 && file_exists(p) && out && strstr(out, kinds[k]), k ? "predict --fisheye --camera with k1..k4"
+              : "predict --camera with k1,k2,p1,p2", "status %d stdout: %s", rc, out ? out : "");
+        free(out);
+    }
     snprintf(args, sizeof args, "predict --model '%s/stereo.ckpt' --input '%s/data/yard-00/cam0/000001.png' --out '%s/st'",
              dir, dir, dir);
     rc = run(args);
@@ -381,6 +395,58 @@ static void test_eval_camera_height(void)
 
 /* ---- bad inputs ---------------------------------------------------------------- */
 
+/* The dataset with a lens on every camera: coefficients k (radial-tangential). */
+static int lens_dataset(const char *path, double k1)
+{
+    char src[512];
+    snprintf(src, sizeof src, "%s/data/dataset.json", dir);
+    cJSON *j = load_json(src), *seq;
+    if (!j) return -1;
+    cJSON_ArrayForEach(seq, cJSON_GetObjectItemCaseSensitive(j, "sequences"))
+    {
+        cJSON *lens = cJSON_AddObjectToObject(cJSON_GetObjectItemCaseSensitive(seq, "camera"), "lens");
+        cJSON_AddStringToObject(lens, "model", "radial-tangential");
+        cJSON_AddNumberToObject(lens, "k1", k1);
+    }
+    char *text = cJSON_Print(j);
+    cJSON_Delete(j);
+    int rc = text ? e2e_write(path, text) : -1;
+    free(text);
+    return rc;
+}
+
+/* eval resamples frames and ground truth through the lens: with all
+ * coefficients 0 the view is the camera itself and the metrics are the
+ * pinhole run's; with a real lens every frame is still scored. */
+static void test_eval_lens(void)
+{
+    char data[512], args[2048], path[512], ref[512];
+    snprintf(ref, sizeof ref, "%s/metrics.json", dir);
+    for (int k = 0; k < 2; k++) {
+        snprintf(data, sizeof data, "%s/data/lens%d.json", dir, k);
+        snprintf(path, sizeof path, "%s/metrics_lens%d.json", dir, k);
+        if (lens_dataset(data, k ? -0.05 : 0.0)) {
+            check(0, "eval with a lens: dataset", "cannot write %s", data);
+            return;
+        }
+        snprintf(args, sizeof args, "eval --model '%s/mono.ckpt' --data '%s' --out '%s'", dir, data, path);
+        int rc = run(args);
+        cJSON *a = load_json(path), *b = load_json(ref);
+        char why[256] = "";
+        if (k == 0)
+            check(rc == 0 && a && b && same_metrics(a, b, 1e-4, why, sizeof why) && num(a, "pixels") == num(b, "pixels"),
+                  "eval with an all-zero lens scores as the pinhole camera (metrics within 1e-4)", "status %d %s", rc,
+                  why);
+        else
+            check(rc == 0 && a && num(a, "images") == num(b, "images") && num(a, "pixels") > 0 &&
+                      num(cJSON_GetObjectItemCaseSensitive(a, "pose"), "snippets") == NFRAMES - 4,
+                  "eval with a lens (k1 -0.05): every frame and pose snippet scored in the undistorted view",
+                  "status %d images %g vs %g", rc, num(a, "images"), num(b, "images"));
+        cJSON_Delete(a);
+        cJSON_Delete(b);
+    }
+}
+
 static void expect_failure(const char *what, const char *args, int want)
 {
     int rc = run(args);
@@ -422,6 +488,16 @@ static void test_bad_inputs(void)
     expect_failure("predict, --camera with 3 numbers", a, 2);
     snprintf(a, sizeof a, "predict --model '%s' --input '%s' --out '%s/x' --camera -5,100,50,40", m, junk, dir);
     expect_failure("predict, --camera with negative focal", a, 2);
+    snprintf(a, sizeof a, "predict --model '%s' --input '%s' --out '%s/x' --camera 100,100,50,40,0.1", m, junk, dir);
+    expect_failure("predict, --camera with 5 numbers", a, 2);
+    snprintf(a, sizeof a, "predict --model '%s' --input '%s' --out '%s/x' --fisheye --camera 100,100,50,40,0.1,0,0,0,0", m,
+             junk, dir);
+    expect_failure("predict, --fisheye --camera with 9 numbers", a, 2);
+    snprintf(a, sizeof a, "predict --model '%s' --input '%s' --out '%s/x' --fisheye", m, junk, dir);
+    expect_failure("predict, --fisheye without --camera", a, 2);
+    snprintf(a, sizeof a, "predict --model '%s' --input '%s/data/yard-00/cam0/000001.png' --out '%s/x' "
+             "--camera 38.4,38.4,34.06,22.06,-0.9,0,0,0", m, dir, dir);
+    expect_failure("predict, --camera with a lens that folds the image", a, 1);
     snprintf(a, sizeof a, "predict --model '%s' --input '%s' --out '%s/x' --colour", m, junk, dir);
     expect_failure("predict, unknown option", a, 2);
     snprintf(a, sizeof a, "predict --model '%s' --input '%s/data/yard-00/cam0' --out '%s/x'", trunc, dir, dir);
@@ -452,6 +528,7 @@ int main(int argc, char **argv)
     test_eval();
     test_eval_stereo();
     test_eval_camera_height();
+    test_eval_lens();
     test_bad_inputs();
     tdu_rmtree(dir);
     return test_exit();

@@ -6,7 +6,7 @@
 set -u
 BUILD_PKGS="gcc make libopenblas-dev libstb-dev libcjson-dev"
 FUZZ_PKGS="clang-14 libclang-rt-14-dev libomp-14-dev"
-TEST_PKGS="libopenmpi-dev openmpi-bin python3 python3-torch python3-numpy python3-scipy python3-skimage python3-opencv python3-onnx gcc-aarch64-linux-gnu libc6-dev-arm64-cross qemu-user chromium tidy"
+TEST_PKGS="libopenmpi-dev openmpi-bin python3 python3-torch python3-numpy python3-scipy python3-skimage python3-opencv opencv-doc python3-onnx gcc-aarch64-linux-gnu libc6-dev-arm64-cross qemu-user chromium tidy"
 
 case "${1:-build}" in
   build) want="$BUILD_PKGS" ;;

@@ -3,6 +3,8 @@
 #include "train/cli/options.h"
 #include "train/eval/eval.h"
 #include <math.h>
+#include <stdlib.h>
+#include <string.h>
 
 static const char ABOUT[] =
     "  For each frame NAME.ext (PNG or JPEG; a folder means all its frames) writes into DIR:\n"
@@ -13,11 +15,38 @@ static const char ABOUT[] =
     "                      (lightest), printed per frame; slate blue = no depth\n"
     "    NAME.points.ply   with --ply: coloured point cloud (binary PLY, camera frame)\n";
 
+/* "fx,fy,cx,cy[,coefficients]" into o's camera and lens: 4 numbers (a pinhole,
+ * or an equidistant fisheye without coefficients), 8 or 9 (radial-tangential
+ * k1,k2,p1,p2[,k3]), or with --fisheye 4 or 8 (k1..k4).  Returns 0 or -1. */
+static int parse_camera(const char *text, int fisheye, nj_predict_options *o)
+{
+    double v[10];
+    int n = 0;
+    const char *c = text;
+    while (n < 10) {
+        char *end;
+        v[n] = strtod(c, &end);
+        if (end == c || !isfinite(v[n])) return -1;
+        n++;
+        if (*end == 0) break;
+        if (*end != ',') return -1;
+        c = end + 1;
+    }
+    if (*c && n == 10) return -1;
+    if (fisheye ? (n != 4 && n != 8) : (n != 4 && n != 8 && n != 9)) return -1;
+    o->camera = (nj_camera){(float)v[0], (float)v[1], (float)v[2], (float)v[3]};
+    memset(&o->lens, 0, sizeof o->lens);
+    if (fisheye || n > 4) o->lens.kind = fisheye ? NJ_LENS_FISHEYE : NJ_LENS_RADTAN;
+    for (int i = 4; i < n; i++) o->lens.c[i - 4] = v[i];
+    return nj_camera_valid(o->camera) ? 0 : -1;
+}
+
 int nj_predict_main(int argc, char **argv)
 {
     nj_predict_options o;
     nj_predict_options_default(&o);
-    double cam[4];
+    const char *cam = NULL;
+    int fisheye = 0;
     nj_opt opts[] = {
         {.name = "--model", .kind = NJ_OPT_STRING, .meta = "CKPT", .help = "the trained model's checkpoint",
          .required = 1, .str = &o.model},
@@ -25,10 +54,18 @@ int nj_predict_main(int argc, char **argv)
          .required = 1, .str = &o.input},
         {.name = "--out", .kind = NJ_OPT_STRING, .meta = "DIR", .help = "output folder, created if missing", .required = 1,
          .str = &o.out},
-        {.name = "--camera", .kind = NJ_OPT_NUMBERS, .meta = "fx,fy,cx,cy", .count = 4, .lo = -INFINITY,
-         .hi = INFINITY, .help = "intrinsics in pixels at the input's size (fx, fy > 0), for the\n"
-                                 "point cloud and the ground plane",
-         .dflt = "fx = fy = 0.8*W, centred", .list = cam},
+        {.name = "--camera", .kind = NJ_OPT_STRING, .meta = "fx,fy,cx,cy[,k1,k2,p1,p2[,k3]]",
+         .help = "intrinsics in pixels at the input's size (fx, fy > 0), for the\n"
+                 "point cloud and the ground plane; with lens distortion\n"
+                 "coefficients (radial-tangential, Brown 1966) every frame is\n"
+                 "first undistorted to a pinhole view that keeps only pixels\n"
+                 "inside the frame, and all outputs are in that view (its\n"
+                 "intrinsics are printed)",
+         .dflt = "fx = fy = 0.8*W, centred", .str = &cam},
+        {.name = "--fisheye", .kind = NJ_OPT_FLAG,
+         .help = "--camera is an equidistant fisheye (Kannala & Brandt 2006):\n"
+                 "fx,fy,cx,cy[,k1,k2,k3,k4]",
+         .flag = &fisheye},
         {.name = "--ply", .kind = NJ_OPT_FLAG, .help = "also write the point cloud NAME.points.ply", .flag = &o.ply},
         {.name = "--camera-height", .kind = NJ_OPT_NUMBER, .meta = "METRES", .lo = 1e-3, .hi = 1e4,
          .help = "metric scale from the camera's height above flat ground,\n"
@@ -39,10 +76,12 @@ int nj_predict_main(int argc, char **argv)
     nj_opt_spec spec = {.command = "predict", .about = ABOUT, .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
-    if (nj_opt_find(&spec, "--camera")->given) {
-        o.camera = (nj_camera){(float)cam[0], (float)cam[1], (float)cam[2], (float)cam[3]};
-        if (!nj_camera_valid(o.camera))
-            return nj_opt_status(nj_opt_bad_value(&spec, "--camera", "with fx, fy > 0"));
+    if (fisheye && !cam) return nj_opt_status(nj_opt_fail(&spec, "--fisheye needs --camera"));
+    if (cam) {
+        if (parse_camera(cam, fisheye, &o))
+            return nj_opt_status(nj_opt_bad_value(&spec, "--camera",
+                                                  fisheye ? "with 4 or 8 numbers (fisheye k1..k4), fx, fy > 0"
+                                                          : "with 4, 8 or 9 numbers, fx, fy > 0"));
         o.has_camera = 1;
     }
     char err[1024] = "";

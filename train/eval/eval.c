@@ -249,6 +249,35 @@ done:
     return rc;
 }
 
+/* A frame of a sequence with a lens or a raw rig, resampled to the pinhole
+ * view training used (data/undistort.h); others are left as they are. */
+static int undistort_frame(const nj_sequence *s, const char *path, nj_image *im, char *err, size_t errlen)
+{
+    char why[256];
+    const nj_undistort *u = nj_sequence_undistort(s, 0);
+    if (!u || !nj_undistort_image(u, im, why, sizeof why)) return 0;
+    snprintf(err, errlen, "%s: %s", path, why);
+    return -1;
+}
+
+/* Ground truth is given on the raw frame's pixels: with a lens it must have
+ * the frame's size, and is carried into the view (nearest pixel; depth along
+ * the rectified z for a rig). */
+static int undistort_truth(const nj_sequence *s, const char *path, frame_buf *b, int w, int h, char *err,
+                           size_t errlen)
+{
+    const nj_undistort *u = nj_sequence_undistort(s, 0);
+    if (!u) return 0;
+    if (w != u->view.w || h != u->view.h) {
+        snprintf(err, errlen, "%s: depth is %dx%d; with a lens it must have the frames' size %dx%d", path, w, h,
+                 u->view.w, u->view.h);
+        return -1;
+    }
+    memcpy(b->scratch, b->gt, sizeof(float) * w * h);
+    nj_undistort_depth(u, b->scratch, b->gt);
+    return 0;
+}
+
 static int eval_frame(eval_run *r, const nj_sequence *s, int i, char *err, size_t errlen)
 {
     char *img_path = nj_path_join(s->images, s->frames[i]), *gt_path = nj_depth_path(s, i);
@@ -260,17 +289,22 @@ static int eval_frame(eval_run *r, const nj_sequence *s, int i, char *err, size_
         snprintf(err, errlen, "out of memory");
         goto done;
     }
-    if (nj_image_load(img_path, &im, err, errlen) ||
+    if (nj_image_load(img_path, &im, err, errlen) || undistort_frame(s, img_path, &im, err, errlen) ||
         nj_depth_read(gt_path, s->depth_format, s->depth_scale, &b.gt, &w, &h, err, errlen))
         goto done;
     if (frame_buf_alloc(&b, (size_t)w * h)) {
         snprintf(err, errlen, "out of memory for a %dx%d depth map", w, h);
         goto done;
     }
+    if (undistort_truth(s, gt_path, &b, w, h, err, errlen)) goto done;
     for (int k = 0; k < 2; k++)
         if (nj_infer_depth(&r->inf[k], &im, w, h, b.pred[k], NULL, err, errlen)) goto done;
     b.has_lead = s->lead_mask_dir != NULL;
     if (b.has_lead && load_lead_mask(s, i, w, h, b.flag[1], err, errlen)) goto done;
+    if (b.has_lead && nj_sequence_undistort(s, 0)) {     /* the mask is drawn on the raw frame */
+        memcpy(b.scratch, b.flag[1], sizeof(float) * w * h);
+        nj_undistort_mask(nj_sequence_undistort(s, 0), b.scratch, b.flag[1]);
+    }
     nj_camera cam = s->camera;
     if (w != s->width || h != s->height) cam = nj_camera_resize(cam, s->width, s->height, w, h);
     score_frame(r, &b, w, h, cam);
@@ -292,7 +326,7 @@ static int load_frame(const nj_sequence *s, int i, nj_image *im, char *err, size
         snprintf(err, errlen, "out of memory");
         return -1;
     }
-    int rc = nj_image_load(p, im, err, errlen);
+    int rc = nj_image_load(p, im, err, errlen) || undistort_frame(s, p, im, err, errlen) ? -1 : 0;
     free(p);
     return rc;
 }
@@ -326,12 +360,30 @@ static void add_rotation_errors(eval_run *r, const double *c2w, const double *re
     }
 }
 
+/* A raw rig's left frames are rectified by the rotation R1 (view.R): the
+ * rectified camera's camera-to-world rotation is the recorded one times R1ᵀ;
+ * its centre is the same. */
+static void rectify_poses(const nj_sequence *s, double *c2w, int n)
+{
+    const nj_undistort *u = nj_sequence_undistort(s, 0);
+    if (!u || !s->rig) return;
+    const double *R = u->view.R;
+    for (int i = 0; i < n; i++) {
+        double *p = c2w + 12 * i, row[3];
+        for (int a = 0; a < 3; a++) {
+            for (int b = 0; b < 3; b++) row[b] = p[4 * a] * R[3 * b] + p[4 * a + 1] * R[3 * b + 1] + p[4 * a + 2] * R[3 * b + 2];
+            for (int b = 0; b < 3; b++) p[4 * a + b] = row[b];
+        }
+    }
+}
+
 static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size_t errlen)
 {
     double *c2w = NULL, *rel = NULL;
     nj_image prev = {0, 0, NULL}, cur = {0, 0, NULL};
     int n = nj_poses_read(s->poses, &c2w, err, errlen), rc = -1;
     if (n < 0) return -1;
+    rectify_poses(s, c2w, n);
     if (n < NJ_ATE_SNIPPET) {
         free(c2w);
         return 0;

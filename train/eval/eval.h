@@ -8,6 +8,7 @@
 #include "data/dataset.h"
 #include "train/eval/colormap.h"   /* depth pictures: part of this module's public face */
 #include "nn/geom/camera.h"
+#include "nn/geom/lens.h"
 #include <stddef.h>
 
 typedef struct nj_eval_options {
@@ -31,6 +32,9 @@ typedef struct nj_predict_options {
     const char *out;           /* output folder (created) */
     int has_camera;            /* camera holds intrinsics at the input's size */
     nj_camera camera;
+    nj_lens lens;              /* with has_camera: its lens distortion (kind NJ_LENS_NONE: none);
+                                  frames are undistorted to a pinhole view (data/undistort.h)
+                                  and every output is in that view */
     int ply;                   /* also write NAME.points.ply */
     double camera_height;      /* metres: metric scale from the ground plane; 0 = not given */
     int threads;               /* 0 = all cores */

@@ -32,6 +32,8 @@ typedef struct predictor {
     nj_plane_options plane;
     int metric;                      /* stereo-trained */
     int assumed_printed, scaled, unscaled;
+    nj_undistort lens;               /* --camera with a lens: built for the first frame's size */
+    int lens_ready;
 } predictor;
 
 /* ---- inputs and outputs ------------------------------------------------------ */
@@ -173,6 +175,7 @@ static int write_preview(const char *path, const float *depth, int w, int h, nj_
 
 static nj_camera camera_for(predictor *p, int w, int h)
 {
+    if (p->lens_ready) return p->lens.view.out;
     if (p->a.has_camera) return p->a.camera;
     nj_camera c = {DEFAULT_FOCAL * (float)w, DEFAULT_FOCAL * (float)w, 0.5f * (float)(w - 1),
                    0.5f * (float)(h - 1)};
@@ -218,6 +221,35 @@ static int write_outputs(predictor *p, const char *stem, const float *depth, con
     return nj_ply_write(path, depth, im, cam, NULL, err, errlen);
 }
 
+/* --camera with distortion: the map of the camera's pinhole view, built once
+ * for the size the intrinsics are for — the first input's (the same
+ * resampling as training's, data/undistort.h). */
+static int setup_lens(predictor *p, const char *first, char *err, size_t errlen)
+{
+    char why[512];
+    int w, h;
+    if (p->a.lens.kind == NJ_LENS_NONE) return 0;
+    if (nj_image_probe(first, &w, &h, err, errlen)) return -1;
+    nj_lens_view v = {.w = w, .h = h, .src = p->a.camera, .lens = p->a.lens, .R = {1, 0, 0, 0, 1, 0, 0, 0, 1}};
+    if (nj_undistort_init(&p->lens, &v, 1, why, sizeof why)) {
+        snprintf(err, errlen, "--camera: %s (at %dx%d)", why, w, h);
+        return -1;
+    }
+    p->lens_ready = 1;
+    nj_camera c = p->lens.view.out;
+    printf("lens: %s; frames undistorted to pinhole fx %.6g fy %.6g cx %.6g cy %.6g at %dx%d "
+           "(every output is in this view)\n", nj_lens_kind_name(p->a.lens.kind), c.fx, c.fy, c.cx, c.cy, w, h);
+    return 0;
+}
+
+static int undistort_input(predictor *p, const char *input, nj_image *im, char *err, size_t errlen)
+{
+    char why[512];
+    if (!p->lens_ready || !nj_undistort_image(&p->lens, im, why, sizeof why)) return 0;
+    snprintf(err, errlen, "%s: %s (--camera is for one frame size)", input, why);
+    return -1;
+}
+
 static int predict_frame(predictor *p, const char *input, char *err, size_t errlen)
 {
     nj_image im = {0, 0, NULL};
@@ -226,6 +258,7 @@ static int predict_frame(predictor *p, const char *input, char *err, size_t errl
     int rc = -1;
     stem_of(input, stem, sizeof stem);
     if (nj_image_load(input, &im, err, errlen)) return -1;
+    if (undistort_input(p, input, &im, err, errlen)) goto done;
     depth = malloc((size_t)im.w * im.h * sizeof *depth);
     if (!depth) {
         snprintf(err, errlen, "%s: out of memory", input);
@@ -291,7 +324,8 @@ static int setup(predictor *p, char **paths, int n, char *err, size_t errlen)
         nj_model_free(&p->model);
         return -1;
     }
-    if (make_dirs(p->a.out, err, errlen)) {
+    if (setup_lens(p, paths[0], err, errlen) || make_dirs(p->a.out, err, errlen)) {
+        if (p->lens_ready) nj_undistort_free(&p->lens);
         nj_infer_free(&p->inf);
         nj_model_free(&p->model);
         return -1;
@@ -339,6 +373,7 @@ int nj_predict_run(const nj_predict_options *o, char *err, size_t errlen)
     nj_free_names(paths, n);
     nj_infer_free(&p->inf);
     nj_model_free(&p->model);
+    if (p->lens_ready) nj_undistort_free(&p->lens);
     free(p);
     return failed ? -1 : 0;
 }

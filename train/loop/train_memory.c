@@ -42,9 +42,11 @@ static double loader_bytes(const nj_trainer *t, int batch, int jitter)
         if (t->ds.seq[s].width > maxw) maxw = t->ds.seq[s].width;
         if (t->ds.seq[s].height > maxh) maxh = t->ds.seq[s].height;
     }
-    int images = 1 + nsrc + stereo;
+    int images = 1 + nsrc + stereo, lens = 0;
+    for (int s = 0; s < t->ds.nseq; s++) lens |= t->ds.seq[s].undistort != NULL;
     double slots = 3.0 * batch * images * 3.0 * c->width * c->height * 4.0 * (jitter ? 2 : 1);
-    double decode = images * 3.0 * maxw * maxh * 5.0;     /* 8-bit decode + float copy, one worker */
+    /* 8-bit decode + float copy, one worker; a lens adds the undistorted float copy */
+    double decode = images * 3.0 * maxw * maxh * (lens ? 9.0 : 5.0);
     return slots + decode;
 }
 

@@ -7,6 +7,7 @@
 #include "train/loop/dist.h"
 #include "train/loop/trainer_dist.h"
 #include "train/loop/step_replicas.h"
+#include <cjson/cJSON.h>
 #include <math.h>
 #include <omp.h>
 #include <stdio.h>
@@ -27,6 +28,8 @@ uint64_t nj_dataset_hash(const nj_dataset *ds)
             for (const char *c = parts[p]; *c; c++) h = (h ^ (unsigned char)*c) * 0x100000001b3ull;
         for (int f = 0; f < q->nframes; f++)
             for (const char *c = q->frames[f]; *c; c++) h = (h ^ (unsigned char)*c) * 0x100000001b3ull;
+        /* frames resampled through a lens map are other data (pinhole data: no change to the hash) */
+        for (int k = 0; q->undistort && k < 1 + q->rig; k++) h = (h ^ q->undistort[k].key) * 0x100000001b3ull;
     }
     return h;
 }
@@ -56,6 +59,75 @@ static int open_data(nj_trainer *t, char *err, size_t errlen)
         return -1;
     }
     if (t->nval < 0) t->nval = 0;
+    return 0;
+}
+
+/* A float as the shortest decimal that reads back as the same float. */
+static double float_text(float v)
+{
+    char b[32];
+    snprintf(b, sizeof b, "%.9g", v);
+    for (int p = 6; p < 9; p++) {
+        char t[32];
+        snprintf(t, sizeof t, "%.*g", p, v);
+        if (strtof(t, NULL) == v) return strtod(t, NULL);
+    }
+    return strtod(b, NULL);
+}
+
+static cJSON *camera_json(nj_camera c)
+{
+    cJSON *o = cJSON_CreateObject();
+    cJSON_AddNumberToObject(o, "fx", float_text(c.fx));
+    cJSON_AddNumberToObject(o, "fy", float_text(c.fy));
+    cJSON_AddNumberToObject(o, "cx", float_text(c.cx));
+    cJSON_AddNumberToObject(o, "cy", float_text(c.cy));
+    return o;
+}
+
+static void add_lens(cJSON *o, const char *key, const nj_lens *L)
+{
+    int n;
+    const char *const *names = nj_lens_coeff_names(L->kind, &n);
+    cJSON *l = cJSON_AddObjectToObject(o, key);
+    cJSON_AddStringToObject(l, "model", nj_lens_kind_name(L->kind));
+    for (int i = 0; i < n; i++) cJSON_AddNumberToObject(l, names[i], L->c[i]);
+}
+
+/* One {"type":"camera"} log line per sequence whose frames are resampled: its
+ * calibration and the pinhole intrinsics training uses (at the frame size),
+ * also printed.  Pinhole sequences write nothing. */
+static int log_cameras(nj_trainer *t, char *err, size_t errlen)
+{
+    for (int i = 0; i < t->ds.nseq; i++) {
+        const nj_sequence *s = &t->ds.seq[i];
+        if (!s->undistort) continue;
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "type", "camera");
+        cJSON_AddStringToObject(o, "sequence", s->name ? s->name : "?");
+        cJSON_AddNumberToObject(o, "width", s->width);
+        cJSON_AddNumberToObject(o, "height", s->height);
+        cJSON_AddItemToObject(o, "calibrated", camera_json(s->raw_camera));
+        add_lens(o, "lens", &s->lens);
+        if (s->rig) {
+            cJSON_AddItemToObject(o, "right_calibrated", camera_json(s->right_camera));
+            add_lens(o, "right_lens", &s->right_lens);
+            cJSON_AddNumberToObject(o, "baseline", s->baseline);
+        }
+        cJSON_AddItemToObject(o, "pinhole", camera_json(s->camera));
+        char *line = cJSON_PrintUnformatted(o);
+        cJSON_Delete(o);
+        if (!line) { snprintf(err, errlen, "out of memory"); return -1; }
+        printf("%s: frames %s to pinhole fx %.6g fy %.6g cx %.6g cy %.6g at %dx%d\n", s->name ? s->name : "?",
+               s->rig ? "rectified" : "undistorted", s->camera.fx, s->camera.fy, s->camera.cx, s->camera.cy,
+               s->width, s->height);
+        int rc = nj_runlog_json(&t->log, line);
+        free(line);
+        if (rc) {
+            snprintf(err, errlen, "%s", nj_runlog_error(&t->log));
+            return -1;
+        }
+    }
     return 0;
 }
 
@@ -201,7 +273,7 @@ static int finish_setup(nj_trainer *t, char *err, size_t errlen)
         !(t->split = nj_step_replicas_new(omp_get_max_threads(), NJ_STEP_ARENA_CHUNK, err, errlen)))
         return -1;
     if (t->rank != 0) nj_runlog_quiet(&t->log);
-    else if (nj_runlog_open(&t->log, t->dir, err, errlen)) return -1;
+    else if (nj_runlog_open(&t->log, t->dir, err, errlen) || log_cameras(t, err, errlen)) return -1;
     nj_health_init(&t->health, t->cfg.video);
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);

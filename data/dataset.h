@@ -31,6 +31,8 @@ typedef struct nj_sequence {
     char *name;
     char *images;            /* folder of frames */
     nj_camera camera;        /* at the on-disk size */
+    char *camera_text;       /* the "camera" object as compact JSON text (NULL when absent
+                                or not an object): the frame store's key (framestore.h) */
     char *right_images;      /* NULL without stereo */
     float baseline;          /* metres */
     char *depth_dir;         /* NULL without depth */

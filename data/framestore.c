@@ -219,15 +219,18 @@ static int old_read(const char *path, int w, int h, old_store *o, char *why, siz
     if (memcmp(fixed, NJFS_MAGIC, 8)) { snprintf(why, n, "not a frame store"); return -1; }
     if (order != NJFS_ORDER) { snprintf(why, n, "written with another byte order"); return -1; }
     if (version != NJFS_VERSION) { snprintf(why, n, "format version %u (this build writes %u)", version, NJFS_VERSION); return -1; }
-    if ((int)fw != w || (int)fh != h || cnt > NJFS_MAX_FRAMES) { snprintf(why, n, "made for %ux%u frames", fw, fh); return -1; }
+    if ((int)fw != w || (int)fh != h) { snprintf(why, n, "made for %ux%u frames", fw, fh); return -1; }
+    uint64_t fb = (uint64_t)12 * w * h, size = (uint64_t)st.st_size;
+    if (cnt > NJFS_MAX_FRAMES || o->data_off < NJFS_FIXED + 4 || o->data_off % NJFS_ALIGN || o->data_off > (1ull << 40)) {
+        snprintf(why, n, "damaged: its header is not one this program writes");
+        return -1;
+    }
     o->n = (int)cnt;
-    uint64_t fb = (uint64_t)12 * w * h, want = o->data_off + fb * cnt;
-    if (o->data_off < NJFS_FIXED + 4 || o->data_off % NJFS_ALIGN || (uint64_t)st.st_size != want) {
-        if (o->data_off >= NJFS_FIXED + 4 && (uint64_t)st.st_size < want)
-            snprintf(why, n, "truncated: %lld of %llu bytes", (long long)st.st_size, (unsigned long long)want);
-        else
-            snprintf(why, n, "damaged: %lld bytes where its header says %llu", (long long)st.st_size,
-                     (unsigned long long)want);
+    uint64_t want = o->data_off + fb * cnt;   /* < 2^63: both terms are bounded above */
+    if (size != want) {
+        if (size < want) snprintf(why, n, "truncated: %llu of %llu bytes", (unsigned long long)size, (unsigned long long)want);
+        else snprintf(why, n, "damaged: %llu bytes where its header says %llu", (unsigned long long)size,
+                      (unsigned long long)want);
         return -1;
     }
     unsigned char *hdr = malloc(o->data_off);

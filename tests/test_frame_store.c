@@ -10,8 +10,9 @@
  *    message names the source, the other frames are copied, and the store
  *    then holds the new pixels; a source only touched (same bytes, new
  *    mtime) → rebuilt too; another camera block → rebuilt;
- *  - a truncated store, a damaged frame and a damaged index are detected
- *    (one line naming the store) and rebuilt;
+ *  - a truncated store, a damaged frame, a damaged index and a header
+ *    claiming 2^24 frames are detected (one line naming the store) and
+ *    rebuilt; without building, a damaged store is refused;
  *  - a frame damaged while the store is in use: the read fails naming the
  *    store, and so does the loader's step;
  *  - a build that fails (an unreadable source) leaves neither a store nor a
@@ -295,6 +296,11 @@ static void test_damage(const nj_dataset *ds, const nj_sample *s, int n, const c
     fs = open_store(ds, s, n, 1, &o, err, sizeof err);
     check(fs && strstr(o.text, path) && strstr(o.text, "damaged: the checksum of its index"),
           "store_damaged_index_detected_and_rebuilt", "%s%s", o.text, err);
+    nj_framestore_close(fs);
+    poke(path, 27);                                /* the frame count's top byte: 2^24 frames or more */
+    fs = open_store(ds, s, n, 1, &o, err, sizeof err);
+    check(fs && strstr(o.text, path) && strstr(o.text, "its header is not one this program writes"),
+          "store_absurd_header_detected_and_rebuilt", "%s%s", o.text, err);
     nj_framestore_close(fs);
     poke(path, 60);
     fs = open_store(ds, s, n, 0, &o, err, sizeof err);

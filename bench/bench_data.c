@@ -9,7 +9,8 @@
  * then from a warm frame store (data/framestore.h; its build time is shown
  * apart).  Each figure is samples/s with the loader consumed as fast as it
  * can produce (no training step competes for the cores): the loader's own
- * capacity.  Timing starts after the first batch, so the prefetch ring's
+ * capacity; next to it the process's CPU time per sample, which other jobs
+ * on the machine disturb much less than the rate.  Timing starts after the first batch, so the prefetch ring's
  * initial fill is not counted, and runs for at least MIN_SECONDS.
  *
  * `bench_data WxH [WxH ...]`: the former mode used by make bench's
@@ -33,6 +34,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <stb_image_write.h>
 
 enum { STEPS = 40, FRAMES = 24 };
@@ -211,9 +213,19 @@ static int make_jpeg_set(const nj_dataset *src, const char *dir, int w, int h, c
 
 /* ---- timing ---------------------------------------------------------------- */
 
+static double cpu_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+    return ts.tv_sec + ts.tv_nsec * 1e-9;
+}
+
 /* samples/s of a loader at the training size: after the first batch, until
- * MIN_SECONDS have passed (at least 5 batches). */
-static double rate(const nj_dataset *ds, const nj_sample *s, int n, int workers, const nj_framestore *fs)
+ * MIN_SECONDS have passed (at least 5 batches); *cpu_ms gets the process's
+ * CPU time per sample over the same span (steadier than the rate when other
+ * jobs share the cores). */
+static double rate(const nj_dataset *ds, const nj_sample *s, int n, int workers, const nj_framestore *fs,
+                   double *cpu_ms)
 {
     nj_loader_config c;
     char err[512];
@@ -224,19 +236,23 @@ static double rate(const nj_dataset *ds, const nj_sample *s, int n, int workers,
     c.prefetch = (workers + c.batch - 1) / c.batch + 1;   /* as the trainer sizes it */
     if (c.prefetch < 2) c.prefetch = 2;
     c.store = fs;
+    *cpu_ms = 0;
     nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
     if (!L || !nj_loader_next(L, err, sizeof err)) {
         fprintf(stderr, "bench_data: %s\n", err);
         nj_loader_destroy(L);
         return 0;
     }
-    double t0 = omp_get_wtime(), dt = 0;
+    double t0 = omp_get_wtime(), c0 = cpu_seconds(), dt = 0;
     int steps = 0;
     while (steps < 5 || dt < MIN_SECONDS) {
         if (!nj_loader_next(L, err, sizeof err)) fprintf(stderr, "bench_data: %s\n", err);
         steps++;
         dt = omp_get_wtime() - t0;
     }
+    /* the prefetched batches were prepared inside the span but not counted:
+     * they balance the ones prepared before it, within prefetch batches */
+    *cpu_ms = (cpu_seconds() - c0) * 1e3 / (steps * c.batch);
     nj_loader_destroy(L);
     return steps * c.batch / dt;
 }
@@ -258,7 +274,7 @@ static double file_mb(const char *dir)
 
 /* One source size: every worker count, decoding and from the store. */
 static int bench_size(const char *dir, const nj_dataset *src, int w, int h, const int *workers, int nw,
-                      double *decoded, double *stored)
+                      double *decoded, double *stored, double *cpu_decoded, double *cpu_stored)
 {
     char json[600], err[1024], store_dir[600];
     nj_dataset ds;
@@ -279,10 +295,11 @@ static int bench_size(const char *dir, const nj_dataset *src, int w, int h, cons
                    nj_framestore_frames(fs) / build);
     printf("\n");
     for (int k = 0; k < nw; k++) {
-        decoded[k] = rate(&ds, s, n, workers[k], NULL);
-        stored[k] = fs ? rate(&ds, s, n, workers[k], fs) : 0;
-        printf("  %2d worker%s  decoding %7.1f samples/s   frame store %7.1f samples/s\n", workers[k],
-               workers[k] == 1 ? " " : "s", decoded[k], stored[k]);
+        decoded[k] = rate(&ds, s, n, workers[k], NULL, &cpu_decoded[k]);
+        stored[k] = fs ? rate(&ds, s, n, workers[k], fs, &cpu_stored[k]) : 0;
+        printf("  %2d worker%s  decoding %7.1f samples/s (%5.1f CPU ms each)   frame store %7.1f samples/s "
+               "(%5.1f CPU ms each)\n", workers[k], workers[k] == 1 ? " " : "s", decoded[k], cpu_decoded[k],
+               stored[k], cpu_stored[k]);
         fflush(stdout);
     }
     nj_framestore_close(fs);
@@ -314,21 +331,26 @@ static int main_bench(void)
     nj_problems_free(&pr);
     int cores = omp_get_num_procs(), workers[3] = {1, 2, cores}, nw = cores > 2 ? 3 : 2;
     static const int sizes[3][2] = {{320, 240}, {1280, 720}, {1920, 1080}};
-    double dec[3][3] = {{0}}, sto[3][3] = {{0}};
+    double dec[3][3] = {{0}}, sto[3][3] = {{0}}, cdec[3][3] = {{0}}, csto[3][3] = {{0}};
     printf("loader at %dx%d, batch 4, 3 frames per sample (target + 2 sources), flip + colour jitter;\n"
            "samples/s with nothing else running (the loader's capacity); %d cores\n", TRAIN_W, TRAIN_H, cores);
     for (int i = 0; !bad && i < 3; i++)
-        if (bench_size(dir, &src, sizes[i][0], sizes[i][1], workers, nw, dec[i], sto[i])) bad = 1;
+        if (bench_size(dir, &src, sizes[i][0], sizes[i][1], workers, nw, dec[i], sto[i], cdec[i], csto[i])) bad = 1;
     if (!bad) {
         int a = nw - 1;
         printf("all %d cores: frame store from 1280x720 / decoding 320x240 = %.2f; from 1920x1080 = %.2f; "
                "decoding 1280x720 / decoding 320x240 = %.2f\n", workers[a], sto[1][a] / dec[0][a],
                sto[2][a] / dec[0][a], dec[1][a] / dec[0][a]);
+        printf("CPU ms per sample, 1 worker: decoding %.1f / %.1f / %.1f (320x240 / 1280x720 / 1920x1080), "
+               "frame store %.1f / %.1f / %.1f\n", cdec[0][0], cdec[1][0], cdec[2][0], csto[0][0], csto[1][0],
+               csto[2][0]);
         for (int i = 0; i < 3; i++)
             for (int k = 0; k < nw; k++)
-                printf("loader_samples_per_s_%dx%d_w%d_%s=%.1f loader_samples_per_s_%dx%d_w%d_%s=%.1f\n",
-                       sizes[i][0], sizes[i][1], workers[k], "decode", dec[i][k], sizes[i][0], sizes[i][1],
-                       workers[k], "store", sto[i][k]);
+                printf("loader_samples_per_s_%dx%d_w%d_decode=%.1f loader_samples_per_s_%dx%d_w%d_store=%.1f "
+                       "loader_cpu_ms_per_sample_%dx%d_w%d_decode=%.2f loader_cpu_ms_per_sample_%dx%d_w%d_store=%.2f\n",
+                       sizes[i][0], sizes[i][1], workers[k], dec[i][k], sizes[i][0], sizes[i][1], workers[k],
+                       sto[i][k], sizes[i][0], sizes[i][1], workers[k], cdec[i][k], sizes[i][0], sizes[i][1],
+                       workers[k], csto[i][k]);
     }
     nj_dataset_free(&src);
     snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);

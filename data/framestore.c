@@ -8,7 +8,6 @@
 #include <fcntl.h>
 #include <limits.h>
 #include <omp.h>
-#include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -393,17 +392,6 @@ static void use_old(nj_framestore *fs, njfs_want *w, int n, old_store *o)
     o->fd = -1;
 }
 
-static void say(const nj_framestore_config *c, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
-static void say(const nj_framestore_config *c, const char *fmt, ...)
-{
-    if (!c->say) return;
-    va_list ap;
-    va_start(ap, fmt);
-    vfprintf(c->say, fmt, ap);
-    va_end(ap);
-    fflush(c->say);
-}
-
 /* Checks the store at fs->path; uses it as it is, or rebuilds it.  Fills
  * fs->at, data_off and fd, and each want's size in pixels and crc.  0 or -1. */
 static int open_or_build(nj_framestore *fs, const nj_dataset *ds, njfs_want *w, int n,
@@ -421,13 +409,13 @@ static int open_or_build(nj_framestore *fs, const nj_dataset *ds, njfs_want *w, 
     int rc = 0;
     if (r == 0 && !why[0]) {
         use_old(fs, w, n, &o);
-        say(c, "frame store %s: %d frames at %dx%d, %.1f MB, checked in %.1f s\n", fs->path, n, fs->w, fs->h,
+        njfs_say(c, "frame store %s: %d frames at %dx%d, %.1f MB, checked in %.1f s\n", fs->path, n, fs->w, fs->h,
             (o.data_off + fs->frame_bytes * (uint64_t)n) / 1e6, omp_get_wtime() - t0);
     } else if (!c->build) {
         snprintf(err, errlen, "%s: %s", fs->path, r == 1 ? "no frame store there" : why);
         rc = -1;
     } else {
-        if (r != 1) say(c, "frame store %s: %s; rebuilding it\n", fs->path, why);
+        if (r != 1) njfs_say(c, "frame store %s: %s; rebuilding it\n", fs->path, why);
         rc = njfs_build(fs, ds, w, n, o.fd, o.e, o.data_off, c, err, errlen);
         if (!rc && (fs->fd = open(fs->path, O_RDONLY)) < 0) {
             snprintf(err, errlen, "%s: cannot open the frame store just written: %s", fs->path, strerror(errno));
@@ -460,7 +448,7 @@ nj_framestore *nj_framestore_open(const nj_dataset *ds, const nj_sample *samples
     }
     if (!rc && c->build) {
         int stale = njfs_remove_stale_temps(fs->path);
-        if (stale) say(c, "frame store %s: removed %d unfinished temporary file%s of an interrupted build\n",
+        if (stale) njfs_say(c, "frame store %s: removed %d unfinished temporary file%s of an interrupted build\n",
                        fs->path, stale, stale == 1 ? "" : "s");
     }
     if (!rc && (k = collect(ds, samples, n, c->width, c->height, &w, err, errlen)) < 0) {

@@ -95,8 +95,7 @@ int njfs_remove_stale_temps(const char *path)
     return removed;
 }
 
-static void say(const nj_framestore_config *c, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
-static void say(const nj_framestore_config *c, const char *fmt, ...)
+void njfs_say(const nj_framestore_config *c, const char *fmt, ...)
 {
     if (!c->say) return;
     va_list ap;
@@ -114,9 +113,9 @@ static int room_for(const char *path, uint64_t bytes, int reused, int n, int w, 
     folder_of(path, dir, sizeof dir);
     struct statvfs v;
     double avail = statvfs(dir, &v) == 0 ? (double)v.f_bavail * v.f_frsize : -1;
-    say(c, "frame store %s: writing %d frames at %dx%d, %.1f MB (%d from the old store, %d to decode)%s", path, n, w,
+    njfs_say(c, "frame store %s: writing %d frames at %dx%d, %.1f MB (%d from the old store, %d to decode)%s", path, n, w,
         h, bytes / 1e6, reused, n - reused, avail >= 0 ? "" : "\n");
-    if (avail >= 0) say(c, "; %.1f MB free there\n", avail / 1e6);
+    if (avail >= 0) njfs_say(c, "; %.1f MB free there\n", avail / 1e6);
     if (avail >= 0 && avail < (double)bytes) {
         snprintf(err, errlen, "%s: the frame store needs %.1f MB, only %.1f MB free in %s", path, bytes / 1e6,
                  avail / 1e6, dir);
@@ -184,7 +183,7 @@ static int write_frames(nj_framestore *fs, const nj_dataset *ds, njfs_want *w, i
         rc = prepare_chunk(ds, w, i0, m, old_fd, old, old_data_off, fs->w, fs->h, buf, threads, err, errlen);
         if (!rc && fwrite(buf, fb, (size_t)m, f) != (size_t)m) rc = -1;   /* atomic close names errno */
         if (!rc && omp_get_wtime() > next) {
-            say(c, "frame store %s: %d of %d frames\n", fs->path, i0 + m, n);
+            njfs_say(c, "frame store %s: %d of %d frames\n", fs->path, i0 + m, n);
             next = omp_get_wtime() + PROGRESS_SECONDS;
         }
     }
@@ -223,6 +222,6 @@ int njfs_build(nj_framestore *fs, const nj_dataset *ds, njfs_want *w, int n, int
     free(ep);
     if (nj_atomic_close(&a, ok, err, errlen)) return -1;
     double dt = omp_get_wtime() - t0;
-    say(c, "frame store %s: written in %.1f s (%.0f frames/s)\n", fs->path, dt, dt > 0 ? n / dt : 0.0);
+    njfs_say(c, "frame store %s: written in %.1f s (%.0f frames/s)\n", fs->path, dt, dt > 0 ? n / dt : 0.0);
     return 0;
 }

@@ -53,6 +53,8 @@ unsigned char *njfs_header(const njfs_entry *const *e, int n, int w, int h, size
  * for over a minute are removed (a build in progress rewrites its file all
  * the time); returns how many. */
 int njfs_remove_stale_temps(const char *path);
+/* One line (printf-style) on c->say, flushed; nothing when it is NULL. */
+void njfs_say(const nj_framestore_config *c, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 /* Builds the store at fs->path from the wanted frames, copying those with
  * w[i].old ≥ 0 from old_fd (after their CRC check) and preparing the others
  * with nj_loader_frame; fills each entry's size and crc.  Prints the size

@@ -213,10 +213,10 @@ static int open_store(nj_trainer *t, char *err, size_t errlen)
                                .say = t->rank == 0 ? stdout : NULL};
     char why[1024];
     if (t->rank == 0 && !(t->store = nj_framestore_open(&t->ds, t->train, t->ntrain, &fc, why, sizeof why)))
-        printf("frame store not used: %s\n", why);
+        fprintf(stderr, "nightjar train: frame store not used: %s\n", why);
     if (nj_trainer_dist_agree(t, 0, "preparing the frame store", err, errlen)) return -1;   /* rank 0 first */
     if (t->rank != 0 && !(t->store = nj_framestore_open(&t->ds, t->train, t->ntrain, &fc, why, sizeof why)))
-        printf("frame store not used on rank %d: %s\n", t->rank, why);
+        fprintf(stderr, "nightjar train: frame store not used on rank %d: %s\n", t->rank, why);
     fflush(stdout);
     return 0;
 }

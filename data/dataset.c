@@ -179,6 +179,9 @@ static void parse_camera(ctx *c, const cJSON *seq, nj_sequence *s)
         nj_problem(c->pr, "%s: %s: \"camera\" must be an object with fx, fy, cx, cy", c->path, c->where);
         return;
     }
+    /* the whole block as text: part of what the frame store keys its pixels on
+     * (any camera key that changes the frames changes the text) */
+    s->camera_text = cJSON_PrintUnformatted(cam);
     parse_intrinsics(c, cam, "camera", &s->camera, &s->lens);
     s->raw_camera = s->camera;
 }
@@ -429,6 +432,7 @@ static void sequence_free(nj_sequence *s)
     free(s->depth_dir);
     free(s->poses);
     free(s->lead_mask_dir);
+    cJSON_free(s->camera_text);
     nj_free_names(s->frames, s->nframes);
     free(s->kept);
 }

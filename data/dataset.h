@@ -47,6 +47,8 @@ typedef struct nj_sequence {
     char *images;            /* folder of frames */
     nj_camera camera;        /* at the on-disk size; with a lens or a raw rig, the pinhole
                                 view the frames are resampled to (set by validation) */
+    char *camera_text;       /* the "camera" object as compact JSON text (NULL when absent
+                                or not an object): the frame store's key (framestore.h) */
     char *right_images;      /* NULL without stereo */
     float baseline;          /* metres */
     nj_camera raw_camera;    /* "camera" as calibrated (= camera without a lens or rig) */

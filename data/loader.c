@@ -1,7 +1,10 @@
 /* data/loader.c — the batch loader: step → samples order, a ring of batch
  * slots, and pthread workers that fill the slots of upcoming steps while the
  * trainer uses the current one; optionally only one shard of each batch
- * (data-parallel training) — see loader.h. */
+ * (data-parallel training) — see loader.h.  The unit of work is one item of
+ * a slot, not a whole slot: with more workers than items per batch they
+ * spread over the next steps, and a few workers fill one batch together
+ * (shorter wait at the start and after a slow item). */
 #include "data/loader.h"
 #include "data/image.h"
 #include "data/loader_item.h"
@@ -12,9 +15,16 @@
 
 enum { SLOT_FREE, SLOT_FILLING, SLOT_READY };
 
+/* A slot's items are prepared by whichever workers are free: item k of a
+ * slot is handed out once (next_item), and the slot is ready when all its
+ * items are done.  An item's pixels depend only on (seed, step, item), so
+ * which worker prepares it changes nothing. */
 typedef struct slot {
     nj_batch b;
     int state, rc;
+    int next_item;           /* items handed out so far */
+    int done;                /* items finished */
+    int err_item;            /* item whose message err holds (the lowest that failed) */
     char err[512];
 } slot;
 
@@ -29,7 +39,7 @@ struct nj_loader {
     int nthreads;
     pthread_mutex_t mu;
     pthread_cond_t cv;
-    long next_assign;        /* next step a worker takes */
+    long next_assign;        /* the step whose items workers take now (or start next) */
     long next_consume;       /* step the trainer receives next */
     int held;                /* slot handed out by the last nj_loader_next, or −1 */
     int stop;
@@ -76,8 +86,6 @@ void nj_loader_step_samples(uint64_t seed, long step, int batch, int nsamples, i
     free(perm);
 }
 
-/* ---- batch buffers ------------------------------------------------------ */
-
 /* ---- workers ------------------------------------------------------------ */
 
 /* The sample indices of this loader's items of step `step` (its shard). */
@@ -96,36 +104,58 @@ static int step_samples(const nj_loader *L, long step, int *out)
     return 0;
 }
 
-static void fill(nj_loader *L, slot *sl, long step)
+/* Opens the slot for step `step`: its sample indices (under the lock; the
+ * decoding happens outside it, item by item). */
+static void begin_step(nj_loader *L, slot *sl, long step)
 {
     nj_batch *b = &sl->b;
     b->step = step;
+    sl->state = SLOT_FILLING;
     sl->rc = 0;
     sl->err[0] = 0;
+    sl->err_item = b->n;
+    sl->next_item = sl->done = 0;
     if (step_samples(L, step, b->sample)) {
         sl->rc = -1;
+        sl->err_item = 0;
         snprintf(sl->err, sizeof sl->err, "loader: out of memory");
-        return;
+        sl->next_item = sl->done = b->n;   /* nothing to prepare: ready, failed */
+        sl->state = SLOT_READY;
+        L->next_assign++;
     }
-    for (int i = 0; i < b->n && !sl->rc; i++)
-        sl->rc = nj_loader_item(L->ds, &L->samples[b->sample[i]], &L->cfg, step, i, b, sl->err, sizeof sl->err);
 }
 
 static void *worker(void *arg)
 {
     nj_loader *L = arg;
+    char err[512];
     pthread_mutex_lock(&L->mu);
     for (;;) {
-        while (!L->stop && L->slots[L->next_assign % L->nslots].state != SLOT_FREE) pthread_cond_wait(&L->cv, &L->mu);
         if (L->stop) break;
-        long step = L->next_assign++;
+        long step = L->next_assign;
         slot *sl = &L->slots[step % L->nslots];
-        sl->state = SLOT_FILLING;
+        if (sl->state == SLOT_FREE) {
+            begin_step(L, sl, step);
+            if (sl->state == SLOT_READY) { pthread_cond_broadcast(&L->cv); continue; }
+        }
+        if (sl->state != SLOT_FILLING || sl->b.step != step) {   /* the ring is full: wait for the trainer */
+            pthread_cond_wait(&L->cv, &L->mu);
+            continue;
+        }
+        int i = sl->next_item++;
+        if (sl->next_item == sl->b.n) L->next_assign++;
         pthread_mutex_unlock(&L->mu);
-        fill(L, sl, step);
+        int rc = nj_loader_item(L->ds, &L->samples[sl->b.sample[i]], &L->cfg, step, i, &sl->b, err, sizeof err);
         pthread_mutex_lock(&L->mu);
-        sl->state = SLOT_READY;
-        pthread_cond_broadcast(&L->cv);
+        if (rc && i < sl->err_item) {      /* the same message whatever the finishing order */
+            sl->rc = rc;
+            sl->err_item = i;
+            snprintf(sl->err, sizeof sl->err, "%s", err);
+        }
+        if (++sl->done == sl->b.n) {
+            sl->state = SLOT_READY;
+            pthread_cond_broadcast(&L->cv);
+        }
     }
     pthread_mutex_unlock(&L->mu);
     return NULL;

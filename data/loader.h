@@ -24,8 +24,9 @@ typedef struct nj_loader_config {
     int batch;
     uint64_t seed;
     long start_step;         /* first step produced (resume) */
-    int workers;             /* threads preparing batches (≥ 1) */
-    int prefetch;            /* batches prepared ahead (≥ 1) */
+    int workers;             /* threads preparing batch items (1..64) */
+    int prefetch;            /* batches prepared ahead (1..64); to keep W workers busy on
+                                batches of n items it needs ceil(W / n) or more */
     int jitter;              /* colour jitter on the network-input copies */
     float brightness, contrast, saturation, hue;   /* jitter ranges (see augment.h) */
     float flip_prob;         /* probability of a horizontal flip per item */
@@ -34,10 +35,14 @@ typedef struct nj_loader_config {
      * augmentation those items have in an unsharded loader.  shard_count 0:
      * the whole batch. */
     int shard_first, shard_count;
+    /* Frames at the training size prepared once (NULL: every frame is decoded
+     * and resized when an item needs it).  Must outlive the loader; its size
+     * must be width × height. */
+    const struct nj_framestore *store;
 } nj_loader_config;
 
 /* 320x240, batch 4, seed 1, workers 1, prefetch 2, jitter on with ranges
- * 0.2/0.2/0.2/0.05, flip probability 0.5, no shard. */
+ * 0.2/0.2/0.2/0.05, flip probability 0.5, no shard, no frame store. */
 void nj_loader_config_default(nj_loader_config *c);
 
 /* nj_batch: data/batch.h */

@@ -1,8 +1,11 @@
 /* data/loader_item.c — one batch item: decode, undistort (a sequence with a
  * lens or a raw stereo rig), resize to the training size with matching
- * intrinsics, seeded flip and colour jitter. */
+ * intrinsics (or the same pixels from the frame store), seeded flip and colour
+ * jitter — the augmentation always runs here, per step, so the store holds the
+ * un-augmented frames. */
 #include "data/loader_item.h"
 #include "data/augment.h"
+#include "data/framestore.h"
 #include "data/image.h"
 #include <stdlib.h>
 #include <string.h>
@@ -59,6 +62,24 @@ static int load_frame(const char *dir, const char *name, const nj_undistort *u, 
     return rc;
 }
 
+/* Lens undistortion (of the full-size frame, before the resize) and anything
+ * else that shapes a training frame's pixels belongs in load_frame, behind
+ * this one entry, with NJ_FRAME_PIXELS_VERSION raised. */
+int nj_loader_frame(const nj_sequence *q, int right, int frame, int W, int H, float *dst, int *sw, int *sh,
+                    char *err, size_t errlen)
+{
+    return load_frame(right ? q->right_images : q->images, q->frames[frame], nj_sequence_undistort(q, right), W, H,
+                      dst, sw, sh, err, errlen);
+}
+
+/* A frame of an item: from the frame store when it holds it, else prepared here. */
+static int item_frame(const nj_loader_config *c, const nj_sample *s, const nj_sequence *q, int right, int frame,
+                      int W, int H, float *dst, int *sw, int *sh, char *err, size_t errlen)
+{
+    int r = c->store ? nj_framestore_read(c->store, s->seq, right, frame, dst, sw, sh, err, errlen) : 1;
+    return r <= 0 ? r : nj_loader_frame(q, right, frame, W, H, dst, sw, sh, err, errlen);
+}
+
 static void jitter_item(const nj_jitter *j, nj_batch *b, int i, int partner)
 {
     size_t n = (size_t)3 * b->w * b->h;
@@ -78,20 +99,17 @@ static void flip_item(nj_batch *b, int i, int partner)
     if (partner) nj_flip_planes(b->partner + (size_t)i * 3 * b->w * b->h, 3, b->w, b->h);
 }
 
-static int load_item(const nj_sequence *q, const nj_sample *s, nj_batch *b, int i, int partner,
-                     int *sw, int *sh, char *err, size_t errlen)
+static int load_item(const nj_loader_config *c, const nj_sequence *q, const nj_sample *s, nj_batch *b, int i,
+                     int partner, int *sw, int *sh, char *err, size_t errlen)
 {
     size_t n = (size_t)3 * b->w * b->h;
     int w2, h2;
-    const nj_undistort *left = nj_sequence_undistort(q, 0), *right = nj_sequence_undistort(q, 1);
-    if (load_frame(q->images, q->frames[s->target], left, b->w, b->h, b->target + i * n, sw, sh, err, errlen))
-        return -1;
+    if (item_frame(c, s, q, 0, s->target, b->w, b->h, b->target + i * n, sw, sh, err, errlen)) return -1;
     for (int k = 0; k < b->nsrc; k++)
-        if (load_frame(q->images, q->frames[s->src[k]], left, b->w, b->h, b->sources + ((size_t)i * b->nsrc + k) * n,
+        if (item_frame(c, s, q, 0, s->src[k], b->w, b->h, b->sources + ((size_t)i * b->nsrc + k) * n,
                        &w2, &h2, err, errlen))
             return -1;
-    if (partner && load_frame(q->right_images, q->frames[s->target], right, b->w, b->h, b->partner + i * n,
-                              &w2, &h2, err, errlen))
+    if (partner && item_frame(c, s, q, 1, s->target, b->w, b->h, b->partner + i * n, &w2, &h2, err, errlen))
         return -1;
     return 0;
 }
@@ -109,7 +127,7 @@ int nj_loader_item(const nj_dataset *ds, const nj_sample *s, const nj_loader_con
         snprintf(err, errlen, "%s: sample has %d sources, the batch %d", q->images, s->nsrc, b->nsrc);
         return -1;
     }
-    if (load_item(q, s, b, i, partner, &sw, &sh, err, errlen)) return -1;
+    if (load_item(c, q, s, b, i, partner, &sw, &sh, err, errlen)) return -1;
     b->camera[i] = nj_camera_resize(q->camera, sw, sh, b->w, b->h);
     if (flip) {
         flip_item(b, i, partner);

@@ -5,7 +5,7 @@
  * comparison, covered by the hostile-file tests). */
 #include "fuzz/fuzz_input.h"
 #include "train/loop/checkpoint.h"
-#include "train/loop/crc32.h"
+#include "data/crc32.h"
 #include <stdlib.h>
 #include <string.h>
 

@@ -7,7 +7,7 @@
 #include "train/loop/safetensors.h"
 #include "train/loop/checkpoint.h"
 #include "train/loop/checkpoint_format.h"
-#include "train/loop/crc32.h"
+#include "data/crc32.h"
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

@@ -18,7 +18,7 @@
 #include "tests/check.h"
 #include "tests/test_data_util.h"
 #include "train/loop/checkpoint.h"
-#include "train/loop/crc32.h"
+#include "data/crc32.h"
 #include <dirent.h>
 #include <math.h>
 #include <sys/stat.h>

@@ -52,6 +52,7 @@ static int same_run_data(const nj_train_config *a, const nj_train_config *b, cha
     for (int i = 0; i < a->noffsets && i < NJ_MAX_OFFSETS; i++) SAME_NUM(offsets[i])
     SAME_NUM(video) SAME_NUM(stereo) SAME_NUM(duplicate_threshold) SAME_NUM(brightness) SAME_NUM(contrast)
     SAME_NUM(saturation) SAME_NUM(hue) SAME_NUM(flip)
+    SAME_NUM(loader_workers) SAME_NUM(frame_store) SAME_STR(frame_store_dir)
     return 1;
 }
 
@@ -93,6 +94,10 @@ static const bad_case BAD[] = {
     {"int_from_string", "{\"data\": {\"batch\": \"4\"}}", "data.batch must be a whole number (got a string)"},
     {"int_fraction", "{\"data\": {\"batch\": 2.5}}", "data.batch must be a whole number (got 2.5)"},
     {"batch_zero", "{\"data\": {\"batch\": 0}}", "data.batch must be between 1 and 1024 (got 0)"},
+    {"loader_workers_too_many", "{\"data\": {\"loader_workers\": 65}}",
+     "data.loader_workers must be between 0 and 64 (got 65)"},
+    {"frame_store_from_string", "{\"data\": {\"frame_store\": \"on\"}}",
+     "data.frame_store must be true or false (got a string)"},
     {"lr_zero", "{\"optim\": {\"lr\": 0}}", "optim.lr must be more than 0 and at most 1 (got 0)"},
     {"lr_negative", "{\"optim\": {\"lr\": -0.001}}", "optim.lr must be more than 0 and at most 1 (got -0.001)"},
     {"float_from_bool", "{\"loss\": {\"smoothness\": true}}", "loss.smoothness must be a number (got true/false)"},
@@ -427,6 +432,11 @@ static void random_config(nj_train_config *c, nj_rng *r)
     c->saturation = uni(r, 0, 0.99);
     c->hue = uni(r, 0, 0.5);
     c->flip = uni(r, 0, 1);
+    c->loader_workers = (int)nj_rng_below(r, 65);
+    c->frame_store = (int)nj_rng_below(r, 2);
+    if (nj_rng_below(r, 2)) snprintf(c->frame_store_dir, sizeof c->frame_store_dir, "/fast disk/store %u",
+                                     (unsigned)nj_rng_below(r, 99));
+    else c->frame_store_dir[0] = 0;
 }
 
 static void random_model_optim(nj_train_config *c, nj_rng *r)

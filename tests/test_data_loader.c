@@ -1,6 +1,8 @@
 /* tests/test_data_loader.c — the batch loader.
- *  - the same seed gives the same batches (with 1 or 2 workers), another seed
- *    different ones, and a loader started at step s (resume) repeats step s;
+ *  - the same seed gives the same batches (with 1, 2 or 3 workers: workers
+ *    take single items, so with 3 a batch's items are prepared at once),
+ *    another seed different ones, and a loader started at step s (resume)
+ *    repeats step s;
  *  - every sample appears once per epoch;
  *  - shards (data-parallel ranks) yield exactly their slice of each batch:
  *    same samples, flips, jitter and pixels as the unsharded loader;
@@ -104,18 +106,27 @@ static void test_determinism(const nj_dataset *ds, const nj_sample *s, int n)
     enum { STEPS = 6 };
     nj_loader *a = make(ds, s, n, 11, 1, 0, 64, 48), *b = make(ds, s, n, 11, 2, 0, 64, 48);
     nj_loader *c = make(ds, s, n, 12, 2, 0, 64, 48), *r = make(ds, s, n, 11, 2, 4, 64, 48);
-    if (!a || !b || !c || !r) { check(0, "loader_create", "create failed"); return; }
+    nj_loader *w3 = make(ds, s, n, 11, 3, 0, 64, 48), *r3 = make(ds, s, n, 11, 3, 2, 64, 48);
+    if (!a || !b || !c || !r || !w3 || !r3) { check(0, "loader_create", "create failed"); return; }
     nj_batch *ba = take(a, STEPS), *bb = take(b, STEPS), *bc = take(c, STEPS), *br = take(r, 1);
-    int same = 1, differ = 0;
+    nj_batch *b3 = take(w3, STEPS), *br3 = take(r3, 3);
+    int same = 1, same3 = 1, resumed3 = 1, differ = 0;
     for (int i = 0; i < STEPS; i++) {
         same &= same_batch(&ba[i], &bb[i]);
+        same3 &= b3[i].step == i && same_batch(&ba[i], &b3[i]);
         differ |= !same_batch(&ba[i], &bc[i]);
     }
+    for (int i = 0; i < 3; i++) resumed3 &= br3[i].step == 2 + i && same_batch(&ba[2 + i], &br3[i]);
     check(same, "loader_same_seed_same_batches", "batches differ between 1 and 2 workers with seed 11");
+    /* 3 workers on batches of 3 items: the items of one batch are prepared
+     * by different workers at once, finishing in any order */
+    check(same3, "loader_three_workers_same_batches", "batches differ between 1 and 3 workers with seed 11");
+    check(resumed3, "loader_three_workers_resume", "3 workers from step 2 differ from steps 2-4 of 1 worker");
     check(differ, "loader_other_seed_other_batches", "seed 12 gave the same batches");
     check(br[0].step == 4 && same_batch(&ba[4], &br[0]), "loader_resume_repeats_step", "start_step 4 differs from step 4");
-    drop(ba, STEPS); drop(bb, STEPS); drop(bc, STEPS); drop(br, 1);
+    drop(ba, STEPS); drop(bb, STEPS); drop(bc, STEPS); drop(br, 1); drop(b3, STEPS); drop(br3, 3);
     nj_loader_destroy(a); nj_loader_destroy(b); nj_loader_destroy(c); nj_loader_destroy(r);
+    nj_loader_destroy(w3); nj_loader_destroy(r3);
 }
 
 /* Item i of a equals item j of b (sample, flip, camera, clean and jittered pixels). */

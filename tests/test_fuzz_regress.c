@@ -9,7 +9,7 @@
 #include "tests/hostile_files.h"
 #include "tests/torch_ref.h"
 #include "train/loop/checkpoint_format.h"
-#include "train/loop/crc32.h"
+#include "data/crc32.h"
 #include "tests/e2e_support.h"
 #include <dirent.h>
 #include <stdio.h>

@@ -2,6 +2,9 @@
  *  - train N steps uninterrupted; train the same run, kill -9 it at a random
  *    moment after its first checkpoint, resume (repeatedly) → the final
  *    weights equal the uninterrupted run's within 1e-6 (same thread count);
+ *  - the same run killed after step 21 and resumed, both parts through the
+ *    frame store (the first with 3 loader workers, the second with the
+ *    default count), ends with exactly the uninterrupted run's weights;
  *  - a truncated newest checkpoint is detected and the previous one used;
  *  - SIGINT finishes the step, saves, exits 0 and says how to resume;
  *  - command-line and config errors give one line and a non-zero exit. */
@@ -110,6 +113,38 @@ static void kill_and_resume(const char *ref)
           "max |difference| %.3g after %d kills %s", d, kills, isinf(d) ? err : "");
 }
 
+/* Frames from the frame store (data/framestore.h) and other worker counts
+ * change no batch: a run through the store with 3 loader workers, stopped
+ * (SIGKILL) after its checkpoint of step 21 and resumed with the default
+ * count, ends where the uninterrupted decoding run ends, to the bit. */
+static void store_resume(const char *ref)
+{
+    char out[512], final[600], log[600], cmd[2048], err[512];
+    snprintf(out, sizeof out, "%s/store", dir);
+    snprintf(log, sizeof log, "%s.log", out);
+    pid_t pid = fork();
+    if (pid == 0) {
+        if (!freopen(log, "a", stdout) || !freopen(log, "a", stderr)) _exit(127);
+        execl(e2e_bin(), "nightjar", "train", "--config", cfg, "--data", data, "--out", out, "--threads", "2",
+              "--frame-store", "on", "--loader-workers", "3", (char *)NULL);
+        _exit(127);
+    }
+    await_step(pid, out, 21);
+    kill(pid, SIGKILL);
+    int rc1 = wait_status(pid);
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s --threads 2 --resume --frame-store on",
+             e2e_bin(), cfg, data, out);
+    int rc2 = e2e_run(cmd, log);
+    char *text = e2e_slurp(log, NULL);
+    int checked = text && strstr(text, "checked in") && strstr(text, "frames from the frame store");
+    free(text);
+    snprintf(final, sizeof final, "%s/final.ckpt", out);
+    double d = rc2 ? INFINITY : rs_weight_diff(ref, final, err, sizeof err);
+    check(d == 0 && checked, "frame store + 3 workers, killed and resumed: the uninterrupted run's weights exactly",
+          "exit %d then %d, store reused %d, max |difference| %.3g %s (log %s)", rc1, rc2, checked, d,
+          isinf(d) ? err : "", log);
+}
+
 static void truncated_checkpoint(void)
 {
     char out[512], path[600], log[600], cmd[2048];
@@ -197,6 +232,7 @@ int main(void)
         snprintf(ref, sizeof ref, "%s/ref/final.ckpt", dir);
         if (check(e2e_run(cmd, log) == 0, "uninterrupted reference run", "see %s", log))
             kill_and_resume(ref);
+        store_resume(ref);
         truncated_checkpoint();
         interrupted();
         bad_input();

@@ -23,15 +23,17 @@ static const char EPILOGUE[] =
 
 /* The command line; -1 = not given (the config's value holds). */
 typedef struct {
-    const char *config, *data, *out, *init;
+    const char *config, *data, *out, *init, *store_dir;
     double minutes, hours;
     long steps, seed;
-    int resume, threads;
+    int resume, threads, workers, store;
 } train_args;
+
+static const char *const ON_OFF[] = {"off", "on", NULL};
 
 static int parse_args(int argc, char **argv, train_args *a)
 {
-    *a = (train_args){.minutes = -1, .hours = -1, .steps = -1, .seed = -1, .threads = -1};
+    *a = (train_args){.minutes = -1, .hours = -1, .steps = -1, .seed = -1, .threads = -1, .workers = -1, .store = -1};
     nj_opt opts[] = {
         {.name = "--config", .kind = NJ_OPT_STRING, .meta = "FILE.json", .help = "training configuration (see configs/)",
          .required = 1, .str = &a->config},
@@ -55,12 +57,23 @@ static int parse_args(int argc, char **argv, train_args *a)
         NJ_OPT_THREADS(&a->threads, 256, "run.threads"),
         {.name = "--seed", .kind = NJ_OPT_LONG, .meta = "N", .lo = 0, .hi = 4294967295.0, .help = "random seed",
          .dflt = "run.seed", .l = &a->seed},
+        {.name = "--loader-workers", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = 64,
+         .help = "threads preparing batches; 0 = one per thread", .dflt = "data.loader_workers", .i = &a->workers},
+        {.name = "--frame-store", .kind = NJ_OPT_CHOICE, .choices = ON_OFF,
+         .help = "keep the training frames decoded and resized once, in a file\n"
+                 "(the same pixels; worth it for frames larger than the training size)",
+         .dflt = "data.frame_store", .i = &a->store},
+        {.name = "--frame-store-dir", .kind = NJ_OPT_STRING, .meta = "DIR",
+         .help = "the frame store's folder (turns the store on)", .dflt = "data.frame_store_dir, else RUN_DIR",
+         .str = &a->store_dir},
     };
     nj_opt_spec spec = {.command = "train", .about = ABOUT, .epilogue = EPILOGUE,
                         .opts = opts, .nopts = NJ_OPT_COUNT(opts)};
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc == NJ_OPT_OK && a->minutes >= 0 && a->hours >= 0)
         rc = nj_opt_fail(&spec, "--minutes and --hours are both given: give the time budget once");
+    if (rc == NJ_OPT_OK && a->store == 0 && a->store_dir)
+        rc = nj_opt_fail(&spec, "--frame-store off and --frame-store-dir are both given: the folder is for a store");
     if (a->hours >= 0) a->minutes = a->hours * 60;
     return rc;
 }
@@ -73,6 +86,30 @@ static void apply_overrides(nj_train_config *c, const train_args *a)
     if (a->steps >= 0) c->max_steps = a->steps;
     if (a->threads >= 0) c->threads = a->threads;
     if (a->seed >= 0) c->seed = (unsigned)a->seed;
+    if (a->workers >= 0) c->loader_workers = a->workers;
+    if (a->store >= 0) c->frame_store = a->store;
+    if (a->store_dir) {
+        snprintf(c->frame_store_dir, sizeof c->frame_store_dir, "%s", a->store_dir);
+        c->frame_store = 1;
+    }
+}
+
+/* The loader: workers, and where frames come from; a hint when large
+ * frames are decoded at every step. */
+static void print_loader(const nj_trainer *t)
+{
+    int prefetch, workers = nj_trainer_loader_workers(t, &prefetch), sw = 0, sh = 0;
+    for (int s = 0; s < t->ds.nseq; s++)
+        if ((double)t->ds.seq[s].width * t->ds.seq[s].height > (double)sw * sh) {
+            sw = t->ds.seq[s].width;
+            sh = t->ds.seq[s].height;
+        }
+    printf("  loader: %d worker%s%s, %d batches ahead; frames %s\n", workers, workers == 1 ? "" : "s",
+           t->cfg.loader_workers ? "" : " (one per thread)", prefetch,
+           t->store ? "from the frame store" : "decoded and resized at every use");
+    if (!t->store && (double)sw * sh >= 4.0 * t->cfg.width * t->cfg.height)
+        printf("  (frames up to %dx%d for %dx%d training: --frame-store on prepares them once)\n", sw, sh,
+               t->cfg.width, t->cfg.height);
 }
 
 static void print_start(const nj_trainer *t)
@@ -93,6 +130,7 @@ static void print_start(const nj_trainer *t)
     else
         printf("  %s at step %ld; batch %d; threads %d\n", t->st.step ? "resuming" : "starting", t->st.step,
                t->cfg.batch, threads);
+    print_loader(t);
     fflush(stdout);
 }
 

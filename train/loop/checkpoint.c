@@ -5,7 +5,7 @@
 #include "train/loop/checkpoint.h"
 #include "data/atomic.h"
 #include "train/loop/checkpoint_format.h"
-#include "train/loop/crc32.h"
+#include "data/crc32.h"
 #include <errno.h>
 #include <math.h>
 #include <stdlib.h>

@@ -8,7 +8,7 @@
  * rebuilt from it; only then are the tensor values read. */
 #include "train/loop/checkpoint.h"
 #include "train/loop/checkpoint_format.h"
-#include "train/loop/crc32.h"
+#include "data/crc32.h"
 #include <errno.h>
 #include <math.h>
 #include <stdarg.h>

@@ -10,7 +10,8 @@
  *              "keep_last": 3 },
  *   "data":  { "dataset": "path/to/dataset.json", "width": 320, "height": 96, "batch": 4,
  *              "frame_offsets": [1], "video": true, "stereo": false,
- *              "duplicate_threshold": 0.0,
+ *              "duplicate_threshold": 0.0, "loader_workers": 0,
+ *              "frame_store": false, "frame_store_dir": "",
  *              "augment": { "brightness": 0.2, "contrast": 0.2, "saturation": 0.2,
  *                           "hue": 0.05, "flip": 0.5 } },
  *   "model": { "stages": 5, "width": 1.0, "scales": 4, "norm": "batch" | "group" | "none",
@@ -24,6 +25,11 @@
  *              "init": "", "freeze_encoder": false }
  * }
  * Relative paths inside the file resolve against the file's folder.
+ * data.loader_workers: threads preparing batches, 0 = one per thread of the
+ * run (train/loop/train_setup.c says why).  data.frame_store: keep every
+ * training frame prepared at the training size in one file
+ * (data/framestore.h), in data.frame_store_dir ("" = the run folder).
+ * Neither changes a batch.
  * model.depth_range is [near, far]: the depths that disparity 1 and 0 stand
  * for (losses/depth.h), 0 < near < far.
  * "hours" is written back as "minutes"; run.seed also seeds the networks
@@ -55,6 +61,9 @@ typedef struct nj_train_config {
     int offsets[NJ_MAX_OFFSETS], noffsets;
     int video, stereo;
     float duplicate_threshold;
+    int loader_workers;       /* 0 = automatic (one per thread) */
+    int frame_store;          /* frames prepared once at the training size, in a file */
+    char frame_store_dir[NJ_PATH_MAX];   /* its folder; "" = the run folder */
     float brightness, contrast, saturation, hue, flip;
     /* model and loss */
     nj_model_config model;

@@ -33,21 +33,26 @@
  * with 16k parameters and a 4 MiB arena. */
 #define RUNTIME_EXTRA (8.0 * MIB)
 
-static double loader_bytes(const nj_trainer *t, int batch, int jitter)
+/* The training loader (workers > 0: its slots and every worker decoding one
+ * frame at a time) or the validation and gallery loaders (workers = 0: one
+ * worker, prefetch 2). */
+static double loader_bytes(const nj_trainer *t, int batch, int jitter, int workers)
 {
     const nj_train_config *c = &t->cfg;
-    int nsrc = t->ntrain > 0 ? t->train[0].nsrc : 0, stereo = 0, maxw = 0, maxh = 0;
+    int nsrc = t->ntrain > 0 ? t->train[0].nsrc : 0, stereo = 0, maxw = 0, maxh = 0, prefetch = 2;
     for (int i = 0; i < t->ntrain; i++) stereo |= t->train[i].stereo;
     for (int s = 0; s < t->ds.nseq; s++) {
         if (t->ds.seq[s].width > maxw) maxw = t->ds.seq[s].width;
         if (t->ds.seq[s].height > maxh) maxh = t->ds.seq[s].height;
     }
+    if (workers > 0) workers = nj_trainer_loader_workers(t, &prefetch);
+    else workers = 1;
     int images = 1 + nsrc + stereo, lens = 0;
     for (int s = 0; s < t->ds.nseq; s++) lens |= t->ds.seq[s].undistort != NULL;
-    double slots = 3.0 * batch * images * 3.0 * c->width * c->height * 4.0 * (jitter ? 2 : 1);
-    /* 8-bit decode + float copy, one worker; a lens adds the undistorted float copy */
+    double slots = (prefetch + 1.0) * batch * images * 3.0 * c->width * c->height * 4.0 * (jitter ? 2 : 1);
+    /* 8-bit decode + float copy, per worker; a lens adds the undistorted float copy */
     double decode = images * 3.0 * maxw * maxh * (lens ? 9.0 : 5.0);
-    return slots + decode;
+    return slots + workers * decode;
 }
 
 /* Base (resident now), parameters, and what may be taken: before the model. */
@@ -157,9 +162,9 @@ int nj_trainer_memory_check(nj_trainer *t, char *err, size_t errlen)
     m->arena_per_step = step;
     m->arena = step;
     int validates = t->nval > 0 && t->cfg.validate_every > 0;
-    m->loader = loader_bytes(t, t->cfg.batch, 1) + (validates ? loader_bytes(t, t->cfg.batch, 0) : 0);
+    m->loader = loader_bytes(t, t->cfg.batch, 1, 1) + (validates ? loader_bytes(t, t->cfg.batch, 0, 0) : 0);
     m->report = gallery + 16.0 * (double)nj_params_numel(&t->model.params) +
-                loader_bytes(t, GALLERY_FRAMES, 0);
+                loader_bytes(t, GALLERY_FRAMES, 0, 0);
     m->total = m->base + m->params + m->arena + m->loader + m->report + RUNTIME_EXTRA;
     if (m->total - m->base > m->avail) {
         snprintf(err, errlen, "memory need: %.0f MiB (available %.0f MiB, limited by %s): refusing to start; "

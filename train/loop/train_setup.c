@@ -8,6 +8,7 @@
 #include "train/loop/trainer_dist.h"
 #include "train/loop/step_replicas.h"
 #include <cjson/cJSON.h>
+#include "data/framestore.h"
 #include <math.h>
 #include <omp.h>
 #include <stdio.h>
@@ -228,6 +229,26 @@ static int resume_model(nj_trainer *t, char *err, size_t errlen)
     return 0;
 }
 
+/* One loader worker per thread of the run (data.loader_workers overrides).
+ * Loading and the step share the cores: while a batch is ahead the workers
+ * sleep (the ring of slots is full), and when the step waits for data the
+ * step's threads are idle, so as many workers as threads let loading use
+ * every core then.  Fewer would leave cores idle where one sample costs more
+ * to prepare than a thread's share of a step: decoding and shrinking three
+ * 1280x720 JPEGs costs about as much as a 2-thread step at 320x96.  Items,
+ * not whole batches, are a worker's unit (data/loader.c), so the prefetch
+ * needs ceil(workers / items) batches to hand every worker one, plus one
+ * ready batch; at least 2, as before. */
+int nj_trainer_loader_workers(const nj_trainer *t, int *prefetch)
+{
+    int w = t->cfg.loader_workers > 0 ? t->cfg.loader_workers : omp_get_max_threads();
+    if (w < 1) w = 1;
+    if (w > 64) w = 64;
+    int items = t->cfg.batch, p = (w + items - 1) / items + 1;
+    *prefetch = p < 2 ? 2 : p > 64 ? 64 : p;
+    return w;
+}
+
 int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
 {
     nj_loader_config lc;
@@ -239,8 +260,8 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
     lc.shard_count = t->ranks > 1 ? t->cfg.batch : 0;
     lc.seed = t->st.loader_seed;
     lc.start_step = t->st.step;
-    lc.workers = 1;
-    lc.prefetch = 2;
+    lc.workers = nj_trainer_loader_workers(t, &lc.prefetch);
+    lc.store = t->store;
     lc.brightness = t->cfg.brightness;
     lc.contrast = t->cfg.contrast;
     lc.saturation = t->cfg.saturation;
@@ -249,6 +270,27 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
     lc.flip_prob = t->cfg.flip;
     t->loader = nj_loader_create(&t->ds, t->train, t->ntrain, &lc, err, errlen);
     return t->loader ? 0 : -1;
+}
+
+/* data.frame_store: rank 0 checks or builds the store (in data.frame_store_dir,
+ * else the run folder); with several ranks the others then use it if they
+ * see the same file (a shared folder).  A store that cannot be had is said in
+ * one line and the run goes on without it: it changes no pixel, only speed. */
+static int open_store(nj_trainer *t, char *err, size_t errlen)
+{
+    if (!t->cfg.frame_store) return 0;
+    nj_framestore_config fc = {.width = t->cfg.width, .height = t->cfg.height,
+                               .dir = t->cfg.frame_store_dir[0] ? t->cfg.frame_store_dir : t->dir,
+                               .threads = omp_get_max_threads(), .build = t->rank == 0,
+                               .say = t->rank == 0 ? stdout : NULL};
+    char why[1024];
+    if (t->rank == 0 && !(t->store = nj_framestore_open(&t->ds, t->train, t->ntrain, &fc, why, sizeof why)))
+        fprintf(stderr, "nightjar train: frame store not used: %s\n", why);
+    if (nj_trainer_dist_agree(t, 0, "preparing the frame store", err, errlen)) return -1;   /* rank 0 first */
+    if (t->rank != 0 && !(t->store = nj_framestore_open(&t->ds, t->train, t->ntrain, &fc, why, sizeof why)))
+        fprintf(stderr, "nightjar train: frame store not used on rank %d: %s\n", t->rank, why);
+    fflush(stdout);
+    return 0;
 }
 
 /* Optimiser, graph, log and loader of a run whose model is in place. */
@@ -261,6 +303,7 @@ static int finish_setup(nj_trainer *t, char *err, size_t errlen)
     }
     nj_params_freeze_group(&t->model.params, NJ_GROUP_ENCODER, t->cfg.freeze_encoder);
     if (nj_trainer_memory_check(t, err, errlen)) return -1;
+    if (open_store(t, err, errlen)) return -1;   /* before the clock starts: building it is not training time */
     nj_adam_init(&t->opt, t->cfg.lr);
     t->opt.weight_decay = t->cfg.weight_decay;
     t->opt.step = t->st.adam_step;
@@ -310,6 +353,8 @@ void nj_trainer_teardown(nj_trainer *t)
 {
     if (t->loader) nj_loader_destroy(t->loader);
     t->loader = NULL;
+    nj_framestore_close(t->store);   /* after the loader that reads it */
+    t->store = NULL;
     if (t->g) nj_graph_free(t->g);
     t->g = NULL;
     nj_step_replicas_free(t->split);

@@ -21,6 +21,7 @@ typedef struct nj_trainer {
     nj_sample *train, *val;
     int ntrain, nval;
     nj_loader *loader;
+    struct nj_framestore *store; /* data.frame_store: the training frames prepared once (NULL: none) */
     nj_model model;
     int model_ready;
     nj_adam opt;
@@ -54,6 +55,9 @@ int nj_trainer_setup(nj_trainer *t, int resume, char *err, size_t errlen);
 void nj_trainer_teardown(nj_trainer *t);
 /* (Re)starts the batch loader at the current step (after setup or a NaN
  * recovery).  Returns 0 or -1 with a message. */
+/* The loader's worker threads for this run, and *prefetch the batches it
+ * prepares ahead to keep them all busy (train_setup.c). */
+int nj_trainer_loader_workers(const nj_trainer *t, int *prefetch);
 int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen);
 /* Loads the newest readable checkpoint of the run (falling back over
  * truncated or corrupt ones, which are reported).  Returns 0, 1 when there is

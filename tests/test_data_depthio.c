@@ -77,31 +77,50 @@ static void test_export(const char *script, const float *d, const float *k)
     check(rc == 0 && tdu_python(script, args) == 0, "depth_files_read_by_opencv_numpy", "rc %d %s", rc, err);
 }
 
-/* NumPy/OpenCV write, nightjar reads. */
-static void test_import(const char *script)
+/* Raw little-endian float32, written with fwrite (no nightjar writer
+ * involved), for data_depth.py to read with np.fromfile. */
+static int write_raw(const char *name, const float *v)
 {
-    char path[256], err[256], args[256];
+    char path[256];
+    path_of(path, name);
+    FILE *f = fopen(path, "wb");
+    if (!f) return -1;
+    int ok = fwrite(v, sizeof(float), W * H, f) == W * H;
+    return fclose(f) == 0 && ok ? 0 : -1;
+}
+
+/* NumPy/OpenCV write, nightjar reads: the files OpenCV writes hold this
+ * test's own arrays (d: arbitrary floats for PFM, k: integers for png16), and
+ * what nightjar reads back is compared with those arrays, not with another
+ * nightjar reader. */
+static void test_import(const char *script, const float *d, const float *k)
+{
+    char path[256], err[256] = "", args[256];
+    if (!check(write_raw("in_depth.f32", d) == 0 && write_raw("in_k.f32", k) == 0, "depth_reference_inputs_written",
+               "cannot write into %s", dir))
+        return;
     snprintf(args, sizeof args, "make '%s'", dir);
     if (!check(tdu_python(script, args) == 0, "depth_reference_files_made", "script failed")) return;
-    float *ref = NULL, *d = NULL, *k = NULL;
-    int w, h, shape[4], ndim;
-    path_of(path, "np_depth.npy");
-    int rc = nj_depth_read(path, NJ_DEPTH_NPY, 0, &ref, &w, &h, err, sizeof err);
+    float *back = NULL;
+    int w = 0, h = 0;
     path_of(path, "np_depth.pfm");
-    if (!rc) rc = nj_pfm_read(path, &d, &w, &h, err, sizeof err);
-    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(ref, d, W * H) == 0,
-          "depth_pfm_from_opencv_exact", "rc %d %s", rc, err);
-    free(d);
-    d = NULL;
-    path_of(path, "np_k.npy");
-    rc = nj_npy_read(path, &k, shape, &ndim, err, sizeof err);
+    int rc = nj_pfm_read(path, &back, &w, &h, err, sizeof err);
+    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(d, back, W * H) == 0,
+          "depth_pfm_from_opencv_exact", "rc %d %s, max |difference| from the input %g", rc, err,
+          rc == 0 && w == W && h == H ? tdu_max_abs_diff(d, back, W * H) : NAN);
+    free(back);
+    back = NULL;
+    path_of(path, "np_depth.npy");
+    rc = nj_depth_read(path, NJ_DEPTH_NPY, 0, &back, &w, &h, err, sizeof err);
+    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(d, back, W * H) == 0,
+          "depth_npy_from_numpy_exact", "rc %d %s", rc, err);
+    free(back);
+    back = NULL;
     path_of(path, "np_depth.png");
-    if (!rc) rc = nj_png16_depth_read(path, 1.0f, &d, &w, &h, err, sizeof err);
-    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(k, d, W * H) == 0,
+    rc = nj_png16_depth_read(path, 1.0f, &back, &w, &h, err, sizeof err);
+    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(k, back, W * H) == 0,
           "depth_png16_from_opencv_exact", "rc %d %s", rc, err);
-    free(ref);
-    free(d);
-    free(k);
+    free(back);
 }
 
 int main(int argc, char **argv)
@@ -125,7 +144,7 @@ int main(int argc, char **argv)
     test_png16_rules();
     test_bad_files();
     test_export(script, d, k);
-    test_import(script);
+    test_import(script, d, k);
     tdu_rmtree(dir);
     return test_exit();
 }

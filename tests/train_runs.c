@@ -4,8 +4,13 @@
 #include "tests/e2e_support.h"
 #include "tests/run_support.h"
 #include "tests/torch_ref.h"
+#include "data/image.h"
+#include "train/loop/checkpoint.h"
+#include "train/model/infer.h"
+#include "nn/ops.h"
 #include <cjson/cJSON.h>
 #include <dirent.h>
+#include <math.h>
 #include <signal.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -171,4 +176,71 @@ int tr_numbered(const char *run, long *steps, int max)
     closedir(d);
     qsort(steps, (size_t)n, sizeof *steps, cmp_long);
     return n;
+}
+
+int tr_dump_motions(const char *ckpt, const char *images, int nframes, const char *out, char *err, size_t len)
+{
+    nj_model m;
+    nj_train_config cfg;
+    if (nj_checkpoint_load(ckpt, &m, &cfg, NULL, err, len)) return -1;
+    nj_threads_init(1);          /* as eval --threads 1: the same summation order */
+    nj_infer in;
+    if (nj_infer_init(&in, &m, cfg.width, cfg.height, err, len)) {
+        nj_model_free(&m);
+        return -1;
+    }
+    FILE *f = fopen(out, "wb");
+    int rc = f ? 0 : -1;
+    if (!f) snprintf(err, len, "%s: cannot write", out);
+    nj_image prev = {0, 0, NULL}, cur = {0, 0, NULL};
+    for (int i = 0; rc == 0 && i < nframes; i++) {
+        char p[1024];
+        snprintf(p, sizeof p, "%s/%06d.png", images, i);
+        if (nj_image_load(p, &cur, err, len)) { rc = -1; break; }
+        if (i > 0) {
+            double T[12];
+            if (nj_infer_motion(&in, &prev, &cur, T, err, len)) rc = -1;
+            else if (fwrite(T, sizeof(double), 12, f) != 12) { snprintf(err, len, "%s: write failed", out); rc = -1; }
+            nj_image_free(&prev);
+        }
+        prev = cur;
+        cur.data = NULL;
+    }
+    if (prev.data) nj_image_free(&prev);
+    if (f && fclose(f) && rc == 0) rc = -1;
+    nj_infer_free(&in);
+    nj_model_free(&m);
+    return rc;
+}
+
+static cJSON *load_json(const char *path)
+{
+    char *s = e2e_slurp(path, NULL);
+    cJSON *j = s ? cJSON_Parse(s) : NULL;
+    free(s);
+    return j;
+}
+
+int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why, size_t len)
+{
+    static const char *const COUNTS[2] = {"snippets", "pairs"};
+    static const char *const FIGURES[6] = {"ate", "ate_std", "rmse", "scale_mean", "rotation_error_deg",
+                                           "rotation_true_deg"};
+    cJSON *m = load_json(metrics), *r = load_json(ref);
+    const cJSON *pose = cJSON_GetObjectItemCaseSensitive(m, "pose");
+    int ok = pose && r;
+    if (!ok) snprintf(why, len, "%s", !m ? "no metrics" : !pose ? "metrics.json has no pose block" : "no reference");
+    for (int k = 0; ok && k < 8; k++) {
+        const char *key = k < 2 ? COUNTS[k] : FIGURES[k - 2];
+        double a = number_of(pose, key), b = number_of(r, key);
+        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, key);
+        int same = cJSON_IsNumber(av) && (k < 2 ? a == b : fabs(a - b) <= tol * (1 + fabs(b)));
+        if (!same) {
+            snprintf(why, len, "%s: eval %.9g, reference %.9g", key, a, b);
+            ok = 0;
+        }
+    }
+    cJSON_Delete(m);
+    cJSON_Delete(r);
+    return ok;
 }

@@ -49,6 +49,19 @@ int tr_vals(const char *run, long *step, double *photometric, int max);
  * digits) in RUN, ascending, at most max.  Returns the count. */
 int tr_numbered(const char *run, long *steps, int max);
 
+/* The model's motion between consecutive frames IMAGES/000000.png ..
+ * IMAGES/%06d.png (nframes of them), through the library (the checkpoint
+ * loaded, nj_infer_motion at its training size, as eval runs it; one
+ * thread, so compare with `eval --threads 1`), written to
+ * OUT as raw little-endian float64, (nframes − 1) × 3 × 4, for
+ * tests/ref/eval_pose_ref.py.  0, or -1 with a message. */
+int tr_dump_motions(const char *ckpt, const char *images, int nframes, const char *out, char *err, size_t len);
+
+/* 1 when the "pose" block of eval's METRICS json matches the REF json of
+ * tests/ref/eval_pose_ref.py: the counts exactly, every figure within
+ * tol·(1 + |ref|); else 0 with the first difference in why. */
+int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why, size_t len);
+
 /* 1 when PATH exists. */
 int tr_exists(const char *path);
 

@@ -132,7 +132,7 @@ int main(int argc, char **argv)
     float d[W * H], q[W * H], k[W * H];
     unsigned s = 12345;
     for (int i = 0; i < W * H; i++) {
-        s = s * 1103515245u + 12345u;
+        s = s * 1103515245u + 12345u;      /* the C standard's example rand() LCG (from memory); only a fill */
         d[i] = (float)((s >> 8) % 1000000) * 1e-4f + 1e-3f;   /* metres, arbitrary floats */
         k[i] = (float)((s >> 4) % 65536);
         q[i] = k[i] / 1000.0f;                                 /* representable in png16 */

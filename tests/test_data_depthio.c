@@ -77,8 +77,9 @@ static void test_export(const char *script, const float *d, const float *k)
     check(rc == 0 && tdu_python(script, args) == 0, "depth_files_read_by_opencv_numpy", "rc %d %s", rc, err);
 }
 
-/* Raw little-endian float32, written with fwrite (no nightjar writer
- * involved), for data_depth.py to read with np.fromfile. */
+/* Raw float32 in host order, written with fwrite (no nightjar writer
+ * involved), for data_depth.py to read with np.fromfile as little-endian
+ * ("<f4"): the hosts this runs on (x86-64, aarch64) are little-endian. */
 static int write_raw(const char *name, const float *v)
 {
     char path[256];

@@ -1,5 +1,8 @@
 /* data/resize.c — separable image resampling: area filter when shrinking,
- * bilinear (half-pixel centres) when enlarging.
+ * bilinear (half-pixel centres) when enlarging, decided per axis.  (When one
+ * axis grows and the other shrinks, cv2.resize with INTER_AREA switches both
+ * axes to a linear-like rule instead, so the two differ there — by up to
+ * 0.013 on scikit-image's chelsea at 451x300 -> 500x290; tests/test_data_image.c.)
  *
  * The area weights are those of OpenCV's INTER_AREA: output pixel d covers
  * the source interval [d·s, (d+1)·s) with s = src/dst; every source pixel

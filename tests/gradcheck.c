@@ -6,7 +6,12 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* splitmix64 (Steele et al. 2014): well mixed even for consecutive seeds. */
+/* splitmix64 (Steele et al. 2014): well mixed even for consecutive seeds.
+ * Its constants (the increment 0x9E3779B97F4A7C15 = 2^64/φ and the two
+ * multipliers) are the usual ones of the published splitmix64 (Vigna's
+ * public-domain splitmix64.c), written from common practice; 0x243F6A8885A308D3
+ * is the start of π's hexadecimal fraction, an arbitrary offset.  Only the
+ * mixing matters here: any constants would give usable test inputs. */
 void test_fill_uniform(float *x, size_t n, float lo, float hi, unsigned seed)
 {
     uint64_t s = 0x243F6A8885A308D3ull + (uint64_t)seed * 0x9E3779B97F4A7C15ull;
@@ -81,6 +86,8 @@ int gradcheck(const char *name, gc_build build, void *ctx, const gc_spec *spec)
         size_t n = shape_numel(sp.shape[k]);
         size_t count = n <= 400 ? n : 400;
         for (size_t j = 0; j < count; j++) {
+            /* 2654435761 ≈ 2^32/φ, Knuth's multiplicative-hash constant (common practice):
+             * spreads the 400 probes over the tensor */
             size_t i = n <= 400 ? j : (size_t)(((uint64_t)j * 2654435761u + sp.seed) % n);
             float keep = vals[k][i];
             vals[k][i] = keep + sp.eps;

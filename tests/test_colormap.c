@@ -23,7 +23,8 @@
  *   - scikit-image's sRGB → CIE XYZ followed by Ottosson's published
  *     XYZ → OKLab matrices (a different route from ours, which uses the
  *     combined linear-sRGB → LMS matrix), itself checked against Ottosson's
- *     published example pairs;
+ *     published example pairs — matrices and pairs are values from Ottosson
+ *     2020 written into colormap_ref.py, not computed by an outside library;
  *   - CIE L* of scikit-image's rgb2lab: lightness must rise strictly along
  *     the table (the independent monotonicity check), from dark to light;
  *   - CIEDE2000 (scikit-image) between neighbouring entries: near-uniform steps;
@@ -340,8 +341,14 @@ static void test_outside(const char *argv0, const table lut)
     int shape[4], nd;
     int ok = wrc == 0 && tdu_python(script, args) == 0 && nj_npy_read(path, &ref, shape, &nd, err, sizeof err) == 0;
     if (check(ok && shape[0] == 7, "outside: reference ran", "write %d %s", wrc, err)) {
-        check(ref[0] < 2e-3, "OKLab matches scikit-image XYZ + Ottosson's matrices", "max diff %g", ref[0]);
-        check(ref[1] < 1.5e-3, "reference route matches Ottosson's published pairs", "max diff %g", ref[1]);
+        /* 2e-4: the two routes multiply differently rounded 10-digit matrices
+         * (scikit-image's sRGB -> XYZ times Ottosson's M1, against nightjar's combined
+         * linear-sRGB -> LMS matrix); measured 8.5e-5.  1.5e-3: the published pairs
+         * are printed with 3 decimals, inputs and outputs (±5e-4 each); measured
+         * 4.0e-4.  The matrices and pairs are quoted from Ottosson 2020 in
+         * colormap_ref.py, not computed. */
+        checkv(ref[0] < 2e-4, "OKLab matches scikit-image XYZ + Ottosson's matrices", "max diff %g", ref[0]);
+        checkv(ref[1] < 1.5e-3, "reference route matches Ottosson's published pairs", "max diff %g", ref[1]);
         check(ref[2] > 0, "CIE L* strictly rising along the table (scikit-image)", "smallest step %g", ref[2]);
         check(ref[5] < 25 && ref[6] > 85, "dark to light: L* from below 25 to above 85", "L* %g .. %g", ref[5],
               ref[6]);

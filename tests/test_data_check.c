@@ -55,6 +55,8 @@ static void write_frame(const char *path, int i, int w, int h)
         for (int y = 0; y < h; y++)
             for (int x = 0; x < w; x++) {
                 unsigned s = (unsigned)((x + i) * 7919 + y * 104729 + c * 1299709);
+                /* 0x5bd1e995: MurmurHash2's multiplier (common practice); any odd
+                 * constant would do: only a pixel pattern without duplicates is needed */
                 s ^= s >> 13; s *= 0x5bd1e995u; s ^= s >> 15;
                 im.data[(c * h + y) * w + x] = (float)(s % 256) / 255.0f;
             }

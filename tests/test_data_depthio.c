@@ -77,31 +77,51 @@ static void test_export(const char *script, const float *d, const float *k)
     check(rc == 0 && tdu_python(script, args) == 0, "depth_files_read_by_opencv_numpy", "rc %d %s", rc, err);
 }
 
-/* NumPy/OpenCV write, nightjar reads. */
-static void test_import(const char *script)
+/* Raw float32 in host order, written with fwrite (no nightjar writer
+ * involved), for data_depth.py to read with np.fromfile as little-endian
+ * ("<f4"): the hosts this runs on (x86-64, aarch64) are little-endian. */
+static int write_raw(const char *name, const float *v)
 {
-    char path[256], err[256], args[256];
+    char path[256];
+    path_of(path, name);
+    FILE *f = fopen(path, "wb");
+    if (!f) return -1;
+    int ok = fwrite(v, sizeof(float), W * H, f) == W * H;
+    return fclose(f) == 0 && ok ? 0 : -1;
+}
+
+/* NumPy/OpenCV write, nightjar reads: the files OpenCV writes hold this
+ * test's own arrays (d: arbitrary floats for PFM, k: integers for png16), and
+ * what nightjar reads back is compared with those arrays, not with another
+ * nightjar reader. */
+static void test_import(const char *script, const float *d, const float *k)
+{
+    char path[256], err[256] = "", args[256];
+    if (!check(write_raw("in_depth.f32", d) == 0 && write_raw("in_k.f32", k) == 0, "depth_reference_inputs_written",
+               "cannot write into %s", dir))
+        return;
     snprintf(args, sizeof args, "make '%s'", dir);
     if (!check(tdu_python(script, args) == 0, "depth_reference_files_made", "script failed")) return;
-    float *ref = NULL, *d = NULL, *k = NULL;
-    int w, h, shape[4], ndim;
-    path_of(path, "np_depth.npy");
-    int rc = nj_depth_read(path, NJ_DEPTH_NPY, 0, &ref, &w, &h, err, sizeof err);
+    float *back = NULL;
+    int w = 0, h = 0;
     path_of(path, "np_depth.pfm");
-    if (!rc) rc = nj_pfm_read(path, &d, &w, &h, err, sizeof err);
-    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(ref, d, W * H) == 0,
-          "depth_pfm_from_opencv_exact", "rc %d %s", rc, err);
-    free(d);
-    d = NULL;
-    path_of(path, "np_k.npy");
-    rc = nj_npy_read(path, &k, shape, &ndim, err, sizeof err);
+    int rc = nj_pfm_read(path, &back, &w, &h, err, sizeof err);
+    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(d, back, W * H) == 0,
+          "depth_pfm_from_opencv_exact", "rc %d %s, max |difference| from the input %g", rc, err,
+          rc == 0 && w == W && h == H ? tdu_max_abs_diff(d, back, W * H) : NAN);
+    free(back);
+    back = NULL;
+    path_of(path, "np_depth.npy");
+    rc = nj_depth_read(path, NJ_DEPTH_NPY, 0, &back, &w, &h, err, sizeof err);
+    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(d, back, W * H) == 0,
+          "depth_npy_from_numpy_exact", "rc %d %s", rc, err);
+    free(back);
+    back = NULL;
     path_of(path, "np_depth.png");
-    if (!rc) rc = nj_png16_depth_read(path, 1.0f, &d, &w, &h, err, sizeof err);
-    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(k, d, W * H) == 0,
+    rc = nj_png16_depth_read(path, 1.0f, &back, &w, &h, err, sizeof err);
+    check(rc == 0 && w == W && h == H && tdu_max_abs_diff(k, back, W * H) == 0,
           "depth_png16_from_opencv_exact", "rc %d %s", rc, err);
-    free(ref);
-    free(d);
-    free(k);
+    free(back);
 }
 
 int main(int argc, char **argv)
@@ -113,7 +133,7 @@ int main(int argc, char **argv)
     float d[W * H], q[W * H], k[W * H];
     unsigned s = 12345;
     for (int i = 0; i < W * H; i++) {
-        s = s * 1103515245u + 12345u;
+        s = s * 1103515245u + 12345u;      /* the C standard's example rand() LCG (from memory); only a fill */
         d[i] = (float)((s >> 8) % 1000000) * 1e-4f + 1e-3f;   /* metres, arbitrary floats */
         k[i] = (float)((s >> 4) % 65536);
         q[i] = k[i] / 1000.0f;                                 /* representable in png16 */
@@ -125,7 +145,7 @@ int main(int argc, char **argv)
     test_png16_rules();
     test_bad_files();
     test_export(script, d, k);
-    test_import(script);
+    test_import(script, d, k);
     tdu_rmtree(dir);
     return test_exit();
 }

@@ -88,7 +88,23 @@ static void test_jpeg(void)
     if (ok) nj_image_free(&im);
 }
 
-/* Resize of a natural image vs cv2.resize on the same float pixels. */
+/* Resize of a natural image vs cv2.resize on the same float pixels.
+ * Tolerances (measured maxima in the info lines):
+ *  - area (shrinking on both axes): both sides sum the same products of
+ *    float32 weights and pixels in [0, 1], in a different order — a few float
+ *    ulps of 1 (1.2e-7); bound 1e-6 (measured: 0 to 6e-8);
+ *  - linear (and an enlarged axis): OpenCV rounds each source coordinate
+ *    (d + 0.5)·s − 0.5 to float32 before taking its fraction as the weight
+ *    (imgproc/src/resize.cpp, resizeGeneric's coefficient loop), nightjar
+ *    keeps it in double; at source coordinates below 512 half a float ulp is
+ *    2^-16 = 1.53e-5, so a weight differs by up to that much and a pixel by
+ *    up to that times the step between neighbours (≤ 1); bound 1.6e-5
+ *    (measured: up to 1.3e-5).
+ * Mode "axes" is the per-axis reference for a mixed resize (one axis
+ * shrinks, the other grows): nightjar filters each axis on its own (area
+ * shrinking, bilinear enlarging), while cv2's INTER_AREA switches both axes
+ * to a linear-like rule as soon as one axis grows, so cv2.resize(INTER_AREA)
+ * is no reference there; data_image.py composes cv2 one axis at a time. */
 static void resize_case(const char *name, int w, int h, const char *mode)
 {
     nj_image im, out;
@@ -106,12 +122,36 @@ static void resize_case(const char *name, int w, int h, const char *mode)
     float *ref = malloc(sizeof(float) * 3 * w * h);
     to_planar(ref_hwc, w, h, 1.0f, ref);
     double e = tdu_max_abs_diff(out.data, ref, 3 * (size_t)w * h);
-    if (getenv("NJ_VERBOSE")) printf("  %s max abs diff %.3g\n", label, e);
-    check(shape[0] == h && shape[1] == w && e <= 1.0 / 255, label, "max abs diff %.6f (limit 1/255)", e);
+    double limit = !strcmp(mode, "area") && w <= im.w && h <= im.h ? 1e-6 : 1.6e-5;
+    checkv(shape[0] == h && shape[1] == w && e <= limit, label, "max abs diff %.3g (limit %.3g)", e, limit);
     free(ref);
     free(ref_hwc);
     nj_image_free(&im);
     nj_image_free(&out);
+}
+
+/* A mixed resize differs from cv2's INTER_AREA (see resize_case); the size
+ * of that difference is printed for the record, not bounded. */
+static void resize_mixed_note(const char *name, int w, int h)
+{
+    nj_image im, out;
+    int shape[4];
+    char file[128];
+    snprintf(file, sizeof file, "%s_%dx%d_area.npy", name, w, h);
+    float *ref_hwc = load_npy(file, shape);
+    snprintf(file, sizeof file, "%s.png", name);
+    if (ref_hwc && !load_img(file, &im)) {
+        if (!nj_image_resize(&im, w, h, &out)) {
+            float *ref = malloc(sizeof(float) * 3 * w * h);
+            to_planar(ref_hwc, w, h, 1.0f, ref);
+            printf("# %s %dx%d->%dx%d: max abs diff from cv2 INTER_AREA %.3g (cv2 goes linear-like on both axes)\n",
+                   name, im.w, im.h, w, h, tdu_max_abs_diff(out.data, ref, 3 * (size_t)w * h));
+            free(ref);
+            nj_image_free(&out);
+        }
+        nj_image_free(&im);
+    }
+    free(ref_hwc);
 }
 
 /* A PNG with only a signature and an IHDR claiming w×h. */
@@ -198,7 +238,7 @@ int main(int argc, char **argv)
     char script[512], args[1024];
     if (tdu_tmpdir(dir, sizeof dir)) return check(0, "image_tmpdir", "mkdtemp failed"), 1;
     tdu_ref_path(argv[0], "data_image.py", script, sizeof script);
-    snprintf(args, sizeof args, "'%s' 320x240:area 256x256:area 173x97:area 500x290:area 611x700:linear 640x480:linear",
+    snprintf(args, sizeof args, "'%s' 320x240:area 256x256:area 173x97:area 500x290:area 500x290:axes 611x700:linear 640x480:linear",
              dir);
     if (!check(tdu_python(script, args) == 0, "image_reference_script", "%s failed", script)) return test_exit();
     test_decode();
@@ -211,6 +251,9 @@ int main(int argc, char **argv)
         resize_case(names[i], 611, 700, "linear");
     }
     resize_case("chelsea", 640, 480, "linear");
+    resize_case("astronaut", 500, 290, "area");      /* 512x512: shrinks on both axes */
+    resize_case("chelsea", 500, 290, "axes");        /* 451x300: wider, lower */
+    resize_mixed_note("chelsea", 500, 290);
     test_limits();
     test_write();
     test_camera();

@@ -4,7 +4,10 @@
  * a child process: the reader must return — success, or an error whose
  * message is one line naming the file — and the child must not crash
  * (under make sanitize: no ASan/UBSan report either, those abort).
- * fuzz_checkpoint inputs get their CRC-32 appended first, as the target does. */
+ * fuzz_checkpoint inputs get their CRC-32 appended first, as the target does.
+ * The inputs must be there: every target has seeds of its own, and every kept
+ * finding listed in KEPT exists and was read (so an emptied or renamed folder
+ * cannot turn this test into one that checks nothing). */
 #include "tests/check.h"
 #include "tests/hostile_files.h"
 #include "tests/torch_ref.h"
@@ -67,8 +70,26 @@ static void one(const char *target, const char *path)
     check(clean, name, "%s (exit %d): %s", WIFSIGNALED(st) ? "crashed" : "unclean", code, msg);
 }
 
-/* Every regular file under ROOT/<target>/. */
-static int walk(const char *root)
+/* Every fuzz target (fuzz/fuzz_*.c, tests/hostile_files.c: hf_reader_for). */
+static const char *const TARGETS[] = {"fuzz_checkpoint", "fuzz_config_json", "fuzz_dataset_json", "fuzz_image",
+                                      "fuzz_npy", "fuzz_pfm", "fuzz_png16", "fuzz_safetensors"};
+#define NTARGETS (int)(sizeof TARGETS / sizeof TARGETS[0])
+
+/* The kept findings that must stay (tests/fuzz_regress/README.md): each one
+ * once broke its reader.  Add a line here with every new finding. */
+static const char *const KEPT[] = {"tests/fuzz_regress/fuzz_png16/oom-idat-2gb.png"};
+#define NKEPT (int)(sizeof KEPT / sizeof KEPT[0])
+
+static int target_index(const char *name)
+{
+    for (int t = 0; t < NTARGETS; t++)
+        if (!strcmp(TARGETS[t], name)) return t;
+    return -1;
+}
+
+/* Every regular file under ROOT/<target>/; per_target[t] counts the files of
+ * TARGETS[t]; every path is appended to `seen` (newline-separated). */
+static int walk(const char *root, int *per_target, char *seen, size_t seen_len)
 {
     int count = 0;
     DIR *d = opendir(root);
@@ -80,6 +101,7 @@ static int walk(const char *root)
         snprintf(sub, sizeof sub, "%s/%s", root, e->d_name);
         DIR *s = opendir(sub);
         if (!s) continue;
+        int t = target_index(e->d_name);
         struct dirent *f;
         while ((f = readdir(s))) {
             if (f->d_name[0] == '.') continue;
@@ -87,6 +109,9 @@ static int walk(const char *root)
             snprintf(path, sizeof path, "%s/%s", sub, f->d_name);
             one(e->d_name, path);
             count++;
+            if (t >= 0) per_target[t]++;
+            size_t used = strlen(seen);
+            snprintf(seen + used, seen_len - used, "%s\n", path);
         }
         closedir(s);
     }
@@ -94,13 +119,43 @@ static int walk(const char *root)
     return count;
 }
 
+static int file_exists(const char *p) { return access(p, R_OK) == 0; }
+
 int main(void)
 {
     if (ref_mkdtemp(tmp, sizeof tmp, "fuzzreg")) { check(0, "temp folder", "%s", tmp); return test_exit(); }
-    int seeds = walk("tests/fuzz_corpus");
-    int found = walk("tests/fuzz_regress");
-    check(seeds >= 8, "fuzz seed corpora are present (run from the repository root)", "%d files", seeds);
+    static char seen[65536];
+    int seeds_per[NTARGETS] = {0}, found_per[NTARGETS] = {0};
+    int seeds = walk("tests/fuzz_corpus", seeds_per, seen, sizeof seen);
+    int found = walk("tests/fuzz_regress", found_per, seen, sizeof seen);
     printf("# %d seed inputs, %d kept findings\n", seeds, found);
+    /* every target has seeds of its own (a renamed or emptied corpus folder
+     * would otherwise drop its inputs from this test without a word) */
+    char missing[512] = "";
+    for (int t = 0; t < NTARGETS; t++) {
+        char src[128];
+        snprintf(src, sizeof src, "fuzz/%s.c", TARGETS[t]);
+        if (seeds_per[t] == 0 || !file_exists(src)) {
+            size_t used = strlen(missing);
+            snprintf(missing + used, sizeof missing - used, " %s (%d seeds%s)", TARGETS[t], seeds_per[t],
+                     file_exists(src) ? "" : ", no fuzz source");
+        }
+    }
+    check(!missing[0], "every fuzz target has its seed corpus in tests/fuzz_corpus/ (run from the repository root)",
+          "missing:%s", missing);
+    int kept_ok = 1;
+    char why[1024] = "";
+    for (int k = 0; k < NKEPT; k++) {
+        char line[800];
+        snprintf(line, sizeof line, "%s\n", KEPT[k]);
+        if (!file_exists(KEPT[k]) || !strstr(seen, line)) {
+            kept_ok = 0;
+            size_t used = strlen(why);
+            snprintf(why + used, sizeof why - used, " %s", KEPT[k]);
+        }
+    }
+    check(kept_ok && found >= NKEPT, "the kept fuzz findings are present and were read",
+          "%d kept findings read; missing or not read:%s", found, why);
     if (!test_failures()) ref_rmtree(tmp);
     return test_exit();
 }

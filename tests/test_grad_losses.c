@@ -88,6 +88,7 @@ static nj_tensor *b_ssim(nj_graph *g, nj_tensor *const *in, void *ctx)
 static nj_tensor *b_photo(nj_graph *g, nj_tensor *const *in, void *ctx)
 {
     (void)ctx;
+    /* α = 0.85: Godard et al. 2017's common choice; any α in [0, 1] exercises both terms */
     return nj_photometric_error(g, nj_affine(g, in[0], 0.2f, 0.2f), nj_affine(g, in[1], 0.2f, 0.8f), 0.85f);
 }
 

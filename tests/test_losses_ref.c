@@ -194,7 +194,7 @@ static double stereo_error(nj_graph *g, nj_tensor *left, nj_tensor *right, const
     float tx = -baseline;
     nj_tensor *T = nj_pose_stereo(g, 1, &tx);
     nj_tensor *warped = nj_sample_bilinear(g, right, nj_reproject(g, depth, T, &cam, NULL));
-    nj_tensor *pe = nj_photometric_error(g, warped, left, 0.85f);
+    nj_tensor *pe = nj_photometric_error(g, warped, left, 0.85f);   /* α = 0.85: Godard et al. 2017's common choice */
     if (!pe) return NAN;
     double s = 0; long n = 0;
     for (int i = 0; i < H * W; i++)

@@ -55,6 +55,8 @@ static void fill_values(float *x, size_t n, unsigned seed)
         0x00000000u, 0x80000000u, 0x7f800000u, 0xff800000u, 0x7fc00001u,
         0x00000001u, 0x807fffffu, 0x7f7fffffu, 0x3f800000u
     };
+    /* 2^64/φ as the seed spreader and the 13/7/17 shift triple of a 64-bit
+     * xorshift (Marsaglia 2003): common practice, any full-period triple would do */
     uint64_t s = 0x9E3779B97F4A7C15ull * (seed + 1);
     for (size_t i = 0; i < n; i++) {
         s ^= s << 13; s ^= s >> 7; s ^= s << 17;

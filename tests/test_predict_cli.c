@@ -1,9 +1,12 @@
 /* tests/test_predict_cli.c — `nightjar predict` and `nightjar eval` end to end.
  *
  * Setup: a tiny synthetic dataset (nj_synth_run: 3 sequences, 7 frames of
- * 64×48, split train/val/test) and two small untrained models saved with
+ * 64×48, split train/val/test) and small models saved with
  * nj_checkpoint_save — a monocular video model (network input 64×32, so
- * inputs are resized and disparities upsampled) and a stereo-only one.
+ * inputs are resized and disparities upsampled), untrained (seed 7), the
+ * same with every weight moved by a seeded uniform ±0.02 (its config still
+ * says seed 7: a "trained" model whose untrained network is the first one),
+ * and an untrained stereo-only one.
  * ./nightjar is run with system().
  *
  * Sources of truth:
@@ -14,8 +17,13 @@
  *   - eval's table recomputed by NumPy (tests/ref/metrics_eval.py) from the
  *     ground-truth files and predict's depth maps: the model's and the
  *     constant baseline's metrics and pixel counts;
- *   - the untrained baseline is the same network as this untrained
- *     checkpoint (same seed), so its metrics must equal the model's;
+ *   - eval's untrained baseline of the moved model is the network of its
+ *     seed: its metrics equal NumPy's on the depth maps predict writes with
+ *     the untrained checkpoint built here through the library, and differ
+ *     from the moved model's own;
+ *   - eval's pose figures recomputed by NumPy/SciPy
+ *     (tests/ref/eval_pose_ref.py) from the poses file and the model's
+ *     motions taken from the library here (tests/train_runs.h);
  *   - the contract: output names, metrics.json keys, scaling names (median
  *     for the monocular model, metric for the stereo one, camera_height with
  *     --camera-height), notes and the safety caution in the output; bad
@@ -28,6 +36,8 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
+#include "tests/train_runs.h"
+#include "nn/rng.h"
 #include "train/loop/checkpoint.h"
 #include <cjson/cJSON.h>
 #include <math.h>
@@ -118,6 +128,29 @@ static int make_checkpoint(const char *path, int stereo)
     return rc;
 }
 
+/* mono.ckpt with every parameter moved by a seeded uniform ±0.02, the
+ * stored configuration (seed 7) unchanged. */
+static int make_moved(const char *from, const char *to)
+{
+    nj_model m;
+    nj_train_config cfg;
+    nj_train_state st;
+    char err[512];
+    if (nj_checkpoint_load(from, &m, &cfg, &st, err, sizeof err)) {
+        printf("moved: %s\n", err);
+        return -1;
+    }
+    nj_rng r;
+    nj_rng_seed(&r, 99);
+    for (int i = 0; i < m.params.count; i++)
+        for (size_t k = 0; k < nj_param_numel(m.params.items[i]); k++)
+            m.params.items[i]->data[k] += (float)(0.04 * nj_rng_uniform(&r) - 0.02);
+    int rc = nj_checkpoint_save(to, &m, &cfg, &st, err, sizeof err);
+    if (rc) printf("moved: %s\n", err);
+    nj_model_free(&m);
+    return rc;
+}
+
 static int setup(void)
 {
     char data[256], err[512];
@@ -134,10 +167,11 @@ static int setup(void)
         printf("synth: %s\n", err);
         return -1;
     }
-    char mono[256], stereo[256];
+    char mono[256], moved[256], stereo[256];
     snprintf(mono, sizeof mono, "%s/mono.ckpt", dir);
+    snprintf(moved, sizeof moved, "%s/moved.ckpt", dir);
     snprintf(stereo, sizeof stereo, "%s/stereo.ckpt", dir);
-    return make_checkpoint(mono, 0) || make_checkpoint(stereo, 1) ? -1 : 0;
+    return make_checkpoint(mono, 0) || make_moved(mono, moved) || make_checkpoint(stereo, 1) ? -1 : 0;
 }
 
 /* ---- predict ------------------------------------------------------------------ */
@@ -316,12 +350,28 @@ static cJSON *load_json(const char *path)
     return j;
 }
 
+/* metrics_eval.py on PRED_DIR (predict's depth maps of the test sequence). */
+static cJSON *numpy_metrics(const char *pred_dir, const char *tag)
+{
+    char args[2048], refout[512], script[1100];
+    snprintf(refout, sizeof refout, "%s/ref-%s.json", dir, tag);
+    snprintf(script, sizeof script, "%s/metrics_eval.py", refdir);
+    snprintf(args, sizeof args, "'%s/data/dataset.json' test 80 '%s' '%s'", dir, pred_dir, refout);
+    return tdu_python(script, args) == 0 ? load_json(refout) : NULL;
+}
+
 static void test_eval(void)
 {
-    char args[2048], path[512], refout[512], script[1100], why[256] = "";
-    snprintf(path, sizeof path, "%s/metrics.json", dir);
-    snprintf(args, sizeof args, "eval --model '%s/mono.ckpt' --data '%s/data/dataset.json' --out '%s'", dir, dir, path);
+    char args[2048], path[512], why[256] = "";
+    /* the moved model's depth maps of the test sequence, for NumPy */
+    snprintf(args, sizeof args, "predict --model '%s/moved.ckpt' --input '%s/data/yard-02/cam0' --out '%s/pred_moved'",
+             dir, dir, dir);
     int rc = run(args);
+    check(rc == 0, "predict with the moved model", "status %d", rc);
+    snprintf(path, sizeof path, "%s/metrics.json", dir);
+    snprintf(args, sizeof args, "eval --model '%s/moved.ckpt' --data '%s/data/dataset.json' --out '%s' --threads 1",
+             dir, dir, path);
+    rc = run(args);
     char *out = output("out"), *err = output("err");
     check(rc == 0 && out && strstr(out, "constant depth") && strstr(out, "untrained network") && strstr(out, "AbsRel"),
           "eval exits 0 and prints the table", "status %d stderr: %s", rc, err ? err : "");
@@ -339,24 +389,48 @@ static void test_eval(void)
     double px = num(j, "pixels");
     check(px > 0 && px == num(c, "pixels") && px == num(u, "pixels"), "all three scored on the same pixels",
           "%g %g %g", px, num(c, "pixels"), num(u, "pixels"));
-    check(j && same_metrics(j, u, 1e-12, why, sizeof why), "untrained checkpoint = untrained baseline", "%s", why);
-    const cJSON *pose = cJSON_GetObjectItemCaseSensitive(j, "pose");
-    check(num(pose, "snippets") == NFRAMES - 4 && num(pose, "ate") >= 0,
-          "pose ATE over the test split's 5-frame snippets", "snippets %g ate %g", num(pose, "snippets"),
-          num(pose, "ate"));
-    /* NumPy from the files: GT and predict's depth maps of the test sequence */
-    snprintf(refout, sizeof refout, "%s/ref.json", dir);
-    snprintf(script, sizeof script, "%s/metrics_eval.py", refdir);
-    snprintf(args, sizeof args, "'%s/data/dataset.json' test 80 '%s/pred' '%s'", dir, dir, refout);
-    cJSON *ref = tdu_python(script, args) == 0 ? load_json(refout) : NULL;
+    /* NumPy from the files: GT and predict's depth maps of the test sequence,
+     * of the moved model (pred_moved) and of the untrained seed-7 network
+     * built in this process (pred, from mono.ckpt) */
+    char moved_dir[300], untrained_dir[300];
+    snprintf(moved_dir, sizeof moved_dir, "%s/pred_moved", dir);
+    snprintf(untrained_dir, sizeof untrained_dir, "%s/pred", dir);
+    cJSON *ref = numpy_metrics(moved_dir, "moved"), *refu = numpy_metrics(untrained_dir, "untrained");
     const cJSON *rm = cJSON_GetObjectItemCaseSensitive(ref, "model"), *rc_ = cJSON_GetObjectItemCaseSensitive(ref, "constant");
-    why[0] = 0;
+    const cJSON *ru = cJSON_GetObjectItemCaseSensitive(refu, "model");
     check(ref && j && same_metrics(j, rm, 1e-5, why, sizeof why), "eval model metrics = numpy on predict's depth",
           "%s", ref ? why : "reference failed");
     why[0] = 0;
     check(ref && c && same_metrics(c, rc_, 1e-5, why, sizeof why), "eval constant baseline = numpy", "%s",
           ref ? why : "reference failed");
+    why[0] = 0;
+    check(refu && u && same_metrics(u, ru, 1e-5, why, sizeof why),
+          "eval untrained baseline = numpy on the depth of the seed-7 network built here (mono.ckpt)", "%s",
+          refu ? why : "reference failed");
+    why[0] = 0;
+    check(j && u && !same_metrics(j, u, 1e-6, why, sizeof why),
+          "eval: the moved model's metrics differ from its untrained baseline", "absrel %.9g vs %.9g",
+          num(j, "absrel"), num(u, "absrel"));
+    /* the pose figures: NumPy/SciPy from the poses file and the moved model's motions */
+    const cJSON *pose = cJSON_GetObjectItemCaseSensitive(j, "pose");
+    char motions[300], rel[400], pref[400], img[400], e2[512] = "";
+    snprintf(motions, sizeof motions, "%s/motions", dir);
+    mkdir(motions, 0777);
+    snprintf(rel, sizeof rel, "%s/yard-02.rel.f64", motions);
+    snprintf(img, sizeof img, "%s/data/yard-02/cam0", dir);
+    snprintf(pref, sizeof pref, "%s/pose-ref.json", dir);
+    snprintf(args, sizeof args, "'%s/data/dataset.json' test '%s' '%s'", dir, motions, pref);
+    char script[1100];
+    snprintf(script, sizeof script, "%s/eval_pose_ref.py", refdir);
+    char moved[300];
+    snprintf(moved, sizeof moved, "%s/moved.ckpt", dir);
+    int ok = tr_dump_motions(moved, img, NFRAMES, rel, e2, sizeof e2) == 0 && tdu_python(script, args) == 0;
+    why[0] = 0;
+    check(num(pose, "snippets") == NFRAMES - 4 && ok && tr_pose_matches(path, pref, 1e-9, why, sizeof why),
+          "pose ATE, RMS, scale and rotation error over the test split's 5-frame snippets = numpy/scipy",
+          "snippets %g; %s", num(pose, "snippets"), ok ? why : e2[0] ? e2 : "reference failed");
     cJSON_Delete(ref);
+    cJSON_Delete(refu);
     cJSON_Delete(j);
 }
 

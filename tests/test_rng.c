@@ -6,7 +6,11 @@
  *     Kolmogorov–Smirnov statistic with its asymptotic 1 % critical value
  *     1.628/√n (Smirnov 1948; the table value is quoted from memory);
  *   - moments: mean within 5 standard errors of 0, variance within 5 standard
- *     errors (√(2/n)) of 1;
+ *     errors (√(2/n)) of 1 — 5 is a common-practice margin, not from a
+ *     reference (a normal statistic lands outside ±5 standard errors with
+ *     probability 5.7e-7, erfc(5/√2)); √(2/n), the standard error of the
+ *     sample variance of n normal values (2σ⁴/(n−1) ≈ 2/n), is the textbook
+ *     formula, quoted from memory;
  *   - structural properties that the callers rely on: shards of a batch get
  *     the values of the whole batch at their positions, the values do not
  *     depend on the thread count, the generator advances by one draw. */
@@ -36,6 +40,8 @@ static void test_distribution(void)
     double mean = s / NS;
     for (int i = 0; i < NS; i++) s2 += (z[i] - mean) * (z[i] - mean);
     double var = s2 / (NS - 1);
+    /* 5 standard errors (1/√n for the mean, √(2/n) for the variance): a
+     * common-practice margin (outside it: probability 5.7e-7), see the header */
     check(fabs(mean) < 5.0 / sqrt(NS), "normals: mean near 0", "mean %.3g", mean);
     check(fabs(var - 1) < 5.0 * sqrt(2.0 / NS), "normals: variance near 1", "variance %.5f", var);
     qsort(z, NS, sizeof(float), cmp_float);
@@ -44,6 +50,9 @@ static void test_distribution(void)
         double F = 0.5 * erfc(-z[i] / sqrt(2.0));
         d = fmax(d, fmax(fabs(F - (double)i / NS), fabs((double)(i + 1) / NS - F)));
     }
+    /* 1.628: the asymptotic 1 % critical value of √n·D, quoted from memory (Smirnov
+     * 1948's table); it agrees with the leading term of Kolmogorov's distribution,
+     * 2·exp(−2x²) = 0.01 → x = √(−ln(0.005)/2) = 1.6276 */
     check(d < 1.628 / sqrt(NS), "normals: Kolmogorov-Smirnov against the normal CDF",
           "D = %.3g (1%% critical value %.3g)", d, 1.628 / sqrt(NS));
     free(z);

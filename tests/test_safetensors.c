@@ -10,7 +10,12 @@
  *    the writer documents;
  *  - a model of another width is refused with a message naming the file;
  *  - CLI: `nightjar train --init RUN.safetensors` (exported from a 1-step
- *    run) trains, and a width mismatch exits non-zero with one line. */
+ *    run) trains, and a width mismatch exits non-zero with one line;
+ *  - CLI: the weights really come from the file: a run with another seed
+ *    started from the export, one step at learning rate 0 (the first warm-up
+ *    step) and batch-norm momentum 1e-9, exported again, gives the file's
+ *    tensors (every tensor within 1e-6 of its largest value; the seed's own
+ *    initial weights would not). */
 #include "nn/rng.h"
 #include "tests/check.h"
 #include "tests/e2e_support.h"
@@ -173,20 +178,63 @@ static const char *CLI_CONFIG =
     "           \"checkpoint_minutes\": 1000, \"keep_last\": 1 },\n"
     "  \"data\": { \"width\": 64, \"height\": 32, \"batch\": 2, \"frame_offsets\": [1], \"video\": true,\n"
     "            \"duplicate_threshold\": 0 },\n"
-    "  \"model\": { \"width\": %s, \"stages\": 4 } }\n";
+    "  \"model\": { \"width\": %s, \"stages\": 4%s } }\n";
+
+/* Largest |a − b| of two safetensors files' tensors relative to each
+ * tensor's largest |a|; INFINITY with why when the names, dtypes or sizes
+ * differ or a file cannot be read. */
+static double st_file_diff(const char *a, const char *b, char *why, size_t len)
+{
+    nj_safetensors x, y;
+    if (nj_safetensors_read(&x, a, why, len)) return INFINITY;
+    if (nj_safetensors_read(&y, b, why, len)) {
+        nj_safetensors_free(&x);
+        return INFINITY;
+    }
+    double worst = x.n == y.n ? 0 : INFINITY;
+    if (x.n != y.n) snprintf(why, len, "%d tensors vs %d", x.n, y.n);
+    for (int i = 0; isfinite(worst) && i < x.n; i++) {
+        const nj_st_tensor *t = &x.t[i], *u = nj_safetensors_find(&y, t->name);
+        if (!u || u->numel != t->numel || strcmp(u->dtype, t->dtype)) {
+            snprintf(why, len, "tensor %s: missing or another dtype/size in the second file", t->name);
+            worst = INFINITY;
+            break;
+        }
+        double big = 1e-30, d = 0;
+        for (uint64_t k = 0; k < t->numel; k++) {
+            double p = nj_safetensors_value(&x, t, k), q = nj_safetensors_value(&y, u, k);
+            big = fmax(big, fabs(p));
+            d = fmax(d, fabs(p - q));
+        }
+        if (d / big > worst) {
+            worst = d / big;
+            snprintf(why, len, "worst tensor %s", t->name);
+        }
+    }
+    nj_safetensors_free(&x);
+    nj_safetensors_free(&y);
+    return worst;
+}
 
 static void cli(const char *dir)
 {
-    char cmd[4096], log[600], cfg[600], wide[600], text[1024];
+    char cmd[4096], log[600], cfg[600], wide[600], still[600], text[1024];
     snprintf(log, sizeof log, "%s/cli.txt", dir);
     snprintf(cmd, sizeof cmd, "%s synth --out %s/data --seed 4 --sequences 3 --frames 8 --size 96x64", e2e_bin(), dir);
     if (!check(e2e_run(cmd, log) == 0, "safetensors cli: synth renders data", "see %s", log)) return;
     snprintf(cfg, sizeof cfg, "%s/st.json", dir);
-    snprintf(text, sizeof text, CLI_CONFIG, "0.5");
+    snprintf(text, sizeof text, CLI_CONFIG, "0.5", "");
     e2e_write(cfg, text);
     snprintf(wide, sizeof wide, "%s/wide.json", dir);
-    snprintf(text, sizeof text, CLI_CONFIG, "0.75");
+    snprintf(text, sizeof text, CLI_CONFIG, "0.75", "");
     e2e_write(wide, text);
+    /* a step that changes nothing but batch-norm statistics, by 1e-9 of a step;
+     * lr · step / warm-up is 0 at step 0 (train/loop/config.c) */
+    snprintf(still, sizeof still, "%s/still.json", dir);
+    snprintf(text, sizeof text, CLI_CONFIG, "0.5", ", \"bn_momentum\": 1e-9");
+    char *cut = strrchr(text, '}');
+    snprintf(cut, sizeof text - (size_t)(cut - text), ", \"optim\": { \"warmup_steps\": 4 } }\n");
+    e2e_write(still, text);
     snprintf(cmd, sizeof cmd,
              "%s train --config %s --data %s/data/dataset.json --out %s/r1 --steps 1 && "
              "%s export --model %s/r1/final.ckpt --format safetensors --out %s/r1.safetensors --size 64x32",
@@ -196,6 +244,18 @@ static void cli(const char *dir)
              e2e_bin(), cfg, dir, dir, dir);
     int rc = e2e_run(cmd, log);
     check(rc == 0, "safetensors cli: train --init FILE.safetensors trains from the export", "exit %d, see %s", rc, log);
+    snprintf(cmd, sizeof cmd,
+             "%s train --config %s --data %s/data/dataset.json --out %s/r4 --steps 1 --seed 9 --init %s/r1.safetensors && "
+             "%s export --model %s/r4/final.ckpt --format safetensors --out %s/r4.safetensors --size 64x32",
+             e2e_bin(), still, dir, dir, dir, e2e_bin(), dir, dir);
+    rc = e2e_run(cmd, log);
+    char a[600], b[600], why[256] = "";
+    snprintf(a, sizeof a, "%s/r1.safetensors", dir);
+    snprintf(b, sizeof b, "%s/r4.safetensors", dir);
+    double d = rc == 0 ? st_file_diff(a, b, why, sizeof why) : INFINITY;
+    checkv(rc == 0 && d <= 1e-6,
+           "safetensors cli: --init FILE.safetensors takes the file's weights (seed 9, a step at lr 0, exported again)",
+           "exit %d (see %s); max relative difference %g, %.200s", rc, log, d, why);
     snprintf(cmd, sizeof cmd, "%s train --config %s --data %s/data/dataset.json --out %s/r3 --steps 2 --init %s/r1.safetensors",
              e2e_bin(), wide, dir, dir, dir);
     rc = e2e_run(cmd, log);

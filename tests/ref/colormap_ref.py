@@ -26,13 +26,21 @@ try:
 except ImportError as exc:
     sys.exit("colormap_ref.py: needs numpy and scikit-image (python3-numpy, python3-skimage): %s" % exc)
 
+# M1 (XYZ -> LMS), M2 (LMS' -> OKLab) and the example pairs below are values
+# from the literature, written in here, not computed by this script or by an
+# outside library: Björn Ottosson, "A perceptual color space for image
+# processing" (2020, bottosson.github.io/posts/oklab).  Nothing here re-derives
+# them; [1] only checks that the matrices and the pairs agree with each other.
+# The pairs are printed there with 3 decimals (hence the 1.5e-3 bound on [1] in
+# tests/test_colormap.c); the first XYZ is D65 white.
 M1 = np.array([[0.8189330101, 0.3618667424, -0.1288597137],
                [0.0329845436, 0.9293118715, 0.0361456387],
                [0.0482003018, 0.2643662691, 0.6338517070]])
 M2 = np.array([[0.2104542553, 0.7936177850, -0.0040720468],
                [1.9779984951, -2.4285922050, 0.4505937099],
                [0.0259040371, 0.7827717662, -0.8086757660]])
-PUBLISHED = [((0.950, 1.000, 1.089), (1.000, 0.000, 0.000)),
+PUBLISHED = [  # Ottosson 2020's table of example XYZ -> OKLab pairs (quoted)
+             ((0.950, 1.000, 1.089), (1.000, 0.000, 0.000)),
              ((1.000, 0.000, 0.000), (0.450, 1.236, -0.019)),
              ((0.000, 1.000, 0.000), (0.922, -0.671, 0.263)),
              ((0.000, 0.000, 1.000), (0.153, -1.415, -0.449))]

@@ -1,10 +1,11 @@
 """Outside references for tests/test_data_depthio.c (NumPy and OpenCV).
 
-usage: data_depth.py make DIR    write depth files with NumPy/OpenCV:
-           np_depth.npy  float32 (23, 37) metres (np.save)
+usage: data_depth.py make DIR    write depth files with NumPy/OpenCV from the
+       test's own arrays, DIR/in_depth.f32 and DIR/in_k.f32 (raw little-endian
+       float32, 23x37, written by the test with fwrite):
+           np_depth.npy  in_depth as float32 (23, 37) metres (np.save)
            np_depth.pfm  the same through cv2.imwrite (Pf)
-           np_k.npy      float32 copy of the uint16 values written to
-           np_depth.png  16-bit greyscale via cv2.imwrite
+           np_depth.png  in_k as uint16, 16-bit greyscale via cv2.imwrite
        data_depth.py check DIR   read nightjar's files and compare exactly:
            c_depth.npy (np.load) with c_depth.pfm (cv2.imread), and
            c_k.npy with c_depth.png (cv2.imread IMREAD_UNCHANGED, uint16)
@@ -18,13 +19,12 @@ import numpy as np
 
 
 def make(d):
-    rng = np.random.default_rng(7)
-    depth = (rng.random((23, 37)) * 80.0).astype(np.float32)
-    depth[3, 5] = 0.0
+    depth = np.fromfile(os.path.join(d, "in_depth.f32"), dtype="<f4").reshape(23, 37)
     np.save(os.path.join(d, "np_depth.npy"), depth)
     assert cv2.imwrite(os.path.join(d, "np_depth.pfm"), depth)
-    k = rng.integers(0, 65536, size=(23, 37)).astype(np.uint16)
-    np.save(os.path.join(d, "np_k.npy"), k.astype(np.float32))
+    kf = np.fromfile(os.path.join(d, "in_k.f32"), dtype="<f4").reshape(23, 37)
+    k = kf.astype(np.uint16)
+    assert np.array_equal(k.astype(np.float32), kf), "in_k.f32 holds non-integers or values beyond uint16"
     assert cv2.imwrite(os.path.join(d, "np_depth.png"), k)
 
 

@@ -26,6 +26,8 @@ KEYS = ["absrel", "sqrel", "rmse", "rmse_log", "delta_1_25", "delta_1_25_2", "de
 
 
 def errors(gt, pred):
+    # the metric definitions and the 1.25, 1.25^2, 1.25^3 thresholds are Eigen et
+    # al. 2014's, written from the literature (common practice since), not computed
     thresh = np.maximum(gt / pred, pred / gt)
     return [np.mean(np.abs(gt - pred) / gt), np.mean((gt - pred) ** 2 / gt),
             np.sqrt(np.mean((gt - pred) ** 2)), np.sqrt(np.mean((np.log(gt) - np.log(pred)) ** 2)),

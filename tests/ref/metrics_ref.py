@@ -33,10 +33,12 @@ try:
 except ImportError as exc:
     sys.exit("metrics_ref.py: cannot import numpy (Debian package python3-numpy): %s" % exc)
 
-MIN_DEPTH = 1e-3
+MIN_DEPTH = 1e-3   # the usual evaluation floor of Zhou et al. 2017 / Godard et al. 2019 (common practice)
 
 
 def errors(gt, pred):
+    # the metric definitions and the 1.25, 1.25^2, 1.25^3 thresholds are Eigen et
+    # al. 2014's, written from the literature (common practice since), not computed
     thresh = np.maximum(gt / pred, pred / gt)
     return [np.mean(np.abs(gt - pred) / gt),
             np.mean((gt - pred) ** 2 / gt),

@@ -1,0 +1,94 @@
+#!/usr/bin/env python3
+"""tests/ref/eval_pose_ref.py — NumPy/SciPy re-computation of the "pose" block
+of `nightjar eval`'s metrics.json from files (tests/test_eval_pose.c,
+tests/test_predict_cli.c).
+
+Usage: /usr/bin/python3 tests/ref/eval_pose_ref.py DATASET.json SPLIT MOTIONS_DIR OUT.json
+
+For every sequence of SPLIT with "poses" and at least 5 of them: the
+ground-truth camera-to-world poses parsed here from the poses file
+(np.loadtxt, 12 numbers per line, '#' comments), and the model's motions
+between consecutive frames from MOTIONS_DIR/NAME.rel.f64 (raw little-endian
+float64, (frames - 1) x 3 x 4: motion i maps points of camera i into camera
+i + 1), written by the test from the model through the library.
+
+Protocol (Zhou et al. 2017's 5-frame snippets, as in tests/ref/metrics_ref.py):
+for every run of 5 consecutive frames, positions relative to the first frame
+(np.linalg.inv and @ on 4x4 matrices), predicted positions by composing the
+inverted motions, first frames aligned, least-squares scale
+sum(gt*pred)/sum(pred**2), ate = sqrt(sum |err|^2) / 5 and
+rmse = sqrt(sum |err|^2 / 5).  Over all snippets of the split: the mean ate,
+its population standard deviation (np.std), the mean rmse and mean scale.
+Rotation: for every consecutive pair, the angle of R_pred^T R_true and of
+R_true (scipy Rotation.from_matrix(...).magnitude()), with
+true = inv(C_{i+1}) @ C_i, means in degrees.
+
+Writes OUT.json: {"ate", "ate_std", "rmse", "scale_mean", "snippets",
+"rotation_error_deg", "rotation_true_deg", "pairs"} (metrics.json's keys).
+"""
+import json
+import os
+import sys
+
+try:
+    import numpy as np
+    from scipy.spatial.transform import Rotation
+except ImportError as exc:
+    sys.exit("eval_pose_ref.py: cannot import numpy/scipy (Debian python3-numpy, python3-scipy): %s" % exc)
+
+SNIPPET = 5
+
+
+def to4(P):
+    M = np.eye(4)
+    M[:3, :] = P
+    return M
+
+
+def snippet_ate(c2w, rel):
+    n = c2w.shape[0]
+    first = np.linalg.inv(to4(c2w[0]))
+    gt = np.array([(first @ to4(c2w[i]))[:3, 3] for i in range(n)])
+    poses = [np.eye(4)]
+    for i in range(n - 1):                 # camera i+1 in the first camera's frame
+        poses.append(poses[-1] @ np.linalg.inv(to4(rel[i])))
+    pred = np.array([P[:3, 3] for P in poses])
+    pred = pred + (gt[0] - pred[0])
+    scale = np.sum(gt * pred) / np.sum(pred ** 2)
+    err = pred * scale - gt
+    return np.sqrt(np.sum(err ** 2)) / n, np.sqrt(np.sum(err ** 2) / n), scale
+
+
+def main():
+    dpath, split, motions, out = sys.argv[1:5]
+    root = os.path.dirname(os.path.abspath(dpath))
+    desc = json.load(open(dpath))
+    ates, rmses, scales, rot_err, rot_true = [], [], [], [], []
+    for s in desc["sequences"]:
+        if s.get("split", "train") != split or "poses" not in s:
+            continue
+        c2w = np.loadtxt(os.path.join(root, s["poses"]), comments="#", ndmin=2).reshape(-1, 3, 4)
+        n = c2w.shape[0]
+        if n < SNIPPET:
+            continue
+        rel = np.fromfile(os.path.join(motions, s["name"] + ".rel.f64"), dtype="<f8").reshape(-1, 3, 4)
+        assert rel.shape[0] == n - 1, "%s: %d motions for %d poses" % (s["name"], rel.shape[0], n)
+        for st in range(n - SNIPPET + 1):
+            a, r, k = snippet_ate(c2w[st:st + SNIPPET], rel[st:st + SNIPPET - 1])
+            ates.append(a)
+            rmses.append(r)
+            scales.append(k)
+        for i in range(n - 1):
+            true = np.linalg.inv(to4(c2w[i + 1])) @ to4(c2w[i])
+            Rt, Rp = true[:3, :3], rel[i, :, :3]
+            rot_err.append(Rotation.from_matrix(Rp.T @ Rt).magnitude())
+            rot_true.append(Rotation.from_matrix(Rt).magnitude())
+    res = {"ate": float(np.mean(ates)), "ate_std": float(np.std(ates)), "rmse": float(np.mean(rmses)),
+           "scale_mean": float(np.mean(scales)), "snippets": len(ates),
+           "rotation_error_deg": float(np.degrees(np.mean(rot_err))),
+           "rotation_true_deg": float(np.degrees(np.mean(rot_true))), "pairs": len(rot_err)}
+    json.dump(res, open(out, "w"), indent=1)
+
+
+if __name__ == "__main__":
+    main()

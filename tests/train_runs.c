@@ -1,0 +1,246 @@
+/* tests/train_runs.c — see train_runs.h. */
+#include "tests/train_runs.h"
+#include "tests/check.h"
+#include "tests/e2e_support.h"
+#include "tests/run_support.h"
+#include "tests/torch_ref.h"
+#include "data/image.h"
+#include "train/loop/checkpoint.h"
+#include "train/model/infer.h"
+#include "nn/ops.h"
+#include <cjson/cJSON.h>
+#include <dirent.h>
+#include <math.h>
+#include <signal.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <sys/wait.h>
+
+int tr_exists(const char *path)
+{
+    struct stat st;
+    return stat(path, &st) == 0;
+}
+
+int tr_setup(const char *tag, char *dir, size_t dlen, char *data, size_t datalen)
+{
+    if (!check(e2e_have_binary(), "the binary under test is built", "%s (run from the repository root after make)",
+               e2e_bin()))
+        return -1;
+    if (ref_mkdtemp(dir, dlen, tag)) {
+        check(0, "temp folder", "%s", dir);
+        return -1;
+    }
+    char cmd[1024], log[600];
+    snprintf(cmd, sizeof cmd, "%s synth --out %s/data --seed 4 --sequences 3 --frames 12 --size 64x32", e2e_bin(),
+             dir);
+    snprintf(log, sizeof log, "%s/synth.txt", dir);
+    snprintf(data, datalen, "%s/data/dataset.json", dir);
+    return check(e2e_run(cmd, log) == 0, "synth renders the small dataset (3 sequences of 12 frames, 64x32)",
+                 "see %s", log) ? 0 : -1;
+}
+
+int tr_config(const char *path, const char *run, const char *model, const char *optim)
+{
+    char text[4096];
+    snprintf(text, sizeof text,
+             "{ \"run\": { \"name\": \"t\", \"seed\": 3, \"threads\": 1, \"log_every\": 1%s%s },\n"
+             "  \"data\": { \"width\": 64, \"height\": 32, \"batch\": 1, \"frame_offsets\": [1],\n"
+             "            \"video\": true, \"duplicate_threshold\": 0 },\n"
+             "  \"model\": { \"width\": 0.25, \"stages\": 4, \"pose_width\": 0.25, \"pose_stages\": 3%s%s },\n"
+             "  \"optim\": { %s } }\n",
+             run[0] ? ", " : "", run, model[0] ? ", " : "", model, optim);
+    return e2e_write(path, text);
+}
+
+pid_t tr_start(const char *log, const char *fmt, ...)
+{
+    char line[4096];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(line, sizeof line, fmt, ap);
+    va_end(ap);
+    char *argv[64];
+    int n = 0;
+    argv[n++] = "nightjar";
+    for (char *t = strtok(line, " "); t && n < 63; t = strtok(NULL, " ")) argv[n++] = t;
+    argv[n] = NULL;
+    return rs_spawn(argv, log, NULL);
+}
+
+int tr_wait(pid_t pid, double guard_s)
+{
+    if (pid < 0) return -1;
+    double t0 = rs_now();
+    for (;;) {
+        int st;
+        pid_t r = waitpid(pid, &st, WNOHANG);
+        if (r == pid) return WIFEXITED(st) ? WEXITSTATUS(st) : 128 + WTERMSIG(st);
+        if (r < 0) return -1;
+        if (rs_now() - t0 > guard_s) {
+            kill(pid, SIGKILL);
+            waitpid(pid, &st, 0);
+            return -2;
+        }
+        rs_sleep_ms(20);
+    }
+}
+
+/* Calls fn on every complete line of RUN/log.jsonl parsed as JSON. */
+static int each_record(const char *run, void (*fn)(const cJSON *, void *), void *ctx)
+{
+    char path[1024];
+    snprintf(path, sizeof path, "%s/log.jsonl", run);
+    char *text = e2e_slurp(path, NULL);
+    if (!text) return -1;
+    char *save = NULL;
+    for (char *line = strtok_r(text, "\n", &save); line; line = strtok_r(NULL, "\n", &save)) {
+        cJSON *j = cJSON_Parse(line);
+        if (j) fn(j, ctx);
+        cJSON_Delete(j);
+    }
+    free(text);
+    return 0;
+}
+
+static const char *type_of(const cJSON *j)
+{
+    return cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "type"));
+}
+
+static double number_of(const cJSON *j, const char *key)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(j, key);
+    return cJSON_IsNumber(v) ? v->valuedouble : -1;
+}
+
+static void end_fn(const cJSON *j, void *ctx)
+{
+    tr_end *e = ctx;
+    const char *t = type_of(j);
+    if (!t || strcmp(t, "end")) return;
+    e->step = (long)number_of(j, "step");
+    e->elapsed = number_of(j, "elapsed_s");
+    const char *s = cJSON_GetStringValue(cJSON_GetObjectItemCaseSensitive(j, "ended"));
+    snprintf(e->ended, sizeof e->ended, "%s", s ? s : "");
+}
+
+int tr_end_record(const char *run, tr_end *e)
+{
+    memset(e, 0, sizeof *e);
+    e->step = -1;
+    if (each_record(run, end_fn, e)) return -1;
+    return e->step >= 0 ? 0 : -1;
+}
+
+typedef struct { long *step; double *photo; int n, max; } val_ctx;
+
+static void val_fn(const cJSON *j, void *ctx)
+{
+    val_ctx *v = ctx;
+    const char *t = type_of(j);
+    if (!t || strcmp(t, "val") || v->n >= v->max) return;
+    v->step[v->n] = (long)number_of(j, "step");
+    v->photo[v->n] = number_of(j, "photometric");
+    v->n++;
+}
+
+int tr_vals(const char *run, long *step, double *photometric, int max)
+{
+    val_ctx v = {step, photometric, 0, max};
+    return each_record(run, val_fn, &v) ? -1 : v.n;
+}
+
+static int cmp_long(const void *a, const void *b)
+{
+    long x = *(const long *)a, y = *(const long *)b;
+    return (x > y) - (x < y);
+}
+
+int tr_numbered(const char *run, long *steps, int max)
+{
+    DIR *d = opendir(run);
+    int n = 0;
+    if (!d) return 0;
+    struct dirent *e;
+    while ((e = readdir(d)) && n < max) {
+        const char *s = e->d_name;
+        if (strlen(s) != 18 || strncmp(s, "step-", 5) || strcmp(s + 13, ".ckpt")) continue;
+        int digits = 1;
+        for (int i = 5; i < 13; i++) digits &= s[i] >= '0' && s[i] <= '9';
+        if (digits) steps[n++] = strtol(s + 5, NULL, 10);
+    }
+    closedir(d);
+    qsort(steps, (size_t)n, sizeof *steps, cmp_long);
+    return n;
+}
+
+int tr_dump_motions(const char *ckpt, const char *images, int nframes, const char *out, char *err, size_t len)
+{
+    nj_model m;
+    nj_train_config cfg;
+    if (nj_checkpoint_load(ckpt, &m, &cfg, NULL, err, len)) return -1;
+    nj_threads_init(1);          /* as eval --threads 1: the same summation order */
+    nj_infer in;
+    if (nj_infer_init(&in, &m, cfg.width, cfg.height, err, len)) {
+        nj_model_free(&m);
+        return -1;
+    }
+    FILE *f = fopen(out, "wb");
+    int rc = f ? 0 : -1;
+    if (!f) snprintf(err, len, "%s: cannot write", out);
+    nj_image prev = {0, 0, NULL}, cur = {0, 0, NULL};
+    for (int i = 0; rc == 0 && i < nframes; i++) {
+        char p[1024];
+        snprintf(p, sizeof p, "%s/%06d.png", images, i);
+        if (nj_image_load(p, &cur, err, len)) { rc = -1; break; }
+        if (i > 0) {
+            double T[12];
+            if (nj_infer_motion(&in, &prev, &cur, T, err, len)) rc = -1;
+            else if (fwrite(T, sizeof(double), 12, f) != 12) { snprintf(err, len, "%s: write failed", out); rc = -1; }
+            nj_image_free(&prev);
+        }
+        prev = cur;
+        cur.data = NULL;
+    }
+    if (prev.data) nj_image_free(&prev);
+    if (f && fclose(f) && rc == 0) rc = -1;
+    nj_infer_free(&in);
+    nj_model_free(&m);
+    return rc;
+}
+
+static cJSON *load_json(const char *path)
+{
+    char *s = e2e_slurp(path, NULL);
+    cJSON *j = s ? cJSON_Parse(s) : NULL;
+    free(s);
+    return j;
+}
+
+int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why, size_t len)
+{
+    static const char *const COUNTS[2] = {"snippets", "pairs"};
+    static const char *const FIGURES[6] = {"ate", "ate_std", "rmse", "scale_mean", "rotation_error_deg",
+                                           "rotation_true_deg"};
+    cJSON *m = load_json(metrics), *r = load_json(ref);
+    const cJSON *pose = cJSON_GetObjectItemCaseSensitive(m, "pose");
+    int ok = pose && r;
+    if (!ok) snprintf(why, len, "%s", !m ? "no metrics" : !pose ? "metrics.json has no pose block" : "no reference");
+    for (int k = 0; ok && k < 8; k++) {
+        const char *key = k < 2 ? COUNTS[k] : FIGURES[k - 2];
+        double a = number_of(pose, key), b = number_of(r, key);
+        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, key);
+        int same = cJSON_IsNumber(av) && (k < 2 ? a == b : fabs(a - b) <= tol * (1 + fabs(b)));
+        if (!same) {
+            snprintf(why, len, "%s: eval %.9g, reference %.9g", key, a, b);
+            ok = 0;
+        }
+    }
+    cJSON_Delete(m);
+    cJSON_Delete(r);
+    return ok;
+}

@@ -7,6 +7,7 @@
  *   u64 FNV-1a of everything before. */
 #include "data/scancache.h"
 #include "data/atomic.h"
+#include "data/image.h"
 #include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
@@ -24,6 +25,8 @@
 #define RULE_VERSION 1
 #define KEEP_DAYS 30
 #define FNV0 0xcbf29ce484222325ull
+
+_Static_assert(sizeof(int) == 4, "kept indices are stored as 32-bit integers");
 
 static uint64_t fnv(uint64_t h, const void *p, size_t n)
 {
@@ -121,7 +124,8 @@ static int parse_entry(const unsigned char *b, size_t len, const char *key, uint
     memcpy(&stored_id, b + at, 8);
     memcpy(v, b + at + 8, sizeof v);
     at += 8 + sizeof v;
-    if (stored_id != id || v[0] != s->nframes || v[1] <= 0 || v[2] <= 0 || v[3] < 0 || v[3] > v[0] || v[4] < 0 ||
+    if (stored_id != id || v[0] != s->nframes || v[1] <= 0 || v[2] <= 0 || v[1] > NJ_IMAGE_MAX_SIDE ||
+        v[2] > NJ_IMAGE_MAX_SIDE || v[3] < 0 || v[3] > v[0] || v[4] < 0 ||
         len != at + 4 * (size_t)v[3] + 8)
         return 0;
     memcpy(&sum, b + len - 8, 8);

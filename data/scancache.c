@@ -172,20 +172,29 @@ static int mkdirs(const char *dir)
 }
 
 /* Removes entries unused for KEEP_DAYS and temporaries of interrupted writes
- * older than a day (a run killed while writing one). */
+ * older than a day (a run killed while writing one), at most once a day: the
+ * stamp file "pruned" holds the time of the last sweep, so a start storing
+ * 100 sequences does not list the folder 100 times. */
 static void prune(const char *dir)
 {
-    DIR *d = opendir(dir);
-    if (!d) return;
     time_t now = time(NULL);
     char path[PATH_MAX];
     struct stat st;
+    int k = snprintf(path, sizeof path, "%s/pruned", dir);
+    if (k < 0 || (size_t)k >= sizeof path || (stat(path, &st) == 0 && now - st.st_mtime < 86400L)) return;
+    int fd = open(path, O_WRONLY | O_CREAT, 0644);
+    if (fd >= 0) {
+        futimens(fd, NULL);
+        close(fd);
+    }
+    DIR *d = opendir(dir);
+    if (!d) return;
     for (struct dirent *e; (e = readdir(d));) {
         size_t n = strlen(e->d_name);
         int entry = n > 5 && !strcmp(e->d_name + n - 5, ".scan"), tmp = n > 4 && !strcmp(e->d_name + n - 4, ".tmp");
         if (!entry && !tmp) continue;
-        int k = snprintf(path, sizeof path, "%s/%s", dir, e->d_name);
-        if (k < 0 || (size_t)k >= sizeof path || stat(path, &st) != 0) continue;
+        int m = snprintf(path, sizeof path, "%s/%s", dir, e->d_name);
+        if (m < 0 || (size_t)m >= sizeof path || stat(path, &st) != 0) continue;
         if (now - st.st_mtime > (entry ? KEEP_DAYS : 1) * 86400L) unlink(path);
     }
     closedir(d);

@@ -21,7 +21,8 @@
  *
  * The folder is $XDG_CACHE_HOME/nightjar/scan, else $HOME/.cache/nightjar/scan.
  * Files are written atomically (data/atomic.h); entries unused for 30 days
- * are removed when a new one is written.  A cache that cannot be read or
+ * (a hit refreshes an entry's time) are removed when a new one is written, at
+ * most once a day.  A cache that cannot be read or
  * written only costs time. */
 #ifndef NJ_SCANCACHE_H
 #define NJ_SCANCACHE_H

@@ -24,6 +24,7 @@
 #include <sys/resource.h>
 #include <sys/stat.h>
 #include <sys/wait.h>
+#include <time.h>
 
 #define RW 48
 #define RH 32
@@ -210,6 +211,33 @@ static void scan_cache_equivalence(void)
     for (int i = 0; i < 6; i++) nj_dataset_free(&all[i]->ds);
 }
 
+/* Entries unused for 30 days and day-old temporaries go when an entry is
+ * written and the last sweep ("pruned") is a day old; recent ones stay. */
+static void scan_cache_pruning(void)
+{
+    const char *names[4] = {"0000000000000001.scan", "0000000000000002.scan", "x.scan.AbCdEf.tmp", "pruned"};
+    const long age_days[4] = {31, 29, 2, 2};
+    char p[4][300];
+    for (int i = 0; i < 4; i++) {
+        snprintf(p[i], sizeof p[i], "%s/%s", cache, names[i]);
+        e2e_write(p[i], "x");
+        struct timespec t[2];
+        clock_gettime(CLOCK_REALTIME, &t[0]);
+        t[0].tv_sec -= age_days[i] * 86400L;
+        t[1] = t[0];
+        utimensat(AT_FDCWD, p[i], t, 0);
+    }
+    opened o;
+    open_with("small", 1, &o);   /* writes 3 entries */
+    nj_dataset_free(&o.ds);
+    struct stat st;
+    int gone31 = stat(p[0], &st) != 0, kept29 = stat(p[1], &st) == 0, gone_tmp = stat(p[2], &st) != 0;
+    int swept = stat(p[3], &st) == 0 && time(NULL) - st.st_mtime < 3600;
+    check(gone31 && kept29 && gone_tmp && swept, "scale_cache_prunes_old_entries",
+          "31-day entry %s, 29-day entry %s, 2-day temporary %s, sweep stamp %s", gone31 ? "removed" : "KEPT",
+          kept29 ? "kept" : "REMOVED", gone_tmp ? "removed" : "KEPT", swept ? "renewed" : "NOT RENEWED");
+}
+
 /* Runs `train` with stdout+stderr in LOG; *maxrss_kb gets its peak RSS. */
 static int run_train(const char *data, const char *out, const char *log, long *maxrss_kb)
 {
@@ -325,6 +353,7 @@ int main(void)
     snprintf(cfg, sizeof cfg, "%s/config.json", top);
     e2e_write(cfg, CONFIG);
     scan_cache_equivalence();
+    scan_cache_pruning();
     train_starts();
     if (!getenv("NJ_KEEP")) tdu_rmtree(top);
     return test_exit();

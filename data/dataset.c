@@ -406,6 +406,9 @@ void nj_data_options_default(nj_data_options *o)
     o->k = 1;
     o->stereo = 1;
     o->dup_threshold = 0.003f;
+    o->headers_only = 0;
+    o->scan_cache = NULL;
+    o->scan_cache_read = 0;
 }
 
 char *nj_lead_mask_path(const nj_sequence *s, int frame)

@@ -75,6 +75,8 @@ typedef struct nj_sequence {
     int *kept;               /* their indices into frames[] */
     int duplicates;          /* frames skipped as near-duplicates */
     int problems;            /* problems found in this sequence */
+    int decoded;             /* images decoded by the validation (frames and partners) */
+    int scan_cached;         /* 1: the scan's result came from the scan cache */
 } nj_sequence;
 
 typedef struct nj_dataset {
@@ -92,15 +94,21 @@ typedef struct nj_data_options {
                                 the absolute difference of 32-pixel-wide grey thumbnails,
                                 gain difference divided out, the frames' estimated noise
                                 removed; data/validate.c) is below this; 0 disables */
+    int headers_only;        /* 1: read only each image's header (format, size; nothing is
+                                decoded): pixel data is not checked and no frame is skipped
+                                as a near-duplicate (every frame of the right size is kept) */
+    const char *scan_cache;  /* folder of the scan cache (data/scancache.h); NULL = none */
+    int scan_cache_read;     /* 1: take a matching entry instead of decoding; 0: only write */
 } nj_data_options;
 
-/* k = 1, stereo on, dup_threshold = 0.003. */
+/* k = 1, stereo on, dup_threshold = 0.003, full decode, no scan cache. */
 void nj_data_options_default(nj_data_options *o);
 
 /* Parses the JSON into *ds (no file system checks).  Returns the number of
  * problems added to *pr (0 = the description is well-formed). */
 int nj_dataset_parse(const char *path, nj_dataset *ds, nj_problems *pr);
-/* Parses and validates folders, frames (every image is decoded), sizes,
+/* Parses and validates folders, frames (every image is decoded, unless
+ * headers_only or a scan cache entry matches), sizes,
  * stereo partners, ground truth and sample counts.  Returns the number of
  * problems (0 = training can use the data). */
 int nj_dataset_open(const char *path, const nj_data_options *o, nj_dataset *ds, nj_problems *pr);

@@ -54,7 +54,10 @@ static void report_sequence(const nj_sequence *s, const nj_data_options *o, int 
     if (s->right_images) fprintf(f, "  stereo %.3f m%s", s->baseline, s->rig ? " (raw rig)" : "");
     if (s->depth_dir) fprintf(f, "  depth %s", nj_depth_format_name(s->depth_format));
     if (s->poses) fprintf(f, "  poses");
-    fprintf(f, "  usable samples %d  duplicates skipped %d", nj_sequence_samples(s, o, NULL, i), s->duplicates);
+    if (o->headers_only)   /* no pixels: nothing skipped, the count is an upper bound */
+        fprintf(f, "  usable samples at most %d  duplicates not checked", nj_sequence_samples(s, o, NULL, i));
+    else
+        fprintf(f, "  usable samples %d  duplicates skipped %d", nj_sequence_samples(s, o, NULL, i), s->duplicates);
     if (s->problems) fprintf(f, "  problems %d", s->problems);
     fprintf(f, "\n");
     nj_sequence_lens_describe(s, f);
@@ -62,10 +65,12 @@ static void report_sequence(const nj_sequence *s, const nj_data_options *o, int 
 
 void nj_dataset_report(const nj_dataset *ds, const nj_data_options *o, const nj_problems *pr, FILE *f)
 {
-    fprintf(f, "dataset %s: %d sequence%s (k = %d, stereo %s, duplicate threshold %g)\n", ds->path ? ds->path : "?",
-            ds->nseq, ds->nseq == 1 ? "" : "s", o->k, o->stereo ? "on" : "off", o->dup_threshold);
+    fprintf(f, "dataset %s: %d sequence%s (k = %d, stereo %s, duplicate threshold %g%s)\n", ds->path ? ds->path : "?",
+            ds->nseq, ds->nseq == 1 ? "" : "s", o->k, o->stereo ? "on" : "off", o->dup_threshold,
+            o->headers_only ? "; headers only" : "");
     for (int i = 0; i < ds->nseq; i++) report_sequence(&ds->seq[i], o, i, f);
-    fprintf(f, "samples: train %d, val %d, test %d\n", split_samples(ds, o, NJ_SPLIT_TRAIN),
+    fprintf(f, "samples%s: train %d, val %d, test %d\n", o->headers_only ? " (at most)" : "",
+            split_samples(ds, o, NJ_SPLIT_TRAIN),
             split_samples(ds, o, NJ_SPLIT_VAL), split_samples(ds, o, NJ_SPLIT_TEST));
     nj_problems_print(pr, f);
 }

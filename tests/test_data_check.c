@@ -1,7 +1,10 @@
 /* tests/test_data_check.c — `nightjar check-data`, table-driven: a good
  * dataset passes (exit 0, report with counts and duplicates), and each broken
  * dataset — one per problem — exits non-zero with its one-line message naming
- * the file.  Outside source: the JSON syntax error position is compared with
+ * the file.  `check-data --quick` (headers only) reports exactly the same
+ * problem lines on every one of them, and passes a PNG whose header and chunk
+ * lengths are right but whose compressed pixels are garbage, which the full
+ * check refuses: the quick mode never decodes pixels.  Outside source: the JSON syntax error position is compared with
  * Python's json module (tests/ref/data_json_pos.py). */
 #include "train/cli/commands.h"
 #include "data/image.h"
@@ -116,8 +119,8 @@ static void write_json(const char *d, const char *find, const char *repl)
     write_text(p, text);
 }
 
-/* Runs check-data with stdout captured into out. */
-static int run_check(const char *d, char *out, size_t n)
+/* Runs check-data (with --quick when `quick`) with stdout captured into out. */
+static int run_check_mode(const char *d, int quick, char *out, size_t n)
 {
     char json[512], cap[512];
     snprintf(json, sizeof json, "%s/ds.json", d);
@@ -126,8 +129,9 @@ static int run_check(const char *d, char *out, size_t n)
     int saved = dup(1), fd = open(cap, O_WRONLY | O_CREAT | O_TRUNC, 0644);
     dup2(fd, 1);
     close(fd);
-    char *argv[3] = {"check-data", json, NULL};
-    int rc = nj_check_data_main(2, argv);
+    char *argv[4] = {"check-data", json, NULL, NULL};
+    if (quick) argv[2] = "--quick";
+    int rc = nj_check_data_main(quick ? 3 : 2, argv);
     fflush(stdout);
     dup2(saved, 1);
     close(saved);
@@ -136,6 +140,43 @@ static int run_check(const char *d, char *out, size_t n)
     out[k] = 0;
     if (f) fclose(f);
     return rc;
+}
+
+static int run_check(const char *d, char *out, size_t n) { return run_check_mode(d, 0, out, n); }
+
+/* The "problem: " lines of a report, in order. */
+static void problem_lines(const char *out, char *lines, size_t n)
+{
+    size_t k = 0;
+    lines[0] = 0;
+    for (const char *at = strstr(out, "problem: "); at && k + 1 < n; at = strstr(at + 1, "problem: ")) {
+        if (at != out && at[-1] != '\n') continue;
+        const char *e = strchr(at, '\n');
+        size_t len = e ? (size_t)(e - at) + 1 : strlen(at);
+        if (k + len >= n) len = n - k - 1;
+        memcpy(lines + k, at, len);
+        k += len;
+        lines[k] = 0;
+    }
+}
+
+/* Overwrites the data of every IDAT chunk of a PNG with a fixed garbage
+ * pattern: header and chunk lengths stay valid, the zlib stream does not. */
+static void garble_idat(const char *path)
+{
+    FILE *f = fopen(path, "r+b");
+    unsigned char h[8];
+    long at = 8;
+    while (f && fseek(f, at, SEEK_SET) == 0 && fread(h, 1, 8, f) == 8) {
+        long len = (long)h[0] << 24 | h[1] << 16 | h[2] << 8 | h[3];
+        if (!memcmp(h + 4, "IDAT", 4)) {
+            fseek(f, at + 8, SEEK_SET);
+            for (long i = 0; i < len; i++) fputc((int)(0xA5 ^ (i * 37)), f);
+        }
+        if (!memcmp(h + 4, "IEND", 4)) break;
+        at += 12 + len;
+    }
+    if (f) fclose(f);
 }
 
 /* ---- file mutations ---------------------------------------------------- */
@@ -152,6 +193,17 @@ static void no_poses(const char *d) { sh("rm '%s/a/poses.txt'", d); }
 static void short_poses(const char *d) { sh("sed -i '$d' '%s/a/poses.txt'", d); }
 static void bad_pose_line(const char *d) { sh("sed -i '2s/ 0$//' '%s/a/poses.txt'", d); }
 static void no_json(const char *d) { sh("rm '%s/ds.json'", d); }
+static void gif_frame(const char *d) { char p[512]; snprintf(p, sizeof p, "%s/a/cam0/000001.png", d); write_text(p, "GIF89a\x10\x00\x10\x00\x80\x00\x00"); }
+static void jpeg_frame(const char *d)
+{
+    /* a JPEG header (SOI, SOF0 of 40x32, 3 components) under a frame's name */
+    static const unsigned char jpg[] = {0xFF, 0xD8, 0xFF, 0xC0, 0x00, 0x11, 0x08, 0x00, 0x20, 0x00, 0x28, 0x03,
+                                        0x01, 0x22, 0x00, 0x02, 0x11, 0x01, 0x03, 0x11, 0x01, 0xFF, 0xD9};
+    char p[512];
+    snprintf(p, sizeof p, "%s/b/cam0/000002.jpg", d);
+    FILE *f = fopen(p, "wb");
+    if (f) { fwrite(jpg, 1, sizeof jpg, f); fclose(f); }
+}
 
 typedef struct bad_case {
     const char *name;
@@ -188,6 +240,8 @@ static const bad_case CASES[] = {
     {"missing_poses_file", NULL, NULL, no_poses, "cannot open the poses file", "a/poses.txt"},
     {"poses_count_mismatch", NULL, NULL, short_poses, "has 5 poses for 6 frames", "a/poses.txt"},
     {"malformed_pose_line", NULL, NULL, bad_pose_line, "expected 12 numbers", "a/poses.txt:2"},
+    {"gif_named_png", NULL, NULL, gif_frame, "not a PNG or JPEG", "a/cam0/000001.png"},
+    {"jpeg_of_another_size", NULL, NULL, jpeg_frame, "size 40x32 differs from the sequence's 48x32", "b/cam0/000002.jpg"},
 };
 
 /* The line of `out` containing `expect` also names the file. */
@@ -215,6 +269,31 @@ static void run_case(int i, const bad_case *c)
     snprintf(label, sizeof label, "check_data_%s", c->name);
     check(rc != 0 && line_has(out, c->expect, c->expect_file), label,
           "exit %d, wanted a problem line with '%s' naming %s; output:\n%s", rc, c->expect, c->expect_file, out);
+    /* every case is a header-level defect: --quick lists the same problems */
+    char quick[16384], a[8192], b[8192];
+    int qrc = run_check_mode(d, 1, quick, sizeof quick);
+    problem_lines(out, a, sizeof a);
+    problem_lines(quick, b, sizeof b);
+    snprintf(label, sizeof label, "check_data_quick_same_problems_%s", c->name);
+    check(qrc == rc && a[0] && !strcmp(a, b), label, "full exit %d, quick exit %d; full:\n%squick:\n%s", rc, qrc, a, b);
+}
+
+/* A PNG with a valid header and chunk lengths but garbage compressed pixels:
+ * --quick passes it (it reads no pixels), the full check refuses it. */
+static void test_quick_reads_no_pixels(void)
+{
+    char d[512], p[600], out[16384], quick[16384];
+    snprintf(d, sizeof d, "%s/garbage", top);
+    make_good(d);
+    write_json(d, NULL, NULL);
+    snprintf(p, sizeof p, "%s/a/cam0/000003.png", d);
+    garble_idat(p);
+    int rc = run_check(d, out, sizeof out), qrc = run_check_mode(d, 1, quick, sizeof quick);
+    check(rc == 1 && line_has(out, "corrupt image", "a/cam0/000003.png"), "check_data_full_refuses_garbage_pixels",
+          "exit %d; output:\n%s", rc, out);
+    check(qrc == 0 && !strstr(quick, "problem:") && strstr(quick, "OK in the headers") &&
+          strstr(quick, "usable samples at most 4  duplicates not checked"),
+          "check_data_quick_passes_garbage_pixels", "exit %d; output:\n%s", qrc, quick);
 }
 
 static void test_good(void)
@@ -259,8 +338,13 @@ int main(int argc, char **argv)
     (void)argc;
     if (tdu_tmpdir(top, sizeof top)) return 1;
     tdu_ref_path(argv[0], "data_json_pos.py", script, sizeof script);
+    /* check-data writes the scan cache: keep it inside the scratch folder */
+    char cache[128];
+    snprintf(cache, sizeof cache, "%s/xdg", top);
+    setenv("XDG_CACHE_HOME", cache, 1);
     test_good();
     test_bad_json();
+    test_quick_reads_no_pixels();
     for (int i = 0; i < (int)(sizeof CASES / sizeof CASES[0]); i++) run_case(i, &CASES[i]);
     if (!getenv("NJ_KEEP")) tdu_rmtree(top);
     return test_exit();

@@ -112,6 +112,21 @@ static void print_loader(const nj_trainer *t)
                t->cfg.width, t->cfg.height);
 }
 
+/* What the data check at startup cost: frames decoded, or the scan cache
+ * used (data/scancache.h); tests/test_data_scale.c reads this line. */
+static void print_scan(const nj_dataset *ds)
+{
+    long frames = 0, decoded = 0;
+    int cached = 0;
+    for (int i = 0; i < ds->nseq; i++) {
+        frames += ds->seq[i].nframes;
+        decoded += ds->seq[i].decoded;
+        cached += ds->seq[i].scan_cached;
+    }
+    printf("  data check: %ld frames, %ld images decoded, %d of %d sequences from the scan cache\n", frames,
+           decoded, cached, ds->nseq);
+}
+
 static void print_start(const nj_trainer *t)
 {
     const nj_model *m = &t->model;
@@ -120,6 +135,7 @@ static void print_start(const nj_trainer *t)
     double pf = m->cfg.pose ? nj_pose_flops(m, t->cfg.height, t->cfg.width) : 0;
     printf("nightjar train: run %s in %s\n", t->cfg.name, t->dir);
     printf("  data: %s (%d training samples, %d validation samples)\n", t->cfg.dataset, t->ntrain, t->nval);
+    print_scan(&t->ds);
     printf("  model: %zu parameters; depth net %.3f GFLOPs, pose net %.3f GFLOPs per pair at %dx%d\n",
            nj_params_numel(&m->params), df * 1e-9, pf * 1e-9, t->cfg.width, t->cfg.height);
     int threads = nj_threads_init(t->cfg.threads);

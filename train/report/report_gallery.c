@@ -21,6 +21,7 @@
 #include "train/measure/measure.h"
 #include "train/loop/loop.h"
 #include "losses/depth.h"
+#include "data/scancache.h"
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -74,6 +75,11 @@ static int pick_frames(gallery *G, char *err, size_t errlen)
     o.k = G->cfg.video ? G->cfg.offsets[0] : 0;
     o.stereo = G->cfg.stereo;
     o.dup_threshold = G->cfg.duplicate_threshold;
+    char cache[4096];   /* the validation split's scan, cached by train (data/scancache.h) */
+    if (!nj_scan_cache_dir(cache, sizeof cache)) {
+        o.scan_cache = cache;
+        o.scan_cache_read = 1;
+    }
     nj_problems pr;
     nj_problems_init(&pr);
     int bad = nj_dataset_parse(G->cfg.dataset, &G->ds, &pr);

@@ -7,6 +7,11 @@
 # so they cannot go unnoticed.
 dir=${1:-build/tests}
 pass=0; fail=0; skip=0; skipped=""
+# the scan cache (data/scancache.h) of every run the tests start goes to a
+# folder of the suite's own: test datasets live in temporary folders, and their
+# entries would otherwise stay in the user's ~/.cache for 30 days
+cache=$(mktemp -d /tmp/nj_test_cache_XXXXXX) && export XDG_CACHE_HOME="$cache"
+trap 'rm -rf "$cache"' EXIT
 for t in "$dir"/test_*; do
   [ -x "$t" ] || continue
   case "$t" in *.o|*.d) continue ;; esac

@@ -17,4 +17,17 @@ int checkv(int cond, const char *name, const char *fmt, ...)
 int test_failures(void);
 int test_exit(void);
 
+/* UNDER_ASAN: 1 when this test program is built with AddressSanitizer (gcc
+ * defines __SANITIZE_ADDRESS__, clang has the feature test), else 0. */
+#if defined(__SANITIZE_ADDRESS__)
+#define UNDER_ASAN 1
+#elif defined(__has_feature)
+#if __has_feature(address_sanitizer)
+#define UNDER_ASAN 1
+#endif
+#endif
+#ifndef UNDER_ASAN
+#define UNDER_ASAN 0
+#endif
+
 #endif

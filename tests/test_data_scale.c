@@ -34,18 +34,8 @@
 #define MEM_BOUND_BYTES_PER_FRAME 400.0
 
 /* AddressSanitizer keeps freed memory in a quarantine (up to 256 MB), so RSS
- * grows with every decoded frame: the bound is not applied there. */
-#if defined(__SANITIZE_ADDRESS__)
-#define UNDER_ASAN 1
-#elif defined(__has_feature)
-#if __has_feature(address_sanitizer)
-#define UNDER_ASAN 1
-#endif
-#endif
-#ifndef UNDER_ASAN
-#define UNDER_ASAN 0
-#endif
-
+ * grows with every decoded frame: the bound is not applied there (UNDER_ASAN,
+ * tests/check.h). */
 static char top[64], real[128], cache[128];
 
 static const char *CONFIG =

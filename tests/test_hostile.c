@@ -38,17 +38,6 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
-#if defined(__SANITIZE_ADDRESS__)
-#define UNDER_ASAN 1
-#elif defined(__has_feature)
-#if __has_feature(address_sanitizer)
-#define UNDER_ASAN 1
-#endif
-#endif
-#ifndef UNDER_ASAN
-#define UNDER_ASAN 0
-#endif
-
 static char dir[256];
 
 /* ---- running one case ---------------------------------------------------- */

@@ -39,24 +39,10 @@ except ImportError as exc:
 SNIPPET = 5
 
 
-def to4(P):
-    M = np.eye(4)
-    M[:3, :] = P
-    return M
-
-
-def snippet_ate(c2w, rel):
-    n = c2w.shape[0]
-    first = np.linalg.inv(to4(c2w[0]))
-    gt = np.array([(first @ to4(c2w[i]))[:3, 3] for i in range(n)])
-    poses = [np.eye(4)]
-    for i in range(n - 1):                 # camera i+1 in the first camera's frame
-        poses.append(poses[-1] @ np.linalg.inv(to4(rel[i])))
-    pred = np.array([P[:3, 3] for P in poses])
-    pred = pred + (gt[0] - pred[0])
-    scale = np.sum(gt * pred) / np.sum(pred ** 2)
-    err = pred * scale - gt
-    return np.sqrt(np.sum(err ** 2)) / n, np.sqrt(np.sum(err ** 2) / n), scale
+# the trajectory error of one snippet and the 4x4 lift: the metrics reference's own
+# (one copy of the formula for both reference scripts)
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from metrics_ref import snippet_ate, to4  # noqa: E402
 
 
 def main():

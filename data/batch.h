@@ -9,11 +9,11 @@
 typedef struct nj_batch {
     long step;
     int n, w, h;
-    int nsrc;                /* temporal sources per item (0 or 2) */
+    int nsrc;                /* temporal sources per item (2 per frame offset, or 0) */
     int stereo;              /* partner arrays present (some item has a partner) */
     /* Clean images, for the loss (planar RGB in [0,1]): */
     float *target;           /* n×3×h×w */
-    float *sources;          /* n×nsrc×3×h×w: source j of item i at (i·nsrc + j)·3·h·w; j=0 is t−k, j=1 is t+k */
+    float *sources;          /* n×nsrc×3×h×w: source j of item i at (i·nsrc + j)·3·h·w; j=2i is t−k_i, j=2i+1 is t+k_i */
     float *partner;          /* n×3×h×w, or NULL when !stereo */
     /* The same images with the item's colour jitter, for the network input
      * (they alias the clean arrays when jitter is off): */

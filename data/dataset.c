@@ -403,7 +403,8 @@ const char *nj_split_name(nj_split s)
 
 void nj_data_options_default(nj_data_options *o)
 {
-    o->k = 1;
+    o->offsets[0] = 1;
+    o->noffsets = 1;
     o->stereo = 1;
     o->dup_threshold = 0.003f;
     o->headers_only = 0;

@@ -86,8 +86,12 @@ typedef struct nj_dataset {
     nj_sequence *seq;
 } nj_dataset;
 
+/* Temporal offsets a training sample may use (data.frame_offsets). */
+#define NJ_MAX_OFFSETS 4
+
 typedef struct nj_data_options {
-    int k;                   /* temporal sources t−k and t+k; 0 = none */
+    int offsets[NJ_MAX_OFFSETS]; /* temporal sources t−k and t+k for each k listed (k ≥ 1) */
+    int noffsets;            /* how many are listed; 0 = no temporal sources */
     int stereo;              /* add the stereo partner when the sequence has one */
     float dup_threshold;     /* skip frames that barely differ from the last kept frame:
                                 their change (grey levels 0..1: the 90th percentile of
@@ -101,7 +105,7 @@ typedef struct nj_data_options {
     int scan_cache_read;     /* 1: take a matching entry instead of decoding; 0: only write */
 } nj_data_options;
 
-/* k = 1, stereo on, dup_threshold = 0.003, full decode, no scan cache. */
+/* offsets {1}, stereo on, dup_threshold = 0.003, full decode, no scan cache. */
 void nj_data_options_default(nj_data_options *o);
 
 /* Parses the JSON into *ds (no file system checks).  Returns the number of
@@ -146,11 +150,14 @@ char *nj_lead_mask_path(const nj_sequence *s, int frame);
 typedef struct nj_sample {
     int seq;                 /* index into ds->seq */
     int target;              /* frame index into seq->frames */
-    int src[2];              /* t−k and t+k (frame indices), when nsrc == 2 */
-    int nsrc;                /* 0 or 2 */
+    int src[2 * NJ_MAX_OFFSETS]; /* frame indices: src[2i] = t−k_i, src[2i+1] = t+k_i for
+                                the i-th offset k_i of the options */
+    int nsrc;                /* 2 × the number of offsets, or 0 */
     int stereo;              /* 1: the stereo partner of the target is used */
 } nj_sample;
 
+/* The largest temporal offset of the options (0 = none). */
+int nj_data_max_offset(const nj_data_options *o);
 /* Number of samples a sequence yields under the options. */
 int nj_sequence_samples(const nj_sequence *s, const nj_data_options *o, nj_sample *out, int seq);
 /* All samples of the sequences in `split` (malloc'd into *out).  Returns the

@@ -37,13 +37,13 @@ int nj_dataset_open(const char *path, const nj_data_options *o, nj_dataset *ds, 
         nj_sequence *s = &ds->seq[i];
         nj_sequence_validate(s, o, pr);
         if (!s->problems && s->nframes && !nj_sequence_samples(s, o, NULL, i))
-            nj_warning(pr, "%s: sequence \"%s\" yields no samples (%d usable frames, k = %d)",
-                       s->images, s->name, s->nkept, o->k);
+            nj_warning(pr, "%s: sequence \"%s\" yields no samples (%d usable frames, largest offset %d)",
+                       s->images, s->name, s->nkept, nj_data_max_offset(o));
     }
     share_maps(ds);
     if (pr->n == before && split_samples(ds, o, NJ_SPLIT_TRAIN) == 0)
         nj_problem(pr, "%s: no usable training samples (needs a \"train\" sequence with at least %d usable frames%s)",
-                   path, 2 * o->k + 1, o->stereo ? " or a stereo partner" : "");
+                   path, 2 * nj_data_max_offset(o) + 1, o->stereo ? " or a stereo partner" : "");
     return pr->n - before;
 }
 
@@ -65,9 +65,12 @@ static void report_sequence(const nj_sequence *s, const nj_data_options *o, int 
 
 void nj_dataset_report(const nj_dataset *ds, const nj_data_options *o, const nj_problems *pr, FILE *f)
 {
-    fprintf(f, "dataset %s: %d sequence%s (k = %d, stereo %s, duplicate threshold %g%s)\n", ds->path ? ds->path : "?",
-            ds->nseq, ds->nseq == 1 ? "" : "s", o->k, o->stereo ? "on" : "off", o->dup_threshold,
-            o->headers_only ? "; headers only" : "");
+    char ks[64] = "none";
+    for (int i = 0, n = 0; i < o->noffsets && i < NJ_MAX_OFFSETS; i++)
+        n += snprintf(ks + n, sizeof ks - (size_t)n, "%s%d", i ? "," : "", o->offsets[i]);
+    fprintf(f, "dataset %s: %d sequence%s (frame offsets %s, stereo %s, duplicate threshold %g%s)\n",
+            ds->path ? ds->path : "?", ds->nseq, ds->nseq == 1 ? "" : "s", ks, o->stereo ? "on" : "off",
+            o->dup_threshold, o->headers_only ? "; headers only" : "");
     for (int i = 0; i < ds->nseq; i++) report_sequence(&ds->seq[i], o, i, f);
     fprintf(f, "samples%s: train %d, val %d, test %d\n", o->headers_only ? " (at most)" : "",
             split_samples(ds, o, NJ_SPLIT_TRAIN),

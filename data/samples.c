@@ -1,13 +1,24 @@
 /* data/samples.c — training samples from the kept frames of each sequence:
- * target t with sources t−k and t+k (within the same sequence, counted over
- * the frames kept after duplicate skipping) and/or the stereo partner. */
+ * target t with sources t−k and t+k for every offset k of the options (within
+ * the same sequence, counted over the frames kept after duplicate skipping)
+ * and/or the stereo partner.  Every sample has all of its offsets' sources, so
+ * a target needs the largest offset's room on both sides. */
 #include "data/dataset.h"
 #include <stdlib.h>
+
+int nj_data_max_offset(const nj_data_options *o)
+{
+    int k = 0;
+    for (int i = 0; i < o->noffsets && i < NJ_MAX_OFFSETS; i++)
+        if (o->offsets[i] > k) k = o->offsets[i];
+    return k;
+}
 
 int nj_sequence_samples(const nj_sequence *s, const nj_data_options *o, nj_sample *out, int seq)
 {
     int stereo = o->stereo && s->right_images != NULL;
-    int k = o->k > 0 ? o->k : 0;
+    int k = nj_data_max_offset(o);
+    int nk = k > 0 ? (o->noffsets < NJ_MAX_OFFSETS ? o->noffsets : NJ_MAX_OFFSETS) : 0;
     if (!k && !stereo) return 0;
     int count = 0;
     for (int j = k; j + k < s->nkept; j++) {
@@ -15,9 +26,12 @@ int nj_sequence_samples(const nj_sequence *s, const nj_data_options *o, nj_sampl
             nj_sample *p = &out[count];
             p->seq = seq;
             p->target = s->kept[j];
-            p->nsrc = k ? 2 : 0;
-            p->src[0] = k ? s->kept[j - k] : -1;
-            p->src[1] = k ? s->kept[j + k] : -1;
+            p->nsrc = 2 * nk;
+            for (int i = 0; i < 2 * NJ_MAX_OFFSETS; i++) p->src[i] = -1;
+            for (int i = 0; i < nk; i++) {
+                p->src[2 * i] = s->kept[j - o->offsets[i]];
+                p->src[2 * i + 1] = s->kept[j + o->offsets[i]];
+            }
             p->stereo = stereo;
         }
         count++;

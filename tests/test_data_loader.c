@@ -14,6 +14,9 @@
  *    side (stereo_tx = +baseline), the flipped target reprojects onto the
  *    flipped partner; and onto the flipped next frame with the mirrored pose
  *    S·T·S, S = diag(−1, 1, 1).  The reprojection here is this test's own.
+ *  - several frame offsets ({1, 3}): each sample carries t−1, t+1, t−3, t+3 in
+ *    that order, only targets with room for the largest offset are used, and
+ *    the loader's source planes are those frames decoded and resized;
  *  - a file that disappears gives an error naming it. */
 #include "data/dataset.h"
 #include "data/image.h"
@@ -363,6 +366,57 @@ static void test_flip_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     nj_loader_destroy(L);
 }
 
+/* Offsets {1, 3} on the 10-frame sequence (no duplicates skipped): targets
+ * 3..6, sources in offset order; the batch's four source planes per item are
+ * the named frames (the frame the loader makes is the decoded, resized file:
+ * test_clean_and_camera). */
+static void test_multi_offsets(const char *json)
+{
+    nj_data_options o;
+    nj_data_options_default(&o);
+    o.dup_threshold = 0;
+    o.stereo = 0;
+    o.offsets[0] = 1;
+    o.offsets[1] = 3;
+    o.noffsets = 2;
+    nj_problems pr;
+    nj_problems_init(&pr);
+    nj_dataset ds;
+    nj_sample *s = NULL;
+    int bad = nj_dataset_open(json, &o, &ds, &pr), n = bad ? 0 : nj_dataset_samples(&ds, NJ_SPLIT_TRAIN, &o, &s);
+    nj_problems_free(&pr);
+    int order = n == 4;
+    for (int i = 0; order && i < n; i++) {
+        int t = 3 + i;
+        order = s[i].target == t && s[i].nsrc == 4 && s[i].src[0] == t - 1 && s[i].src[1] == t + 1 &&
+                s[i].src[2] == t - 3 && s[i].src[3] == t + 3;
+    }
+    check(order, "loader_offsets_1_3_samples", "%d samples; want 4 with targets 3..6 and sources t-1, t+1, t-3, t+3", n);
+    nj_loader *L = order ? make(&ds, s, n, 5, 2, 0, 64, 48) : NULL;
+    char err[512];
+    const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL;
+    int ok = b && b->nsrc == 4;
+    size_t img = (size_t)3 * 64 * 48;
+    for (int i = 0; ok && i < b->n; i++)
+        for (int j = 0; ok && j < 4; j++) {
+            const nj_sample *q = &s[b->sample[i]];
+            const nj_sequence *sq = &ds.seq[q->seq];
+            nj_image im, r;
+            char *path = nj_path_join(sq->images, sq->frames[q->src[j]]);
+            ok = !nj_image_load(path, &im, err, sizeof err) && !nj_image_resize(&im, 64, 48, &r);
+            free(path);
+            if (!ok) break;
+            if (b->flipped[i]) flip_plane(r.data, 3, 64, 48);
+            ok = !memcmp(r.data, b->sources + ((size_t)i * 4 + j) * img, sizeof(float) * img);
+            nj_image_free(&im);
+            nj_image_free(&r);
+        }
+    check(ok, "loader_offsets_1_3_source_planes", "a source plane is not its frame decoded and resized");
+    nj_loader_destroy(L);
+    free(s);
+    if (!bad) nj_dataset_free(&ds);
+}
+
 static void test_missing_file(nj_dataset *ds, const nj_sample *s, int n)
 {
     char err[512] = "", *path = nj_path_join(ds->seq[0].images, ds->seq[0].frames[s[0].target]);
@@ -407,6 +461,7 @@ int main(void)
     test_clean_and_camera(&ds, s, n);
     test_jitter_identical();
     test_flip_geometry(&ds, s, n, poses);
+    test_multi_offsets(json);
     test_missing_file(&ds, s, n);
     free(s);
     nj_dataset_free(&ds);

@@ -373,7 +373,7 @@ static int rectify_with_loader(const char *dir, const nj_dataset *ds)
 {
     nj_data_options o;
     nj_data_options_default(&o);
-    o.k = 0;
+    o.noffsets = 0;
     nj_sample *smp = NULL;
     int n = nj_dataset_samples(ds, NJ_SPLIT_TRAIN, &o, &smp), written = 0;
     const nj_sequence *s = &ds->seq[0];
@@ -449,7 +449,7 @@ static void test_chessboard(void)
     nj_problems_init(&pr);
     nj_data_options o;
     nj_data_options_default(&o);
-    o.k = 0;
+    o.noffsets = 0;
     o.dup_threshold = 0;
     int bad = make_chess_dataset(dir, calib, json, sizeof json) ? -1 : nj_dataset_open(json, &o, &ds, &pr);
     if (bad) nj_problems_print(&pr, stdout);

@@ -11,11 +11,20 @@
  *    itself, i.e. 0, under the identity motion; without it the error is the
  *    one of the brightness change.  A gain beyond the limit (x2) is not fully
  *    undone (the limit holds).
+ *  - several frame offsets: a step whose batch lists its two sources twice
+ *    (as offsets k and k' would: t−k, t+k, t−k', t+k') must give the same
+ *    photometric loss as the two alone — the loss takes the per-pixel
+ *    minimum over sources, so duplicates change nothing *if* each copy is
+ *    paired and oriented like the original (even j earlier: pose net on
+ *    (source, target), inverted).  Pose outputs are scaled up so that a
+ *    wrongly oriented pair would move the warp by pixels.
  */
 #include "losses/pose.h"
 #include "losses/view_synthesis.h"
 #include "nn/graph.h"
 #include "tests/check.h"
+#include "train/loop/config.h"
+#include "train/loop/step.h"
 #include "train/model/model.h"
 #include <math.h>
 #include <stdio.h>
@@ -163,8 +172,64 @@ static void test_arc_slip(void)
     nj_graph_free(g);
 }
 
+/* Photometric loss of one forward step on a fixed batch whose two sources
+ * appear `copies` times. */
+static float offsets_step(int copies)
+{
+    nj_train_config cfg;
+    nj_train_config_default(&cfg);
+    cfg.video = 1;
+    cfg.stereo = 0;
+    cfg.loss.arc_motion = 0;
+    nj_model_config mc = cfg.model;
+    mc.stages = 3;
+    mc.scales = 3;
+    mc.pose_stages = 3;
+    mc.width = 0.5f;
+    mc.pose_width = 0.5f;
+    mc.pose_scale = 2.0f;       /* untrained outputs would otherwise be ~identity motions */
+    mc.rotation_scale = 0.2f;
+    mc.seed = 9;
+    nj_model m;
+    char err[256];
+    if (nj_model_init(&m, &mc, err, sizeof err)) { check(0, "offsets: model", "%s", err); return NAN; }
+    nj_batch b;
+    nj_graph *g = nj_graph_new(1 << 22);
+    if (nj_batch_alloc(&b, 2, H, W, 2 * copies, 0, 0)) { nj_model_free(&m); nj_graph_free(g); return NAN; }
+    nj_tensor *t = nj_tensor_new(g, 2, 3, H, W, 0), *s0 = nj_tensor_new(g, 2, 3, H, W, 0),
+              *s1 = nj_tensor_new(g, 2, 3, H, W, 0);
+    fill_image(t, 11, 0.9f);
+    fill_image(s0, 12, 0.9f);
+    fill_image(s1, 13, 0.9f);
+    size_t img = (size_t)3 * H * W;
+    for (int i = 0; i < 2; i++) {
+        memcpy(b.target + i * img, t->data + i * img, img * sizeof(float));
+        for (int c = 0; c < copies; c++) {
+            memcpy(b.sources + ((size_t)i * 2 * copies + 2 * c) * img, s0->data + i * img, img * sizeof(float));
+            memcpy(b.sources + ((size_t)i * 2 * copies + 2 * c + 1) * img, s1->data + i * img, img * sizeof(float));
+        }
+        b.camera[i] = (nj_camera){50.0f, 50.0f, 31.5f, 15.5f};
+    }
+    nj_graph_reset(g);
+    nj_step_result r;
+    float l = nj_train_step(g, &m, &cfg, &b, NULL, 0, &r) ? NAN : r.photometric;
+    if (isnan(l)) check(0, "offsets: step", "%s", nj_graph_error(g));
+    nj_batch_free(&b);
+    nj_graph_free(g);
+    nj_model_free(&m);
+    return l;
+}
+
+static void test_offsets_step(void)
+{
+    float one = offsets_step(1), two = offsets_step(2);
+    check(fabsf(one - two) <= 1e-6f * fabsf(one) && one > 0, "offsets: sources listed twice give the same loss",
+          "one offset %.9g, the same two sources listed as two offsets %.9g", one, two);
+}
+
 int main(void)
 {
+    test_offsets_step();
     test_arc_slip();
     test_rotation_scale();
     test_gain_match();

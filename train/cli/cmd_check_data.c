@@ -28,11 +28,11 @@ int nj_check_data_main(int argc, char **argv)
     nj_data_options o;
     nj_data_options_default(&o);
     const char *path = NULL;
-    int no_stereo = 0, quick = 0;
+    int no_stereo = 0, quick = 0, k = 1;
     nj_opt opts[] = {
         {.kind = NJ_OPT_ARG, .meta = "DATASET.json", .help = "the dataset description", .required = 1, .str = &path},
         {.name = "--k", .kind = NJ_OPT_INT, .meta = "N", .lo = 0, .hi = 100,
-         .help = "temporal sources t-N and t+N (0 = stereo only)", .i = &o.k},
+         .help = "temporal sources t-N and t+N (0 = stereo only)", .i = &k},
         {.name = "--no-stereo", .kind = NJ_OPT_FLAG, .help = "ignore stereo partners when counting samples",
          .flag = &no_stereo},
         {.name = "--dup-threshold", .kind = NJ_OPT_FLOAT, .meta = "X", .lo = 0, .hi = 1,
@@ -49,6 +49,8 @@ int nj_check_data_main(int argc, char **argv)
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     if (no_stereo) o.stereo = 0;
+    o.offsets[0] = k;
+    o.noffsets = k > 0;
     o.headers_only = quick;
     char cache[4096];
     if (!quick && !nj_scan_cache_dir(cache, sizeof cache)) o.scan_cache = cache;   /* written, never read */

@@ -84,7 +84,7 @@ static int open_split(const nj_eval_options *a, nj_dataset *ds, char *err, size_
     nj_problems_init(&pr);
     nj_data_options o;
     nj_data_options_default(&o);
-    o.k = 0;
+    o.noffsets = 0;
     o.stereo = 0;
     o.dup_threshold = 0;
     int n = nj_dataset_parse(a->data, ds, &pr), used = 0;

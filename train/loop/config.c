@@ -76,6 +76,15 @@ const int nj_config_nfields = (int)(sizeof nj_config_fields / sizeof nj_config_f
 const char *const nj_config_sections[] = {"run", "data", "data.augment", "model", "loss", "optim"};
 const int nj_config_nsections = (int)(sizeof nj_config_sections / sizeof nj_config_sections[0]);
 
+void nj_train_config_data_options(const nj_train_config *c, nj_data_options *o)
+{
+    nj_data_options_default(o);
+    o->noffsets = c->video ? c->noffsets : 0;
+    for (int i = 0; i < o->noffsets; i++) o->offsets[i] = c->offsets[i];
+    o->stereo = c->stereo;
+    o->dup_threshold = c->duplicate_threshold;
+}
+
 void nj_train_config_default(nj_train_config *c)
 {
     memset(c, 0, sizeof *c);

@@ -38,12 +38,12 @@
  */
 #ifndef NJ_CONFIG_H
 #define NJ_CONFIG_H
+#include "data/dataset.h"
 #include "train/model/model.h"
 #include "losses/view_synthesis.h"
 #include <stddef.h>
 
 #define NJ_PATH_MAX 1024
-#define NJ_MAX_OFFSETS 4
 
 typedef struct nj_train_config {
     /* run */
@@ -90,6 +90,9 @@ char *nj_train_config_to_json(const nj_train_config *c);
 int nj_train_config_load_text(nj_train_config *c, const char *json, const char *origin,
                               char *err, size_t errlen);
 /* Learning rate at `step` (warm-up, then cosine to lr_min or step decay). */
+/* The data options the run's samples come from: every frame offset (video
+ * runs), stereo, the duplicate threshold (training and the report gallery). */
+void nj_train_config_data_options(const nj_train_config *c, nj_data_options *o);
 float nj_train_config_lr(const nj_train_config *c, long step, long total_steps);
 
 #endif

@@ -31,7 +31,8 @@ static float mean_translation(const nj_tensor *v)
 }
 
 /* Temporal sources: pose net on (earlier, later) frame pairs; the pair with
- * the earlier source is inverted so every pose maps target → source. */
+ * the earlier source (even j: t−k) is inverted so every pose maps target →
+ * source.  Several offsets give the pose net pairs of several frame gaps. */
 /* Scale-free slips below this translation length count as standing still. */
 #define SLIP_EPS 1e-3f
 
@@ -42,9 +43,10 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
     for (int j = 0; j < b->nsrc && in->nsources < NJ_MAX_SOURCES; j++) {
         nj_tensor *src = gather_source(g, b, b->sources, j);
         nj_tensor *src_in = b->sources_in == b->sources ? src : gather_source(g, b, b->sources_in, j);
-        nj_tensor *vec = j == 0 ? nj_pose_forward(g, m, src_in, tgt_in) : nj_pose_forward(g, m, tgt_in, src_in);
+        int earlier = j % 2 == 0;
+        nj_tensor *vec = earlier ? nj_pose_forward(g, m, src_in, tgt_in) : nj_pose_forward(g, m, tgt_in, src_in);
         nj_tensor *T = nj_pose_from_vec(g, vec);
-        if (j == 0) T = nj_pose_invert(g, T);
+        if (earlier) T = nj_pose_invert(g, T);
         if (cfg->loss.arc_motion > 0) {
             nj_tensor *s = nj_mean(g, nj_arc_slip(g, vec, SLIP_EPS), NJ_AXIS_ALL);
             *slip = *slip ? nj_add(g, *slip, s) : s;

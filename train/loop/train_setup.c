@@ -39,10 +39,7 @@ uint64_t nj_dataset_hash(const nj_dataset *ds)
 static int open_data(nj_trainer *t, char *err, size_t errlen)
 {
     const nj_train_config *c = &t->cfg;
-    nj_data_options_default(&t->dopt);
-    t->dopt.k = c->video ? c->offsets[0] : 0;
-    t->dopt.stereo = c->stereo;
-    t->dopt.dup_threshold = c->duplicate_threshold;
+    nj_train_config_data_options(c, &t->dopt);
     /* the scan cache (data/scancache.h): without it, every start decodes every
      * frame (100,000 frames of 320x240: minutes before the first step) */
     char cache[4096];

@@ -71,10 +71,7 @@ static int candidates(const char *run_dir, char names[MAX_CANDIDATES][32])
 static int pick_frames(gallery *G, char *err, size_t errlen)
 {
     nj_data_options o;
-    nj_data_options_default(&o);
-    o.k = G->cfg.video ? G->cfg.offsets[0] : 0;
-    o.stereo = G->cfg.stereo;
-    o.dup_threshold = G->cfg.duplicate_threshold;
+    nj_train_config_data_options(&G->cfg, &o);
     char cache[4096];   /* the validation split's scan, cached by train (data/scancache.h) */
     if (!nj_scan_cache_dir(cache, sizeof cache)) {
         o.scan_cache = cache;

@@ -9,7 +9,9 @@
  *   - undistorted points: cv2.undistortPointsIter / cv2.fisheye.undistortPoints
  *     within 0.001 px;
  *   - a raw rig: cv2.stereoRectify's R1, R2 within 1e-9, the maps with
- *     OpenCV's rotations within 0.01 px;
+ *     OpenCV's rotations within 0.01 px; ground-truth depth carried into the
+ *     rectified (rotated) view — what eval scores against: a plane at
+ *     source depth d must read d / (R1ᵀ·K'⁻¹·[x y 1])_z with OpenCV's R1;
  *   - the chessboard stereo pairs of Debian's opencv-doc, calibrated by OpenCV
  *     (stereoCalibrate), rectified by nightjar's loader: matching corners on
  *     the same row (RMS and 95th percentile of |Δy| ≤ 0.5 px), beside
@@ -248,6 +250,33 @@ static double rot_diff(const double *a, cJSON *b)
     return m;
 }
 
+/* Ground truth of the rig's left camera in its rectified view: a constant
+ * source depth d (a fronto-parallel plane) becomes z' = d / (R1ᵀ r')_z along
+ * the view ray r' = K'⁻¹[x y 1], with R1 (source → rectified) from
+ * cv2.stereoRectify.  Relative error over every pixel. */
+static double rig_depth_error(const nj_undistort *u, cJSON *R1)
+{
+    if (cJSON_GetArraySize(R1) != 9) return INFINITY;
+    double R[9];
+    for (int i = 0; i < 9; i++) R[i] = cJSON_GetArrayItem(R1, i)->valuedouble;
+    size_t n = (size_t)u->view.w * u->view.h;
+    float *src = malloc(n * sizeof(float)), *dst = malloc(n * sizeof(float));
+    double worst = src && dst ? 0 : INFINITY;
+    for (size_t i = 0; src && dst && i < n; i++) src[i] = 7.5f;
+    if (src && dst) nj_undistort_depth(u, src, dst);
+    const nj_camera *K = &u->view.out;
+    for (int y = 0; src && dst && y < u->view.h; y++)
+        for (int x = 0; x < u->view.w; x++) {
+            double r[3] = {(x - K->cx) / K->fx, (y - K->cy) / K->fy, 1.0};
+            double sz = R[2] * r[0] + R[5] * r[1] + R[8] * r[2];   /* (R1ᵀ r)_z */
+            double want = 7.5 / sz, got = dst[(size_t)y * u->view.w + x];
+            worst = fmax(worst, fabs(got - want) / want);
+        }
+    free(src);
+    free(dst);
+    return worst;
+}
+
 static void check_case(const char *dir, const nj_undistort *u, const lcase *c, const char *name, cJSON *cv,
                        const nj_camera *K, const nj_lens *L)
 {
@@ -302,6 +331,9 @@ static void test_against_opencv(void)
            "rig: rectifying rotations R1, R2 and baseline vs OpenCV cv2.stereoRectify",
            "max |R1 - R1cv| %.2g, |R2 - R2cv| %.2g (limit 1e-9); baseline %.9g vs %.9g m", e1, e2, b,
            base ? base->valuedouble : NAN);
+    double de = rig_depth_error(&u[NCASES - 1], cJSON_GetObjectItem(r, "R1"));
+    checkv(de <= 1e-5, "rig: ground-truth depth in the rectified view (plane through OpenCV's R1)",
+           "worst relative error %.2g (limit 1e-5)", de);
     if (cJSON_GetArraySize(cvp) == 4)
         printf("info rig pinhole: ours fx %.2f cx %.2f cy %.2f; OpenCV stereoRectify alpha=0 fx %.2f cx %.2f cy %.2f\n",
                u[NCASES - 1].view.out.fx, u[NCASES - 1].view.out.cx, u[NCASES - 1].view.out.cy,

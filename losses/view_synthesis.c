@@ -69,7 +69,9 @@ static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs
     int grad_was = nj_graph_grad_enabled(g);
     nj_graph_set_grad(g, 0);  /* depends on no parameter */
     nj_tensor *m = NULL;
+    unsigned skip = (in->mask_skip & ((1u << in->nsources) - 1)) == (1u << in->nsources) - 1 ? 0 : in->mask_skip;
     for (int s = 0; s < in->nsources; s++) {
+        if (skip & (1u << s)) continue;
         nj_tensor *pe = nj_photometric_error(g, in->sources[s], in->target, cfg->alpha);
         m = m ? nj_minimum(g, m, pe) : pe;
     }

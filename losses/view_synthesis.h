@@ -36,6 +36,10 @@ typedef struct nj_vs_config {
     float tie_break;       /* std-dev of the identity errors' noise, 1e-5; 0 = none */
     float saturation_guard;/* weight of the saturation guard (below), 0 = none */
     int gain_match;        /* 1: scale each source by mean(target)/mean(source) first */
+    int automask_widest;   /* 1: the auto-mask's un-warped error comes from the sources of
+                              the widest frame offset only (nj_vs_input.mask_skip, set by
+                              the training step): far structure that barely moves between
+                              neighbouring frames does move there, and is not masked */
     float arc_motion;      /* weight of the predicted motions' arc slip (losses/pose.h
                               nj_arc_slip), added by the training step; 0 = none */
 } nj_vs_config;
@@ -45,6 +49,8 @@ typedef struct nj_vs_input {
     nj_tensor *sources[NJ_MAX_SOURCES];     /* N×3×H×W */
     nj_tensor *poses[NJ_MAX_SOURCES];       /* N×1×3×4, target → source */
     int nsources;
+    unsigned mask_skip;                     /* bit s: source s is left out of the auto-mask's
+                                               un-warped minimum (never all of them); 0 = none */
     const nj_camera *cams;                  /* N intrinsics at H×W */
     nj_tensor *disp[NJ_MAX_SCALES];         /* sigmoid outputs, N×1×(H/2^s)×(W/2^s) */
     nj_depth_range depth_range;             /* what the disparities mean (the model's

@@ -11,6 +11,11 @@
  *    itself, i.e. 0, under the identity motion; without it the error is the
  *    one of the brightness change.  A gain beyond the limit (x2) is not fully
  *    undone (the limit holds).
+ *  - loss.automask_widest (nj_vs_input.mask_skip): with one source equal to
+ *    the target (a static scene at a short offset) every pixel's un-warped
+ *    error is 0 and the auto-mask drops nearly all of them; leaving that
+ *    source out of the un-warped minimum keeps the pixels the other source
+ *    explains better warped than un-warped.
  *  - several frame offsets: a step whose batch lists its two sources twice
  *    (as offsets k and k' would: t−k, t+k, t−k', t+k') must give the same
  *    photometric loss as the two alone — the loss takes the per-pixel
@@ -128,6 +133,44 @@ static float identity_loss(float gain, int match)
     return l;
 }
 
+/* Share of pixels the auto-mask keeps, sources {target itself, a random
+ * frame}, the first left out of the un-warped minimum when `skip`. */
+static float widest_mask_share(int skip)
+{
+    nj_graph *g = nj_graph_new(1 << 22);
+    nj_tensor *tgt = nj_tensor_new(g, 1, 3, H, W, 0), *other = nj_tensor_new(g, 1, 3, H, W, 0);
+    fill_image(tgt, 21, 0.9f);
+    fill_image(other, 22, 0.9f);
+    nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
+    for (size_t i = 0; i < nj_numel(disp); i++) disp->data[i] = 0.3f;
+    float tx = 0.0f;
+    nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
+    nj_tensor *id = nj_pose_stereo(g, 1, &tx);
+    nj_vs_input in = {.target = tgt, .sources = {tgt, other}, .poses = {id, id}, .nsources = 2,
+                      .mask_skip = skip ? 1u : 0u, .cams = &cam, .disp = {disp}, .nscales = 1,
+                      .depth_range = {0.1f, 100.0f}, .rng = NULL};
+    nj_vs_config cfg;
+    nj_vs_config_default(&cfg);
+    cfg.automask = 1;
+    cfg.tie_break = 0;
+    nj_vs_output out;
+    float f = nj_view_synthesis_loss(g, &cfg, &in, &out) ? NAN : out.mask_fraction;
+    nj_graph_free(g);
+    return f;
+}
+
+static void test_automask_widest(void)
+{
+    float all = widest_mask_share(0), widest = widest_mask_share(1);
+    /* all sources: the identity error of the copy (0) ties its warped error
+     * (0, identity motion) and the strict comparison masks the pixel;
+     * without the copy the un-warped error is the random frame's (large),
+     * the warped minimum is still the copy's 0: every pixel kept */
+    check(all < 0.01f && widest > 0.99f, "automask_widest: a source left out of the un-warped minimum",
+          "mask keeps %.3f of the pixels with every source, %.3f with the copy left out (want < 0.01 and > 0.99)",
+          all, widest);
+}
+
 static void test_gain_match(void)
 {
     float off = identity_loss(1.25f, 0), on = identity_loss(1.25f, 1), same = identity_loss(1.0f, 0);
@@ -174,13 +217,21 @@ static void test_arc_slip(void)
 
 /* Photometric loss of one forward step on a fixed batch whose two sources
  * appear `copies` times. */
-static float offsets_step(int copies)
+static float offsets_step(int copies, int widest, float *mask_share)
 {
     nj_train_config cfg;
     nj_train_config_default(&cfg);
     cfg.video = 1;
     cfg.stereo = 0;
     cfg.loss.arc_motion = 0;
+    if (widest >= 0) {   /* offsets {1, 2}: sources 0, 1 (offset 1) are copies of the target */
+        cfg.offsets[0] = 1;
+        cfg.offsets[1] = 2;
+        cfg.noffsets = 2;
+        cfg.loss.automask = 1;
+        cfg.loss.tie_break = 0;
+        cfg.loss.automask_widest = widest;
+    }
     nj_model_config mc = cfg.model;
     mc.stages = 3;
     mc.scales = 3;
@@ -205,14 +256,16 @@ static float offsets_step(int copies)
     for (int i = 0; i < 2; i++) {
         memcpy(b.target + i * img, t->data + i * img, img * sizeof(float));
         for (int c = 0; c < copies; c++) {
-            memcpy(b.sources + ((size_t)i * 2 * copies + 2 * c) * img, s0->data + i * img, img * sizeof(float));
-            memcpy(b.sources + ((size_t)i * 2 * copies + 2 * c + 1) * img, s1->data + i * img, img * sizeof(float));
+            const float *a = widest >= 0 && c == 0 ? t->data : s0->data, *z = widest >= 0 && c == 0 ? t->data : s1->data;
+            memcpy(b.sources + ((size_t)i * 2 * copies + 2 * c) * img, a + i * img, img * sizeof(float));
+            memcpy(b.sources + ((size_t)i * 2 * copies + 2 * c + 1) * img, z + i * img, img * sizeof(float));
         }
         b.camera[i] = (nj_camera){50.0f, 50.0f, 31.5f, 15.5f};
     }
     nj_graph_reset(g);
     nj_step_result r;
     float l = nj_train_step(g, &m, &cfg, &b, NULL, 0, &r) ? NAN : r.photometric;
+    if (mask_share) *mask_share = r.mask_fraction;
     if (isnan(l)) check(0, "offsets: step", "%s", nj_graph_error(g));
     nj_batch_free(&b);
     nj_graph_free(g);
@@ -222,14 +275,21 @@ static float offsets_step(int copies)
 
 static void test_offsets_step(void)
 {
-    float one = offsets_step(1), two = offsets_step(2);
+    float one = offsets_step(1, -1, NULL), two = offsets_step(2, -1, NULL), all = NAN, widest = NAN;
     check(fabsf(one - two) <= 1e-6f * fabsf(one) && one > 0, "offsets: sources listed twice give the same loss",
           "one offset %.9g, the same two sources listed as two offsets %.9g", one, two);
+    /* the step wires loss.automask_widest to the offset-1 sources: the static
+     * copies at offset 1 mask (nearly) everything unless left out */
+    offsets_step(2, 0, &all);
+    offsets_step(2, 1, &widest);
+    check(all < 0.05f && widest > 0.9f, "automask_widest: the step leaves the shorter offset's sources out",
+          "mask keeps %.3f with every source, %.3f against offset 2 only (want < 0.05 and > 0.9)", all, widest);
 }
 
 int main(void)
 {
     test_offsets_step();
+    test_automask_widest();
     test_arc_slip();
     test_rotation_scale();
     test_gain_match();

@@ -40,6 +40,8 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
                      nj_tensor *tgt_in, nj_vs_input *in, float *translation, nj_tensor **slip)
 {
     float t = 0;
+    int widest = 0;
+    for (int i = 0; i < cfg->noffsets; i++) widest = cfg->offsets[i] > widest ? cfg->offsets[i] : widest;
     for (int j = 0; j < b->nsrc && in->nsources < NJ_MAX_SOURCES; j++) {
         nj_tensor *src = gather_source(g, b, b->sources, j);
         nj_tensor *src_in = b->sources_in == b->sources ? src : gather_source(g, b, b->sources_in, j);
@@ -53,6 +55,9 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
         }
         if (!T) return -1;
         t += mean_translation(vec);
+        /* auto-mask against the widest offset only (loss.automask_widest) */
+        if (cfg->loss.automask_widest && j / 2 < cfg->noffsets && cfg->offsets[j / 2] < widest)
+            in->mask_skip |= 1u << in->nsources;
         in->sources[in->nsources] = src;
         in->poses[in->nsources++] = T;
     }

@@ -81,10 +81,12 @@ void nj_mesh_free(nj_mesh *m);
  * vector) onto the plane spanned by `right` and `ahead` (unit, orthogonal to
  * down), each pixel coloured by the highest surface above it (bracken map,
  * low = dark), the camera path (n centres, 3 each) as a line with a start
- * disc and an end square, and a scale bar labelled in `unit`.  *out is
+ * disc and an end square, and a scale bar labelled in `unit`.  A pixel
+ * covers at least `cell` (the voxel size: every surface voxel then colours
+ * its pixel) and the longer side has at most 1000 pixels.  *out is
  * allocated here (planar RGB as data/image.h).  Returns 0 or -1. */
 int nj_map_picture(const nj_mesh *m, const double *path, int n, const double down[3], const double right[3],
-                   const double ahead[3], const char *unit, nj_image *out, char *err, size_t errlen);
+                   const double ahead[3], double cell, const char *unit, nj_image *out, char *err, size_t errlen);
 
 /* ---- the command --------------------------------------------------------------- */
 

@@ -12,9 +12,9 @@
  *   map_refuses_*   the inputs the test builds (too few frames, a cap too
  *                   small, a pose with a scaled rotation);
  *   map_report_*    the report's HTML text. */
-#include "check.h"
-#include "e2e_support.h"
-#include "test_data_util.h"
+#include "tests/check.h"
+#include "tests/e2e_support.h"
+#include "tests/test_data_util.h"
 #include "data/npy.h"
 #include "data/poses.h"
 #include "data/scene_gen.h"

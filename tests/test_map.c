@@ -99,6 +99,162 @@ static void test_mcubes(const char *argv0, const char *dir)
     nj_tsdf_free(t);
 }
 
+/* ---- the fused map of a synthetic sequence from its ground truth ------------------- */
+
+/* Vertices of one of our binary PLY files (header as nj_ply_write_mesh writes
+ * it: "element vertex N" first, 15-byte records).  Returns the count or -1. */
+static long read_vertices(const char *path, float **xyz)
+{
+    size_t len = 0;
+    char *t = e2e_slurp(path, &len);
+    char *end = t ? strstr(t, "end_header\n") : NULL, *v = t ? strstr(t, "element vertex ") : NULL;
+    long n = v ? atol(v + 15) : -1;
+    size_t off = end ? (size_t)(end - t) + 11 : 0;
+    *xyz = n > 0 ? malloc(sizeof(float) * 3 * n) : NULL;
+    if (!end || n <= 0 || !*xyz || off + 15 * (size_t)n > len) {
+        free(t);
+        return -1;
+    }
+    for (long i = 0; i < n; i++) memcpy(*xyz + 3 * i, t + off + 15 * i, 12);   /* little-endian host */
+    free(t);
+    return n;
+}
+
+static int cmp_float(const void *a, const void *b)
+{
+    float x = *(const float *)a, y = *(const float *)b;
+    return (x > y) - (x < y);
+}
+
+static nj_synth_config small_yard(const char *dir)
+{
+    static char out[300];
+    snprintf(out, sizeof out, "%s/data", dir);
+    nj_synth_config c;
+    nj_synth_config_default(&c);
+    c.out = out;
+    c.seed = 11;
+    c.frames = 30;
+    c.sequences = 1;
+    c.width = 160;
+    c.height = 120;
+    return c;
+}
+
+static void test_truth_map(const char *dir, const nj_synth_config *sc)
+{
+    nj_map_options o;
+    nj_map_options_default(&o);
+    char data[300], out[300], ply[320], err[1024];
+    snprintf(data, sizeof data, "%s/dataset.json", sc->out);
+    snprintf(out, sizeof out, "%s/run/map", dir);
+    o.data = data;
+    o.sequence = "yard-00";
+    o.out = out;
+    o.source = NJ_MAP_TRUTH;
+    nj_map_result res;
+    nj_scene s;
+    float *xyz = NULL;
+    int rc = nj_map_run(&o, &res, err, sizeof err);
+    snprintf(ply, sizeof ply, "%s/%s", out, NJ_MAP_MESH);
+    long n = rc ? -1 : read_vertices(ply, &xyz);
+    if (n < 0 || nj_synth_yard(sc, 0, &s)) {
+        check(0, "map_truth_surface", "map failed: %s", rc ? err : "mesh unreadable");
+        free(xyz);
+        return;
+    }
+    float *d = malloc(sizeof(float) * n);
+    for (long i = 0; d && i < n; i++) d[i] = nj_scene_distance(&s, xyz + 3 * i) / o.voxel;
+    if (d) qsort(d, (size_t)n, sizeof *d, cmp_float);
+    float med = d ? d[n / 2] : INFINITY, p95 = d ? d[(long)(0.95 * (n - 1))] : INFINITY;
+    /* the issue's bound: the fused surface within 1.5 voxels of the true one */
+    checkv(med <= 1.5f && p95 <= 1.5f && n > 10000, "map_truth_surface",
+           "%ld vertices, distance to the analytic yard: median %.3f, p95 %.3f voxels (%.3g m voxels)", n, med, p95,
+           o.voxel);
+    free(d);
+    free(xyz);
+    nj_scene_free(&s);
+
+    /* the chained trajectory against the poses synth wrote */
+    char poses[320], path[320];
+    snprintf(poses, sizeof poses, "%s/yard-00/poses.txt", sc->out);
+    snprintf(path, sizeof path, "%s/%s", out, NJ_MAP_PATH);
+    double *gt = NULL;
+    int np = nj_poses_read(poses, &gt, err, sizeof err);
+    long nt = read_vertices(path, &xyz);
+    double worst = nt == np ? 0 : INFINITY;
+    for (long i = 0; nt == np && i < nt; i++)
+        for (int k = 0; k < 3; k++) worst = fmax(worst, fabs(xyz[3 * i + k] - gt[12 * i + 4 * k + 3]));
+    /* float storage of metre-scale coordinates: 1e-5 m */
+    checkv(np == sc->frames && worst <= 1e-5, "map_truth_trajectory",
+           "%ld path vertices for %d poses, largest centre difference %.3g m", nt, np, worst);
+    free(gt);
+    free(xyz);
+}
+
+/* ---- refusals and the report ------------------------------------------------------- */
+
+/* Runs the command; passes when it fails with status 1, one line naming
+ * `what`, and no output folder. */
+static void refuses(const char *dir, const char *name, const char *args, const char *what)
+{
+    char cmd[2400], log[320], out[320];
+    snprintf(out, sizeof out, "%s/refused-%s", dir, name);
+    snprintf(log, sizeof log, "%s/%s.log", dir, name);
+    snprintf(cmd, sizeof cmd, "%s map --threads 1 %s --out '%s'", e2e_bin(), args, out);
+    int rc = e2e_run(cmd, log);
+    char *text = e2e_slurp(log, NULL);
+    int lines = 0;
+    for (const char *c = text; c && *c; c++) lines += *c == '\n';
+    struct stat st;
+    check(rc == 1 && lines == 1 && text && strstr(text, what) && stat(out, &st) != 0, name,
+          "status %d, %d lines, output folder %s: %s", rc, lines, stat(out, &st) ? "absent" : "written",
+          text ? text : "(no log)");
+    free(text);
+}
+
+static void test_refusals(const char *dir, const nj_synth_config *sc)
+{
+    char args[1200], cmd[1400];
+    /* a sequence of one frame */
+    snprintf(cmd, sizeof cmd, "mkdir -p '%s/one/cam0' && cp '%s/yard-00/cam0/000000.png' '%s/one/cam0/'", dir, sc->out,
+             dir);
+    char json[320];
+    snprintf(json, sizeof json, "%s/one.json", dir);
+    int ok = system(cmd) == 0 &&
+             e2e_write(json, "{\"sequences\": [{\"name\": \"single\", \"images\": \"one/cam0\", "
+                             "\"camera\": {\"fx\": 96, \"fy\": 96, \"cx\": 85.9, \"cy\": 55.9}}]}\n") == 0;
+    snprintf(args, sizeof args, "--truth --data '%s' --sequence single", json);
+    if (ok) refuses(dir, "map_refuses_short_sequence", args, "at least 2");
+    else check(0, "map_refuses_short_sequence", "setup failed");
+    /* a cap that cannot hold the map */
+    snprintf(args, sizeof args, "--truth --data '%s/dataset.json' --sequence yard-00 --memory-mb 2", sc->out);
+    refuses(dir, "map_refuses_memory_cap", args, "budget");
+    /* a pose whose rotation is scaled by 1.05: not rigid */
+    snprintf(cmd, sizeof cmd,
+             "cp -r '%s' '%s/bent' && awk 'NR==5{for(i=1;i<=12;i++) if(i%%4) $i=$i*1.05} {print}' "
+             "'%s/yard-00/poses.txt' > '%s/bent/yard-00/poses.txt'",
+             sc->out, dir, sc->out, dir);
+    snprintf(args, sizeof args, "--truth --data '%s/bent/dataset.json' --sequence yard-00", dir);
+    if (system(cmd) == 0) refuses(dir, "map_refuses_non_rigid_pose", args, "pose 5 is not a rigid motion");
+    else check(0, "map_refuses_non_rigid_pose", "setup failed");
+}
+
+static void test_report(const char *dir)
+{
+    char run[320], html[340], err[512];
+    snprintf(run, sizeof run, "%s/run", dir);
+    snprintf(html, sizeof html, "%s/report.html", run);
+    nj_report_options o = {run, NULL, NULL, NULL, NULL};
+    int rc = nj_report_run(&o, err, sizeof err);
+    char *t = rc ? NULL : e2e_slurp(html, NULL);
+    const char *sec = t ? strstr(t, "<section id=\"map\">") : NULL;
+    check(sec && strstr(sec, "src=\"data:image/png;base64,iVBORw0KGgo") && !strstr(t, "http://") &&
+              !strstr(t, "https://") && strstr(sec, "yard-00"),
+          "map_report_shows_picture", "%s", rc ? err : sec ? "no embedded PNG, or a network reference" : "no map section");
+    free(t);
+}
+
 int main(int argc, char **argv)
 {
     (void)argc;
@@ -108,6 +264,16 @@ int main(int argc, char **argv)
         return test_exit();
     }
     test_mcubes(argv[0], dir);
+    nj_synth_config sc = small_yard(dir);
+    char err[512];
+    if (nj_synth_run(&sc, err, sizeof err)) {
+        check(0, "map_truth_surface", "synth: %s", err);
+    } else {
+        test_truth_map(dir, &sc);
+        test_report(dir);
+        if (e2e_have_binary()) test_refusals(dir, &sc);
+        else check(0, "map_refuses_short_sequence", "no program at %s (make nightjar)", e2e_bin());
+    }
     tdu_rmtree(dir);
     return test_exit();
 }

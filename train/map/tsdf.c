@@ -212,6 +212,24 @@ static int allocate(nj_tsdf *t, const float *depth, int w, int h, nj_camera cam,
     return 0;
 }
 
+/* Depth at sub-pixel (fu, fv): bilinear between the four pixels around it
+ * when all are valid and within 5% of each other (one surface), else the
+ * nearest pixel's `near`.  On ground seen at a grazing angle the nearest
+ * pixel's depth is off by up to half a pixel's depth step, which puts
+ * spurious zero crossings under the ground; interpolation removes most. */
+static float depth_at(const nj_tsdf *t, const float *depth, int w, int h, double fu, double fv, float near)
+{
+    int u0 = (int)floor(fu), v0 = (int)floor(fv);
+    if (u0 < 0 || v0 < 0 || u0 + 1 >= w || v0 + 1 >= h) return near;
+    const float *p = depth + (size_t)v0 * w + u0;
+    float a = p[0], b = p[1], c = p[w], d = p[w + 1];
+    if (!valid_depth(t, a) || !valid_depth(t, b) || !valid_depth(t, c) || !valid_depth(t, d)) return near;
+    float lo = fminf(fminf(a, b), fminf(c, d)), hi = fmaxf(fmaxf(a, b), fmaxf(c, d));
+    if (hi > 1.05f * lo) return near;
+    float x = (float)(fu - u0), y = (float)(fv - v0);
+    return (1 - y) * ((1 - x) * a + x * b) + y * ((1 - x) * c + x * d);
+}
+
 /* Step 2 for one block. */
 static void integrate_block(nj_tsdf *t, block *k, const float *depth, int w, int h, const nj_image *colour,
                             nj_camera cam, const double *T)
@@ -223,10 +241,11 @@ static void integrate_block(nj_tsdf *t, block *k, const float *depth, int w, int
         double p[3] = {i * vs - T[3], j * vs - T[7], l * vs - T[11]}, q[3];
         for (int a = 0; a < 3; a++) q[a] = T[a] * p[0] + T[4 + a] * p[1] + T[8 + a] * p[2];   /* Rᵀ(p − c) */
         if (q[2] <= 1e-6) continue;
-        long u = lround(cam.fx * q[0] / q[2] + cam.cx), v = lround(cam.fy * q[1] / q[2] + cam.cy);
+        double fu = cam.fx * q[0] / q[2] + cam.cx, fv = cam.fy * q[1] / q[2] + cam.cy;
+        long u = lround(fu), v = lround(fv);
         if (u < 0 || v < 0 || u >= w || v >= h) continue;
         size_t px = (size_t)v * w + u;
-        float d = depth[px];
+        float d = depth_at(t, depth, w, h, fu, fv, depth[px]);
         if (!valid_depth(t, d)) continue;
         double sdf = d - q[2];
         if (sdf < -band) continue;

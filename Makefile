@@ -151,7 +151,7 @@ bench-recipe: deps-test nightjar $(B)/bench/bench_data
 
 bench: bench-recipe bench-nn bench-losses bench-data bench-export bench-map bench-mpi
 
-demo: deps nightjar
+demo: deps nightjar $(B)/bench/bench_map
 	@sh tools/demo.sh
 
 clean:

@@ -24,12 +24,10 @@
 #include "train/measure/measure.h"
 #include "train/model/model.h"
 #include <cjson/cJSON.h>
-#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 #include <time.h>
 
 #define RIGID_TOL 1e-3      /* |RᵀR − I| (max entry) and |det R − 1| a pose may show */
@@ -375,23 +373,6 @@ static int fuse(map_run *r, nj_tsdf **t, nj_map_result *res, char *err, size_t e
 
 /* ---- output ----------------------------------------------------------------------- */
 
-static int make_dir(const char *path, char *err, size_t errlen)
-{
-    char buf[4096];
-    snprintf(buf, sizeof buf, "%s", path);
-    for (char *p = buf + 1;; p++) {
-        char c = *p;
-        if (c != '/' && c != 0) continue;
-        *p = 0;
-        if (mkdir(buf, 0755) != 0 && errno != EEXIST) {
-            snprintf(err, errlen, "%s: cannot create folder: %s", buf, strerror(errno));
-            return -1;
-        }
-        *p = c;
-        if (!c) return 0;
-    }
-}
-
 static int write_path(const map_run *r, const char *dir, char *err, size_t errlen)
 {
     float *xyz = malloc(sizeof(float) * 3 * r->n);
@@ -523,7 +504,7 @@ static int write_outputs(map_run *r, const nj_mesh *m, const nj_map_result *res,
     char path[4200];
     snprintf(path, sizeof path, "%s/%s", r->a.out, NJ_MAP_MESH);
     nj_ply_mesh pm = {"nightjar map: TSDF surface, world frame", m->nv, m->nt, 0, m->xyz, m->rgb, m->tri, NULL};
-    if (make_dir(r->a.out, err, errlen) || nj_ply_write_mesh(path, &pm, err, errlen) ||
+    if (nj_run_mkdir(r->a.out, err, errlen) || nj_ply_write_mesh(path, &pm, err, errlen) ||
         write_path(r, r->a.out, err, errlen) || write_picture(r, m, r->a.out, err, errlen))
         return -1;
     return write_summary(r, res, r->a.out, err, errlen);

@@ -65,7 +65,8 @@ for m in "$OUT/run/map" "$OUT/map-untrained"; do
   printf '  %-22s ' "$(basename "$m")"
   "${BENCH_MAP:-build/bench/bench_map}" --mesh "$m/mesh.ply" --seed 7 --frames 150 --sequences 6 --index "${idx:-0}" |
     sed 's/^surface distance/distance/'
-  printf '  %-22s drift per 10 m: %s\n' "" "$(grep -m1 drift_per_10m "$m/map.json" | tr -dc '0-9.e-')"
+  printf '  %-22s trajectory drift per 10 m of true path: %s\n' "" \
+    "$(sed -n 's/.*"drift_per_10m":[[:space:]]*\([-0-9.eE+]*\).*/\1/p' "$m/map.json")"
 done
 
 echo

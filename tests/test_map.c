@@ -15,6 +15,7 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
+#include "tests/train_runs.h"
 #include "data/npy.h"
 #include "data/poses.h"
 #include "data/scene_gen.h"
@@ -228,6 +229,72 @@ static void test_truth_map(const char *dir, const nj_synth_config *sc)
     free(xyz);
 }
 
+/* ---- the model path: one scale, the chained motions ---------------------------------- */
+
+/* A 2-step model maps the tiny test sequence: the path must be the test's own
+ * chaining of the model's motions (tr_dump_motions: the checkpoint through
+ * nj_infer_motion) with every translation times the one scale map.json
+ * states, starting at the first recorded pose. */
+static void test_model_map(void)
+{
+    char dir[512], data[600], cfg[700], log[700], ckpt[700], out[700], js[720], path[720], rel[720], images[720],
+        poses[720], cmd[2400], err[512];
+    if (tr_setup("map", dir, sizeof dir, data, sizeof data)) return;
+    snprintf(cfg, sizeof cfg, "%s/train.json", dir);
+    snprintf(log, sizeof log, "%s/train.log", dir);
+    tr_config(cfg, "\"validate_every\": 0, \"checkpoint_minutes\": 1000, \"max_steps\": 2", "", "");
+    int rc = tr_wait(tr_start(log, "train --config %s --data %s --out %s/run", cfg, data, dir), 600);
+    snprintf(ckpt, sizeof ckpt, "%s/run/final.ckpt", dir);
+    snprintf(out, sizeof out, "%s/map", dir);
+    snprintf(cmd, sizeof cmd, "%s map --threads 1 --model %s --data %s --sequence yard-02 --voxel 0.1 --out %s",
+             e2e_bin(), ckpt, data, out);
+    snprintf(log, sizeof log, "%s/map.log", dir);
+    if (!rc) rc = e2e_run(cmd, log);
+    snprintf(js, sizeof js, "%s/%s", out, NJ_MAP_SUMMARY);
+    snprintf(path, sizeof path, "%s/%s", out, NJ_MAP_PATH);
+    snprintf(rel, sizeof rel, "%s/rel.f64", dir);
+    snprintf(images, sizeof images, "%s/data/yard-02/cam0", dir);
+    snprintf(poses, sizeof poses, "%s/data/yard-02/poses.txt", dir);
+    double scale = e2e_json_number(js, "scale"), *gt = NULL, *m = NULL, worst = INFINITY;
+    float *xyz = NULL;
+    enum { N = 12 };
+    int ok = rc == 0 && tr_dump_motions(ckpt, images, N, rel, err, sizeof err) == 0 &&
+             nj_poses_read(poses, &gt, err, sizeof err) == N && read_vertices(path, &xyz) == N;
+    char *raw = ok ? e2e_slurp(rel, NULL) : NULL;
+    if (raw) {
+        m = (double *)raw;
+        double C[12];
+        memcpy(C, gt, sizeof C);
+        worst = 0;
+        for (int i = 0; i < N; i++) {
+            for (int k = 0; k < 3; k++) worst = fmax(worst, fabs(xyz[3 * i + k] - C[4 * k + 3]));
+            if (i == N - 1) break;
+            const double *T = m + 12 * i;   /* C ← C·T⁻¹, T⁻¹ = [Rᵀ | −Rᵀ·s·t] */
+            double N2[12];
+            for (int a = 0; a < 3; a++) {
+                for (int b = 0; b < 3; b++)
+                    N2[4 * a + b] = C[4 * a] * T[4 * b] + C[4 * a + 1] * T[4 * b + 1] + C[4 * a + 2] * T[4 * b + 2];
+                double ti[3];
+                for (int b = 0; b < 3; b++)
+                    ti[b] = -(T[b] * T[3] + T[4 + b] * T[7] + T[8 + b] * T[11]) * scale;
+                N2[4 * a + 3] = C[4 * a + 3] + C[4 * a] * ti[0] + C[4 * a + 1] * ti[1] + C[4 * a + 2] * ti[2];
+            }
+            memcpy(C, N2, sizeof C);
+        }
+    }
+    char *text = e2e_slurp(js, NULL);
+    /* float storage of the centres: 1e-5 m */
+    check(ok && worst <= 1e-5 && isfinite(scale) && scale > 0 && text && strstr(text, "ground-truth depth"),
+          "map_model_chains_scaled_motions", "exit %d (%s), scale %g, largest centre difference %.3g m: %s", rc, log,
+          scale, worst, ok ? "" : err);
+    free(text);
+    free(raw);
+    free(gt);
+    free(xyz);
+    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
+    if (system(cmd)) fprintf(stderr, "could not remove %s\n", dir);
+}
+
 /* ---- refusals and the report ------------------------------------------------------- */
 
 /* Runs the command; passes when it fails with status 1, one line naming
@@ -307,7 +374,10 @@ int main(int argc, char **argv)
     } else {
         test_truth_map(dir, &sc);
         test_report(dir);
-        if (e2e_have_binary()) test_refusals(dir, &sc);
+        if (e2e_have_binary()) {
+            test_refusals(dir, &sc);
+            test_model_map();
+        }
         else check(0, "map_refuses_short_sequence", "no program at %s (make nightjar)", e2e_bin());
     }
     tdu_rmtree(dir);

@@ -302,7 +302,7 @@ int nj_tsdf_mesh(const nj_tsdf *t, nj_mesh *m, char *err, size_t errlen)
     extract x = {t, tab, m, 0, 0, {NULL, NULL, 0, 0}, nj_tsdf_voxel_size(t)};
     int rc = tab && !map_grow(&x.edges) ? 0 : -1;
     if (!rc) build_table(tab);
-    for (long b = 0; !rc && b < nj_tsdf_block_count(t); b++) rc = block_cells(&x, b);
+    for (long b = 0; !rc && b < nj_tsdf_blocks(t); b++) rc = block_cells(&x, b);
     free(tab);
     free(x.edges.key);
     free(x.edges.val);

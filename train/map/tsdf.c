@@ -15,6 +15,7 @@
  * Memory: blocks come in chunks of 1024 from the budget; fusing past the
  * budget fails with a message instead of growing. */
 #include "train/map/map.h"
+#include "train/map/tsdf_parts.h"
 #include <math.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -315,13 +316,6 @@ void nj_tsdf_get(const nj_tsdf *t, int i, int j, int k, float *value, float *wei
 }
 
 /* ---- for the mesh (mcubes.c) ---------------------------------------------------- */
-
-#include "train/map/tsdf_parts.h"
-
-long nj_tsdf_block_count(const nj_tsdf *t)
-{
-    return t->nblocks;
-}
 
 void nj_tsdf_block_key(const nj_tsdf *t, long b, int key[3])
 {

@@ -4,7 +4,6 @@
 #define NJ_TSDF_PARTS_H
 #include "train/map/map.h"
 
-long nj_tsdf_block_count(const nj_tsdf *t);
 void nj_tsdf_block_key(const nj_tsdf *t, long b, int key[3]);
 /* Index of block (a, b, c), or -1. */
 long nj_tsdf_find(const nj_tsdf *t, int a, int b, int c);

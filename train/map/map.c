@@ -40,11 +40,13 @@ typedef struct map_run {
     nj_model trained, net;
     int have_trained, have_net, have_infer;
     nj_infer inf;
-    int n, w, h;
+    int total;              /* frames in the sequence */
+    int step, n;            /* every step-th frame is used: n of them */
+    int w, h;
     nj_camera cam;
     float *depth;           /* n·w·h */
     double *rel;            /* 12·(n − 1) motions */
-    double *gt;             /* 12·n ground-truth poses, or NULL */
+    double *gt;             /* 12·n ground-truth poses of the frames used, or NULL */
     double *c2w;            /* 12·n chained */
     double scale;
     int metric;
@@ -83,7 +85,8 @@ static int open_sequence(map_run *r, char *err, size_t errlen)
     else if (!r->s) snprintf(err, errlen, "%s: no sequence named \"%s\"", r->a.data, r->a.sequence);
     nj_problems_free(&pr);
     if (n || !r->s) return -1;
-    r->n = r->s->nframes;
+    r->total = r->n = r->s->nframes;
+    r->step = 1;
     if (r->n < NJ_MAP_MIN_FRAMES) {
         snprintf(err, errlen, "%s: sequence \"%s\" has %d frame%s; a map needs at least %d", r->a.data,
                  r->a.sequence, r->n, r->n == 1 ? "" : "s", NJ_MAP_MIN_FRAMES);
@@ -115,8 +118,9 @@ static int read_truth_poses(map_run *r, char *err, size_t errlen)
     if (!r->s->poses) return 0;
     int n = nj_poses_read(r->s->poses, &r->gt, err, errlen);
     if (n < 0) return -1;
-    if (n != r->n) {
-        snprintf(err, errlen, "%s: %d poses for %d frames of sequence \"%s\"", r->s->poses, n, r->n, r->a.sequence);
+    if (n != r->total) {
+        snprintf(err, errlen, "%s: %d poses for %d frames of sequence \"%s\"", r->s->poses, n, r->total,
+                 r->a.sequence);
         return -1;
     }
     for (int i = 0; i < n; i++) {
@@ -158,9 +162,29 @@ static int load_models(map_run *r, char *err, size_t errlen)
     return 0;
 }
 
+/* The pose network learnt the motion between frames `offset` apart (the
+ * first of data.frame_offsets): its motion between neighbours of a longer
+ * offset is not that motion over a shorter gap, so the map takes every
+ * offset-th frame (measured on the demo: offset 2 chained over neighbours
+ * gave paths ~2x too long).  Ground truth uses every frame. */
+static int choose_frames(map_run *r, char *err, size_t errlen)
+{
+    if (r->a.source != NJ_MAP_TRUTH && r->trained.cfg.pose && r->cfg.noffsets > 0 && r->cfg.offsets[0] > 1)
+        r->step = r->cfg.offsets[0];
+    r->n = (r->total - 1) / r->step + 1;
+    if (r->n < NJ_MAP_MIN_FRAMES) {
+        snprintf(err, errlen, "%s: sequence \"%s\" has %d frames; a map at the model's frame offset %d needs at least %d",
+                 r->a.data, r->a.sequence, r->total, r->step, r->step * (NJ_MAP_MIN_FRAMES - 1) + 1);
+        return -1;
+    }
+    for (int i = 0; r->gt && i < r->n; i++) memmove(r->gt + 12 * i, r->gt + 12 * i * r->step, sizeof(double) * 12);
+    return 0;
+}
+
+/* Frame i of those used (sequence frame i·step). */
 static int load_frame(const map_run *r, int i, nj_image *im, char *err, size_t errlen)
 {
-    char *p = nj_path_join(r->s->images, r->s->frames[i]), why[256];
+    char *p = nj_path_join(r->s->images, r->s->frames[i * r->step]), why[256];
     if (!p) {
         snprintf(err, errlen, "out of memory");
         return -1;
@@ -181,7 +205,7 @@ static int load_frame(const map_run *r, int i, nj_image *im, char *err, size_t e
 
 static int truth_depth(const map_run *r, int i, float *out, char *err, size_t errlen)
 {
-    char *p = nj_depth_path(r->s, i);
+    char *p = nj_depth_path(r->s, i * r->step);
     float *d = NULL;
     int w = 0, h = 0, rc = p ? nj_depth_read(p, r->s->depth_format, r->s->depth_scale, &d, &w, &h, err, errlen) : -1;
     if (!p) snprintf(err, errlen, "out of memory");
@@ -362,7 +386,7 @@ static int fuse(map_run *r, nj_tsdf **t, nj_map_result *res, char *err, size_t e
         res->fuse_seconds += now() - t0;
         nj_image_free(&im);
         if (rc) {
-            snprintf(err, errlen, "sequence \"%s\", frame %d: %s", r->a.sequence, i + 1, e);
+            snprintf(err, errlen, "sequence \"%s\", frame %d: %s", r->a.sequence, i * r->step + 1, e);
             return -1;
         }
     }
@@ -469,6 +493,7 @@ static int write_summary(const map_run *r, const nj_map_result *res, const char 
     cJSON_AddStringToObject(o, "source", SRC[r->a.source]);
     if (r->a.model && r->a.source != NJ_MAP_TRUTH) cJSON_AddStringToObject(o, "model", r->a.model);
     cJSON_AddNumberToObject(o, "frames", r->n);
+    cJSON_AddNumberToObject(o, "frame_step", r->step);
     cJSON_AddStringToObject(o, "scaled_by", r->scaled_by);
     cJSON_AddNumberToObject(o, "scale", r->scale);
     cJSON_AddBoolToObject(o, "metric", r->metric);
@@ -520,7 +545,9 @@ static int map_sequence(map_run *r, nj_map_result *res, char *err, size_t errlen
                  r->s->depth_dir ? "poses" : "depth");
         return -1;
     }
-    if (load_models(r, err, errlen) || run_frames(r, err, errlen) || choose_scale(r, err, errlen)) return -1;
+    if (load_models(r, err, errlen) || choose_frames(r, err, errlen) || run_frames(r, err, errlen) ||
+        choose_scale(r, err, errlen))
+        return -1;
     r->c2w = malloc(sizeof(double) * 12 * r->n);
     if (!r->c2w) {
         snprintf(err, errlen, "out of memory");

@@ -115,7 +115,7 @@ void nj_map_options_default(nj_map_options *o);
 
 /* Figures of a finished map (also in OUT/map.json). */
 typedef struct nj_map_result {
-    int frames;
+    int frames;             /* frames fused (every frame_step-th of the sequence) */
     double scale;           /* factor applied to the model's depth and motion (1 for truth/stereo) */
     long blocks, vertices, triangles;
     double memory_mb;       /* the blocks' memory */

@@ -45,7 +45,7 @@ FUZZ_SECONDS ?= 60
 FUZZ_CC  ?= clang-14
 
 .PHONY: all deps deps-test test sanitize fuzz mpi-test-build bench bench-recipe bench-nn bench-losses \
-        bench-data bench-export bench-mpi demo clean help
+        bench-data bench-export bench-mpi bench-map demo clean help
 # keep object files of test programs (no trailing "rm" after the summary line)
 .SECONDARY:
 all: deps nightjar
@@ -137,6 +137,10 @@ bench-data: deps $(B)/bench/bench_data
 bench-export: deps nightjar $(B)/bench/bench_export
 	@$(B)/bench/bench_export
 
+# issue 23: fusion time per frame and peak memory, 200 frames at 5 cm voxels
+bench-map: deps $(B)/bench/bench_map
+	@$(B)/bench/bench_map
+
 bench-mpi: deps nightjar
 	@$(MAKE) --no-print-directory mpi-test-build
 	@sh bench/bench_mpi.sh
@@ -145,9 +149,9 @@ bench-mpi: deps nightjar
 bench-recipe: deps-test nightjar $(B)/bench/bench_data
 	@/usr/bin/python3 bench/side_by_side.py
 
-bench: bench-recipe bench-nn bench-losses bench-data bench-export bench-mpi
+bench: bench-recipe bench-nn bench-losses bench-data bench-export bench-map bench-mpi
 
-demo: deps nightjar
+demo: deps nightjar $(B)/bench/bench_map
 	@sh tools/demo.sh
 
 clean:

@@ -156,3 +156,54 @@ nj_object nj_scene_mover_at(const nj_scene *s, float t)
     m.z = s->mover_p0[1] + s->mover_v[1] * t;
     return m;
 }
+
+/* Distance from a to the interval [lo, hi] (0 inside). */
+static float outside(float a, float lo, float hi)
+{
+    return a < lo ? lo - a : a > hi ? a - hi : 0.0f;
+}
+
+/* Distance to the surface of a box given in its local frame: outside, the
+ * Euclidean distance to the solid; inside, the distance to the nearest face. */
+static float box_surface(float lx, float y, float lz, const nj_object *o)
+{
+    float ox = outside(lx, -o->hx, o->hx), oy = outside(y, o->y0, o->y1), oz = outside(lz, -o->hz, o->hz);
+    if (ox > 0 || oy > 0 || oz > 0) return sqrtf(ox * ox + oy * oy + oz * oz);
+    float d = fminf(o->hx - fabsf(lx), o->hz - fabsf(lz));
+    return fminf(d, fminf(y - o->y0, o->y1 - y));
+}
+
+static float object_surface(const nj_object *o, const float p[3])
+{
+    if (o->shape == NJ_SHAPE_BOX) {
+        float lx, lz;
+        to_local(o, p[0] - o->x, p[2] - o->z, &lx, &lz);
+        return box_surface(lx, p[1], lz, o);
+    }
+    float r = hypotf(p[0] - o->x, p[2] - o->z), dr = r - o->hx, oy = outside(p[1], o->y0, o->y1);
+    if (dr > 0 || oy > 0) {
+        dr = dr > 0 ? dr : 0;
+        return sqrtf(dr * dr + oy * oy);
+    }
+    return fminf(-dr, fminf(p[1] - o->y0, o->y1 - p[1]));
+}
+
+/* One inner face of the perimeter: the vertical rectangle at coordinate `at`
+ * of axis a (0 = x, 2 = z), spanning [lo, hi] along the other horizontal axis. */
+static float wall_face(const nj_scene *s, const float p[3], int a, float at, float lo, float hi)
+{
+    float d = p[a] - at, e = outside(p[2 - a], lo, hi), f = outside(p[1], -s->wall_height, 0.0f);
+    return sqrtf(d * d + e * e + f * f);
+}
+
+float nj_scene_distance(const nj_scene *s, const float p[3])
+{
+    float ex = outside(p[0], s->xmin, s->xmax), ez = outside(p[2], s->zmin, s->zmax);
+    float d = sqrtf(p[1] * p[1] + ex * ex + ez * ez);   /* the ground inside the perimeter */
+    d = fminf(d, wall_face(s, p, 0, s->xmin, s->zmin, s->zmax));
+    d = fminf(d, wall_face(s, p, 0, s->xmax, s->zmin, s->zmax));
+    d = fminf(d, wall_face(s, p, 2, s->zmin, s->xmin, s->xmax));
+    d = fminf(d, wall_face(s, p, 2, s->zmax, s->xmin, s->xmax));
+    for (int i = 0; i < s->nobj; i++) d = fminf(d, object_surface(&s->obj[i], p));
+    return d;
+}

@@ -58,6 +58,12 @@ int nj_wall_intersect(const nj_scene *s, const float org[3], const float dir[3],
 void nj_object_sphere(const nj_object *o, float c[3], float *r);
 /* Horizontal distance from (x, z) to an object's footprint (0 inside). */
 float nj_object_footprint_distance(const nj_object *o, float x, float z);
+/* Distance (metres) from world point p to the nearest static surface of the
+ * yard: the ground plane inside the perimeter, the perimeter wall's inner
+ * faces up to its height, and every object's surface (box faces, the
+ * cylinder's mantle and caps).  The mover and the lead cart are not
+ * included (they move).  For checking reconstructions against the truth. */
+float nj_scene_distance(const nj_scene *s, const float p[3]);
 /* The mover placed at time t (seconds). */
 nj_object nj_scene_mover_at(const nj_scene *s, float t);
 

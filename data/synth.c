@@ -254,27 +254,53 @@ static void summary(const nj_synth_config *c, const char *name, const nj_traject
            s->has_mover ? ", moving robot" : c->moving ? ", no room for a moving robot" : "", lead);
 }
 
-/* Every sequence draws its yard from one generator keyed by (seed, index);
- * the fleet nuisances draw from a second one keyed from the same value, so
- * the first one's draws, and the output without them, do not change. */
-static int sequence(const nj_synth_config *c, int idx, const char *name, char *err, unsigned long errlen)
+/* The path and the yard of sequence idx.  Every sequence draws its yard from
+ * one generator keyed by (seed, index); the fleet nuisances draw from a
+ * second one keyed from the same value, so the first one's draws, and the
+ * output without them, do not change.  `fleet` is left where the exposure
+ * gains draw next; *noise_key keys the sensor noise. */
+static int yard_of(const nj_synth_config *c, int idx, nj_rng *fleet, uint64_t *noise_key, nj_trajectory *tr,
+                   nj_scene *s)
 {
     uint64_t key = c->seed * 0x9E3779B97F4A7C15ull + (uint64_t)idx * 0xD1B54A32D192ED03ull + 1;
-    nj_rng r, fleet;
+    nj_rng r;
     nj_rng_seed(&r, key);
-    nj_rng_seed(&fleet, key ^ 0xA0761D6478BD642Full);
+    nj_rng_seed(fleet, key ^ 0xA0761D6478BD642Full);
+    if (nj_trajectory_make_fleet(&r, fleet, c->frames, FRAME_DT, c->halts, c->turns, tr)) return -1;
+    *noise_key = nj_rng_next(fleet);
+    if (nj_scene_make_fleet(&r, fleet, tr, c->moving, c->lead_cart, s)) {
+        nj_trajectory_free(tr);
+        return -1;
+    }
+    return 0;
+}
+
+int nj_synth_yard(const nj_synth_config *c, int idx, nj_scene *s)
+{
+    nj_rng fleet;
+    uint64_t noise_key;
+    nj_trajectory tr;
+    if (yard_of(c, idx, &fleet, &noise_key, &tr, s)) return -1;
+    nj_trajectory_free(&tr);
+    return 0;
+}
+
+static int sequence(const nj_synth_config *c, int idx, const char *name, char *err, unsigned long errlen)
+{
+    nj_rng fleet;
     char dir[4096];
     snprintf(dir, sizeof dir, "%s/%s", c->out, name);
     nj_trajectory tr;
     nj_scene s;
+    uint64_t noise_key;
     if (make_folders(c, dir, err, errlen)) return -1;
-    if (nj_trajectory_make_fleet(&r, &fleet, c->frames, FRAME_DT, c->halts, c->turns, &tr)) {
+    if (yard_of(c, idx, &fleet, &noise_key, &tr, &s)) {
         snprintf(err, errlen, "out of memory");
         return -1;
     }
-    seq_ctx q = {c, &s, &tr, dir, NULL, nj_rng_next(&fleet)};
-    int rc = nj_scene_make_fleet(&r, &fleet, &tr, c->moving, c->lead_cart, &s);
-    if (!rc && c->exposure_drift) rc = !(q.gain = draw_gains(&fleet, tr.n));
+    seq_ctx q = {c, &s, &tr, dir, NULL, noise_key};
+    int rc = 0;
+    if (c->exposure_drift) rc = !(q.gain = draw_gains(&fleet, tr.n));
     if (rc) snprintf(err, errlen, "out of memory");
     else rc = render_frames(&q, err, errlen);
     if (!rc) rc = write_poses(&tr, dir, err, errlen);

@@ -38,6 +38,7 @@
  */
 #ifndef NJ_SYNTH_H
 #define NJ_SYNTH_H
+#include "data/scene.h"
 #include <stdint.h>
 
 typedef struct nj_synth_config {
@@ -62,5 +63,12 @@ void nj_synth_config_default(nj_synth_config *c);
 /* Renders and writes everything.  Returns 0, or -1 with a message in err.
  * (The `nightjar synth` command line is train/cli/cmd_synth.c.) */
 int nj_synth_run(const nj_synth_config *c, char *err, unsigned long errlen);
+
+/* The yard of sequence idx (0-based: "yard-%02d") exactly as nj_synth_run
+ * renders it under c (seed, frames and the nuisances matter; out does not):
+ * the analytic geometry behind the frames, for checking a reconstruction
+ * against the true scene (nj_scene_distance).  Free with nj_scene_free
+ * (data/scene_gen.h).  Returns 0 or -1 (out of memory). */
+int nj_synth_yard(const nj_synth_config *c, int idx, nj_scene *s);
 
 #endif

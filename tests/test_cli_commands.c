@@ -67,7 +67,7 @@ static int lines(const char *s) { return e2e_count(s, "\n"); }
 /* ---- help, version, unknown commands ---------------------------------------- */
 
 static const char *const EXPECTED[] = {"help", "version", "check-data", "synth", "train",
-                                       "eval", "predict", "export", "report", "bench"};
+                                       "eval", "predict", "map", "export", "report", "bench"};
 #define NEXPECTED (int)(sizeof EXPECTED / sizeof EXPECTED[0])
 
 /* The command names of the usage text: the first word of each line after
@@ -110,7 +110,7 @@ static void help_and_version(void)
         if (!found) snprintf(missing + strlen(missing), sizeof missing - strlen(missing), " %s", EXPECTED[i]);
         all &= found;
     }
-    check(all, "help lists exactly the ten commands", "%d listed, missing:%s\n%s", n, missing, help.out);
+    check(all, "help lists exactly the eleven commands", "%d listed, missing:%s\n%s", n, missing, help.out);
     char bad[1024] = "";
     for (int j = 0; j < n; j++) {
         if (!strcmp(names[j], "help") || !strcmp(names[j], "version")) continue;

@@ -5,7 +5,7 @@
  *   1. arrows point one way: a module includes only itself and modules of a
  *      lower layer.  nn/ is the bottom; losses/ and data/ stand side by side
  *      on it (neither includes the other); train/'s sub-modules come in the
- *      order model < measure < loop < {eval, export} < {report, bench} < cli,
+ *      order model < measure < loop < {eval, export} < map < {report, bench} < cli,
  *      modules on one line not including each other.  train/version.h is a
  *      fact any train module may include.
  *   2. a train/ sub-module is entered through one public header, named after
@@ -40,9 +40,10 @@ static const layer LAYERS[] = {
     {"train/loop/", 5, 1},
     {"train/eval/", 6, 1},
     {"train/export/", 6, 1},
-    {"train/report/", 7, 1},
-    {"train/bench/", 7, 1},
-    {"train/cli/", 8, 1},
+    {"train/map/", 7, 1},
+    {"train/report/", 8, 1},
+    {"train/bench/", 8, 1},
+    {"train/cli/", 9, 1},
 };
 #define NLAYERS (int)(sizeof LAYERS / sizeof LAYERS[0])
 

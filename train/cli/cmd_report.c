@@ -7,13 +7,13 @@
 static const char ABOUT[] =
     "  Writes one self-contained HTML page about a training run: summary, loss and\n"
     "  learning-rate charts, a gallery of validation frames at up to three checkpoints,\n"
-    "  and the metric table.\n";
+    "  the metric table and, when a map was made, its top-down picture.\n";
 
 static const char EPILOGUE[] = "  Prints the page's path.\n";
 
 int nj_report_main(int argc, char **argv)
 {
-    nj_report_options o = {NULL, NULL, NULL, NULL};
+    nj_report_options o = {NULL, NULL, NULL, NULL, NULL};
     nj_opt opts[] = {
         {.kind = NJ_OPT_ARG, .meta = "RUN_DIR", .help = "the run folder (train --out)", .required = 1,
          .str = &o.run_dir},
@@ -23,6 +23,8 @@ int nj_report_main(int argc, char **argv)
          .dflt = "RUN_DIR/metrics.json if present", .str = &o.metrics},
         {.name = "--export", .kind = NJ_OPT_STRING, .meta = "DIR", .help = "folder of exported models to list",
          .dflt = "RUN_DIR/export", .str = &o.export_dir},
+        {.name = "--map", .kind = NJ_OPT_STRING, .meta = "DIR", .help = "`nightjar map --out` folder whose picture to show",
+         .dflt = "RUN_DIR/map if present", .str = &o.map_dir},
     };
     nj_opt_spec spec = {.command = "report", .about = ABOUT, .epilogue = EPILOGUE,
                         .opts = opts, .nopts = NJ_OPT_COUNT(opts)};

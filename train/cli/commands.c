@@ -8,6 +8,7 @@ const nj_command nj_commands[] = {
     {"train", "train the depth and pose networks on a dataset", nj_train_main},
     {"eval", "depth and pose metrics of a model against two baselines", nj_eval_main},
     {"predict", "depth maps, pictures and point clouds for frames", nj_predict_main},
+    {"map", "fuse a sequence's depth and motion into one 3D map and its picture", nj_map_main},
     {"export", "export a model as C99 code, ONNX or safetensors", nj_export_main},
     {"report", "a self-contained HTML page about a training run", nj_report_main},
     {"bench", "time one training step (speed and memory)", nj_bench_main},

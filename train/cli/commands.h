@@ -14,6 +14,7 @@ int nj_predict_main(int argc, char **argv);
 int nj_export_main(int argc, char **argv);
 int nj_report_main(int argc, char **argv);
 int nj_bench_main(int argc, char **argv);
+int nj_map_main(int argc, char **argv);
 
 typedef struct nj_command {
     const char *name;

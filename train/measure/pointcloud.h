@@ -19,4 +19,22 @@ long nj_cloud_count(const float *depth, size_t n);
 int nj_ply_write(const char *path, const float *depth, const nj_image *colour, nj_camera cam,
                  long *count, char *err, size_t errlen);
 
+/* A general coloured PLY: nv vertices (xyz, rgb as above) and optionally nf
+ * triangles ("element face" with "property list uchar int vertex_indices")
+ * and ne line segments ("element edge" with "property int vertex1",
+ * "property int vertex2"), in that order, binary little-endian; `comment`
+ * (one line, may be NULL) goes into the header.  The point clouds above use
+ * the same header and vertex layout. */
+typedef struct nj_ply_mesh {
+    const char *comment;
+    long nv, nf, ne;
+    const float *xyz;           /* 3·nv */
+    const unsigned char *rgb;   /* 3·nv */
+    const int *face;            /* 3·nf */
+    const int *edge;            /* 2·ne */
+} nj_ply_mesh;
+
+/* Writes PATH atomically.  Returns 0, or -1 with "PATH: why" in err. */
+int nj_ply_write_mesh(const char *path, const nj_ply_mesh *m, char *err, size_t errlen);
+
 #endif

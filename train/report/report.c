@@ -181,7 +181,7 @@ static void charts(FILE *f, const nj_run_log *log)
 }
 
 static void page(FILE *f, const nj_report_options *o, const nj_run_log *log, const char *metrics,
-                 const char *export_dir)
+                 const char *export_dir, const char *map_dir)
 {
     fputs("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\n"
           "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n<title>nightjar report: ", f);
@@ -191,6 +191,7 @@ static void page(FILE *f, const nj_report_options *o, const nj_run_log *log, con
     charts(f, log);
     nj_report_gallery(f, o->run_dir);
     nj_report_metrics(f, metrics, export_dir);
+    nj_report_map(f, map_dir);
     char when[64];
     time_t now = time(NULL);
     strftime(when, sizeof when, "%Y-%m-%d %H:%M:%S UTC", gmtime(&now));
@@ -199,7 +200,7 @@ static void page(FILE *f, const nj_report_options *o, const nj_run_log *log, con
 
 int nj_report_run(const nj_report_options *o, char *err, size_t errlen)
 {
-    char out[4200], logp[4200], met[4200], exp[4200];
+    char out[4200], logp[4200], met[4200], exp[4200], map[4200];
     /* nj_atomic_close keeps a caller's message already in err: start clean */
     if (err && errlen) err[0] = 0;
     snprintf(out, sizeof out, "%s", o->out ? o->out : "");
@@ -207,6 +208,7 @@ int nj_report_run(const nj_report_options *o, char *err, size_t errlen)
     snprintf(logp, sizeof logp, "%s/log.jsonl", o->run_dir);
     snprintf(met, sizeof met, "%s/metrics.json", o->run_dir);
     snprintf(exp, sizeof exp, "%s/export", o->run_dir);
+    snprintf(map, sizeof map, "%s/map", o->run_dir);
     if (access(o->run_dir, R_OK | X_OK) != 0) {
         snprintf(err, errlen, "%.900s: not a readable folder", o->run_dir);
         return -1;
@@ -215,13 +217,13 @@ int nj_report_run(const nj_report_options *o, char *err, size_t errlen)
     if (nj_run_log_read(logp, &log, err, errlen)) return -1;
     nj_atomic_file a;
     if (nj_atomic_open(&a, out, err, errlen)) { nj_run_log_free(&log); return -1; }
-    page(a.f, o, &log, o->metrics ? o->metrics : met, o->export_dir ? o->export_dir : exp);
+    page(a.f, o, &log, o->metrics ? o->metrics : met, o->export_dir ? o->export_dir : exp, o->map_dir ? o->map_dir : map);
     nj_run_log_free(&log);
     return nj_atomic_close(&a, !ferror(a.f), err, errlen);
 }
 
 int nj_report_write(const char *run_dir, const char *out_path, char *err, size_t errlen)
 {
-    nj_report_options o = {run_dir, out_path, NULL, NULL};
+    nj_report_options o = {run_dir, out_path, NULL, NULL, NULL};
     return nj_report_run(&o, err, errlen);
 }

@@ -5,7 +5,8 @@
  * charts from RUN_DIR/log.jsonl, a gallery of fixed validation frames at up
  * to three checkpoints (input with a depth colour bar, depth in the "bracken"
  * map scaled as `predict` scales it with near = dark, auto-mask, photometric
- * error) and the metric table of `nightjar eval` when present. */
+ * error), the metric table of `nightjar eval` when present and the top-down
+ * picture of `nightjar map` with its figures when a map folder is there. */
 #ifndef NJ_REPORT_H
 #define NJ_REPORT_H
 #include <stddef.h>
@@ -15,6 +16,7 @@ typedef struct nj_report_options {
     const char *out;          /* NULL: RUN_DIR/report.html */
     const char *metrics;      /* `nightjar eval --out` JSON; NULL: RUN_DIR/metrics.json when present */
     const char *export_dir;   /* exported models to list; NULL: RUN_DIR/export */
+    const char *map_dir;      /* `nightjar map --out` folder; NULL: RUN_DIR/map when present */
 } nj_report_options;
 
 /* Writes the report page atomically (the command: train/cli/cmd_report.c).

@@ -22,17 +22,8 @@ static const metric_row ROWS[] = {
 
 static cJSON *read_json(const char *path)
 {
-    FILE *f = path ? fopen(path, "rb") : NULL;
-    if (!f) return NULL;
-    char *text = NULL;
-    long n = -1;
-    if (fseek(f, 0, SEEK_END) == 0 && (n = ftell(f)) >= 0 && fseek(f, 0, SEEK_SET) == 0 &&
-        (text = malloc((size_t)n + 1)) && fread(text, 1, (size_t)n, f) == (size_t)n)
-        text[n] = 0;
-    else
-        n = -1;
-    fclose(f);
-    cJSON *j = n >= 0 ? cJSON_Parse(text) : NULL;
+    char *text = nj_report_slurp(path, NULL);
+    cJSON *j = text ? cJSON_Parse(text) : NULL;
     free(text);
     return j;
 }

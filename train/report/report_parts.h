@@ -78,5 +78,14 @@ void nj_report_gallery(FILE *f, const char *run_dir);
  * the files in export_dir; either may be missing (NULL or absent), which is
  * stated. */
 void nj_report_metrics(FILE *f, const char *metrics_path, const char *export_dir);
+/* <section id="map">: the top-down picture of `nightjar map` (its PNG file
+ * embedded as it is) and the figures of its summary; nothing when the folder
+ * has no picture. */
+void nj_report_map(FILE *f, const char *map_dir);
+/* A whole file, NUL-terminated (malloc'd); *n (may be NULL) gets its size.
+ * NULL when path is NULL or the file cannot be read. */
+char *nj_report_slurp(const char *path, size_t *n);
+/* Bytes as a base64 data URI of the given media type. */
+void nj_data_uri(FILE *f, const char *mime, const unsigned char *p, size_t n);
 
 #endif

@@ -6,10 +6,10 @@
 #include <stdlib.h>
 #include <string.h>
 
-static void base64(FILE *f, const unsigned char *p, int n)
+static void base64(FILE *f, const unsigned char *p, size_t n)
 {
     static const char A[] = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
-    for (int i = 0; i < n; i += 3) {
+    for (size_t i = 0; i < n; i += 3) {
         unsigned v = (unsigned)p[i] << 16;
         if (i + 1 < n) v |= (unsigned)p[i + 1] << 8;
         if (i + 2 < n) v |= p[i + 2];
@@ -45,12 +45,33 @@ int nj_png_data_uri(FILE *f, const unsigned char *rgb, int w, int h)
 {
     png_buf b = {NULL, 0, 0, 1};
     int ok = stbi_write_png_to_func(png_sink, &b, w, h, 3, rgb, 3 * w) && b.ok;
-    if (ok) {
-        fputs("data:image/png;base64,", f);
-        base64(f, b.p, (int)b.n);
-    }
+    if (ok) nj_data_uri(f, "image/png", b.p, b.n);
     free(b.p);
     return ok ? 0 : -1;
+}
+
+char *nj_report_slurp(const char *path, size_t *len)
+{
+    FILE *f = path ? fopen(path, "rb") : NULL;
+    if (!f) return NULL;
+    char *text = NULL;
+    long n = -1;
+    if (fseek(f, 0, SEEK_END) == 0 && (n = ftell(f)) >= 0 && fseek(f, 0, SEEK_SET) == 0 &&
+        (text = malloc((size_t)n + 1)) && fread(text, 1, (size_t)n, f) == (size_t)n) {
+        text[n] = 0;
+    } else {
+        free(text);
+        text = NULL;
+    }
+    fclose(f);
+    if (text && len) *len = (size_t)n;
+    return text;
+}
+
+void nj_data_uri(FILE *f, const char *mime, const unsigned char *p, size_t n)
+{
+    fprintf(f, "data:%s;base64,", mime);
+    base64(f, p, n);
 }
 
 void nj_html_text(FILE *f, const char *s)

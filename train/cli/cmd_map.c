@@ -20,7 +20,7 @@ static const char ABOUT[] =
     "  Scale of a monocular model: one factor for the whole sequence, from --camera-height (the\n"
     "  median of the ground-plane scales) or else the median ratio to ground-truth depth when the\n"
     "  sequence has it; otherwise the map is in the model's units.  Stereo-trained models are\n"
-    "  metric.  A model trained on frames k apart (data.frame_offsets) maps every k-th frame.\n"
+    "  metric.  A model trained on frames k apart (the smallest of data.frame_offsets) maps every k-th frame.\n"
     "  The map starts at the first ground-truth pose when there is one, else at the first\n"
     "  camera.  Memory: fusing stops with an error when the blocks would pass --memory-mb.\n";
 

@@ -75,7 +75,7 @@ static int open_sequence(map_run *r, char *err, size_t errlen)
     if (!n && r->s) {
         nj_data_options o;
         nj_data_options_default(&o);
-        o.k = 0;
+        o.noffsets = 0;
         o.stereo = 0;
         o.dup_threshold = 0;
         o.headers_only = 1;
@@ -162,15 +162,17 @@ static int load_models(map_run *r, char *err, size_t errlen)
     return 0;
 }
 
-/* The pose network learnt the motion between frames `offset` apart (the
- * first of data.frame_offsets): its motion between neighbours of a longer
- * offset is not that motion over a shorter gap, so the map takes every
- * offset-th frame (measured on the demo: offset 2 chained over neighbours
- * gave paths ~2x too long).  Ground truth uses every frame. */
+/* The pose network learnt the motion between frames `offset` apart (each of
+ * data.frame_offsets): its motion between neighbours of a longer offset is
+ * not that motion over a shorter gap, so the map takes every k-th frame, k
+ * the smallest offset it learnt (measured on the demo: offset 2 chained over
+ * neighbours gave paths ~2x too long).  Ground truth uses every frame. */
 static int choose_frames(map_run *r, char *err, size_t errlen)
 {
-    if (r->a.source != NJ_MAP_TRUTH && r->trained.cfg.pose && r->cfg.noffsets > 0 && r->cfg.offsets[0] > 1)
-        r->step = r->cfg.offsets[0];
+    int k = 0;
+    for (int i = 0; i < r->cfg.noffsets; i++)
+        if (r->cfg.offsets[i] > 0 && (!k || r->cfg.offsets[i] < k)) k = r->cfg.offsets[i];
+    if (r->a.source != NJ_MAP_TRUTH && r->trained.cfg.pose && k > 1) r->step = k;
     r->n = (r->total - 1) / r->step + 1;
     if (r->n < NJ_MAP_MIN_FRAMES) {
         snprintf(err, errlen, "%s: sequence \"%s\" has %d frames; a map at the model's frame offset %d needs at least %d",

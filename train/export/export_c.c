@@ -145,18 +145,28 @@ static int i8_kp(const nj_export_layer *l)
     return (kn + I8_KALIGN - 1) / I8_KALIGN * I8_KALIGN;
 }
 
-/* Output positions per input-tap panel: the panel (taps x positions) is kept
- * near 64 KiB so it stays in the core's L2 while every output-channel block
- * reads it (f32: 32..512 positions, a multiple of 32; int8: 4..1024, a
- * multiple of 4), and never much beyond the layer's positions. */
+/* Output positions per block of work.  The data a block reads is kept near
+ * 64 KiB, so it stays in the core's L2 while every output-channel block
+ * reads it: f32 stride 1, the padded input rows (cin values per position);
+ * f32 stride 2, the input-tap panel (cin * k * k per position); int8, the
+ * panel of kp bytes per position.  f32: 32..512 positions, a multiple of 32;
+ * int8: 4..1024, a multiple of 4; never much beyond the layer's positions. */
 static int layer_tile(const nj_export_layer *l, int int8, long npos)
 {
     const long budget = 65536, unit = int8 ? 4 : 32, lo = unit, hi = int8 ? 1024 : 512;
-    const long row = int8 ? i8_kp(l) : 4L * l->cin * l->k * l->k;
+    const long row = int8 ? i8_kp(l) : (l->stride == 1 ? 4L * l->cin : 4L * l->cin * l->k * l->k);
     long t = budget / row / unit * unit;
     t = t < lo ? lo : (t > hi ? hi : t);
     long need = (npos + unit - 1) / unit * unit;
     return (int)(t < need ? t : need);
+}
+
+/* Bytes of the f32 runtime's col scratch: the padded input (stride 1) or the panel. */
+static long f32_col_bytes(const nj_export_layer *l, int ih, int iw, int tile)
+{
+    if (l->stride != 1) return 4L * l->cin * l->k * l->k * tile;
+    const long wp = iw + 2 * l->pad;
+    return 4L * ((long)l->cin * (ih + 2 * l->pad) * wp + 64 + 2 * wp);   /* ND_SLACK(wp) */
 }
 
 /* f32 weights packed for nd_kernel: blocks of F32_OB output channels, tap-major. */
@@ -243,7 +253,7 @@ static int act_code(const nj_export_layer *l)
     return l->act == NJ_ACT_ELU ? 1 : (l->act == NJ_ACT_SIGMOID ? 2 : 0);
 }
 
-static void put_layer_entry(FILE *f, const nj_export_net *net, int unit, int tile, int last)
+static void put_layer_entry(FILE *f, const nj_export_net *net, int unit, int tile, int up, int last)
 {
     const nj_export_layer *l = &net->layers[unit];
     char id[80];
@@ -258,8 +268,8 @@ static void put_layer_entry(FILE *f, const nj_export_net *net, int unit, int til
     fprintf(f, "    {nd_w_%s, nd_b_%s, ", id, id);
     if (l->groups) fprintf(f, "nd_g_%s, nd_e_%s, ", id, id);
     else fputs("0, 0, ", f);
-    fprintf(f, "%d, %d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->groups, l->cin, l->cout, l->k, l->stride, l->pad,
-            l->pad_mode == NJ_PAD_REFLECT, act_code(l), tile, last ? "" : ",", l->name);
+    fprintf(f, "%d, %d, %d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->groups, l->cin, l->cout, l->k, l->stride,
+            l->pad, l->pad_mode == NJ_PAD_REFLECT, act_code(l), tile, up, last ? "" : ",", l->name);
 }
 
 /* ---- the run function --------------------------------------------------------- */
@@ -270,7 +280,8 @@ typedef struct emitter {
     const c_paths *p;
     nj_scratch_plan plan;     /* in bytes */
     int index[NJ_MAX_UNITS];  /* unit → row of nd_layers */
-    int tile[NJ_MAX_UNITS];   /* unit → positions per panel */
+    int tile[NJ_MAX_UNITS];   /* unit → positions per block of work */
+    int up[NJ_MAX_UNITS];     /* unit → 1: upsamples its first input as it reads it (f32) */
     int failed;
 } emitter;
 
@@ -303,7 +314,7 @@ static long emit_layer(emitter *e, int unit, long in, int c0, long skip, int h, 
     int oh = (h + 2 * l->pad - l->k) / l->stride + 1, ow = (w + 2 * l->pad - l->k) / l->stride + 1;
     const int tile = e->tile[unit];
     long out = to_depth ? -1 : alloc_buf(e, act_bytes(e) * l->cout * oh * ow);
-    long col = alloc_buf(e, e->net->int8 ? (long)i8_kp(l) * tile : 4L * l->cin * l->k * l->k * tile);
+    long col = alloc_buf(e, e->net->int8 ? (long)i8_kp(l) * tile : f32_col_bytes(l, h, w, tile));
     char a[64], b[64], c[64], d[64];
     fprintf(e->f, "    nd_layer_run(&nd_layers[%d], %s, %d, %s, %d, %d,\n                 ", e->index[unit],
             buf(e, in, a, sizeof a), c0, skip >= 0 ? buf(e, skip, b, sizeof b) : "0", h, w);
@@ -340,6 +351,14 @@ static void emit_run(emitter *e)
         long d = emit_layer(e, m->dec[i][0], cur, c, -1, h, w, 0);
         nj_plan_free(&e->plan, cur);
         c = e->net->layers[m->dec[i][0]].cout;
+        if (e->up[m->dec[i][1]]) {   /* f32: upsampled while its input is padded */
+            h *= 2;
+            w *= 2;
+            cur = emit_layer(e, m->dec[i][1], d, c, i > 0 ? feat[i - 1] : -1, h, w, 0);
+            nj_plan_free(&e->plan, d);
+            if (i > 0) nj_plan_free(&e->plan, feat[i - 1]);
+            continue;
+        }
         long up = alloc_buf(e, act_bytes(e) * 4L * c * h * w);
         fprintf(e->f, "    nd_up2(%s, %d, %d, %d, %s);\n", buf(e, d, a, sizeof a), c, h, w, buf(e, up, b, sizeof b));
         nj_plan_free(&e->plan, d);
@@ -404,6 +423,7 @@ static int write_source(emitter *e, const c_paths *p, const char *ckpt_name)
     int order[4 * NJ_MAX_STAGES + 1], n = depth_path(net->model, order), ih[NJ_MAX_UNITS], iw[NJ_MAX_UNITS];
     for (int i = 0; i < NJ_MAX_UNITS; i++) e->index[i] = -1;
     layer_sizes(net, ih, iw);
+    for (int i = 0; i < net->model->cfg.stages && !net->int8; i++) e->up[net->model->dec[i][1]] = 1;
     for (int i = 0; i < n; i++) {
         e->index[order[i]] = i;
         const nj_export_layer *l = &net->layers[order[i]];
@@ -429,7 +449,7 @@ static int write_source(emitter *e, const c_paths *p, const char *ckpt_name)
     for (int i = 0; i < n; i++)
         if (put_layer_arrays(f, net, order[i])) return -1;
     fprintf(f, "\nstatic const struct nd_layer nd_layers[%d] = {\n", n);
-    for (int i = 0; i < n; i++) put_layer_entry(f, net, order[i], e->tile[order[i]], i + 1 == n);
+    for (int i = 0; i < n; i++) put_layer_entry(f, net, order[i], e->tile[order[i]], e->up[order[i]], i + 1 == n);
     fputs("};\n\n", f);
     emit_run(e);
     return 0;

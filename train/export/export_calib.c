@@ -263,7 +263,7 @@ int nj_export_calibrate(nj_export_net *net, const char *dataset, int frames, flo
     nj_data_options o;
     nj_problems pr;
     nj_data_options_default(&o);
-    o.k = 0;
+    o.k = 1;   /* as check-data: every frame counts, the split's sample rule does not matter here */
     o.stereo = 0;
     o.dup_threshold = 0;
     o.headers_only = 1;
@@ -271,7 +271,7 @@ int nj_export_calibrate(nj_export_net *net, const char *dataset, int frames, flo
     memset(&ds, 0, sizeof ds);
     int rc = 0;
     if (nj_dataset_open(dataset, &o, &ds, &pr) != 0) {
-        snprintf(err, errlen, "--calibrate %s: the dataset has problems (see 'nightjar check-data')", dataset);
+        snprintf(err, errlen, "--calibrate %s: %s", dataset, pr.n ? pr.msg[0] : "cannot open the dataset");
         rc = -1;
     } else {
         rc = calibrate_on(net, &ds, frames, percentile, err, errlen);

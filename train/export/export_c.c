@@ -154,7 +154,7 @@ static int i8_kp(const nj_export_layer *l)
 static int layer_tile(const nj_export_layer *l, int int8, long npos)
 {
     const long budget = 65536, unit = int8 ? 4 : 32, lo = unit, hi = int8 ? 1024 : 512;
-    const long row = int8 ? i8_kp(l) : (l->stride == 1 ? 4L * l->cin : 4L * l->cin * l->k * l->k);
+    const long row = int8 ? 2L * i8_kp(l) : (l->stride == 1 ? 4L * l->cin : 4L * l->cin * l->k * l->k);
     long t = budget / row / unit * unit;
     t = t < lo ? lo : (t > hi ? hi : t);
     long need = (npos + unit - 1) / unit * unit;
@@ -294,9 +294,10 @@ static long alloc_buf(emitter *e, long bytes)
 }
 
 /* The C expression of the buffer at byte offset off. */
-static const char *buf(const emitter *e, long off, char *s, size_t n)
+static const char *buf(const emitter *e, long off, char *s, size_t n, int wide)
 {
-    if (e->net->int8) snprintf(s, n, "sb + %ld", off);
+    if (wide) snprintf(s, n, "(short *)(sb + %ld)", off);   /* the int8 runtime's 16-bit panel */
+    else if (e->net->int8) snprintf(s, n, "sb + %ld", off);
     else snprintf(s, n, "scratch + %ld", off / 4);
     return s;
 }
@@ -314,13 +315,13 @@ static long emit_layer(emitter *e, int unit, long in, int c0, long skip, int h, 
     int oh = (h + 2 * l->pad - l->k) / l->stride + 1, ow = (w + 2 * l->pad - l->k) / l->stride + 1;
     const int tile = e->tile[unit];
     long out = to_depth ? -1 : alloc_buf(e, act_bytes(e) * l->cout * oh * ow);
-    long col = alloc_buf(e, e->net->int8 ? (long)i8_kp(l) * tile : f32_col_bytes(l, h, w, tile));
+    long col = alloc_buf(e, e->net->int8 ? 2L * i8_kp(l) * tile : f32_col_bytes(l, h, w, tile));
     char a[64], b[64], c[64], d[64];
     fprintf(e->f, "    nd_layer_run(&nd_layers[%d], %s, %d, %s, %d, %d,\n                 ", e->index[unit],
-            buf(e, in, a, sizeof a), c0, skip >= 0 ? buf(e, skip, b, sizeof b) : "0", h, w);
+            buf(e, in, a, sizeof a, 0), c0, skip >= 0 ? buf(e, skip, b, sizeof b, 0) : "0", h, w);
     if (to_depth) fputs(e->net->int8 ? "0, depth, " : "depth, ", e->f);
-    else fprintf(e->f, "%s, %s", buf(e, out, c, sizeof c), e->net->int8 ? "0, " : "");
-    fprintf(e->f, "%s); /* %s -> %dx%dx%d */\n", buf(e, col, d, sizeof d), l->name, l->cout, oh, ow);
+    else fprintf(e->f, "%s, %s", buf(e, out, c, sizeof c, 0), e->net->int8 ? "0, " : "");
+    fprintf(e->f, "%s); /* %s -> %dx%dx%d */\n", buf(e, col, d, sizeof d, e->net->int8), l->name, l->cout, oh, ow);
     nj_plan_free(&e->plan, col);
     return out;
 }
@@ -335,7 +336,7 @@ static void emit_run(emitter *e)
             e->p->lower);
     if (e->net->int8) fputs("    signed char *sb = (signed char *)scratch;\n", e->f);
     fputs("    if (!rgb || !scratch || !depth) return -1;\n", e->f);
-    fprintf(e->f, "    nd_input(rgb, %s);\n", buf(e, x, a, sizeof a));
+    fprintf(e->f, "    nd_input(rgb, %s);\n", buf(e, x, a, sizeof a, 0));
     cur = x;
     int c = 3, h = H, w = W;
     for (int i = 0; i < S; i++) {
@@ -360,7 +361,7 @@ static void emit_run(emitter *e)
             continue;
         }
         long up = alloc_buf(e, act_bytes(e) * 4L * c * h * w);
-        fprintf(e->f, "    nd_up2(%s, %d, %d, %d, %s);\n", buf(e, d, a, sizeof a), c, h, w, buf(e, up, b, sizeof b));
+        fprintf(e->f, "    nd_up2(%s, %d, %d, %d, %s);\n", buf(e, d, a, sizeof a, 0), c, h, w, buf(e, up, b, sizeof b, 0));
         nj_plan_free(&e->plan, d);
         h *= 2;
         w *= 2;

@@ -196,10 +196,11 @@ static int cmp_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-static double median(double *v, int n)
+/* The middle of ROUNDS (odd) values. */
+static double median(double *v)
 {
-    qsort(v, (size_t)n, sizeof *v, cmp_double);
-    return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+    qsort(v, ROUNDS, sizeof *v, cmp_double);
+    return v[ROUNDS / 2];
 }
 
 static int side_by_side(double flops)
@@ -221,8 +222,8 @@ static int side_by_side(double flops)
                t[0][r] / t[2][r], t[1][r] / t[0][r]);
     }
     double m[3];
-    for (int k = 0; k < 3; k++) m[k] = median(t[k], ROUNDS);
-    double g = median(gemm, ROUNDS);
+    for (int k = 0; k < 3; k++) m[k] = median(t[k]);
+    double g = median(gemm);
     printf("%-6s %12.2f %12.2f %12.2f %10.2f %10.2f\n", "median", 1e3 * m[0], 1e3 * m[1], 1e3 * m[2], m[0] / m[2],
            m[1] / m[0]);
     printf("f32 / OpenCV %.2f (issue 21: <= 0.5); int8 / f32 %.2f (<= 0.6)\n", m[0] / m[2], m[1] / m[0]);

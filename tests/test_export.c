@@ -337,12 +337,7 @@ static int run_driver_on(const char *sub, const char *runner, const char *frames
     snprintf(cmd, sizeof cmd, "%s '%s/%s/driver' '%s/%s' %d '%s/%s/depth.f32'", runner, dir, sub, dir, frames, n, dir, sub);
     if (sh(cmd)) return -1;
     snprintf(path, sizeof path, "%s/%s/depth.f32", dir, sub);
-    size_t len = 0;
-    char *d = e2e_slurp(path, &len);
-    int ok = d && len == sizeof(float) * npix * n;
-    if (ok) memcpy(out, d, len);
-    free(d);
-    return ok ? 0 : -1;
+    return tdu_read_floats(path, out, (size_t)npix * n);
 }
 
 static int run_driver(const char *sub, const char *runner, int n, float *out)
@@ -415,42 +410,10 @@ static double absrel_vs(const float *a, const float *ref, size_t n)
     return s / (double)n;
 }
 
-static int cmp_float(const void *a, const void *b)
-{
-    float x = *(const float *)a, y = *(const float *)b;
-    return (x > y) - (x < y);
-}
-
 /* AbsRel against the renderer's depth (pixels with depth > 0), median-scaled per frame. */
 static double absrel_gt(float (*pred)[NPIX])
 {
-    static float pa[NPIX], ga[NPIX];
-    double s = 0;
-    long count = 0;
-    for (int k = 0; k < NFR; k++) {
-        int n = 0;
-        for (int p = 0; p < NPIX; p++)
-            if (gt[k][p] > 0) {
-                pa[n] = pred[k][p];
-                ga[n++] = gt[k][p];
-            }
-        float *tp = malloc(sizeof(float) * (size_t)n), *tg = malloc(sizeof(float) * (size_t)n);
-        if (!tp || !tg || n == 0) {
-            free(tp);
-            free(tg);
-            return NAN;
-        }
-        memcpy(tp, pa, sizeof(float) * (size_t)n);
-        memcpy(tg, ga, sizeof(float) * (size_t)n);
-        qsort(tp, (size_t)n, sizeof(float), cmp_float);
-        qsort(tg, (size_t)n, sizeof(float), cmp_float);
-        double scale = (double)tg[n / 2] / tp[n / 2];
-        for (int i = 0; i < n; i++) s += fabs(pa[i] * scale - ga[i]) / ga[i];
-        count += n;
-        free(tp);
-        free(tg);
-    }
-    return s / (double)count;
+    return tdu_absrel_median_scaled(&pred[0][0], &gt[0][0], NFR, NPIX);
 }
 
 /* Sum of the .rodata sections of an object built from SUB/nightjar_depth.c. */
@@ -589,16 +552,6 @@ static int all_lines_start(const char *cmd, const char *prefix, char *bad, size_
     return ok && n > 0;
 }
 
-static int read_f32(const char *path, float *out, size_t n)
-{
-    size_t len = 0;
-    char *d = e2e_slurp(path, &len);
-    int ok = d && len == n * sizeof(float);
-    if (ok) memcpy(out, d, len);
-    free(d);
-    return ok ? 0 : -1;
-}
-
 /* The batch-norm model as yard_, the group-norm one as dock_, both .c files and a
  * main including both headers in one strict C99 program; each model's depth
  * must equal its own single export's (same compiler and flags: bit for bit),
@@ -627,7 +580,8 @@ static void test_two_models(void)
     char p1[512], p2[512];
     snprintf(p1, sizeof p1, "%s/two/yard.f32", dir);
     snprintf(p2, sizeof p2, "%s/two/dock.f32", dir);
-    int ran = built && read_f32(p1, &d1[0][0], (size_t)NFR * NPIX) == 0 && read_f32(p2, &d2[0][0], (size_t)NFR * NPIX) == 0;
+    int ran = built && tdu_read_floats(p1, &d1[0][0], (size_t)NFR * NPIX) == 0 &&
+              tdu_read_floats(p2, &d2[0][0], (size_t)NFR * NPIX) == 0;
     int same1 = ran && !memcmp(d1, out32, sizeof d1), same2 = ran && !memcmp(d2, outg, sizeof d2);
     check(built && same1 && same2,
           "export c --symbol-prefix: two models (yard_, dock_) link into one strict C99 program; each equals its own "

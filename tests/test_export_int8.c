@@ -20,6 +20,7 @@
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/test_data_util.h"
+#include "tests/torch_ref.h"
 #include "tests/train_runs.h"
 #include <math.h>
 #include <stdio.h>
@@ -34,44 +35,6 @@
 
 static char dir[256], data[600], driver[1024];
 static float gt[NF][NPIX];
-
-static int cmp_float(const void *a, const void *b)
-{
-    float x = *(const float *)a, y = *(const float *)b;
-    return (x > y) - (x < y);
-}
-
-static float median(const float *v, int n)
-{
-    float *t = malloc(sizeof(float) * (size_t)n);
-    if (!t) return NAN;
-    memcpy(t, v, sizeof(float) * (size_t)n);
-    qsort(t, (size_t)n, sizeof(float), cmp_float);
-    float m = t[n / 2];
-    free(t);
-    return m;
-}
-
-/* Mean over frames' valid pixels of |s·pred − gt| / gt, s = median(gt) / median(pred) per frame. */
-static double absrel(const float *pred)
-{
-    static float pa[NPIX], ga[NPIX];
-    double sum = 0;
-    long count = 0;
-    for (int k = 0; k < NF; k++) {
-        int n = 0;
-        for (int p = 0; p < NPIX; p++)
-            if (gt[k][p] > 0) {
-                pa[n] = pred[k * NPIX + p];
-                ga[n++] = gt[k][p];
-            }
-        if (n == 0) return NAN;
-        double s = (double)median(ga, n) / median(pa, n);
-        for (int i = 0; i < n; i++) sum += fabs(pa[i] * s - ga[i]) / ga[i];
-        count += n;
-    }
-    return sum / (double)count;
-}
 
 /* Test-split frames as raw RGB bytes (DIR/test.rgb) and their exact depth. */
 static int load_test_split(void)
@@ -120,12 +83,7 @@ static int export_and_run(const char *sub, const char *extra, float *out)
         return -1;
     }
     snprintf(path, sizeof path, "%s/%s/depth.f32", dir, sub);
-    size_t len = 0;
-    char *d = e2e_slurp(path, &len);
-    int ok = d && len == sizeof(float) * NF * NPIX;
-    if (ok) memcpy(out, d, len);
-    free(d);
-    return ok ? 0 : -1;
+    return tdu_read_floats(path, out, (size_t)NF * NPIX);
 }
 
 int main(int argc, char **argv)
@@ -147,14 +105,14 @@ int main(int argc, char **argv)
                      "export int8: f32 and int8 C exports of the trained model build (" STRICT ") and run",
                      "export, build or run failed (above)");
     if (ok) {
-        double a32 = absrel(f32), a8 = absrel(q8);
+        double a32 = tdu_absrel_median_scaled(f32, &gt[0][0], NF, NPIX), a8 = tdu_absrel_median_scaled(q8, &gt[0][0], NF, NPIX);
         printf("  measured: test-split AbsRel (median-scaled, vs the renderer's depth) f32 %.5f, int8 %.5f "
                "(%+.2f %%)\n", a32, a8, 100.0 * (a8 - a32) / a32);
         check(fabs(a8 - a32) <= 0.02 * a32 && memcmp(f32, q8, sizeof f32) != 0,
               "export int8 of a trained model: test-split AbsRel within 2% (relative) of the f32 export's",
               "f32 %.5f int8 %.5f", a32, a8);
     }
-    if (!getenv("NJ_KEEP")) tdu_rmtree(dir);
+    if (!getenv("NJ_KEEP")) ref_rmtree(dir);
     else printf("kept %s\n", dir);
     return test_exit();
 }

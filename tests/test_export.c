@@ -731,6 +731,9 @@ static void test_refusals(void)
     expect_failure("c int8 of a group-norm model", a, 1);
     snprintf(a, sizeof a, "export --model '%s/bn.ckpt' --format c --symbol-prefix 9lives --out '%s/x.c'", dir, dir);
     expect_failure("a --symbol-prefix that cannot start a C name", a, 1);
+    snprintf(a, sizeof a, "export --model '%s/bn.ckpt' --format onnx --calibrate '%s/data/dataset.json' --out '%s/x'",
+             dir, dir, dir);
+    expect_failure("--calibrate without --format c --weights int8", a, 2);
     struct stat st;
     snprintf(a, sizeof a, "%s/x.c", dir);
     check(stat(a, &st) != 0, "export leaves no output behind when it refuses", "%s exists", a);

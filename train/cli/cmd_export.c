@@ -48,6 +48,10 @@ int nj_export_main(int argc, char **argv)
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     o.format = (nj_export_format)format;
+    if ((o.calib_data || nj_opt_find(&spec, "--calibrate-frames")->given) && !(o.format == NJ_EXPORT_C && o.int8))
+        return nj_opt_status(nj_opt_fail(&spec, "--calibrate and --calibrate-frames go with --format c --weights int8"));
+    if (nj_opt_find(&spec, "--symbol-prefix")->given && o.format != NJ_EXPORT_C)
+        return nj_opt_status(nj_opt_fail(&spec, "--symbol-prefix goes with --format c"));
     o.width = size[0];
     o.height = size[1];
     char err[1024] = "";

@@ -150,10 +150,10 @@ static int i8_kp(const nj_export_layer *l)
  * reads it: f32 stride 1, the padded input rows (cin values per position);
  * f32 stride 2, the input-tap panel (cin * k * k per position); int8, the
  * panel of kp bytes per position.  f32: 32..512 positions, a multiple of 32;
- * int8: 4..1024, a multiple of 4; never much beyond the layer's positions. */
+ * int8: 16..1024, a multiple of 16; never much beyond the layer's positions. */
 static int layer_tile(const nj_export_layer *l, int int8, long npos)
 {
-    const long budget = 65536, unit = int8 ? 4 : 32, lo = unit, hi = int8 ? 1024 : 512;
+    const long budget = 65536, unit = int8 ? 16 : 32, lo = unit, hi = int8 ? 1024 : 512;
     const long row = int8 ? 2L * i8_kp(l) : (l->stride == 1 ? 4L * l->cin : 4L * l->cin * l->k * l->k);
     long t = budget / row / unit * unit;
     t = t < lo ? lo : (t > hi ? hi : t);

@@ -2,14 +2,16 @@
 with tools nightjar did not write: onnx.checker (Debian python3-onnx) and
 OpenCV's DNN module as the runtime (python3-opencv).
 
-usage: onnx_check.py MODEL.onnx FRAMES.npy EXPECTED_DEPTH.npy
+usage: onnx_check.py MODEL.onnx FRAMES.npy EXPECTED_DEPTH.npy [--absrel T]
 FRAMES: N x 3 x H x W float32 RGB in [0,1]; EXPECTED: N x H x W depth.
 Checks: the checker passes; opset >= 13; input "image" 1x3xHxW and outputs
 "disparity", "depth" 1x1xHxW, each with a doc string; OpenCV's output
 "depth" for every frame within 1e-4 relative of EXPECTED, and "disparity"
 in (0, 1) and consistent with "depth" through the map documented in the
 metadata (depth = 1 / (1/far + (1/near - 1/far) * disparity), [near, far] =
-the architecture's "depth_range").  Exit 0 when all hold,
+the architecture's "depth_range").  With --absrel T (an int8-weight model
+against a float reference) the mean relative depth error must be <= T and
+not 0 instead.  Exit 0 when all hold,
 else 1 with a message."""
 import json
 import sys
@@ -27,8 +29,11 @@ def dims(value_info):
 
 
 def main():
-    if len(sys.argv) != 4:
-        fail("usage: onnx_check.py MODEL.onnx FRAMES.npy EXPECTED_DEPTH.npy")
+    absrel = None
+    if len(sys.argv) == 6 and sys.argv[4] == "--absrel":
+        absrel = float(sys.argv[5])
+    elif len(sys.argv) != 4:
+        fail("usage: onnx_check.py MODEL.onnx FRAMES.npy EXPECTED_DEPTH.npy [--absrel T]")
     try:
         import onnx
         import cv2
@@ -58,19 +63,25 @@ def main():
     except (KeyError, ValueError, TypeError) as e:
         fail("metadata nightjar.architecture / nightjar.training_config missing or not JSON (%s)" % e)
     net = cv2.dnn.readNetFromONNX(path)
-    worst = 0.0
+    worst, rel_sum = 0.0, 0.0
     for k in range(n):
         net.setInput(np.ascontiguousarray(frames[k:k + 1], dtype=np.float32))
         disp, depth = net.forward(["disparity", "depth"])
         depth = depth.reshape(h, w).astype(np.float64)
         ref = expected[k].astype(np.float64)
         worst = max(worst, float(np.max(np.abs(depth - ref) / np.abs(ref))))
+        rel_sum += float(np.mean(np.abs(depth - ref) / np.abs(ref)))
         if not np.all((disp > 0) & (disp < 1)):
             fail("disparity outside (0, 1)")
         mapped = 1.0 / (lo + (hi - lo) * disp.reshape(h, w).astype(np.float64))
         if not np.max(np.abs(mapped - depth) / depth) <= 1e-5:
             fail("depth does not follow the documented map of disparity")
-    if not worst <= 1e-4:
+    if absrel is not None:
+        mean = rel_sum / n
+        print("  measured: OpenCV int8-weight depth vs reference AbsRel %.4g" % mean)
+        if not (0 < mean <= absrel):
+            fail("AbsRel %.4g not in (0, %g]" % (mean, absrel))
+    elif not worst <= 1e-4:
         fail("OpenCV depth differs from the reference: max relative error %.3g > 1e-4" % worst)
     sys.exit(0)
 

@@ -17,7 +17,7 @@ static const char ABOUT[] =
 
 int nj_export_main(int argc, char **argv)
 {
-    nj_export_options o = {0};
+    nj_export_options o = {.prefix = NJ_EXPORT_PREFIX, .calib_frames = 32};
     int format = 0, size[2] = {0, 0};
     nj_opt opts[] = {
         {.name = "--model", .kind = NJ_OPT_STRING, .meta = "CKPT", .help = "the trained model's checkpoint",
@@ -25,9 +25,20 @@ int nj_export_main(int argc, char **argv)
         {.name = "--format", .kind = NJ_OPT_CHOICE, .choices = FORMATS, .help = "what to write (see above)",
          .required = 1, .i = &format},
         {.name = "--weights", .kind = NJ_OPT_CHOICE, .choices = WEIGHTS,
-         .help = "int8: per-output-channel symmetric int8 weights with float scales\n"
-                 "(activations stay float)",
+         .help = "int8: per-output-channel symmetric int8 weights; the c export\n"
+                 "computes in integers (int8 activations, int32 sums: needs\n"
+                 "--calibrate), onnx and safetensors store the int8 weights",
          .i = &o.int8},
+        {.name = "--calibrate", .kind = NJ_OPT_STRING, .meta = "DATASET",
+         .help = "c int8: dataset JSON whose training frames set the activation\n"
+                 "scales (each layer's 99.99th percentile of |x|)",
+         .str = &o.calib_data},
+        {.name = "--calibrate-frames", .kind = NJ_OPT_INT, .meta = "N", .lo = 1, .hi = 100000,
+         .help = "frames of DATASET to calibrate on, spread over its training\nsequences", .i = &o.calib_frames},
+        {.name = "--symbol-prefix", .kind = NJ_OPT_STRING, .meta = "NAME",
+         .help = "c: prefix of every external name (PREFIXdepth_run, PREFIX\n"
+                 "upper-cased for the macros and the header guard), so several\n"
+                 "exports link into one program", .str = &o.prefix},
         {.name = "--size", .kind = NJ_OPT_SIZE, .meta = "WxH", .lo = 1, .hi = 16384,
          .help = "input size of the c and onnx exports", .dflt = "the training size", .size = size},
         {.name = "--out", .kind = NJ_OPT_STRING, .meta = "PATH", .help = "output file (c: PATH.c and PATH.h)",
@@ -37,6 +48,10 @@ int nj_export_main(int argc, char **argv)
     int rc = nj_opt_main(&spec, argc, argv);
     if (rc != NJ_OPT_OK) return nj_opt_status(rc);
     o.format = (nj_export_format)format;
+    if ((o.calib_data || nj_opt_find(&spec, "--calibrate-frames")->given) && !(o.format == NJ_EXPORT_C && o.int8))
+        return nj_opt_status(nj_opt_fail(&spec, "--calibrate and --calibrate-frames go with --format c --weights int8"));
+    if (nj_opt_find(&spec, "--symbol-prefix")->given && o.format != NJ_EXPORT_C)
+        return nj_opt_status(nj_opt_fail(&spec, "--symbol-prefix goes with --format c"));
     o.width = size[0];
     o.height = size[1];
     char err[1024] = "";

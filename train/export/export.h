@@ -13,8 +13,12 @@
  *
  * With int8 weights each folded conv also gets a per-output-channel
  * symmetric quantisation: scale[o] = max|w[o,:]| / 127 (1 for an all-zero
- * channel), q = round-half-even(w / scale) clamped to [-127, 127]; a conv is
- * then computed as bias[o] + scale[o]·Σ q·x with float activations.
+ * channel), q = round-half-even(w / scale) clamped to [-127, 127].  The ONNX
+ * and safetensors exports store these weights (ONNX computes in float); the C
+ * export computes in integers: int8 activations too, with one symmetric
+ * scale per layer output measured on frames of a dataset
+ * (nj_export_calibrate), int32 sums, requantised per layer (export_c.c
+ * documents the scheme in the generated header).
  *
  * Formats (each file written atomically, data/atomic.h):
  *   c            PATH.c + PATH.h: dependency-free C99 depth runtime (export_c.c)
@@ -54,6 +58,12 @@ typedef struct nj_export_net {
     nj_depth_range depth_range;   /* the model's (model.depth_range) */
     int metric;               /* trained on stereo only: depth in metres */
     const char *source;       /* checkpoint file name, for comments and metadata */
+    /* int8 activations (nj_export_calibrate): real value = q * scale */
+    int calibrated;           /* number of frames measured; 0 = not calibrated */
+    float in_scale;           /* the standardised input's scale */
+    float out_scale[NJ_MAX_UNITS];   /* each layer output's scale (indexed like units) */
+    float in_scale_of[NJ_MAX_UNITS]; /* the scale of each layer's input */
+    float percentile;         /* of |activation| that maps to 127 */
 } nj_export_net;
 
 /* Builds the export view of a loaded model: folds batch norm, quantises when
@@ -73,10 +83,21 @@ const char *nj_export_float_text(float v, char *buf, size_t n);
  * scale as described above. */
 void nj_export_quantise(const float *w, int n_out, int per_out, int8_t *q, float *scale);
 
+/* Runs the folded f32 net (OpenBLAS) on `frames` frames of the training split
+ * of DATASET (spread evenly over its sequences, resized to the export size)
+ * and sets the activation scales: a layer output's scale is the `percentile`
+ * (e.g. 99.99) of |value| over all its values on those frames, divided by
+ * 127; the decoder output that is concatenated with an encoder feature shares
+ * that feature's scale (the larger of the two), so the concatenation needs no
+ * rescaling.  Returns 0 or -1 with a one-line message. */
+int nj_export_calibrate(nj_export_net *net, const char *dataset, int frames, float percentile, char *err,
+                        size_t errlen);
+
 /* Writers.  `path` is the --out argument.  Each returns 0 or -1 with a
  * one-line message naming the file.  *bytes receives the total size written
  * (for the C export: .c plus .h). */
-int nj_export_c(const nj_export_net *net, const char *path, long *bytes, char *err, size_t errlen);
+int nj_export_c(const nj_export_net *net, const char *path, const char *prefix, long *bytes, char *err,
+                size_t errlen);
 int nj_export_onnx(const nj_export_net *net, const char *path, long *bytes, char *err, size_t errlen);
 int nj_export_safetensors(const nj_export_net *net, const char *path, long *bytes, char *err,
                           size_t errlen);
@@ -94,7 +115,14 @@ typedef struct nj_export_options {
     nj_export_format format;
     int int8;                 /* int8 weights, else f32 */
     int width, height;        /* input size of the c and onnx exports; 0: the training size */
+    const char *prefix;       /* C export: prefix of every external symbol (NULL: "nightjar_") */
+    const char *calib_data;   /* C int8: dataset whose training frames set the activation scales */
+    int calib_frames;         /* how many of its frames (default 32) */
 } nj_export_options;
+
+/* The default --symbol-prefix and the percentile calibration uses. */
+#define NJ_EXPORT_PREFIX "nightjar_"
+#define NJ_EXPORT_CALIB_PERCENTILE 99.99f
 
 /* Loads o->model, prepares and writes the export, prints one "export: wrote"
  * line.  Returns 0, or -1 with a one-line message. */

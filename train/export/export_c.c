@@ -1,11 +1,15 @@
 /* train/export/export_c.c — `nightjar export --format c`: a .c/.h pair computing the
  * depth net's finest depth map from an 8-bit RGB frame of a fixed size.
  *
- * The .c holds the weights as static const arrays (float, or signed char
- * plus per-channel float scales), a table of layers, the runtime of
- * export_c_runtime.c and nightjar_depth_run(), a straight-line sequence of
- * layer calls whose buffers sit at fixed offsets in the caller's scratch
- * array (placed by a first-fit plan; the header gives its size). */
+ * The .c holds the weights as static const arrays, packed in the order the
+ * runtime's blocked kernel reads them (f32: ND_OB = 8 output channels at a
+ * time, tap-major; int8: one row of taps per output channel, NHWC tap order,
+ * padded to 16), a table of layers, the runtime of export_c_runtime.c and
+ * PREFIX depth_run(), a straight-line sequence of layer calls whose buffers sit
+ * at fixed offsets in the caller's scratch array (placed by a first-fit plan;
+ * the header gives its size).  Every external name starts with the symbol
+ * prefix (--symbol-prefix; functions as given, macros and the header guard in
+ * upper case), so two exports link into one program. */
 #include "data/atomic.h"
 #include "train/export/export.h"
 #include "train/export/export_c.h"
@@ -19,7 +23,27 @@
 
 typedef struct c_paths {
     char c[4096], h[4096], base[256], guard[300];
+    char lower[40], upper[40];   /* the symbol prefix as given and in upper case */
 } c_paths;
+
+/* The prefix must start a C identifier: [A-Za-z_][A-Za-z0-9_]*, at most 32 characters. */
+static int set_prefix(const char *prefix, c_paths *p, char *err, size_t errlen)
+{
+    size_t n = strlen(prefix);
+    int ok = n > 0 && n <= 32 && !isdigit((unsigned char)prefix[0]);
+    for (size_t i = 0; ok && i < n; i++) ok = isalnum((unsigned char)prefix[i]) || prefix[i] == '_';
+    if (!ok) {
+        snprintf(err, errlen, "--symbol-prefix '%.40s': need 1 to 32 letters, digits or '_', not starting with a "
+                 "digit", prefix);
+        return -1;
+    }
+    for (size_t i = 0; i <= n; i++) {
+        p->lower[i] = prefix[i];
+        p->upper[i] = (char)toupper((unsigned char)prefix[i]);
+    }
+    snprintf(p->guard, sizeof p->guard, "%sDEPTH_H", p->upper);
+    return 0;
+}
 
 /* PATH.c / PATH.h (PATH may already end in .c). */
 static int make_paths(const char *path, c_paths *p, char *err, size_t errlen)
@@ -36,11 +60,6 @@ static int make_paths(const char *path, c_paths *p, char *err, size_t errlen)
     snprintf(p->c, sizeof p->c, "%.*s.c", (int)len, path);
     snprintf(p->h, sizeof p->h, "%.*s.h", (int)len, path);
     snprintf(p->base, sizeof p->base, "%.*s", (int)blen, base);
-    size_t g = 0;
-    for (size_t i = 0; i < blen && g + 3 < sizeof p->guard; i++)
-        p->guard[g++] = isalnum((unsigned char)base[i]) ? (char)toupper((unsigned char)base[i]) : '_';
-    snprintf(p->guard + g, sizeof p->guard - g, "_H");
-    if (isdigit((unsigned char)p->guard[0])) p->guard[0] = '_';
     return 0;
 }
 
@@ -83,6 +102,16 @@ static void put_int8s(FILE *f, const char *name, const int8_t *v, size_t n)
     fputs("};\n", f);
 }
 
+static void put_int32s(FILE *f, const char *name, const int32_t *v, size_t n)
+{
+    fprintf(f, "static const int %s[%zu] = {\n", name, n);
+    for (size_t i = 0; i < n; i++) {
+        fprintf(f, "%s%ld%s", i % 8 == 0 ? "    " : " ", (long)v[i], i + 1 < n ? "," : "");
+        if (i % 8 == 7 || i + 1 == n) fputc('\n', f);
+    }
+    fputs("};\n", f);
+}
+
 /* Units of the depth path in execution order: encoder, decoder, head 0. */
 static int depth_path(const nj_model *m, int *order)
 {
@@ -99,43 +128,148 @@ static int depth_path(const nj_model *m, int *order)
     return n;
 }
 
-static void put_layer_arrays(FILE *f, const nj_export_layer *l)
+/* ---- kernel layout ------------------------------------------------------------ */
+
+#define F32_OB 8          /* ND_OB of the f32 runtime: output channels per packed block */
+#define I8_OB 4           /* output channels per block of the int8 kernel */
+#define I8_KALIGN 16      /* int8 tap rows are padded to this many bytes */
+
+static long layer_positions(const nj_export_layer *l, int h, int w)
 {
+    return (long)((h + 2 * l->pad - l->k) / l->stride + 1) * ((w + 2 * l->pad - l->k) / l->stride + 1);
+}
+
+static int i8_kp(const nj_export_layer *l)
+{
+    int kn = l->cin * l->k * l->k;
+    return (kn + I8_KALIGN - 1) / I8_KALIGN * I8_KALIGN;
+}
+
+/* Output positions per block of work.  The data a block reads is kept near
+ * 64 KiB, so it stays in the core's L2 while every output-channel block
+ * reads it: f32 stride 1, the padded input rows (cin values per position);
+ * f32 stride 2, the input-tap panel (cin * k * k per position); int8, the
+ * panel of kp bytes per position.  f32: 32..512 positions, a multiple of 32;
+ * int8: 16..1024, a multiple of 16; never much beyond the layer's positions. */
+static int layer_tile(const nj_export_layer *l, int int8, long npos)
+{
+    const long budget = 65536, unit = int8 ? 16 : 32, lo = unit, hi = int8 ? 1024 : 512;
+    const long row = int8 ? 2L * i8_kp(l) : (l->stride == 1 ? 4L * l->cin : 4L * l->cin * l->k * l->k);
+    long t = budget / row / unit * unit;
+    t = t < lo ? lo : (t > hi ? hi : t);
+    long need = (npos + unit - 1) / unit * unit;
+    return (int)(t < need ? t : need);
+}
+
+/* Bytes of the f32 runtime's col scratch: the padded input (stride 1) or the panel. */
+static long f32_col_bytes(const nj_export_layer *l, int ih, int iw, int tile)
+{
+    if (l->stride != 1) return 4L * l->cin * l->k * l->k * tile;
+    const long wp = iw + 2 * l->pad;
+    return 4L * ((long)l->cin * (ih + 2 * l->pad) * wp + 64 + 2 * wp);   /* ND_SLACK(wp) */
+}
+
+/* f32 weights packed for nd_kernel: blocks of F32_OB output channels, tap-major. */
+static float *pack_f32(const nj_export_layer *l, size_t *n)
+{
+    const long kn = (long)l->cin * l->k * l->k, blocks = (l->cout + F32_OB - 1) / F32_OB;
+    *n = (size_t)(blocks * F32_OB * kn);
+    float *p = calloc(*n, sizeof *p);
+    for (int o = 0; p && o < l->cout; o++)
+        for (long j = 0; j < kn; j++) p[(o / F32_OB) * kn * F32_OB + j * F32_OB + o % F32_OB] = l->w[o * kn + j];
+    return p;
+}
+
+/* int8 weights for the integer kernel: rows of kp taps in (ky, kx, ci) order. */
+static int8_t *pack_i8(const nj_export_layer *l, size_t *n)
+{
+    const int kp = i8_kp(l), kk = l->k * l->k, rows = (l->cout + I8_OB - 1) / I8_OB * I8_OB;
+    *n = (size_t)rows * kp;
+    int8_t *p = calloc(*n, 1);
+    for (int o = 0; p && o < l->cout; o++)
+        for (int ci = 0; ci < l->cin; ci++)
+            for (int t = 0; t < kk; t++) p[(size_t)o * kp + t * l->cin + ci] = l->q[((size_t)o * l->cin + ci) * kk + t];
+    return p;
+}
+
+/* Round half away from zero, saturated to int32 (the bias at the accumulator's scale). */
+static int32_t round_i32(double v)
+{
+    double r = v >= 0 ? floor(v + 0.5) : -floor(-v + 0.5);
+    return (int32_t)(r > 2147483647.0 ? 2147483647.0 : (r < -2147483647.0 ? -2147483647.0 : r));
+}
+
+static int put_layer_arrays(FILE *f, const nj_export_net *net, int unit)
+{
+    const nj_export_layer *l = &net->layers[unit];
     char id[80], nm[100];
     ident(l->name, id, sizeof id);
-    size_t nw = (size_t)l->cout * l->cin * l->k * l->k;
+    size_t n = 0;
     fprintf(f, "/* %s: %d -> %d channels, %dx%d, stride %d, %s padding */\n", l->name, l->cin, l->cout, l->k,
             l->k, l->stride, l->pad_mode == NJ_PAD_REFLECT ? "reflection" : "zero");
     snprintf(nm, sizeof nm, "nd_w_%s", id);
-    if (l->q) put_int8s(f, nm, l->q, nw);
-    else put_floats(f, "float", nm, l->w, nw);
+    if (net->int8) {
+        int8_t *q = pack_i8(l, &n);
+        int32_t *bias = malloc(sizeof *bias * (size_t)l->cout);
+        float *mul = malloc(sizeof *mul * (size_t)l->cout);
+        if (!q || !bias || !mul) {
+            free(q);
+            free(bias);
+            free(mul);
+            return -1;
+        }
+        put_int8s(f, nm, q, n);
+        const float sx = net->in_scale_of[unit];
+        for (int o = 0; o < l->cout; o++) {
+            mul[o] = l->scale[o] * sx;
+            bias[o] = round_i32((double)l->b[o] / mul[o]);
+        }
+        snprintf(nm, sizeof nm, "nd_b_%s", id);
+        put_int32s(f, nm, bias, (size_t)l->cout);
+        snprintf(nm, sizeof nm, "nd_m_%s", id);
+        put_floats(f, "float", nm, mul, (size_t)l->cout);
+        free(q);
+        free(bias);
+        free(mul);
+        return 0;
+    }
+    float *w = pack_f32(l, &n);
+    if (!w) return -1;
+    put_floats(f, "float", nm, w, n);
+    free(w);
     snprintf(nm, sizeof nm, "nd_b_%s", id);
     put_floats(f, "float", nm, l->b, (size_t)l->cout);
-    if (l->scale) {
-        snprintf(nm, sizeof nm, "nd_s_%s", id);
-        put_floats(f, "float", nm, l->scale, (size_t)l->cout);
-    }
     if (l->groups) {
         snprintf(nm, sizeof nm, "nd_g_%s", id);
         put_floats(f, "float", nm, l->gamma, (size_t)l->cout);
         snprintf(nm, sizeof nm, "nd_e_%s", id);
         put_floats(f, "float", nm, l->beta, (size_t)l->cout);
     }
+    return 0;
 }
 
-static void put_layer_entry(FILE *f, const nj_export_layer *l, int last)
+static int act_code(const nj_export_layer *l)
 {
+    return l->act == NJ_ACT_ELU ? 1 : (l->act == NJ_ACT_SIGMOID ? 2 : 0);
+}
+
+static void put_layer_entry(FILE *f, const nj_export_net *net, int unit, int tile, int up, int last)
+{
+    const nj_export_layer *l = &net->layers[unit];
     char id[80];
     ident(l->name, id, sizeof id);
-    fprintf(f, "    {nd_w_%s, ", id);
-    if (l->scale) fprintf(f, "nd_s_%s, ", id);
-    else fputs("0, ", f);
-    fprintf(f, "nd_b_%s, ", id);
+    if (net->int8) {
+        fprintf(f, "    {nd_w_%s, nd_b_%s, nd_m_%s, ", id, id, id);
+        put_float(f, l->act == NJ_ACT_SIGMOID ? 1.0f : 1.0f / net->out_scale[unit]);
+        fprintf(f, ", %d, %d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->cin, l->cout, l->k, l->stride, l->pad,
+                l->pad_mode == NJ_PAD_REFLECT, act_code(l), i8_kp(l), tile, last ? "" : ",", l->name);
+        return;
+    }
+    fprintf(f, "    {nd_w_%s, nd_b_%s, ", id, id);
     if (l->groups) fprintf(f, "nd_g_%s, nd_e_%s, ", id, id);
     else fputs("0, 0, ", f);
-    fprintf(f, "%d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->groups, l->cin, l->cout, l->k, l->stride, l->pad,
-            l->pad_mode == NJ_PAD_REFLECT, l->act == NJ_ACT_ELU ? 1 : (l->act == NJ_ACT_SIGMOID ? 2 : 0),
-            last ? "" : ",", l->name);
+    fprintf(f, "%d, %d, %d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->groups, l->cin, l->cout, l->k, l->stride,
+            l->pad, l->pad_mode == NJ_PAD_REFLECT, act_code(l), tile, up, last ? "" : ",", l->name);
 }
 
 /* ---- the run function --------------------------------------------------------- */
@@ -143,16 +277,35 @@ static void put_layer_entry(FILE *f, const nj_export_layer *l, int last)
 typedef struct emitter {
     FILE *f;
     const nj_export_net *net;
-    nj_scratch_plan plan;
-    int index[NJ_MAX_UNITS];   /* unit → row of nd_layers */
+    const c_paths *p;
+    nj_scratch_plan plan;     /* in bytes */
+    int index[NJ_MAX_UNITS];  /* unit → row of nd_layers */
+    int tile[NJ_MAX_UNITS];   /* unit → positions per block of work */
+    int up[NJ_MAX_UNITS];     /* unit → 1: upsamples its first input as it reads it (f32) */
     int failed;
 } emitter;
 
-static long alloc_buf(emitter *e, long floats)
+/* Buffers start on 64-byte boundaries (a cache line, and any vector's alignment). */
+static long alloc_buf(emitter *e, long bytes)
 {
-    long off = nj_plan_alloc(&e->plan, floats);
+    long off = nj_plan_alloc(&e->plan, (bytes + 63) / 64 * 64);
     if (off < 0) e->failed = 1;
     return off < 0 ? 0 : off;
+}
+
+/* The C expression of the buffer at byte offset off. */
+static const char *buf(const emitter *e, long off, char *s, size_t n, int wide)
+{
+    if (wide) snprintf(s, n, "(short *)(sb + %ld)", off);   /* the int8 runtime's 16-bit panel */
+    else if (e->net->int8) snprintf(s, n, "sb + %ld", off);
+    else snprintf(s, n, "scratch + %ld", off / 4);
+    return s;
+}
+
+/* Bytes of one activation value. */
+static long act_bytes(const emitter *e)
+{
+    return e->net->int8 ? 1 : 4;
 }
 
 /* Emits one layer call; returns the output's offset (or -1 for the depth array). */
@@ -160,15 +313,15 @@ static long emit_layer(emitter *e, int unit, long in, int c0, long skip, int h, 
 {
     const nj_export_layer *l = &e->net->layers[unit];
     int oh = (h + 2 * l->pad - l->k) / l->stride + 1, ow = (w + 2 * l->pad - l->k) / l->stride + 1;
-    long out = to_depth ? -1 : alloc_buf(e, (long)l->cout * oh * ow);
-    long col = alloc_buf(e, (long)l->cin * l->k * l->k * ow);
-    fprintf(e->f, "    nd_layer_run(&nd_layers[%d], scratch + %ld, %d, ", e->index[unit], in, c0);
-    if (skip >= 0) fprintf(e->f, "scratch + %ld, ", skip);
-    else fputs("0, ", e->f);
-    fprintf(e->f, "%d, %d,\n                 ", h, w);
-    if (to_depth) fputs("depth, ", e->f);
-    else fprintf(e->f, "scratch + %ld, ", out);
-    fprintf(e->f, "scratch + %ld); /* %s -> %dx%dx%d */\n", col, l->name, l->cout, oh, ow);
+    const int tile = e->tile[unit];
+    long out = to_depth ? -1 : alloc_buf(e, act_bytes(e) * l->cout * oh * ow);
+    long col = alloc_buf(e, e->net->int8 ? 2L * i8_kp(l) * tile : f32_col_bytes(l, h, w, tile));
+    char a[64], b[64], c[64], d[64];
+    fprintf(e->f, "    nd_layer_run(&nd_layers[%d], %s, %d, %s, %d, %d,\n                 ", e->index[unit],
+            buf(e, in, a, sizeof a, 0), c0, skip >= 0 ? buf(e, skip, b, sizeof b, 0) : "0", h, w);
+    if (to_depth) fputs(e->net->int8 ? "0, depth, " : "depth, ", e->f);
+    else fprintf(e->f, "%s, %s", buf(e, out, c, sizeof c, 0), e->net->int8 ? "0, " : "");
+    fprintf(e->f, "%s); /* %s -> %dx%dx%d */\n", buf(e, col, d, sizeof d, e->net->int8), l->name, l->cout, oh, ow);
     nj_plan_free(&e->plan, col);
     return out;
 }
@@ -177,10 +330,13 @@ static void emit_run(emitter *e)
 {
     const nj_model *m = e->net->model;
     const int S = m->cfg.stages, H = e->net->height, W = e->net->width;
-    long feat[NJ_MAX_STAGES], x = alloc_buf(e, 3L * H * W), cur;
-    fputs("int nightjar_depth_run(const unsigned char *rgb, float *scratch, float *depth, float *disparity)\n{\n"
-          "    if (!rgb || !scratch || !depth) return -1;\n", e->f);
-    fprintf(e->f, "    nd_input(rgb, scratch + %ld);\n", x);
+    long feat[NJ_MAX_STAGES], x = alloc_buf(e, act_bytes(e) * 3L * H * W), cur;
+    char a[64], b[64];
+    fprintf(e->f, "int %sdepth_run(const unsigned char *rgb, float *scratch, float *depth, float *disparity)\n{\n",
+            e->p->lower);
+    if (e->net->int8) fputs("    signed char *sb = (signed char *)scratch;\n", e->f);
+    fputs("    if (!rgb || !scratch || !depth) return -1;\n", e->f);
+    fprintf(e->f, "    nd_input(rgb, %s);\n", buf(e, x, a, sizeof a, 0));
     cur = x;
     int c = 3, h = H, w = W;
     for (int i = 0; i < S; i++) {
@@ -196,8 +352,16 @@ static void emit_run(emitter *e)
         long d = emit_layer(e, m->dec[i][0], cur, c, -1, h, w, 0);
         nj_plan_free(&e->plan, cur);
         c = e->net->layers[m->dec[i][0]].cout;
-        long up = alloc_buf(e, 4L * c * h * w);
-        fprintf(e->f, "    nd_up2(scratch + %ld, %d, %d, %d, scratch + %ld);\n", d, c, h, w, up);
+        if (e->up[m->dec[i][1]]) {   /* f32: upsampled while its input is padded */
+            h *= 2;
+            w *= 2;
+            cur = emit_layer(e, m->dec[i][1], d, c, i > 0 ? feat[i - 1] : -1, h, w, 0);
+            nj_plan_free(&e->plan, d);
+            if (i > 0) nj_plan_free(&e->plan, feat[i - 1]);
+            continue;
+        }
+        long up = alloc_buf(e, act_bytes(e) * 4L * c * h * w);
+        fprintf(e->f, "    nd_up2(%s, %d, %d, %d, %s);\n", buf(e, d, a, sizeof a, 0), c, h, w, buf(e, up, b, sizeof b, 0));
         nj_plan_free(&e->plan, d);
         h *= 2;
         w *= 2;
@@ -209,15 +373,63 @@ static void emit_run(emitter *e)
     fputs("    nd_output(depth, disparity);\n    return 0;\n}\n", e->f);
 }
 
+/* Input height and width of each unit on the depth path at the export size. */
+static void layer_sizes(const nj_export_net *net, int *ih, int *iw)
+{
+    const nj_model *m = net->model;
+    int h = net->height, w = net->width;
+    for (int i = 0; i < m->cfg.stages; i++) {
+        ih[m->enc[i][0]] = h;
+        iw[m->enc[i][0]] = w;
+        h /= 2;
+        w /= 2;
+        ih[m->enc[i][1]] = h;
+        iw[m->enc[i][1]] = w;
+    }
+    for (int i = m->cfg.stages - 1; i >= 0; i--) {
+        ih[m->dec[i][0]] = h;
+        iw[m->dec[i][0]] = w;
+        h *= 2;
+        w *= 2;
+        ih[m->dec[i][1]] = h;
+        iw[m->dec[i][1]] = w;
+    }
+    ih[m->head[0]] = h;
+    iw[m->head[0]] = w;
+}
+
+/* int8: byte -> quantised standardised input, computed as the f32 runtime's nd_input does. */
+static void put_input_table(FILE *f, const nj_export_net *net)
+{
+    int8_t t[256];
+    const float scale = 1.0f / NJ_MODEL_INPUT_STD, shift = -NJ_MODEL_INPUT_MEAN / NJ_MODEL_INPUT_STD;
+    for (int v = 0; v < 256; v++) {
+        float x = (scale * ((float)v / 255.0f) + shift) / net->in_scale;
+        long q = lroundf(x);
+        t[v] = (int8_t)(q > 127 ? 127 : (q < -127 ? -127 : q));
+    }
+    fputs("/* byte -> int8 of the standardised input at scale ", f);
+    put_float(f, net->in_scale);
+    fputs(" */\n", f);
+    put_int8s(f, "nd_in_q", t, 256);
+    fputc('\n', f);
+}
+
 /* ---- files ----------------------------------------------------------------------- */
 
-static void write_source(emitter *e, const c_paths *p, const char *ckpt_name)
+static int write_source(emitter *e, const c_paths *p, const char *ckpt_name)
 {
     FILE *f = e->f;
     const nj_export_net *net = e->net;
-    int order[4 * NJ_MAX_STAGES + 1], n = depth_path(net->model, order);
+    int order[4 * NJ_MAX_STAGES + 1], n = depth_path(net->model, order), ih[NJ_MAX_UNITS], iw[NJ_MAX_UNITS];
     for (int i = 0; i < NJ_MAX_UNITS; i++) e->index[i] = -1;
-    for (int i = 0; i < n; i++) e->index[order[i]] = i;
+    layer_sizes(net, ih, iw);
+    for (int i = 0; i < net->model->cfg.stages && !net->int8; i++) e->up[net->model->dec[i][1]] = 1;
+    for (int i = 0; i < n; i++) {
+        e->index[order[i]] = i;
+        const nj_export_layer *l = &net->layers[order[i]];
+        e->tile[order[i]] = layer_tile(l, net->int8, layer_positions(l, ih[order[i]], iw[order[i]]));
+    }
     fprintf(f, "/* %s.c - depth from one camera frame; generated by nightjar %s export from %s.\n"
             " * See %s.h for the interface.  C99, libm only; no allocation, no threads. */\n",
             p->base, NJ_VERSION, ckpt_name, p->base);
@@ -232,18 +444,40 @@ static void write_source(emitter *e, const c_paths *p, const char *ckpt_name)
     fputs("\n#define ND_DISP_SPAN ", f);
     put_float(f, hi - lo);
     fputs("\n\n", f);
-    nj_export_c_runtime(f, net->int8);
+    if (net->int8) put_input_table(f, net);
+    nj_export_c_runtime(f, net->int8, p->upper, p->lower);
     fputs("/* ---- weights (batch norm folded into the convs) ---------------------------- */\n\n", f);
-    for (int i = 0; i < n; i++) put_layer_arrays(f, &net->layers[order[i]]);
+    for (int i = 0; i < n; i++)
+        if (put_layer_arrays(f, net, order[i])) return -1;
     fprintf(f, "\nstatic const struct nd_layer nd_layers[%d] = {\n", n);
-    for (int i = 0; i < n; i++) put_layer_entry(f, &net->layers[order[i]], i + 1 == n);
+    for (int i = 0; i < n; i++) put_layer_entry(f, net, order[i], e->tile[order[i]], e->up[order[i]], i + 1 == n);
     fputs("};\n\n", f);
     emit_run(e);
+    return 0;
 }
+
+static const char INT8_DOC[] =
+    " *\n"
+    " * Integer arithmetic (int8 weights and activations, int32 sums), after Jacob et al.\n"
+    " * 2018 (\"Quantization and training of neural networks for efficient integer-\n"
+    " * arithmetic-only inference\"), with symmetric scales (zero point 0):\n"
+    " *   real weight w = qw * sw[o]   (sw per output channel: max |w[o,:]| / 127)\n"
+    " *   real activation x = qx * sx  (sx per layer output, from %d frames of the training\n"
+    " *                                 data: the %g-th percentile of |x| / 127)\n"
+    " *   acc = sum(qw * qx) + qb[o]   (int32; qb = round(bias / (sw[o] * sx_in)))\n"
+    " *   v = (float)acc * m[o]        (m = sw[o] * sx_in: the real pre-activation)\n"
+    " *   q_out = clamp(round_half_away(act(v) / sx_out), -127, 127)\n"
+    " * act is ELU with e^v computed by additions and multiplications only (no libm),\n"
+    " * and the head's sigmoid the same way, so the float steps give the same bits on\n"
+    " * every IEEE-754 target: compile without FP contraction (-ffp-contract=off, the\n"
+    " * default of gcc -std=c99/c11) for results bit-identical to other targets.\n"
+    " * Activations are stored channels-last (NHWC) in the scratch array; each layer call\n"
+    " * also keeps 16 KiB of int32 sums on the stack.\n";
 
 static void write_header(FILE *f, const nj_export_net *net, const c_paths *p, long scratch, const char *ckpt)
 {
     const nj_model_config *mc = &net->model->cfg;
+    const char *P = p->upper;
     char mean[32], std[32];
     nj_export_float_text(NJ_MODEL_INPUT_MEAN, mean, sizeof mean);
     nj_export_float_text(NJ_MODEL_INPUT_STD, std, sizeof std);
@@ -251,42 +485,46 @@ static void write_header(FILE *f, const nj_export_net *net, const c_paths *p, lo
         "/* %s.h - depth from one camera frame; generated by nightjar %s export from %s.\n"
         " *\n"
         " * Network: nightjar depth net (%d stages, width %g, %s normalisation%s),\n"
-        " * finest disparity output; weights %s.\n"
-        " * Trained on %dx%d frames.\n"
-        " *\n"
-        " * Input: one %dx%d frame, 8-bit RGB interleaved (R, G, B per pixel), rows top to\n"
-        " *   bottom without padding: rgb[(y * NIGHTJAR_DEPTH_WIDTH + x) * 3 + c].  Resize the\n"
-        " *   camera image to exactly this size first, keeping the field of view used in training.\n"
-        " * Normalisation (done inside): v = byte / 255, x = (v - %s) / %s per channel.\n"
-        " * Output: depth[y * NIGHTJAR_DEPTH_WIDTH + x],\n"
-        " *   %s, between\n"
-        " *   NIGHTJAR_DEPTH_MIN and NIGHTJAR_DEPTH_MAX; optionally the network's disparity\n"
-        " *   s in (0, 1), with depth = 1 / (1/MAX + (1/MIN - 1/MAX) * s).\n"
-        " * Memory: the caller passes a scratch array of NIGHTJAR_DEPTH_SCRATCH_FLOATS floats\n"
-        " *   (NIGHTJAR_DEPTH_SCRATCH_BYTES bytes); nothing is allocated.  One call at a time per\n"
-        " *   scratch array; no threads.  Link with libm (-lm).\n"
-        " */\n",
+        " * finest disparity output; %s.\n"
+        " * Trained on %dx%d frames.\n",
         p->base, NJ_VERSION, ckpt, mc->stages, (double)mc->width,
         mc->norm == NJ_NORM_BATCH ? "batch" : (mc->norm == NJ_NORM_GROUP ? "group" : "no"),
         mc->norm == NJ_NORM_BATCH ? " folded into the convs" : "",
-        net->int8 ? "int8 per output channel (symmetric, float scales), float activations" : "float32",
-        net->cfg->width, net->cfg->height, net->width, net->height, mean, std,
+        net->int8 ? "int8 weights and activations" : "float32", net->cfg->width, net->cfg->height);
+    if (net->int8) fprintf(f, INT8_DOC, net->calibrated, (double)net->percentile);
+    fprintf(f,
+        " *\n"
+        " * Input: one %dx%d frame, 8-bit RGB interleaved (R, G, B per pixel), rows top to\n"
+        " *   bottom without padding: rgb[(y * %sDEPTH_WIDTH + x) * 3 + c].  Resize the\n"
+        " *   camera image to exactly this size first, keeping the field of view used in training.\n"
+        " * Normalisation (done inside): v = byte / 255, x = (v - %s) / %s per channel.\n"
+        " * Output: depth[y * %sDEPTH_WIDTH + x],\n"
+        " *   %s, between\n"
+        " *   %sDEPTH_MIN and %sDEPTH_MAX; optionally the network's disparity\n"
+        " *   s in (0, 1), with depth = 1 / (1/MAX + (1/MIN - 1/MAX) * s).\n"
+        " * Memory: the caller passes a scratch array of %sDEPTH_SCRATCH_FLOATS floats\n"
+        " *   (%sDEPTH_SCRATCH_BYTES bytes); nothing is allocated.  One call at a time per\n"
+        " *   scratch array; no threads.  Link with libm (-lm).\n"
+        " * Names: every external name starts with \"%s\" (functions) or \"%s\" (macros).\n"
+        " */\n",
+        net->width, net->height, P, mean, std, P,
         net->metric ? "in metres (the model was trained on rectified stereo pairs)"
                     : "in the model's own units: trained on monocular video, so the depth\n"
-                      " *   is right only up to one unknown scale factor (not metres)");
+                      " *   is right only up to one unknown scale factor (not metres)",
+        P, P, P, P, p->lower, P);
     fprintf(f, "#ifndef %s\n#define %s\n\n", p->guard, p->guard);
-    fprintf(f, "#define NIGHTJAR_DEPTH_WIDTH %d\n#define NIGHTJAR_DEPTH_HEIGHT %d\n", net->width, net->height);
-    fputs("#define NIGHTJAR_DEPTH_MIN ", f);
+    fprintf(f, "#define %sDEPTH_WIDTH %d\n#define %sDEPTH_HEIGHT %d\n", P, net->width, P, net->height);
+    fprintf(f, "#define %sDEPTH_MIN ", P);
     put_float(f, net->depth_range.near);
-    fputs("\n#define NIGHTJAR_DEPTH_MAX ", f);
+    fprintf(f, "\n#define %sDEPTH_MAX ", P);
     put_float(f, net->depth_range.far);
-    fprintf(f, "\n#define NIGHTJAR_DEPTH_SCRATCH_FLOATS %ldL\n", scratch);
-    fputs("#define NIGHTJAR_DEPTH_SCRATCH_BYTES (NIGHTJAR_DEPTH_SCRATCH_FLOATS * (long)sizeof(float))\n\n", f);
-    fputs("/* Computes the depth map of one frame.  rgb: the input above; scratch: at least\n"
-          " * NIGHTJAR_DEPTH_SCRATCH_FLOATS floats; depth: WIDTH * HEIGHT floats; disparity: NULL or\n"
-          " * WIDTH * HEIGHT floats.  Returns 0, or -1 when rgb, scratch or depth is NULL. */\n"
-          "int nightjar_depth_run(const unsigned char *rgb, float *scratch, float *depth, float *disparity);\n\n",
-          f);
+    fprintf(f, "\n#define %sDEPTH_SCRATCH_FLOATS %ldL\n", P, (scratch + 3) / 4);
+    fprintf(f, "#define %sDEPTH_SCRATCH_BYTES (%sDEPTH_SCRATCH_FLOATS * (long)sizeof(float))\n\n", P, P);
+    fprintf(f, "/* Computes the depth map of one frame.  rgb: the input above; scratch: at least\n"
+            " * %sDEPTH_SCRATCH_FLOATS floats; depth: WIDTH * HEIGHT floats; disparity: NULL or\n"
+            " * WIDTH * HEIGHT floats.  Returns 0, or -1 when rgb, scratch or depth is NULL. */\n"
+            "int %sdepth_run(const unsigned char *rgb, float *scratch, float *depth, float *disparity);\n\n",
+            P, p->lower);
     fprintf(f, "#endif\n");
 }
 
@@ -306,20 +544,34 @@ static long file_size(const char *path)
     return stat(path, &st) == 0 ? (long)st.st_size : 0;
 }
 
-int nj_export_c(const nj_export_net *net, const char *path, long *bytes, char *err, size_t errlen)
+int nj_export_c(const nj_export_net *net, const char *path, const char *prefix, long *bytes, char *err,
+                size_t errlen)
 {
     c_paths p;
-    if (make_paths(path, &p, err, errlen)) return -1;
+    if (make_paths(path, &p, err, errlen) || set_prefix(prefix ? prefix : NJ_EXPORT_PREFIX, &p, err, errlen))
+        return -1;
+    if (net->int8 && !net->calibrated) {
+        snprintf(err, errlen, "--format c --weights int8 needs --calibrate DATASET (int8 activations need "
+                 "their scales measured on frames)");
+        return -1;
+    }
+    for (int i = 0; net->int8 && i < net->nlayers; i++)
+        if (net->layers[i].groups) {
+            snprintf(err, errlen, "--format c --weights int8: layer %s has group norm, whose per-frame statistics "
+                     "the integer runtime does not compute; export f32", net->layers[i].name);
+            return -1;
+        }
     char ckpt[128];
     source_name(net->source, ckpt, sizeof ckpt);
     emitter e;
     memset(&e, 0, sizeof e);
     e.net = net;
+    e.p = &p;
     nj_atomic_file src, hdr;
     if (nj_atomic_open(&src, p.c, err, errlen)) return -1;
     e.f = src.f;
-    write_source(&e, &p, ckpt);
-    if (e.failed) snprintf(err, errlen, "%s: scratch plan overflow", p.c);
+    if (write_source(&e, &p, ckpt)) e.failed = 1;
+    if (e.failed) snprintf(err, errlen, "%s: scratch plan overflow or out of memory", p.c);
     int ok = !e.failed && !ferror(src.f);
     if (nj_atomic_close(&src, ok, err, errlen) || !ok) return -1;
     if (nj_atomic_open(&hdr, p.h, err, errlen)) return -1;

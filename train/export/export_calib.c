@@ -263,7 +263,8 @@ int nj_export_calibrate(nj_export_net *net, const char *dataset, int frames, flo
     nj_data_options o;
     nj_problems pr;
     nj_data_options_default(&o);
-    o.k = 1;   /* as check-data: every frame counts, the split's sample rule does not matter here */
+    o.offsets[0] = 1;   /* as check-data: every frame counts, the split's sample rule does not matter here */
+    o.noffsets = 1;
     o.stereo = 0;
     o.dup_threshold = 0;
     o.headers_only = 1;

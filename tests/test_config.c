@@ -354,6 +354,10 @@ static void test_shipped(const char *argv0)
         int rc = nj_train_config_load(&c, path, err, sizeof err);
         if (rc == 0) rc = nj_train_config_check(&c, err, sizeof err);
         check(rc == 0, name, "%s", err);
+        /* issue 18: auto-masking is on in every shipped video config (the one
+         * defence against a vehicle followed at the camera's speed) */
+        snprintf(name, sizeof name, "config_shipped_%.*s_video_has_automask", (int)(len - 5), e->d_name);
+        if (rc == 0 && c.video && c.noffsets > 0) check(c.loss.automask, name, "loss.automask is off");
         count++;
     }
     if (d) closedir(d);
@@ -366,7 +370,8 @@ static void test_shipped(const char *argv0)
     int rc = nj_train_config_load(&c, path, err, sizeof err);
     snprintf(want, sizeof want, "%s/../demo-out/data/dataset.json", dir);
     check(rc == 0 && !strcmp(c.dataset, want) && c.width % 32 == 0 && c.height % 32 == 0 && c.batch == 4 &&
-              c.video && c.noffsets == 1 && c.offsets[0] == 2 && c.minutes == 5,
+              c.video && c.noffsets == 2 && c.offsets[0] == 1 && c.offsets[1] == 2 && c.loss.automask_widest &&
+              c.minutes == 5,
           "config_demo_contents", "rc %d dataset %s %dx%d batch %d minutes %g", rc, c.dataset, c.width, c.height,
           c.batch, c.minutes);
     nj_train_config_default(&c);

@@ -32,11 +32,14 @@
 
 static char dir[64];
 
-static int open_dataset(const char *json, nj_dataset *ds, nj_sample **samples, int *n)
+/* Opens the training split with `opt` (NULL: the defaults without duplicate skipping). */
+static int open_dataset_with(const char *json, const nj_data_options *opt, nj_dataset *ds, nj_sample **samples,
+                             int *n)
 {
     nj_data_options o;
     nj_data_options_default(&o);
     o.dup_threshold = 0;
+    if (opt) o = *opt;
     nj_problems pr;
     nj_problems_init(&pr);
     int bad = nj_dataset_open(json, &o, ds, &pr);
@@ -44,6 +47,11 @@ static int open_dataset(const char *json, nj_dataset *ds, nj_sample **samples, i
     nj_problems_free(&pr);
     *n = bad ? 0 : nj_dataset_samples(ds, NJ_SPLIT_TRAIN, &o, samples);
     return bad || *n <= 0 ? -1 : 0;
+}
+
+static int open_dataset(const char *json, nj_dataset *ds, nj_sample **samples, int *n)
+{
+    return open_dataset_with(json, NULL, ds, samples, n);
 }
 
 static size_t batch_floats(const nj_batch *b) { return (size_t)b->n * 3 * b->w * b->h; }
@@ -379,12 +387,10 @@ static void test_multi_offsets(const char *json)
     o.offsets[0] = 1;
     o.offsets[1] = 3;
     o.noffsets = 2;
-    nj_problems pr;
-    nj_problems_init(&pr);
     nj_dataset ds;
     nj_sample *s = NULL;
-    int bad = nj_dataset_open(json, &o, &ds, &pr), n = bad ? 0 : nj_dataset_samples(&ds, NJ_SPLIT_TRAIN, &o, &s);
-    nj_problems_free(&pr);
+    int n = 0;
+    open_dataset_with(json, &o, &ds, &s, &n);
     int order = n == 4;
     for (int i = 0; order && i < n; i++) {
         int t = 3 + i;
@@ -414,7 +420,7 @@ static void test_multi_offsets(const char *json)
     check(ok, "loader_offsets_1_3_source_planes", "a source plane is not its frame decoded and resized");
     nj_loader_destroy(L);
     free(s);
-    if (!bad) nj_dataset_free(&ds);
+    if (n > 0) nj_dataset_free(&ds);
 }
 
 static void test_missing_file(nj_dataset *ds, const nj_sample *s, int n)

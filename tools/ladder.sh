@@ -3,25 +3,30 @@
 # trains each rung (configs/ladder-*.json: the overnight recipe at another
 # model.width / input size) for N minutes on a dataset, evaluates it on the
 # test split, exports it as f32 and int8 C (int8 calibrated on 32 training
-# frames), times both on one core (fastest of 15 runs per round, the two
+# frames), runs both exports on every test frame and scores them against the
+# ground truth (the int8 export's AbsRel next to the f32 export's), times both on one core (fastest of 15 runs per round, the two
 # alternating over 3 rounds, median), cross-compiles the f32 and int8 objects
 # for aarch64 and prints one README table row per rung:
 #
-#   | rung | AbsRel | δ<1.25 | f32 ms | int8 ms | weights f32 / int8 | scratch f32 / int8 | aarch64 .o f32 / int8 |
+#   | rung | steps | AbsRel | δ<1.25 | export AbsRel f32 / int8 | f32 ms | int8 ms | weights f32 / int8 | scratch f32 / int8 | aarch64 .o f32 / int8 |
 #
-# usage: tools/ladder.sh [--minutes N] [--data DATASET.json] [--out DIR] [--threads N] [RUNG ...]
+# usage: tools/ladder.sh [--minutes N] [--steps N] [--data DATASET.json] [--out DIR] [--threads N] [RUNG ...]
 #   defaults: 30 minutes, the configs' data.dataset (the demo data), /tmp/nj_ladder,
-#   all threads for training, every configs/ladder-*.json; RUNG is a config
+#   all threads for training, every configs/ladder-*.json; --steps N trains
+#   N steps instead of N minutes (a budget that does not depend on the
+#   machine's load; the cosine schedule then spans exactly N); RUNG is a config
 #   name such as ladder-w050.  Run from the repository root after `make nightjar`.
 #   A rung already trained in DIR/RUNG/final.ckpt is not trained again (delete it to retrain).
 set -eu
 minutes=30
+steps=0
 data=""
 out=/tmp/nj_ladder
 threads=0
 while [ $# -gt 0 ]; do
     case "$1" in
         --minutes) minutes=$2; shift 2 ;;
+        --steps) steps=$2; shift 2 ;;
         --data) data=$2; shift 2 ;;
         --out) out=$2; shift 2 ;;
         --threads) threads=$2; shift 2 ;;
@@ -50,7 +55,11 @@ for rung in $rungs; do
     [ -f "$cfg" ] || { echo "ladder.sh: no $cfg" >&2; exit 1; }
     d=$out/$rung
     mkdir -p "$d"
-    set -- --config "$cfg" --out "$d/run" --minutes "$minutes" --threads "$threads"
+    if [ "$steps" -gt 0 ]; then
+        set -- --config "$cfg" --out "$d/run" --steps "$steps" --minutes 0 --threads "$threads"
+    else
+        set -- --config "$cfg" --out "$d/run" --minutes "$minutes" --threads "$threads"
+    fi
     [ -n "$data" ] && set -- "$@" --data "$data"
     if [ ! -f "$d/run/final.ckpt" ]; then
         ./nightjar train "$@" > "$d/train.log" 2>&1 || { echo "ladder.sh: $rung: training failed (see $d/train.log)" >&2; exit 1; }
@@ -61,17 +70,32 @@ for rung in $rungs; do
     delta=$(jget "$d/eval.json" delta_1_25)
     w=$($py -c "import json,sys; c=json.load(open(sys.argv[1])); print(c['data']['width'], c['data']['height'])" "$cfg")
     W=${w% *}; H=${w#* }
-    # one test frame at the rung's size as raw RGB
-    $py - "$ds" "$W" "$H" "$d/frame.rgb" <<'EOF'
-import json, os, sys, cv2
-ds, w, h, out = sys.argv[1], int(sys.argv[2]), int(sys.argv[3]), sys.argv[4]
+    # every test frame at the rung's size as raw RGB, and its ground-truth depth
+    # sampled at the model's pixel centres (nearest pixel, as eval carries depth)
+    nframes=$($py - "$ds" "$W" "$H" "$d/frames.rgb" "$d/gt.npy" <<'EOF'
+import json, os, sys, cv2, numpy as np
+ds, w, h, out, gtout = sys.argv[1], int(sys.argv[2]), int(sys.argv[3]), sys.argv[4], sys.argv[5]
 j = json.load(open(ds))
+root = os.path.dirname(ds)
 seq = next((s for s in j["sequences"] if s.get("split") == "test"), j["sequences"][0])
-folder = os.path.join(os.path.dirname(ds), seq["images"])
-name = sorted(f for f in os.listdir(folder) if f.lower().endswith((".png", ".jpg", ".jpeg")))[0]
-im = cv2.resize(cv2.imread(os.path.join(folder, name)), (w, h), interpolation=cv2.INTER_AREA)
-open(out, "wb").write(im[:, :, ::-1].tobytes())
+folder = os.path.join(root, seq["images"])
+names = sorted(f for f in os.listdir(folder) if f.lower().endswith((".png", ".jpg", ".jpeg")))
+ddir = os.path.join(root, seq["depth"]["dir"])
+dnames = sorted(f for f in os.listdir(ddir) if f.endswith(".npy"))
+gts = []
+with open(out, "wb") as f:
+    for name, dn in zip(names, dnames):
+        im = cv2.imread(os.path.join(folder, name))
+        f.write(cv2.resize(im, (w, h), interpolation=cv2.INTER_AREA)[:, :, ::-1].tobytes())
+        g = np.load(os.path.join(ddir, dn)).astype(np.float32)
+        ys = ((np.arange(h) + 0.5) * g.shape[0] / h).astype(int)
+        xs = ((np.arange(w) + 0.5) * g.shape[1] / w).astype(int)
+        gts.append(g[ys][:, xs])
+np.save(gtout, np.stack(gts))
+print(len(gts))
 EOF
+)
+    head -c $((W * H * 3)) "$d/frames.rgb" > "$d/frame.rgb"
     for k in f32 int8; do
         mkdir -p "$d/$k"
         if [ $k = int8 ]; then
@@ -84,6 +108,26 @@ EOF
         gcc -std=c99 -O3 -march=native -I"$d/$k" "$driver" "$d/$k/nd.o" -o "$d/$k/driver" -lm
         aarch64-linux-gnu-gcc -std=c99 -O3 -c "$d/$k/nightjar_depth.c" -o "$d/$k/arm.o"
     done
+    # AbsRel of each export on the test frames: per-image median scaling,
+    # ground truth in (1e-3, 80) m, prediction clamped there — the formula of
+    # train/measure/metrics.h (Eigen et al. 2014; Zhou et al. 2017)
+    for k in f32 int8; do
+        "$d/$k/driver" "$d/frames.rgb" "$nframes" "$d/$k/depth.f32" > /dev/null
+    done
+    xabs=$($py - "$d/gt.npy" "$d/f32/depth.f32" "$d/int8/depth.f32" <<'EOF'
+import sys, numpy as np
+gt = np.load(sys.argv[1]); n, h, w = gt.shape
+def absrel(path):
+    p = np.fromfile(path, np.float32).reshape(n, h, w); r = []
+    for g, q in zip(gt, p):
+        m = (g > 1e-3) & (g < 80) & np.isfinite(g)
+        s = np.median(g[m]) / np.median(q[m])
+        r.append(np.mean(np.abs(g[m] - np.clip(q[m] * s, 1e-3, 80)) / g[m]))
+    return np.mean(r)
+a, b = absrel(sys.argv[2]), absrel(sys.argv[3])
+print("%.4f / %.4f (%+.1f %%)" % (a, b, 100 * (b - a) / a))
+EOF
+)
     : > "$d/times.txt"
     for r in 1 2 3; do
         for k in f32 int8; do
@@ -92,9 +136,10 @@ EOF
         done
     done
     med() { grep "^$1 " "$d/times.txt" | awk '{print $2}' | sort -g | sed -n 2p; }
-    printf '| %s (width %s, %sx%s) | %.3f | %.3f | %.1f | %.1f | %s / %s | %s / %s | %s / %s |\n' \
+    nsteps=$(grep '"type":"end"' "$d/run/log.jsonl" | tail -n 1 | sed 's/.*"step":\([0-9]*\).*/\1/')
+    printf '| %s (width %s, %sx%s) | %s | %.3f | %.3f | %s | %.1f | %.1f | %s / %s | %s / %s | %s / %s |\n' \
         "$rung" "$($py -c "import json,sys; print(json.load(open(sys.argv[1]))['model']['width'])" "$cfg")" "$W" "$H" \
-        "$absrel" "$delta" "$(med f32)" "$(med int8)" \
+        "$nsteps" "$absrel" "$delta" "$xabs" "$(med f32)" "$(med int8)" \
         "$(kib "$(rodata "$d/f32/nd.o")")" "$(kib "$(rodata "$d/int8/nd.o")")" \
         "$(kib "$(scratch "$d/f32/nightjar_depth.h")")" "$(kib "$(scratch "$d/int8/nightjar_depth.h")")" \
         "$(kib "$(stat -c %s "$d/f32/arm.o")")" "$(kib "$(stat -c %s "$d/int8/arm.o")")"

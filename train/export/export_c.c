@@ -132,6 +132,7 @@ static int depth_path(const nj_model *m, int *order)
 
 #define F32_OB 8          /* ND_OB of the f32 runtime: output channels per packed block */
 #define I8_OB 4           /* output channels per block of the int8 kernel */
+#define I8_PB 6           /* positions per block of the int8 kernel */
 #define I8_KALIGN 32      /* int8 tap rows are padded to this many bytes */
 
 static long layer_positions(const nj_export_layer *l, int h, int w)
@@ -160,8 +161,8 @@ static long i8_stack_row(const nj_export_layer *l, int iw)
  * (ND_SLACK8), then the int32 sums of their positions (cout rounded to 4). */
 static long i8_col_bytes(const nj_export_layer *l, int iw, int tile)
 {
-    const long slack = 4L * l->stride * l->k * l->cin + i8_kp(l);
-    const long pos = ((long)tile * i8_nr(l, iw) + 3) / 4 * 4;
+    const long slack = (long)I8_PB * l->stride * l->k * l->cin + i8_kp(l);
+    const long pos = ((long)tile * i8_nr(l, iw) + I8_PB - 1) / I8_PB * I8_PB;
     return (tile * i8_stack_row(l, iw) + slack + 63) / 64 * 64 + 4L * pos * ((l->cout + 3) / 4 * 4);
 }
 
@@ -175,7 +176,7 @@ static int layer_tile(const nj_export_layer *l, int int8, long npos, int ih, int
 {
     if (int8) {
         const int oh = (ih + 2 * l->pad - l->k) / l->stride + 1;
-        long rows = 65536 / i8_stack_row(l, iw);
+        long rows = 524288 / i8_stack_row(l, iw);
         return (int)(rows < 1 ? 1 : (rows > oh ? oh : rows));
     }
     const long budget = 65536, unit = 32, lo = unit, hi = 512;

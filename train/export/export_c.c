@@ -146,24 +146,21 @@ static int i8_kp(const nj_export_layer *l)
     return (kn + I8_KALIGN - 1) / I8_KALIGN * I8_KALIGN;
 }
 
-/* int8: positions per stacked row (the runtime's nr) and bytes of one stacked row. */
-static int i8_nr(const nj_export_layer *l, int iw)
-{
-    return (iw + 2 * l->pad + l->stride - 1) / l->stride;
-}
-
+/* int8: bytes of one stacked input row (the runtime's nd_stack: iw + 2 pad
+ * pixels of k * cin bytes). */
 static long i8_stack_row(const nj_export_layer *l, int iw)
 {
-    return (long)i8_nr(l, iw) * l->stride * l->k * l->cin;
+    return (long)(iw + 2 * l->pad) * l->k * l->cin;
 }
 
-/* Bytes of the int8 runtime's scratch: tile stacked rows, their slack
- * (ND_SLACK8), then the int32 sums of their positions (cout rounded to 4). */
+/* Bytes of the int8 runtime's scratch: tile stacked rows and kp bytes, then
+ * the int32 sums of their output positions (a multiple of I8_PB of them,
+ * cout rounded up to I8_OB apart). */
 static long i8_col_bytes(const nj_export_layer *l, int iw, int tile)
 {
-    const long slack = (long)I8_PB * l->stride * l->k * l->cin + i8_kp(l);
-    const long pos = ((long)tile * i8_nr(l, iw) + I8_PB - 1) / I8_PB * I8_PB;
-    return (tile * i8_stack_row(l, iw) + slack + 63) / 64 * 64 + 4L * pos * ((l->cout + 3) / 4 * 4);
+    const long ow = (iw + 2 * l->pad - l->k) / l->stride + 1;
+    const long pos = (tile * ow + I8_PB - 1) / I8_PB * I8_PB;
+    return (tile * i8_stack_row(l, iw) + i8_kp(l) + 63) / 64 * 64 + 4L * pos * ((l->cout + I8_OB - 1) / I8_OB * I8_OB);
 }
 
 /* Output positions per block of work.  The data a block reads is kept near

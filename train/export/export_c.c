@@ -495,8 +495,8 @@ static const char INT8_DOC[] =
     " * and the head's sigmoid the same way, so the float steps give the same bits on\n"
     " * every IEEE-754 target: compile without FP contraction (-ffp-contract=off, the\n"
     " * default of gcc -std=c99/c11) for results bit-identical to other targets.\n"
-    " * Activations are stored channels-last (NHWC) in the scratch array; each layer call\n"
-    " * also keeps 16 KiB of int32 sums on the stack.\n";
+    " * Activations are stored channels-last (NHWC) in the scratch array as the bytes\n"
+    " * q + 128 (the sums are taken as u8 x s8 products, and 128 * sum(qw) comes off qb).\n";
 
 static void write_header(FILE *f, const nj_export_net *net, const c_paths *p, long scratch, const char *ckpt)
 {

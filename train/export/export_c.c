@@ -132,29 +132,60 @@ static int depth_path(const nj_model *m, int *order)
 
 #define F32_OB 8          /* ND_OB of the f32 runtime: output channels per packed block */
 #define I8_OB 4           /* output channels per block of the int8 kernel */
-#define I8_KALIGN 16      /* int8 tap rows are padded to this many bytes */
+#define I8_PB 6           /* positions per block of the int8 kernel */
 
 static long layer_positions(const nj_export_layer *l, int h, int w)
 {
     return (long)((h + 2 * l->pad - l->k) / l->stride + 1) * ((w + 2 * l->pad - l->k) / l->stride + 1);
 }
 
+/* int8 tap rows are padded to a multiple of 64 bytes (32 when the taps fit
+ * in 32): gcc's u8 x s8 loop takes 64 bytes a step and finishes a remainder
+ * with a 32-byte step and then scalar code.  Padding 144 taps to 192 rather
+ * than 160 took the 16-channel layers from 0.92 to 0.69 ms (the largest);
+ * the 27-tap first layer ran slower padded to 64. */
 static int i8_kp(const nj_export_layer *l)
 {
-    int kn = l->cin * l->k * l->k;
-    return (kn + I8_KALIGN - 1) / I8_KALIGN * I8_KALIGN;
+    const int kn = l->cin * l->k * l->k, align = kn <= 32 ? 32 : 64;
+    return (kn + align - 1) / align * align;
 }
 
-/* Output positions per block of work.  The data a block reads is kept near
- * 64 KiB, so it stays in the core's L2 while every output-channel block
- * reads it: f32 stride 1, the padded input rows (cin values per position);
- * f32 stride 2, the input-tap panel (cin * k * k per position); int8, the
- * panel of kp bytes per position.  f32: 32..512 positions, a multiple of 32;
- * int8: 16..1024, a multiple of 16; never much beyond the layer's positions. */
-static int layer_tile(const nj_export_layer *l, int int8, long npos)
+/* int8: bytes of one stacked input row (the runtime's nd_stack: iw + 2 pad
+ * pixels of k * cin bytes). */
+static long i8_stack_row(const nj_export_layer *l, int iw)
 {
-    const long budget = 65536, unit = int8 ? 16 : 32, lo = unit, hi = int8 ? 1024 : 512;
-    const long row = int8 ? 2L * i8_kp(l) : (l->stride == 1 ? 4L * l->cin : 4L * l->cin * l->k * l->k);
+    return (long)(iw + 2 * l->pad) * l->k * l->cin;
+}
+
+/* Bytes of the int8 runtime's scratch: tile stacked rows and kp bytes, then
+ * the int32 sums of their output positions (a multiple of I8_PB of them,
+ * cout rounded up to I8_OB apart). */
+static long i8_col_bytes(const nj_export_layer *l, int iw, int tile)
+{
+    const long ow = (iw + 2 * l->pad - l->k) / l->stride + 1;
+    const long pos = (tile * ow + I8_PB - 1) / I8_PB * I8_PB;
+    return (tile * i8_stack_row(l, iw) + i8_kp(l) + 63) / 64 * 64 + 4L * pos * ((l->cout + I8_OB - 1) / I8_OB * I8_OB);
+}
+
+/* Positions per block of work.  f32: the data a block reads is kept near
+ * 64 KiB, so it stays in the core's L2 while every output-channel block
+ * reads it: stride 1, the padded input rows (cin values per position);
+ * stride 2, the input-tap panel (cin * k * k per position); 32..512
+ * positions, a multiple of 32; never much beyond the layer's positions.
+ * int8: output rows (at least one) whose stacked input rows fill 256 KiB:
+ * each block of 4 weight rows is read once per block of output rows, and
+ * the big decoder layers' weights (up to 864 KiB) stream from L2/L3 (the
+ * per-layer times at 320x96 summed, one run each on a loaded machine, at
+ * the time: 128 KiB 8.3 ms, 256 KiB 7.5, 512 KiB 7.6). */
+static int layer_tile(const nj_export_layer *l, int int8, long npos, int ih, int iw)
+{
+    if (int8) {
+        const int oh = (ih + 2 * l->pad - l->k) / l->stride + 1;
+        long rows = 262144 / i8_stack_row(l, iw);
+        return (int)(rows < 1 ? 1 : (rows > oh ? oh : rows));
+    }
+    const long budget = 65536, unit = 32, lo = unit, hi = 512;
+    const long row = l->stride == 1 ? 4L * l->cin : 4L * l->cin * l->k * l->k;
     long t = budget / row / unit * unit;
     t = t < lo ? lo : (t > hi ? hi : t);
     long need = (npos + unit - 1) / unit * unit;
@@ -180,15 +211,18 @@ static float *pack_f32(const nj_export_layer *l, size_t *n)
     return p;
 }
 
-/* int8 weights for the integer kernel: rows of kp taps in (ky, kx, ci) order. */
+/* int8 weights for the integer kernel: rows of kp taps in (kx, ky, ci) order,
+ * the order of the runtime's row stacks. */
 static int8_t *pack_i8(const nj_export_layer *l, size_t *n)
 {
-    const int kp = i8_kp(l), kk = l->k * l->k, rows = (l->cout + I8_OB - 1) / I8_OB * I8_OB;
+    const int kp = i8_kp(l), k = l->k, kk = k * k, rows = (l->cout + I8_OB - 1) / I8_OB * I8_OB;
     *n = (size_t)rows * kp;
     int8_t *p = calloc(*n, 1);
     for (int o = 0; p && o < l->cout; o++)
         for (int ci = 0; ci < l->cin; ci++)
-            for (int t = 0; t < kk; t++) p[(size_t)o * kp + t * l->cin + ci] = l->q[((size_t)o * l->cin + ci) * kk + t];
+            for (int ky = 0; ky < k; ky++)
+                for (int kx = 0; kx < k; kx++)
+                    p[(size_t)o * kp + (kx * k + ky) * l->cin + ci] = l->q[((size_t)o * l->cin + ci) * kk + ky * k + kx];
     return p;
 }
 
@@ -220,9 +254,12 @@ static int put_layer_arrays(FILE *f, const nj_export_net *net, int unit)
         }
         put_int8s(f, nm, q, n);
         const float sx = net->in_scale_of[unit];
-        for (int o = 0; o < l->cout; o++) {
+        const long kn = (long)l->cin * l->k * l->k;
+        for (int o = 0; o < l->cout; o++) {   /* activations come as q + 128: take 128 * sum(w) off the bias */
+            long sw = 0;
+            for (long j = 0; j < kn; j++) sw += l->q[o * kn + j];
             mul[o] = l->scale[o] * sx;
-            bias[o] = round_i32((double)l->b[o] / mul[o]);
+            bias[o] = round_i32((double)round_i32((double)l->b[o] / mul[o]) - 128.0 * (double)sw);
         }
         snprintf(nm, sizeof nm, "nd_b_%s", id);
         put_int32s(f, nm, bias, (size_t)l->cout);
@@ -261,8 +298,8 @@ static void put_layer_entry(FILE *f, const nj_export_net *net, int unit, int til
     if (net->int8) {
         fprintf(f, "    {nd_w_%s, nd_b_%s, nd_m_%s, ", id, id, id);
         put_float(f, l->act == NJ_ACT_SIGMOID ? 1.0f : 1.0f / net->out_scale[unit]);
-        fprintf(f, ", %d, %d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->cin, l->cout, l->k, l->stride, l->pad,
-                l->pad_mode == NJ_PAD_REFLECT, act_code(l), i8_kp(l), tile, last ? "" : ",", l->name);
+        fprintf(f, ", %d, %d, %d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->cin, l->cout, l->k, l->stride, l->pad,
+                l->pad_mode == NJ_PAD_REFLECT, act_code(l), i8_kp(l), tile, up, last ? "" : ",", l->name);
         return;
     }
     fprintf(f, "    {nd_w_%s, nd_b_%s, ", id, id);
@@ -281,7 +318,7 @@ typedef struct emitter {
     nj_scratch_plan plan;     /* in bytes */
     int index[NJ_MAX_UNITS];  /* unit → row of nd_layers */
     int tile[NJ_MAX_UNITS];   /* unit → positions per block of work */
-    int up[NJ_MAX_UNITS];     /* unit → 1: upsamples its first input as it reads it (f32) */
+    int up[NJ_MAX_UNITS];     /* unit → 1: upsamples its first input as it reads it (each dec[i][1]) */
     int failed;
 } emitter;
 
@@ -294,10 +331,9 @@ static long alloc_buf(emitter *e, long bytes)
 }
 
 /* The C expression of the buffer at byte offset off. */
-static const char *buf(const emitter *e, long off, char *s, size_t n, int wide)
+static const char *buf(const emitter *e, long off, char *s, size_t n)
 {
-    if (wide) snprintf(s, n, "(short *)(sb + %ld)", off);   /* the int8 runtime's 16-bit panel */
-    else if (e->net->int8) snprintf(s, n, "sb + %ld", off);
+    if (e->net->int8) snprintf(s, n, "sb + %ld", off);
     else snprintf(s, n, "scratch + %ld", off / 4);
     return s;
 }
@@ -315,13 +351,13 @@ static long emit_layer(emitter *e, int unit, long in, int c0, long skip, int h, 
     int oh = (h + 2 * l->pad - l->k) / l->stride + 1, ow = (w + 2 * l->pad - l->k) / l->stride + 1;
     const int tile = e->tile[unit];
     long out = to_depth ? -1 : alloc_buf(e, act_bytes(e) * l->cout * oh * ow);
-    long col = alloc_buf(e, e->net->int8 ? 2L * i8_kp(l) * tile : f32_col_bytes(l, h, w, tile));
+    long col = alloc_buf(e, e->net->int8 ? i8_col_bytes(l, w, tile) : f32_col_bytes(l, h, w, tile));
     char a[64], b[64], c[64], d[64];
     fprintf(e->f, "    nd_layer_run(&nd_layers[%d], %s, %d, %s, %d, %d,\n                 ", e->index[unit],
-            buf(e, in, a, sizeof a, 0), c0, skip >= 0 ? buf(e, skip, b, sizeof b, 0) : "0", h, w);
+            buf(e, in, a, sizeof a), c0, skip >= 0 ? buf(e, skip, b, sizeof b) : "0", h, w);
     if (to_depth) fputs(e->net->int8 ? "0, depth, " : "depth, ", e->f);
-    else fprintf(e->f, "%s, %s", buf(e, out, c, sizeof c, 0), e->net->int8 ? "0, " : "");
-    fprintf(e->f, "%s); /* %s -> %dx%dx%d */\n", buf(e, col, d, sizeof d, e->net->int8), l->name, l->cout, oh, ow);
+    else fprintf(e->f, "%s, %s", buf(e, out, c, sizeof c), e->net->int8 ? "0, " : "");
+    fprintf(e->f, "%s); /* %s -> %dx%dx%d */\n", buf(e, col, d, sizeof d), l->name, l->cout, oh, ow);
     nj_plan_free(&e->plan, col);
     return out;
 }
@@ -331,12 +367,12 @@ static void emit_run(emitter *e)
     const nj_model *m = e->net->model;
     const int S = m->cfg.stages, H = e->net->height, W = e->net->width;
     long feat[NJ_MAX_STAGES], x = alloc_buf(e, act_bytes(e) * 3L * H * W), cur;
-    char a[64], b[64];
+    char a[64];
     fprintf(e->f, "int %sdepth_run(const unsigned char *rgb, float *scratch, float *depth, float *disparity)\n{\n",
             e->p->lower);
-    if (e->net->int8) fputs("    signed char *sb = (signed char *)scratch;\n", e->f);
+    if (e->net->int8) fputs("    unsigned char *sb = (unsigned char *)scratch;\n", e->f);
     fputs("    if (!rgb || !scratch || !depth) return -1;\n", e->f);
-    fprintf(e->f, "    nd_input(rgb, %s);\n", buf(e, x, a, sizeof a, 0));
+    fprintf(e->f, "    nd_input(rgb, %s);\n", buf(e, x, a, sizeof a));
     cur = x;
     int c = 3, h = H, w = W;
     for (int i = 0; i < S; i++) {
@@ -352,21 +388,10 @@ static void emit_run(emitter *e)
         long d = emit_layer(e, m->dec[i][0], cur, c, -1, h, w, 0);
         nj_plan_free(&e->plan, cur);
         c = e->net->layers[m->dec[i][0]].cout;
-        if (e->up[m->dec[i][1]]) {   /* f32: upsampled while its input is padded */
-            h *= 2;
-            w *= 2;
-            cur = emit_layer(e, m->dec[i][1], d, c, i > 0 ? feat[i - 1] : -1, h, w, 0);
-            nj_plan_free(&e->plan, d);
-            if (i > 0) nj_plan_free(&e->plan, feat[i - 1]);
-            continue;
-        }
-        long up = alloc_buf(e, act_bytes(e) * 4L * c * h * w);
-        fprintf(e->f, "    nd_up2(%s, %d, %d, %d, %s);\n", buf(e, d, a, sizeof a, 0), c, h, w, buf(e, up, b, sizeof b, 0));
-        nj_plan_free(&e->plan, d);
-        h *= 2;
+        h *= 2;   /* dec[i][1] upsamples d as it pads (f32) or stacks (int8) its input */
         w *= 2;
-        cur = emit_layer(e, m->dec[i][1], up, c, i > 0 ? feat[i - 1] : -1, h, w, 0);
-        nj_plan_free(&e->plan, up);
+        cur = emit_layer(e, m->dec[i][1], d, c, i > 0 ? feat[i - 1] : -1, h, w, 0);
+        nj_plan_free(&e->plan, d);
         if (i > 0) nj_plan_free(&e->plan, feat[i - 1]);
     }
     emit_layer(e, m->head[0], cur, c, -1, h, w, 1);
@@ -398,20 +423,22 @@ static void layer_sizes(const nj_export_net *net, int *ih, int *iw)
     iw[m->head[0]] = w;
 }
 
-/* int8: byte -> quantised standardised input, computed as the f32 runtime's nd_input does. */
+/* int8: byte -> quantised standardised input + 128 (the runtime's bytes),
+ * computed as the f32 runtime's nd_input does. */
 static void put_input_table(FILE *f, const nj_export_net *net)
 {
-    int8_t t[256];
+    int t[256];
     const float scale = 1.0f / NJ_MODEL_INPUT_STD, shift = -NJ_MODEL_INPUT_MEAN / NJ_MODEL_INPUT_STD;
     for (int v = 0; v < 256; v++) {
         float x = (scale * ((float)v / 255.0f) + shift) / net->in_scale;
         long q = lroundf(x);
-        t[v] = (int8_t)(q > 127 ? 127 : (q < -127 ? -127 : q));
+        t[v] = (int)(q > 127 ? 127 : (q < -127 ? -127 : q)) + 128;
     }
     fputs("/* byte -> int8 of the standardised input at scale ", f);
     put_float(f, net->in_scale);
-    fputs(" */\n", f);
-    put_int8s(f, "nd_in_q", t, 256);
+    fputs(", + 128 */\nstatic const unsigned char nd_in_u[256] = {\n", f);
+    for (int v = 0; v < 256; v++) fprintf(f, "%s%d%s", v % 24 == 0 ? "    " : "", t[v], v % 24 == 23 || v == 255 ? ",\n" : ",");
+    fputs("};\n", f);
     fputc('\n', f);
 }
 
@@ -424,11 +451,12 @@ static int write_source(emitter *e, const c_paths *p, const char *ckpt_name)
     int order[4 * NJ_MAX_STAGES + 1], n = depth_path(net->model, order), ih[NJ_MAX_UNITS], iw[NJ_MAX_UNITS];
     for (int i = 0; i < NJ_MAX_UNITS; i++) e->index[i] = -1;
     layer_sizes(net, ih, iw);
-    for (int i = 0; i < net->model->cfg.stages && !net->int8; i++) e->up[net->model->dec[i][1]] = 1;
+    for (int i = 0; i < net->model->cfg.stages; i++) e->up[net->model->dec[i][1]] = 1;
     for (int i = 0; i < n; i++) {
         e->index[order[i]] = i;
         const nj_export_layer *l = &net->layers[order[i]];
-        e->tile[order[i]] = layer_tile(l, net->int8, layer_positions(l, ih[order[i]], iw[order[i]]));
+        e->tile[order[i]] = layer_tile(l, net->int8, layer_positions(l, ih[order[i]], iw[order[i]]), ih[order[i]],
+                                       iw[order[i]]);
     }
     fprintf(f, "/* %s.c - depth from one camera frame; generated by nightjar %s export from %s.\n"
             " * See %s.h for the interface.  C99, libm only; no allocation, no threads. */\n",
@@ -471,8 +499,8 @@ static const char INT8_DOC[] =
     " * and the head's sigmoid the same way, so the float steps give the same bits on\n"
     " * every IEEE-754 target: compile without FP contraction (-ffp-contract=off, the\n"
     " * default of gcc -std=c99/c11) for results bit-identical to other targets.\n"
-    " * Activations are stored channels-last (NHWC) in the scratch array; each layer call\n"
-    " * also keeps 16 KiB of int32 sums on the stack.\n";
+    " * Activations are stored channels-last (NHWC) in the scratch array as the bytes\n"
+    " * q + 128 (the sums are taken as u8 x s8 products, and 128 * sum(qw) comes off qb).\n";
 
 static void write_header(FILE *f, const nj_export_net *net, const c_paths *p, long scratch, const char *ckpt)
 {

@@ -131,7 +131,7 @@ EOF
     : > "$d/times.txt"
     for r in 1 2 3; do
         for k in f32 int8; do
-            t=$("$d/$k/driver" "$d/frame.rgb" 1 "$d/$k/depth.f32" 15 | awk '/^min_seconds_per_frame/ {print $2 * 1000}')
+            t=$("$d/$k/driver" "$d/frame.rgb" 1 "$d/$k/timed.f32" 15 | awk '/^min_seconds_per_frame/ {print $2 * 1000}')
             echo "$k $t" >> "$d/times.txt"
         done
     done

@@ -149,6 +149,42 @@ static void test_hand_rotation(void)
     nj_motion_from_c2w(ci, cj, m);
     check(m[3] == 0 && m[7] == 0 && m[11] == -1 && nj_rotation_angle(m) == 0, "hand: motion between two camera poses",
           "t = (%g, %g, %g)", m[3], m[7], m[11]);
+    /* rotation vectors: the turns above, a 1e-5 rad turn, and turns near π built
+     * by Rodrigues' formula (R = I + sin θ K + (1 − cos θ) K², Rodrigues 1840),
+     * where sin θ no longer carries the axis: 3.1 and 3.14159 rad about
+     * (1, 2, 2)/3 and (0.36, 0.48, −0.8) (its largest component negative, so the
+     * axis's sign must come from the antisymmetric part), and π itself, where
+     * v and −v are the same rotation */
+    double v[3], vb[3];
+    nj_rotation_vector(Rz, v);
+    nj_rotation_vector(Rb, vb);
+    int vok = close_to(v[0], 0, 1e-15) && close_to(v[1], 0, 1e-15) && close_to(v[2], 0.3, 1e-12) &&
+              close_to(vb[0], -0.25, 1e-12) && close_to(vb[1], 0, 1e-15) && close_to(vb[2], 0, 1e-15);
+    nj_rotation_vector(Ry, v);
+    vok &= close_to(v[1], e, 1e-15) && v[0] == 0 && v[2] == 0;
+    const double th[5] = {3.1, 3.14159, 3.1, 3.14159, M_PI};
+    const double ax[5][3] = {{1.0 / 3, 2.0 / 3, 2.0 / 3}, {1.0 / 3, 2.0 / 3, 2.0 / 3}, {0.36, 0.48, -0.8},
+                             {0.36, 0.48, -0.8}, {0.36, 0.48, -0.8}};
+    double worst = 0;
+    for (int t = 0; t < 5; t++) {
+        const double *n = ax[t];
+        double K[9] = {0, -n[2], n[1], n[2], 0, -n[0], -n[1], n[0], 0}, R[12] = {0};
+        for (int r = 0; r < 3; r++)
+            for (int c2 = 0; c2 < 3; c2++) {
+                double k2 = 0;
+                for (int k = 0; k < 3; k++) k2 += K[3 * r + k] * K[3 * k + c2];
+                R[4 * r + c2] = (r == c2) + sin(th[t]) * K[3 * r + c2] + (1 - cos(th[t])) * k2;
+            }
+        nj_rotation_vector(R, v);
+        double dp = 0, dm = 0;
+        for (int k = 0; k < 3; k++) {
+            dp = fmax(dp, fabs(v[k] - th[t] * n[k]));
+            dm = fmax(dm, fabs(v[k] + th[t] * n[k]));
+        }
+        worst = fmax(worst, t < 4 ? dp : fmin(dp, dm));
+    }
+    check(vok && worst < 1e-9, "hand: rotation vectors (axis x angle), small, 0.3 rad and near pi",
+          "worst near-pi difference %.3g", worst);
 }
 
 /* ---- random data against numpy ------------------------------------------------- */

@@ -224,13 +224,16 @@ static cJSON *load_json(const char *path)
 int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why, size_t len)
 {
     static const char *const COUNTS[2] = {"snippets", "pairs"};
-    static const char *const FIGURES[6] = {"ate", "ate_std", "rmse", "scale_mean", "rotation_error_deg",
-                                           "rotation_true_deg"};
+    static const char *const FIGURES[15] = {"ate", "ate_std", "rmse", "scale_mean", "rotation_error_deg",
+                                            "rotation_true_deg", "pitch_mean_error_deg", "pitch_rms_error_deg",
+                                            "pitch_true_rms_deg", "yaw_mean_error_deg", "yaw_rms_error_deg",
+                                            "yaw_true_rms_deg", "roll_mean_error_deg", "roll_rms_error_deg",
+                                            "roll_true_rms_deg"};
     cJSON *m = load_json(metrics), *r = load_json(ref);
     const cJSON *pose = cJSON_GetObjectItemCaseSensitive(m, "pose");
     int ok = pose && r;
     if (!ok) snprintf(why, len, "%s", !m ? "no metrics" : !pose ? "metrics.json has no pose block" : "no reference");
-    for (int k = 0; ok && k < 8; k++) {
+    for (int k = 0; ok && k < 17; k++) {
         const char *key = k < 2 ? COUNTS[k] : FIGURES[k - 2];
         double a = number_of(pose, key), b = number_of(r, key);
         const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, key);

@@ -21,10 +21,15 @@ rmse = sqrt(sum |err|^2 / 5).  Over all snippets of the split: the mean ate,
 its population standard deviation (np.std), the mean rmse and mean scale.
 Rotation: for every consecutive pair, the angle of R_pred^T R_true and of
 R_true (scipy Rotation.from_matrix(...).magnitude()), with
-true = inv(C_{i+1}) @ C_i, means in degrees.
+true = inv(C_{i+1}) @ C_i, means in degrees.  Per camera axis (pitch x,
+yaw y, roll z): the components of Rotation.from_matrix(...).as_rotvec() of
+the predicted and the true motion; the mean and the root-mean-square of
+their difference and the root-mean-square of the true component, degrees.
 
 Writes OUT.json: {"ate", "ate_std", "rmse", "scale_mean", "snippets",
-"rotation_error_deg", "rotation_true_deg", "pairs"} (metrics.json's keys).
+"rotation_error_deg", "rotation_true_deg", "pairs", and for AXIS in pitch,
+yaw, roll: "AXIS_mean_error_deg", "AXIS_rms_error_deg", "AXIS_true_rms_deg"}
+(metrics.json's keys).
 """
 import json
 import os
@@ -49,7 +54,7 @@ def main():
     dpath, split, motions, out = sys.argv[1:5]
     root = os.path.dirname(os.path.abspath(dpath))
     desc = json.load(open(dpath))
-    ates, rmses, scales, rot_err, rot_true = [], [], [], [], []
+    ates, rmses, scales, rot_err, rot_true, vec_err, vec_true = [], [], [], [], [], [], []
     for s in desc["sequences"]:
         if s.get("split", "train") != split or "poses" not in s:
             continue
@@ -69,10 +74,18 @@ def main():
             Rt, Rp = true[:3, :3], rel[i, :, :3]
             rot_err.append(Rotation.from_matrix(Rp.T @ Rt).magnitude())
             rot_true.append(Rotation.from_matrix(Rt).magnitude())
+            vt = Rotation.from_matrix(Rt).as_rotvec()
+            vec_err.append(Rotation.from_matrix(Rp).as_rotvec() - vt)
+            vec_true.append(vt)
     res = {"ate": float(np.mean(ates)), "ate_std": float(np.std(ates)), "rmse": float(np.mean(rmses)),
            "scale_mean": float(np.mean(scales)), "snippets": len(ates),
            "rotation_error_deg": float(np.degrees(np.mean(rot_err))),
            "rotation_true_deg": float(np.degrees(np.mean(rot_true))), "pairs": len(rot_err)}
+    ve, vt = np.degrees(np.array(vec_err)), np.degrees(np.array(vec_true))
+    for k, axis in enumerate(("pitch", "yaw", "roll")):
+        res[axis + "_mean_error_deg"] = float(np.mean(ve[:, k]))
+        res[axis + "_rms_error_deg"] = float(np.sqrt(np.mean(ve[:, k] ** 2)))
+        res[axis + "_true_rms_deg"] = float(np.sqrt(np.mean(vt[:, k] ** 2)))
     json.dump(res, open(out, "w"), indent=1)
 
 

@@ -45,9 +45,12 @@ typedef struct eval_run {
     double ate_mean, ate_m2, rmse_sum, scale_sum;
     int pairs;                 /* consecutive frame pairs with a rotation error */
     double rot_err_sum, rot_true_sum;   /* radians */
+    double axis_bias[3], axis_err2[3], axis_true2[3];   /* per camera axis (pitch, yaw, roll), radians */
 } eval_run;
 
 #define RAD2DEG(x) ((x) * 57.29577951308232)
+/* components of nj_rotation_vector in the camera frame (x right, y down, z forward) */
+static const char *const AXIS_NAMES[3] = {"pitch", "yaw", "roll"};
 
 /* ---- setup ------------------------------------------------------------------ */
 
@@ -356,6 +359,14 @@ static void add_rotation_errors(eval_run *r, const double *c2w, const double *re
         nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt);
         r->rot_err_sum += nj_rotation_error(rel + 12 * i, gt);
         r->rot_true_sum += nj_rotation_angle(gt);
+        double vp[3], vt[3];
+        nj_rotation_vector(rel + 12 * i, vp);
+        nj_rotation_vector(gt, vt);
+        for (int k = 0; k < 3; k++) {
+            r->axis_bias[k] += vp[k] - vt[k];
+            r->axis_err2[k] += (vp[k] - vt[k]) * (vp[k] - vt[k]);
+            r->axis_true2[k] += vt[k] * vt[k];
+        }
         r->pairs++;
     }
 }
@@ -483,6 +494,10 @@ static void print_table(const eval_run *r)
         printf("pose: rotation error %.3f deg per frame pair (true rotation %.3f deg; an error as large as "
                "the true rotation means none was learned), over %d pairs\n",
                RAD2DEG(r->rot_err_sum / r->pairs), RAD2DEG(r->rot_true_sum / r->pairs), r->pairs);
+    for (int k = 0; k < 3 && r->pairs; k++)
+        printf("pose: %-5s (rotation about the camera's %c axis) mean error %+.3f deg, RMS error %.3f deg, "
+               "true RMS %.3f deg\n", AXIS_NAMES[k], "xyz"[k], RAD2DEG(r->axis_bias[k] / r->pairs),
+               RAD2DEG(sqrt(r->axis_err2[k] / r->pairs)), RAD2DEG(sqrt(r->axis_true2[k] / r->pairs)));
     if (r->frames) nj_eval_regions_print(&r->regions, METHOD_NAMES);
 }
 
@@ -545,6 +560,18 @@ static cJSON *report_json(const eval_run *r)
         cJSON_AddNumberToObject(p, "rotation_error_deg", RAD2DEG(r->rot_err_sum / r->pairs));
         cJSON_AddNumberToObject(p, "rotation_true_deg", RAD2DEG(r->rot_true_sum / r->pairs));
         cJSON_AddNumberToObject(p, "pairs", r->pairs);
+        for (int k = 0; k < 3; k++) {
+            char key[40];
+            snprintf(key, sizeof key, "%s_mean_error_deg", AXIS_NAMES[k]);
+            cJSON_AddNumberToObject(p, key, RAD2DEG(r->axis_bias[k] / r->pairs));
+            snprintf(key, sizeof key, "%s_rms_error_deg", AXIS_NAMES[k]);
+            cJSON_AddNumberToObject(p, key, RAD2DEG(sqrt(r->axis_err2[k] / r->pairs)));
+            snprintf(key, sizeof key, "%s_true_rms_deg", AXIS_NAMES[k]);
+            cJSON_AddNumberToObject(p, key, RAD2DEG(sqrt(r->axis_true2[k] / r->pairs)));
+        }
+        cJSON_AddStringToObject(p, "axes", "rotation vector of each consecutive pair's motion (camera i into "
+                                           "camera i + 1) in the camera frame: pitch about x (right), yaw about "
+                                           "y (down), roll about z (forward); error = predicted - true component");
         cJSON_AddStringToObject(p, "protocol",
                                 "Zhou et al. 2017: first frames aligned, least-squares scale, "
                                 "ate = sqrt(sum |e|^2) / n; rmse = sqrt(sum |e|^2 / n)");

@@ -157,5 +157,11 @@ void nj_motion_from_c2w(const double *ci, const double *cj, double rel[12]);
 double nj_rotation_angle(const double *a);
 /* Angle (radians) of R_aᵀ R_b: how far the rotations of two motions differ. */
 double nj_rotation_error(const double *a, const double *b);
+/* Rotation vector (axis × angle, radians, angle 0..π) of a 3×4 [R | t], in
+ * the camera frame (x right, y down, z forward): its x component is pitch,
+ * y yaw, z roll.  Per axis, the predicted minus the true component over
+ * consecutive pairs shows a bias that the angle of R_aᵀ R_b hides (a pose net
+ * that trades pitch for the vertical share of its translation). */
+void nj_rotation_vector(const double *a, double v[3]);
 
 #endif

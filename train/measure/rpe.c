@@ -39,3 +39,23 @@ double nj_rotation_error(const double *a, const double *b)
         for (int c = 0; c < 3; c++) M[3 * r + c] = a[r] * b[c] + a[4 + r] * b[4 + c] + a[8 + r] * b[8 + c];
     return angle_of(M, 3);
 }
+
+void nj_rotation_vector(const double *a, double v[3])
+{
+    double th = angle_of(a, 4), s = sin(th);
+    double w[3] = {0.5 * (a[9] - a[6]), 0.5 * (a[2] - a[8]), 0.5 * (a[4] - a[1])};   /* sin θ · axis */
+    if (th < 3.0) {
+        double f = s > 1e-300 ? th / s : 1.0;    /* θ / sin θ → 1 as θ → 0 */
+        for (int k = 0; k < 3; k++) v[k] = f * w[k];
+        return;
+    }
+    /* near π sin θ loses the axis: take it from R + Rᵀ = 2 cos θ I + 2 (1 − cos θ) n nᵀ,
+     * its largest diagonal element's column, the sign from w */
+    double c = cos(th), d[3] = {a[0], a[5], a[10]};
+    int i = d[0] >= d[1] && d[0] >= d[2] ? 0 : d[1] >= d[2] ? 1 : 2;
+    double n[3];
+    for (int k = 0; k < 3; k++) n[k] = 0.5 * (a[4 * k + i] + a[4 * i + k]) - (k == i ? c : 0.0);
+    double len = sqrt(n[0] * n[0] + n[1] * n[1] + n[2] * n[2]);
+    double sg = n[0] * w[0] + n[1] * w[1] + n[2] * w[2] < 0 ? -1.0 : 1.0;
+    for (int k = 0; k < 3; k++) v[k] = len > 0 ? sg * th * n[k] / len : 0.0;
+}

@@ -233,7 +233,7 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
     const cJSON *pose = cJSON_GetObjectItemCaseSensitive(m, "pose");
     int ok = pose && r;
     if (!ok) snprintf(why, len, "%s", !m ? "no metrics" : !pose ? "metrics.json has no pose block" : "no reference");
-    for (int k = 0; ok && k < 17; k++) {
+    for (int k = 0; ok && k < 2 + (int)(sizeof FIGURES / sizeof FIGURES[0]); k++) {
         const char *key = k < 2 ? COUNTS[k] : FIGURES[k - 2];
         double a = number_of(pose, key), b = number_of(r, key);
         const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, key);

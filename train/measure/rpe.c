@@ -18,18 +18,22 @@ void nj_motion_from_c2w(const double *ci, const double *cj, double rel[12])
 }
 
 /* Angle of a 3×3 rotation M (row-major, stride `st`): atan2(|v|, (tr − 1)/2)
- * with v = (M32 − M23, M13 − M31, M21 − M12)/2 = sin θ · axis.  Unlike acos
+ * with v = (M32 − M23, M13 − M31, M21 − M12)/2 = sin θ · axis (written to v,
+ * which nj_rotation_vector reuses).  Unlike acos
  * of the trace alone it keeps full precision for small angles. */
-static double angle_of(const double *M, int st)
+static double angle_of(const double *M, int st, double v[3])
 {
     double c = 0.5 * (M[0] + M[st + 1] + M[2 * st + 2] - 1.0);
-    double v[3] = {0.5 * (M[2 * st + 1] - M[st + 2]), 0.5 * (M[2] - M[2 * st]), 0.5 * (M[st] - M[1])};
+    v[0] = 0.5 * (M[2 * st + 1] - M[st + 2]);
+    v[1] = 0.5 * (M[2] - M[2 * st]);
+    v[2] = 0.5 * (M[st] - M[1]);
     return atan2(sqrt(v[0] * v[0] + v[1] * v[1] + v[2] * v[2]), c);
 }
 
 double nj_rotation_angle(const double *a)
 {
-    return angle_of(a, 4);
+    double v[3];
+    return angle_of(a, 4, v);
 }
 
 double nj_rotation_error(const double *a, const double *b)
@@ -37,13 +41,14 @@ double nj_rotation_error(const double *a, const double *b)
     double M[9];                             /* R_aᵀ R_b */
     for (int r = 0; r < 3; r++)
         for (int c = 0; c < 3; c++) M[3 * r + c] = a[r] * b[c] + a[4 + r] * b[4 + c] + a[8 + r] * b[8 + c];
-    return angle_of(M, 3);
+    double v[3];
+    return angle_of(M, 3, v);
 }
 
 void nj_rotation_vector(const double *a, double v[3])
 {
-    double th = angle_of(a, 4), s = sin(th);
-    double w[3] = {0.5 * (a[9] - a[6]), 0.5 * (a[2] - a[8]), 0.5 * (a[4] - a[1])};   /* sin θ · axis */
+    double w[3];                                /* sin θ · axis */
+    double th = angle_of(a, 4, w), s = sin(th);
     if (th < 3.0) {
         double f = s > 1e-300 ? th / s : 1.0;    /* θ / sin θ → 1 as θ → 0 */
         for (int k = 0; k < 3; k++) v[k] = f * w[k];

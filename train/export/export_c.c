@@ -159,12 +159,13 @@ static long i8_stack_row(const nj_export_layer *l, int iw)
 
 /* Bytes of the int8 runtime's scratch: tile stacked rows and kp bytes, then
  * the int32 sums of their output positions (a multiple of I8_PB of them,
- * cout rounded up to I8_OB apart). */
+ * cout rounded up to I8_OB apart, cp), then cp + 15 biases and multipliers
+ * repeating with period cp (for the requantisation's 16-sum steps). */
 static long i8_col_bytes(const nj_export_layer *l, int iw, int tile)
 {
     const long ow = (iw + 2 * l->pad - l->k) / l->stride + 1;
-    const long pos = (tile * ow + I8_PB - 1) / I8_PB * I8_PB;
-    return (tile * i8_stack_row(l, iw) + i8_kp(l) + 63) / 64 * 64 + 4L * pos * ((l->cout + I8_OB - 1) / I8_OB * I8_OB);
+    const long pos = (tile * ow + I8_PB - 1) / I8_PB * I8_PB, cp = (l->cout + I8_OB - 1) / I8_OB * I8_OB;
+    return (tile * i8_stack_row(l, iw) + i8_kp(l) + 63) / 64 * 64 + 4L * pos * cp + 8L * (cp + 15);
 }
 
 /* Positions per block of work.  f32: the data a block reads is kept near

@@ -139,15 +139,26 @@ static long layer_positions(const nj_export_layer *l, int h, int w)
     return (long)((h + 2 * l->pad - l->k) / l->stride + 1) * ((w + 2 * l->pad - l->k) / l->stride + 1);
 }
 
-/* int8 tap rows are padded to a multiple of 64 bytes (32 when the taps fit
- * in 32): gcc's u8 x s8 loop takes 64 bytes a step and finishes a remainder
- * with a 32-byte step and then scalar code.  Padding 144 taps to 192 rather
- * than 160 took the 16-channel layers from 0.92 to 0.69 ms (the largest);
- * the 27-tap first layer ran slower padded to 64. */
+/* int8 tap rows: up to NJ_I8_KP_CONST taps the layer's kernel has kp as a
+ * constant, and gcc covers it in 64-, 32- and 16-byte steps: rows are padded
+ * to a multiple of 32 (48 for 33..48 taps; 80, 112 or 144 ran 3x slower
+ * than 96, 128 or 160 in isolation: a 16-byte remainder after 64-byte steps
+ * went scalar).  Beyond it kp is read at run time and gcc's loop takes 64
+ * bytes a step and finishes a remainder with a 32-byte step and then scalar
+ * code: a multiple of 64 (with the variable bound, padding 144 taps to 192
+ * rather than 160 took the 16-channel layers from 0.92 to 0.69 ms). */
 static int i8_kp(const nj_export_layer *l)
 {
-    const int kn = l->cin * l->k * l->k, align = kn <= 32 ? 32 : 64;
+    const int kn = l->cin * l->k * l->k;
+    if (kn <= 48) return kn <= 32 ? 32 : 48;
+    const int align = (kn + 31) / 32 * 32 <= NJ_I8_KP_CONST ? 32 : 64;
     return (kn + align - 1) / align * align;
+}
+
+/* int8: rows of the layer's kernel (1 for the sigmoid head, else 4). */
+static int i8_rows(const nj_export_layer *l)
+{
+    return l->act == NJ_ACT_SIGMOID ? 1 : I8_OB;
 }
 
 /* int8: bytes of one stacked input row (the runtime's nd_stack: iw + 2 pad
@@ -299,8 +310,10 @@ static void put_layer_entry(FILE *f, const nj_export_net *net, int unit, int til
     if (net->int8) {
         fprintf(f, "    {nd_w_%s, nd_b_%s, nd_m_%s, ", id, id, id);
         put_float(f, l->act == NJ_ACT_SIGMOID ? 1.0f : 1.0f / net->out_scale[unit]);
-        fprintf(f, ", %d, %d, %d, %d, %d, %d, %d, %d, %d, %d}%s /* %s */\n", l->cin, l->cout, l->k, l->stride, l->pad,
-                l->pad_mode == NJ_PAD_REFLECT, act_code(l), i8_kp(l), tile, up, last ? "" : ",", l->name);
+        char kern[40];
+        nj_export_i8_kernel_name(i8_kp(l), i8_rows(l), kern, sizeof kern);
+        fprintf(f, ", %d, %d, %d, %d, %d, %d, %d, %d, %d, %d, %s}%s /* %s */\n", l->cin, l->cout, l->k, l->stride,
+                l->pad, l->pad_mode == NJ_PAD_REFLECT, act_code(l), i8_kp(l), tile, up, kern, last ? "" : ",", l->name);
         return;
     }
     fprintf(f, "    {nd_w_%s, nd_b_%s, ", id, id);
@@ -474,7 +487,16 @@ static int write_source(emitter *e, const c_paths *p, const char *ckpt_name)
     put_float(f, hi - lo);
     fputs("\n\n", f);
     if (net->int8) put_input_table(f, net);
-    nj_export_c_runtime(f, net->int8, p->upper, p->lower);
+    nj_i8_kernel kern[4 * NJ_MAX_STAGES + 1];   /* the int8 kernels the layers name, each once */
+    int nkern = 0;
+    for (int i = 0; net->int8 && i < n; i++) {
+        const nj_export_layer *l = &net->layers[order[i]];
+        const int kp = i8_kp(l) <= NJ_I8_KP_CONST ? i8_kp(l) : NJ_I8_KP_CONST + 1, rows = i8_rows(l);
+        int k = 0;
+        while (k < nkern && !(kern[k].kp == kp && kern[k].rows == rows)) k++;
+        if (k == nkern) kern[nkern++] = (nj_i8_kernel){kp, rows};
+    }
+    nj_export_c_runtime(f, net->int8, p->upper, p->lower, kern, nkern);
     fputs("/* ---- weights (batch norm folded into the convs) ---------------------------- */\n\n", f);
     for (int i = 0; i < n; i++)
         if (put_layer_arrays(f, net, order[i])) return -1;

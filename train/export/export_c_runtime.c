@@ -451,7 +451,7 @@ static const char *const RUNTIME_INT8[] = {
     "    for (x = 0; x < l->kp; x++) xs[(long)rows * wp * kc + x] = 128;",
     "}",
     "",
-    "/* The kernels, one pair per kp the layers use: nd_kernel_<kp> with kp a",
+    "/* The kernels, one per tap count and block the layers use: nd_kernel_<kp> with kp a",
     " * constant where it is at most 256 (nd_kernel_any reads it): gcc then knows",
     " * the trip count and covers it in 64-, 32- and 16-byte steps, where a",
     " * variable bound runs 64-byte steps and finishes a 32-byte remainder slowly.",

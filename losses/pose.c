@@ -224,11 +224,17 @@ nj_tensor *nj_pose_stereo(nj_graph *g, int n, const float *tx)
     return T;
 }
 
-nj_tensor *nj_arc_slip(nj_graph *g, nj_tensor *vec, float eps)
+nj_tensor *nj_arc_slip(nj_graph *g, nj_tensor *vec, float eps, int heading_given)
 {
     if (!vec || vec->c != 6 || vec->h != 1 || vec->w != 1)
         return nj_graph_fail(g, "arc_slip: need an N×6×1×1 motion vector");
     nj_tensor *ry = nj_slice_channels(g, vec, 1, 1), *t = nj_slice_channels(g, vec, 3, 3);
+    if (heading_given) {   /* a copy made off the tape: the gradient stops at it */
+        int was = nj_graph_grad_enabled(g);
+        nj_graph_set_grad(g, 0);
+        ry = nj_affine(g, ry, 1.0f, 0.0f);
+        nj_graph_set_grad(g, was);
+    }
     nj_tensor *tx = nj_slice_channels(g, vec, 3, 1), *tz = nj_slice_channels(g, vec, 5, 1);
     nj_tensor *slip = nj_sub(g, tx, nj_affine(g, nj_mul(g, tz, ry), 0.5f, 0.0f));
     nj_tensor *len2 = nj_affine(g, nj_sum(g, nj_mul(g, t, t), NJ_AXIS_C), 1.0f, eps * eps);

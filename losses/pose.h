@@ -28,8 +28,11 @@ nj_tensor *nj_pose_stereo(nj_graph *g, int n, const float *tx);
  * pair.  Returns N×1×1×1 ((tx − tz·ry/2) / sqrt(|t|² + eps²))²: scale-free,
  * so monocular scene units do not matter, and near 0 when the vehicle stands
  * still (eps).  A camera mounted ahead of the axle adds a sideways swing in
- * turns that this model does not have. */
-nj_tensor *nj_arc_slip(nj_graph *g, nj_tensor *vec, float eps);
+ * turns that this model does not have.
+ * heading_given 1: the heading change ry enters as a constant (no gradient
+ * through it), so the penalty moves the translation only — a spurious
+ * sideways translation is pulled to the yaw, never the yaw to it. */
+nj_tensor *nj_arc_slip(nj_graph *g, nj_tensor *vec, float eps, int heading_given);
 
 /* Plain Rodrigues' formula in double, for code outside the graph. */
 void nj_rotvec_to_matrix(const double v[3], double R[9]);

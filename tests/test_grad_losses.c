@@ -115,7 +115,7 @@ static nj_tensor *b_depth(nj_graph *g, nj_tensor *const *in, void *ctx)
 static nj_tensor *b_arc_slip(nj_graph *g, nj_tensor *const *in, void *ctx)
 {
     (void)ctx;
-    return nj_arc_slip(g, in[0], 1e-3f);
+    return nj_arc_slip(g, in[0], 1e-3f, 0);
 }
 
 static void grad_checks(void)

@@ -206,13 +206,46 @@ static void test_arc_slip(void)
     motion_vec(th, arc, v->data);
     motion_vec(0, side, v->data + 6);
     motion_vec(-th, back, v->data + 12);   /* reversing while turning: not an arc of this camera */
-    nj_tensor *s = nj_arc_slip(g, v, 1e-3f);
+    nj_tensor *s = nj_arc_slip(g, v, 1e-3f, 0);
     if (!s) { check(0, "arc_slip", "%s", nj_graph_error(g)); nj_graph_free(g); return; }
     check(s->data[0] < 1e-6f && fabs(s->data[1] - 0.01 / (0.01 + 1e-6)) < 1e-6 && s->data[2] > 1e-4f,
           "arc_slip: ~0 on a true circular arc, ~1 for a pure sideways move",
           "arc %.3g (want < 1e-6), sideways %.6g (want 0.01 / (0.01 + eps^2) = 0.9999), reversing with a heading change %.3g (want > 1e-4)",
           s->data[0], s->data[1], s->data[2]);
     nj_graph_free(g);
+}
+
+/* heading_given: the same penalty, no gradient into the yaw (channel 1), the
+ * same gradient into the translation as the full penalty. */
+static void test_arc_slip_heading_given(void)
+{
+    float g_full[12], g_given[12], val[2][2];
+    for (int given = 0; given < 2; given++) {
+        nj_graph *g = nj_graph_new(1 << 20);
+        nj_tensor *v = nj_tensor_new(g, 2, 6, 1, 1, 1);
+        const float m[12] = {0.001f, 0.004f, -0.002f, 0.03f, 0.01f, -0.3f,
+                             -0.002f, -0.006f, 0.001f, -0.01f, 0.02f, 0.25f};
+        memcpy(v->data, m, sizeof m);
+        nj_tensor *s = nj_arc_slip(g, v, 1e-3f, given);
+        if (!s || nj_backward(g, nj_sum(g, s, NJ_AXIS_ALL))) {
+            check(0, "arc_slip heading_given: forward/backward", "%s", nj_graph_error(g));
+            nj_graph_free(g);
+            return;
+        }
+        val[given][0] = s->data[0];
+        val[given][1] = s->data[1];
+        memcpy(given ? g_given : g_full, v->grad, sizeof g_full);
+        nj_graph_free(g);
+    }
+    double dt = 0;
+    for (int n = 0; n < 2; n++)
+        for (int c = 3; c < 6; c++) dt = fmax(dt, fabs(g_full[6 * n + c] - g_given[6 * n + c]));
+    check(val[0][0] == val[1][0] && val[0][1] == val[1][1] && g_given[1] == 0.0f && g_given[7] == 0.0f &&
+              g_full[1] != 0.0f && g_full[7] != 0.0f && dt == 0.0,
+          "arc_slip heading_given: same value, no gradient into the yaw, the translation's gradient unchanged",
+          "values %.6g/%.6g vs %.6g/%.6g; yaw gradient given %.3g/%.3g (want 0), full %.3g/%.3g (want != 0); "
+          "translation gradient differs by %.3g (want 0)",
+          val[0][0], val[0][1], val[1][0], val[1][1], g_given[1], g_given[7], g_full[1], g_full[7], dt);
 }
 
 /* Photometric loss of one forward step on a fixed batch whose two sources
@@ -291,6 +324,7 @@ int main(void)
     test_offsets_step();
     test_automask_widest();
     test_arc_slip();
+    test_arc_slip_heading_given();
     test_rotation_scale();
     test_gain_match();
     return test_exit();

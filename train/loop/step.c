@@ -50,7 +50,9 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
         nj_tensor *T = nj_pose_from_vec(g, vec);
         if (earlier) T = nj_pose_invert(g, T);
         if (cfg->loss.arc_motion > 0) {
-            nj_tensor *s = nj_mean(g, nj_arc_slip(g, vec, SLIP_EPS), NJ_AXIS_ALL);
+            /* the yaw is taken as given: letting the penalty move it too pulled the
+             * yaw to the pose net's spurious sideways translation (demo16, e8) */
+            nj_tensor *s = nj_mean(g, nj_arc_slip(g, vec, SLIP_EPS, 1), NJ_AXIS_ALL);
             *slip = *slip ? nj_add(g, *slip, s) : s;
         }
         if (!T) return -1;

@@ -65,7 +65,7 @@ static int same_config(const nj_train_config *a, const nj_train_config *b, char 
     SAME_NUM(model.depth_range.near) SAME_NUM(model.depth_range.far)
     SAME_NUM(loss.alpha) SAME_NUM(loss.smooth_weight)
     SAME_NUM(loss.automask) SAME_NUM(automask_from) SAME_NUM(loss.tie_break)
-    SAME_NUM(loss.saturation_guard)
+    SAME_NUM(loss.saturation_guard) SAME_NUM(loss.arc_motion) SAME_NUM(arc_motion_from)
     SAME_NUM(lr) SAME_NUM(lr_min) SAME_NUM(step_gamma) SAME_NUM(weight_decay) SAME_NUM(grad_clip)
     SAME_NUM(warmup_steps) SAME_NUM(step_every) SAME_NUM(cosine) SAME_STR(init) SAME_NUM(freeze_encoder)
     return 1;
@@ -464,6 +464,8 @@ static void random_model_optim(nj_train_config *c, nj_rng *r)
     c->automask_from = (long)nj_rng_below(r, 100000);
     c->loss.tie_break = uni(r, 0, 1e-3);
     c->loss.saturation_guard = uni(r, 0, 1);
+    c->loss.arc_motion = uni(r, 0, 10);
+    c->arc_motion_from = (long)nj_rng_below(r, 100000);
     c->lr = uni(r, 1e-7, 1);
     c->lr_min = c->lr * uni(r, 0, 1);
     c->step_gamma = uni(r, 1e-3, 1);

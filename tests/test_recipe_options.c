@@ -248,6 +248,29 @@ static void test_arc_slip_heading_given(void)
           val[0][0], val[0][1], val[1][0], val[1][1], g_given[1], g_given[7], g_full[1], g_full[7], dt);
 }
 
+/* nj_step_config: each loss term that waits is off before its step, on from it. */
+static void test_step_config(void)
+{
+    nj_train_config c, tmp;
+    nj_train_config_default(&c);
+    c.loss.automask = 1;
+    c.automask_from = 300;
+    c.loss.arc_motion = 1.0f;
+    c.arc_motion_from = 500;
+    const nj_train_config *a = nj_step_config(&c, 299, &tmp);
+    int before = a->loss.automask == 0 && a->loss.arc_motion == 0.0f;
+    a = nj_step_config(&c, 300, &tmp);
+    int between = a->loss.automask == 1 && a->loss.arc_motion == 0.0f;
+    a = nj_step_config(&c, 500, &tmp);
+    int after = a == &c;
+    c.loss.arc_motion = 0.0f;
+    a = nj_step_config(&c, 400, &tmp);
+    int off = a == &c;
+    check(before && between && after && off && c.loss.arc_motion == 0.0f && c.loss.automask == 1,
+          "step config: auto-mask from automask_from_step, arc penalty from arc_motion_from_step, the config itself untouched",
+          "before %d, between %d, after %d, arc off %d", before, between, after, off);
+}
+
 /* Photometric loss of one forward step on a fixed batch whose two sources
  * appear `copies` times. */
 static float offsets_step(int copies, int widest, float *mask_share)
@@ -325,6 +348,7 @@ int main(void)
     test_automask_widest();
     test_arc_slip();
     test_arc_slip_heading_given();
+    test_step_config();
     test_rotation_scale();
     test_gain_match();
     return test_exit();

@@ -60,6 +60,7 @@ const nj_config_field nj_config_fields[] = {
     TEXT("loss", "gain_match", NJ_F_BOOL, loss.gain_match),
     TEXT("loss", "automask_widest", NJ_F_BOOL, loss.automask_widest),
     F("loss", "arc_motion", NJ_F_FLOAT, loss.arc_motion, 0, 100, 0, 0),
+    F("loss", "arc_motion_from_step", NJ_F_LONG, arc_motion_from, 0, 1e12, 0, 0),
     F("loss", "saturation_guard", NJ_F_FLOAT, loss.saturation_guard, 0, 100, 0, 0),
     F("optim", "lr", NJ_F_FLOAT, lr, 0, 1, 1, 0),
     F("optim", "lr_min", NJ_F_FLOAT, lr_min, 0, 1, 0, 0),

@@ -86,6 +86,22 @@ static float saturation_share(const nj_tensor *d)
     return (float)s / (float)k;
 }
 
+/* Auto-masking waits for automask_from: far structure first learns from every
+ * pixel (DEVELOPERS.md, "Training recipe").  The arc penalty waits for
+ * arc_motion_from: from the first step it turned a turning-set run to inverted
+ * depth (its scale-free slip of the first steps' near-zero, random
+ * translations is noise). */
+const nj_train_config *nj_step_config(const nj_train_config *cfg, long step, nj_train_config *tmp)
+{
+    int mask_waits = cfg->loss.automask && step < cfg->automask_from;
+    int arc_waits = cfg->loss.arc_motion > 0 && step < cfg->arc_motion_from;
+    if (!mask_waits && !arc_waits) return cfg;
+    *tmp = *cfg;
+    if (mask_waits) tmp->loss.automask = 0;
+    if (arc_waits) tmp->loss.arc_motion = 0;
+    return tmp;
+}
+
 void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES])
 {
     float *f[NJ_STEP_FIGURES] = {&r->loss, &r->photometric, &r->smoothness, &r->mask_fraction, &r->saturated,

@@ -25,6 +25,11 @@ enum { NJ_STEP_FIGURES = 6 };
 #define NJ_STEP_ARENA_CHUNK ((size_t)64 << 20)
 void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES]);
 
+/* The configuration of training step `step`: cfg itself, or *tmp holding cfg
+ * with the loss terms that wait for a later step (loss.automask_from_step,
+ * loss.arc_motion_from_step) switched off. */
+const nj_train_config *nj_step_config(const nj_train_config *cfg, long step, nj_train_config *tmp);
+
 /* Builds the step in g (reset first by the caller).  With backward != 0 runs
  * the reverse pass (gradients accumulate into the model's parameters).
  * rng: tie-break noise source, or NULL.  Returns 0 or -1 with g's error set. */

@@ -230,23 +230,13 @@ static int checkpoint_due(const nj_trainer *t)
     return t->cfg.checkpoint_minutes > 0 && now_elapsed(t) - t->last_ckpt >= t->cfg.checkpoint_minutes * 60.0;
 }
 
-/* The configuration of this step: auto-masking waits for automask_from
- * (far structure first learns from every pixel, see DEVELOPERS.md). */
-static const nj_train_config *step_config(const nj_trainer *t, nj_train_config *tmp)
-{
-    if (!t->cfg.loss.automask || t->st.step >= t->cfg.automask_from) return &t->cfg;
-    *tmp = t->cfg;
-    tmp->loss.automask = 0;
-    return tmp;
-}
-
 /* One optimiser step on a batch.  Returns 0 ok, 1 skipped, -1 fatal. */
 static int train_one(nj_trainer *t, const nj_batch *b, nj_step_result *r, float *lr)
 {
     nj_graph_reset(t->g);
     nj_params_zero_grad(&t->model.params);
     nj_train_config tmp;
-    if (nj_step_replicas_run(t->split, t->g, &t->model, step_config(t, &tmp), b, &t->rng, r)) {
+    if (nj_step_replicas_run(t->split, t->g, &t->model, nj_step_config(&t->cfg, t->st.step, &tmp), b, &t->rng, r)) {
         nj_runlog_say(&t->log, "step %ld failed: %s", t->st.step, nj_graph_error(t->g));
         return -1;
     }

@@ -291,7 +291,8 @@ int main(void)
     test_help();
     snprintf(dir, sizeof dir, "/tmp/nj_options_XXXXXX");
     if (!check(mkdtemp(dir) != NULL, "temp folder", "%s", dir)) return test_exit();
-    if (check(access("./nightjar", X_OK) == 0, "./nightjar is built", "run from the repository root after make"))
+    if (check(e2e_have_binary(), "the binary under test is built", "%s: run from the repository root after make",
+              e2e_bin()))
         test_commands();
     char log[128];
     snprintf(log, sizeof log, "%s/log.txt", dir);

@@ -488,13 +488,14 @@ static int write_source(emitter *e, const c_paths *p, const char *ckpt_name)
     fputs("\n\n", f);
     if (net->int8) put_input_table(f, net);
     nj_i8_kernel kern[4 * NJ_MAX_STAGES + 1];   /* the int8 kernels the layers name, each once */
+    char names[4 * NJ_MAX_STAGES + 1][40];
     int nkern = 0;
     for (int i = 0; net->int8 && i < n; i++) {
         const nj_export_layer *l = &net->layers[order[i]];
-        const int kp = i8_kp(l) <= NJ_I8_KP_CONST ? i8_kp(l) : NJ_I8_KP_CONST + 1, rows = i8_rows(l);
+        nj_export_i8_kernel_name(i8_kp(l), i8_rows(l), names[nkern], sizeof names[nkern]);
         int k = 0;
-        while (k < nkern && !(kern[k].kp == kp && kern[k].rows == rows)) k++;
-        if (k == nkern) kern[nkern++] = (nj_i8_kernel){kp, rows};
+        while (k < nkern && strcmp(names[k], names[nkern])) k++;
+        if (k == nkern) kern[nkern++] = (nj_i8_kernel){i8_kp(l), i8_rows(l)};
     }
     nj_export_c_runtime(f, net->int8, p->upper, p->lower, kern, nkern);
     fputs("/* ---- weights (batch norm folded into the convs) ---------------------------- */\n\n", f);

@@ -66,7 +66,7 @@ static double time_nets(nj_graph *g, nj_model *m, float *imgs)
     for (int s = 1; s < 4; s++) loss = nj_add(g, loss, nj_sum(g, disp[s], NJ_AXIS_ALL));
     for (int s = 0; s < 2; s++) {
         nj_tensor *src = nj_tensor_wrap(g, N, 3, H, W, imgs + (s + 1) * isz, NULL);
-        loss = nj_add(g, loss, nj_sum(g, nj_pose_forward(g, m, tgt, src), NJ_AXIS_ALL));
+        loss = nj_add(g, loss, nj_sum(g, nj_pose_forward(g, m, tgt, src, NULL), NJ_AXIS_ALL));
     }
     if (nj_backward(g, loss)) { fprintf(stderr, "bench_losses: %s\n", nj_graph_error(g)); exit(1); }
     return omp_get_wtime() - t0;

@@ -482,7 +482,7 @@ static void test_save_refusals(const char *path, nj_model *a, const nj_train_con
 static void init_case(const char *label, const char *ckpt, const nj_model_config *mc, const char *want)
 {
     nj_model t;
-    char err[1024] = "", name[128], why[256];
+    char err[1024] = "", name[128], why[256] = "";
     if (build(&t, mc, 77)) return;
     nj_model before;
     build(&before, mc, 77);
@@ -540,6 +540,14 @@ static void test_init_from(const char *ckpt, const nj_model *a, const char *ster
     mc.stages = 3;
     mc.scales = 2;
     init_case("deeper_model", ckpt, &mc, "tensor \"enc2.0.w\" of the model is missing from the checkpoint");
+    mc = a->cfg;
+    mc.pose_rays = !a->cfg.pose_rays;
+    init_case("pose_rays_differ", ckpt, &mc, a->cfg.pose_rays ? "model.pose_rays true; the config says false"
+                                                              : "model.pose_rays false; the config says true");
+    mc = a->cfg;
+    mc.pose_norm = !a->cfg.pose_norm;
+    init_case("pose_norm_differ", ckpt, &mc, a->cfg.pose_norm ? "model.pose_norm true; the config says false"
+                                                              : "model.pose_norm false; the config says true");
 }
 
 int main(int argc, char **argv)

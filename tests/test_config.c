@@ -61,7 +61,8 @@ static int same_config(const nj_train_config *a, const nj_train_config *b, char 
     if (!same_run_data(a, b, why, n)) return 0;
     SAME_NUM(model.stages) SAME_NUM(model.width) SAME_NUM(model.scales) SAME_NUM(model.norm)
     SAME_NUM(model.head_init) SAME_NUM(model.pose) SAME_NUM(model.pose_stages) SAME_NUM(model.pose_width)
-    SAME_NUM(model.pose_scale) SAME_NUM(model.bn_momentum) SAME_NUM(model.seed)
+    SAME_NUM(model.pose_scale) SAME_NUM(model.rotation_scale) SAME_NUM(model.pose_rays) SAME_NUM(model.pose_norm)
+    SAME_NUM(model.bn_momentum) SAME_NUM(model.seed)
     SAME_NUM(model.depth_range.near) SAME_NUM(model.depth_range.far)
     SAME_NUM(loss.alpha) SAME_NUM(loss.smooth_weight)
     SAME_NUM(loss.automask) SAME_NUM(automask_from) SAME_NUM(loss.tie_break)
@@ -455,6 +456,9 @@ static void random_model_optim(nj_train_config *c, nj_rng *r)
     c->model.pose_stages = 1 + (int)nj_rng_below(r, 6);
     c->model.pose_width = uni(r, 0.05, 4);
     c->model.pose_scale = uni(r, 1e-4, 5);
+    c->model.rotation_scale = uni(r, 0, 5);
+    c->model.pose_rays = (int)nj_rng_below(r, 2);
+    c->model.pose_norm = (int)nj_rng_below(r, 2);
     c->model.bn_momentum = uni(r, 1e-3, 1);
     c->loss.alpha = uni(r, 0, 1);
     c->loss.smooth_weight = uni(r, 0, 1);

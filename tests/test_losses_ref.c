@@ -267,6 +267,33 @@ static void test_camera(nj_graph *g)
     ref_rmtree(dir);
 }
 
+/* The pose net's ray channels (nj_camera_rays) vs OpenCV's normalised image
+ * coordinates of every pixel centre (undistortPoints without distortion). */
+static void test_rays(nj_graph *g)
+{
+    const char *name = "camera rays vs OpenCV undistortPoints";
+    char dir[4096];
+    if (losses_ref_run("rays", dir, sizeof dir, name)) return;
+    nj_graph_reset(g);
+    nj_tensor *r = losses_ref_tensor(g, dir, "rays", 0);
+    if (!r) { ref_rmtree(dir); return; }
+    int W = 24, H = 14;
+    if (r->c != 2 || r->h != H || r->w != W) {
+        check(0, name, "reference is %dx%dx%d, expected 2x%dx%d", r->c, r->h, r->w, H, W);
+        ref_rmtree(dir);
+        return;
+    }
+    float x[24 * 14], y[24 * 14];
+    nj_camera_rays((nj_camera){20.5f, 18.25f, 13.7f, 5.2f}, W, H, x, y);
+    double worst = 0;
+    for (int i = 0; i < W * H; i++) {
+        double e = fmax(fabs(x[i] - r->data[i]), fabs(y[i] - r->data[W * H + i]));
+        worst = e > worst ? e : worst;
+    }
+    check(worst < 1e-6, name, "largest difference %.2e over %d pixels", worst, W * H);
+    ref_rmtree(dir);
+}
+
 int main(void)
 {
     nj_threads_init(0);
@@ -278,6 +305,7 @@ int main(void)
     test_vsloss(g, "vsloss_guard", 0.05f);
     test_motorcycle(g);
     test_camera(g);
+    test_rays(g);
     nj_graph_free(g);
     return test_exit();
 }

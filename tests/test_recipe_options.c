@@ -23,6 +23,16 @@
  *    paired and oriented like the original (even j earlier: pose net on
  *    (source, target), inverted).  Pose outputs are scaled up so that a
  *    wrongly oriented pair would move the warp by pixels.
+ *  - model.pose_rays: the pose net's first layer takes 8 channels (two frames
+ *    and the two ray-direction channels; the rays themselves are checked
+ *    against OpenCV in test_losses_ref), its output changes with the
+ *    principal point (it does not without pose_rays), and the net refuses to
+ *    run without intrinsics — in the graph and through nj_infer_motion —
+ *    with a message naming the option.
+ *  - model.pose_norm false: the pose net's layers have no normalisation (the
+ *    depth net keeps its own), so in training mode one pair's motion does not
+ *    depend on the other pairs of the batch; with batch norm it does (the
+ *    check that the test can tell the two apart).
  */
 #include "losses/pose.h"
 #include "losses/view_synthesis.h"
@@ -31,6 +41,7 @@
 #include "train/loop/config.h"
 #include "train/loop/step.h"
 #include "train/model/model.h"
+#include "train/model/infer.h"
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -66,7 +77,7 @@ static int pose_run(float rot, float trans, float out[12], float grow[2])
     nj_tensor *a = nj_tensor_new(g, 2, 3, H, W, 0), *b = nj_tensor_new(g, 2, 3, H, W, 0);
     fill_image(a, 1, 0.9f);
     fill_image(b, 2, 0.9f);
-    nj_tensor *v = nj_pose_forward(g, &m, a, b);
+    nj_tensor *v = nj_pose_forward(g, &m, a, b, NULL);
     int rc = -1;
     if (v && !nj_graph_failed(g)) {
         memcpy(out, v->data, 12 * sizeof(float));
@@ -342,8 +353,126 @@ static void test_offsets_step(void)
           "mask keeps %.3f with every source, %.3f against offset 2 only (want < 0.05 and > 0.9)", all, widest);
 }
 
+/* Pose output of a small model (with or without rays) for cameras `cams`;
+ * returns -1 (and the graph's message in msg) when the forward fails. */
+static int rays_run(int rays, const nj_camera *cams, float out[12], char *msg, size_t len, int *cin)
+{
+    nj_model_config mc;
+    nj_model_config_default(&mc);
+    mc.stages = mc.scales = mc.pose_stages = 3;
+    mc.width = mc.pose_width = 0.5f;
+    mc.pose_rays = rays;
+    mc.seed = 5;
+    nj_model m;
+    if (nj_model_init(&m, &mc, msg, len)) return -1;
+    *cin = m.units[m.pose_units[0]].cin;
+    uint64_t np = 0, nb = 0;
+    nj_model_count(&mc, &np, &nb);
+    check(np == nj_params_numel(&m.params), "pose_rays: nj_model_count agrees with the built model",
+          "count %llu, built %zu", (unsigned long long)np, nj_params_numel(&m.params));
+    nj_graph *g = nj_graph_new(1 << 22);
+    nj_tensor *a = nj_tensor_new(g, 2, 3, H, W, 0), *b = nj_tensor_new(g, 2, 3, H, W, 0);
+    fill_image(a, 1, 0.9f);
+    fill_image(b, 2, 0.9f);
+    nj_tensor *v = nj_pose_forward(g, &m, a, b, cams);
+    int rc = v && !nj_graph_failed(g) ? 0 : -1;
+    if (rc) snprintf(msg, len, "%s", nj_graph_error(g));
+    else memcpy(out, v->data, 12 * sizeof(float));
+    if (rays && cams) {   /* through inference: no camera is an error, a camera works */
+        nj_infer in;
+        char err[256];
+        if (nj_infer_init(&in, &m, W, H, err, sizeof err) == 0) {
+            nj_image f1 = {W, H, a->data}, f2 = {W, H, b->data};
+            double T[12];
+            int bad = nj_infer_motion(&in, &f1, &f2, NULL, T, err, sizeof err);
+            check(bad && strstr(err, "pose_rays"), "pose_rays: nj_infer_motion without intrinsics is refused",
+                  "rc %d, message \"%s\"", bad, bad ? err : "");
+            int ok = nj_infer_motion(&in, &f1, &f2, &cams[0], T, err, sizeof err) == 0;
+            check(ok, "pose_rays: nj_infer_motion with intrinsics", "%s", ok ? "" : err);
+            nj_infer_free(&in);
+        } else check(0, "pose_rays: inference setup", "%s", err);
+    }
+    nj_graph_free(g);
+    nj_model_free(&m);
+    return rc;
+}
+
+static void test_pose_rays(void)
+{
+    nj_camera c1[2] = {{40, 40, 31.5f, 15.5f}, {40, 40, 31.5f, 15.5f}};
+    nj_camera c2[2] = {{40, 40, 20.0f, 22.0f}, {40, 40, 20.0f, 22.0f}};
+    float o1[12], o2[12], p1[12], p2[12];
+    char msg[256];
+    int cin = 0, cin0 = 0;
+    if (rays_run(1, c1, o1, msg, sizeof msg, &cin) || rays_run(1, c2, o2, msg, sizeof msg, &cin)) {
+        check(0, "pose_rays: forward", "%s", msg);
+        return;
+    }
+    check(cin == 8, "pose_rays: the pose net's first layer takes 8 channels", "%d", cin);
+    double d = 0;
+    for (int i = 0; i < 12; i++) d = fmax(d, fabs(o1[i] - o2[i]));
+    check(d > 1e-7, "pose_rays: the pose output depends on the principal point", "largest change %.3g", d);
+    int bad = rays_run(1, NULL, o1, msg, sizeof msg, &cin);
+    check(bad && strstr(msg, "pose_rays"), "pose_rays: the pose net without intrinsics fails, naming the option",
+          "rc %d, message \"%s\"", bad, bad ? msg : "");
+    if (rays_run(0, c1, p1, msg, sizeof msg, &cin0) || rays_run(0, c2, p2, msg, sizeof msg, &cin0)) {
+        check(0, "pose_rays off: forward", "%s", msg);
+        return;
+    }
+    check(cin0 == 6 && !memcmp(p1, p2, sizeof p1), "pose_rays off: 6 channels, the intrinsics are not used",
+          "first layer %d channels, outputs %s", cin0, memcmp(p1, p2, sizeof p1) ? "differ" : "equal");
+}
+
+/* Item 0's pose output when item 1 is `seed1`'s random frames. */
+static int pose_item0(int pose_norm, unsigned seed1, float out[6], int *units_plain, int *depth_plain)
+{
+    nj_model_config mc;
+    nj_model_config_default(&mc);
+    mc.stages = mc.scales = mc.pose_stages = 3;
+    mc.width = mc.pose_width = 0.5f;
+    mc.pose_norm = pose_norm;
+    mc.seed = 5;
+    nj_model m;
+    char err[256];
+    if (nj_model_init(&m, &mc, err, sizeof err)) { check(0, "pose_norm: model", "%s", err); return -1; }
+    *units_plain = 1;
+    for (int i = 0; i < m.npose; i++) *units_plain &= m.units[m.pose_units[i]].norm == NJ_NORM_NONE;
+    *depth_plain = m.units[m.enc[0][0]].norm == NJ_NORM_NONE;
+    nj_graph *g = nj_graph_new(1 << 22);
+    nj_tensor *a = nj_tensor_new(g, 2, 3, H, W, 0), *b = nj_tensor_new(g, 2, 3, H, W, 0);
+    fill_image(a, 1, 0.9f);
+    fill_image(b, 2, 0.9f);
+    nj_tensor *a1 = nj_tensor_new(g, 1, 3, H, W, 0);
+    fill_image(a1, seed1, 0.6f);
+    memcpy(a->data + 3 * H * W, a1->data, sizeof(float) * 3 * H * W);
+    nj_tensor *v = nj_pose_forward(g, &m, a, b, NULL);
+    int rc = v && !nj_graph_failed(g) ? 0 : -1;
+    if (!rc) memcpy(out, v->data, 6 * sizeof(float));
+    else check(0, "pose_norm: forward", "%s", nj_graph_error(g));
+    nj_graph_free(g);
+    nj_model_free(&m);
+    return rc;
+}
+
+static void test_pose_norm(void)
+{
+    float p1[6], p2[6], b1[6], b2[6];
+    int plain, depth_plain, bplain, bdepth;
+    if (pose_item0(0, 7, p1, &plain, &depth_plain) || pose_item0(0, 8, p2, &plain, &depth_plain) ||
+        pose_item0(1, 7, b1, &bplain, &bdepth) || pose_item0(1, 8, b2, &bplain, &bdepth))
+        return;
+    check(plain && !depth_plain && !bplain, "pose_norm false: no normalisation in the pose net, the depth net keeps it",
+          "pose plain %d, depth plain %d, default pose plain %d", plain, depth_plain, bplain);
+    check(!memcmp(p1, p2, sizeof p1), "pose_norm false: a pair's motion does not depend on the batch's other pairs",
+          "item 0 rotation x %.9g vs %.9g", p1[0], p2[0]);
+    check(memcmp(b1, b2, sizeof b1) != 0, "pose_norm true (batch norm): it does (the check can tell)",
+          "item 0 rotation x %.9g vs %.9g", b1[0], b2[0]);
+}
+
 int main(void)
 {
+    test_pose_norm();
+    test_pose_rays();
     test_offsets_step();
     test_automask_widest();
     test_arc_slip();

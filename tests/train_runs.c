@@ -199,7 +199,7 @@ int tr_dump_motions(const char *ckpt, const char *images, int nframes, const cha
         if (nj_image_load(p, &cur, err, len)) { rc = -1; break; }
         if (i > 0) {
             double T[12];
-            if (nj_infer_motion(&in, &prev, &cur, T, err, len)) rc = -1;
+            if (nj_infer_motion(&in, &prev, &cur, NULL, T, err, len)) rc = -1;
             else if (fwrite(T, sizeof(double), 12, f) != 12) { snprintf(err, len, "%s: write failed", out); rc = -1; }
             nj_image_free(&prev);
         }

@@ -1,6 +1,7 @@
 /* nn/geom/camera.c — pinhole intrinsics under resize, crop and flip. */
 #include "nn/geom/camera.h"
 #include <math.h>
+#include <stddef.h>
 
 nj_camera nj_camera_resize(nj_camera c, int w, int h, int new_w, int new_h)
 {
@@ -38,6 +39,15 @@ void nj_camera_inverse(nj_camera c, double Kinv[9])
     Kinv[0] = 1.0 / c.fx; Kinv[1] = 0;             Kinv[2] = -(double)c.cx / c.fx;
     Kinv[3] = 0;          Kinv[4] = 1.0 / c.fy;    Kinv[5] = -(double)c.cy / c.fy;
     Kinv[6] = 0;          Kinv[7] = 0;             Kinv[8] = 1;
+}
+
+void nj_camera_rays(nj_camera c, int w, int h, float *x, float *y)
+{
+    for (int v = 0; v < h; v++)
+        for (int u = 0; u < w; u++) {
+            x[(size_t)v * w + u] = (float)(((double)u - c.cx) / c.fx);
+            y[(size_t)v * w + u] = (float)(((double)v - c.cy) / c.fy);
+        }
 }
 
 int nj_camera_valid(nj_camera c)

@@ -21,6 +21,10 @@ nj_camera nj_camera_flip(nj_camera c, int w);
 /* Row-major 3×3 K and K⁻¹. */
 void nj_camera_matrix(nj_camera c, double K[9]);
 void nj_camera_inverse(nj_camera c, double Kinv[9]);
+/* The ray direction of every pixel of a w×h image, K⁻¹[u v 1]ᵀ = (x, y, 1):
+ * x[v·w + u] = (u − cx)/fx and y[v·w + u] = (v − cy)/fy (normalised image
+ * coordinates). */
+void nj_camera_rays(nj_camera c, int w, int h, float *x, float *y);
 /* Non-zero when fx, fy are finite and positive and cx, cy finite. */
 int nj_camera_valid(nj_camera c);
 

@@ -42,6 +42,9 @@ Every reference value comes from a library this project did not write:
                   the SSIM window.
   camera      OpenCV resize(INTER_AREA) and cropping of an image with a sub-pixel dot: where
               the dot's centroid lands checks the intrinsics' resize/crop convention.
+  rays        OpenCV undistortPoints (no distortion) of every pixel centre of a 24x14
+              image: the normalised image coordinates K^-1 [u v 1] the pose net's ray
+              channels hold (nj_camera_rays).
   motorcycle  the Middlebury 2014 "motorcycle" stereo pair with ground-truth disparity
               (Scharstein et al. 2014) as shipped by scikit-image (data.stereo_motorcycle).
 Inputs and results are exchanged as float32 .npy files in OUTDIR.
@@ -263,13 +266,25 @@ def mode_camera(out):
     save(out, "dot", np.array([u, v, cs[0], cs[1], cc[0], cc[1]]))
 
 
+def mode_rays(out):
+    """Normalised image coordinates of every pixel centre, by OpenCV."""
+    import cv2
+    W, H = 24, 14
+    K = np.array([[20.5, 0, 13.7], [0, 18.25, 5.2], [0, 0, 1]], dtype=np.float64)
+    vv, uu = np.mgrid[0:H, 0:W].astype(np.float64)
+    pts = np.stack([uu.ravel(), vv.ravel()], axis=1).reshape(-1, 1, 2)
+    n = cv2.undistortPoints(pts, K, None).reshape(H, W, 2)
+    save(out, "rays", n.transpose(2, 0, 1)[None])
+
+
 def main():
     if len(sys.argv) != 2 or ":" not in sys.argv[1]:
         sys.exit("usage: losses_ref.py MODE:OUTDIR")
     mode, out = sys.argv[1].split(":", 1)
     modes = {"ssim": mode_ssim, "sample": mode_sample, "rotation": mode_rotation,
              "vsloss": mode_vsloss,
-             "vsloss_guard": lambda out: mode_vsloss(out, 0.05), "camera": mode_camera, "motorcycle": mode_motorcycle}
+             "vsloss_guard": lambda out: mode_vsloss(out, 0.05), "camera": mode_camera, "motorcycle": mode_motorcycle,
+             "rays": mode_rays}
     if mode not in modes:
         sys.exit("losses_ref.py: unknown mode %s" % mode)
     modes[mode](out)

@@ -405,9 +405,11 @@ static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size
         goto done;
     }
     if (load_frame(s, 0, &prev, err, errlen)) goto done;
+    nj_camera cam = s->camera;   /* for a pose net that sees ray directions */
+    if (prev.w != s->width || prev.h != s->height) cam = nj_camera_resize(cam, s->width, s->height, prev.w, prev.h);
     for (int i = 1; i < n; i++) {
         if (load_frame(s, i, &cur, err, errlen) ||
-            nj_infer_motion(&r->inf[0], &prev, &cur, rel + 12 * (i - 1), err, errlen))
+            nj_infer_motion(&r->inf[0], &prev, &cur, &cam, rel + 12 * (i - 1), err, errlen))
             goto done;
         nj_image_free(&prev);
         prev = cur;

@@ -207,6 +207,8 @@ char *nj_export_architecture_json(const nj_export_net *net)
         cJSON_AddNumberToObject(o, "pose_width", c->pose_width);
         cJSON_AddNumberToObject(o, "pose_scale", c->pose_scale);
         cJSON_AddNumberToObject(o, "rotation_scale", c->rotation_scale);
+        cJSON_AddBoolToObject(o, "pose_norm", c->pose_norm);
+        cJSON_AddBoolToObject(o, "pose_rays", c->pose_rays);
     }
     snprintf(text, sizeof text, "RGB in [0,1], standardised as (x - %s) / %s", mean, std);
     cJSON_AddStringToObject(o, "input", text);

@@ -205,6 +205,17 @@ int nj_checkpoint_init_from(const char *path, nj_model *m, char *err, size_t err
     nj_model src;
     if (nj_checkpoint_load(path, &src, NULL, NULL, err, errlen)) return -1;
     int rc = -1;
+    /* said before the tensor shapes, which would only name a pose tensor */
+    const char *key = !m->cfg.pose || !src.cfg.pose ? NULL
+                      : m->cfg.pose_rays != src.cfg.pose_rays ? "pose_rays"
+                      : m->cfg.pose_norm != src.cfg.pose_norm ? "pose_norm" : NULL;
+    if (key) {
+        int was = key[5] == 'r' ? src.cfg.pose_rays : src.cfg.pose_norm;
+        snprintf(err, errlen, "%s: its pose net was trained with model.%s %s; the config says %s", path, key,
+                 was ? "true" : "false", was ? "false" : "true");
+        nj_model_free(&src);
+        return -1;
+    }
     if (!compare_params(&m->params, &src.params, path, "model", "checkpoint", err, errlen) &&
         !compare_params(&src.params, &m->params, path, "checkpoint", "model", err, errlen) &&
         !compare_params(&m->buffers, &src.buffers, path, "model", "checkpoint", err, errlen) &&

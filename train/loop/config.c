@@ -50,6 +50,8 @@ const nj_config_field nj_config_fields[] = {
     F("model", "pose_width", NJ_F_FLOAT, model.pose_width, 0, 8, 1, 0),
     F("model", "pose_scale", NJ_F_FLOAT, model.pose_scale, 0, 10, 1, 0),
     F("model", "rotation_scale", NJ_F_FLOAT, model.rotation_scale, 0, 10, 0, 0),
+    TEXT("model", "pose_norm", NJ_F_BOOL, model.pose_norm),
+    TEXT("model", "pose_rays", NJ_F_BOOL, model.pose_rays),
     F("model", "bn_momentum", NJ_F_FLOAT, model.bn_momentum, 0, 1, 1, 0),
     F("model", "depth_range", NJ_F_RANGE, model.depth_range, 0, 1e6, 1, 0),
     F("loss", "ssim_weight", NJ_F_FLOAT, loss.alpha, 0, 1, 0, 0),

@@ -46,7 +46,8 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
         nj_tensor *src = gather_source(g, b, b->sources, j);
         nj_tensor *src_in = b->sources_in == b->sources ? src : gather_source(g, b, b->sources_in, j);
         int earlier = j % 2 == 0;
-        nj_tensor *vec = earlier ? nj_pose_forward(g, m, src_in, tgt_in) : nj_pose_forward(g, m, tgt_in, src_in);
+        nj_tensor *vec = earlier ? nj_pose_forward(g, m, src_in, tgt_in, b->camera)
+                                 : nj_pose_forward(g, m, tgt_in, src_in, b->camera);
         nj_tensor *T = nj_pose_from_vec(g, vec);
         if (earlier) T = nj_pose_invert(g, T);
         if (cfg->loss.arc_motion > 0) {

@@ -239,7 +239,7 @@ static int run_frames(map_run *r, char *err, size_t errlen)
         else rc = load_frame(r, i, &cur, err, errlen) || nj_infer_depth(&r->inf, &cur, r->w, r->h, d, NULL, err, errlen);
         if (!rc && i && (truth || !r->trained.cfg.pose)) nj_motion_from_c2w(r->gt + 12 * (i - 1), r->gt + 12 * i,
                                                                              r->rel + 12 * (i - 1));
-        else if (!rc && i) rc = nj_infer_motion(&r->inf, &prev, &cur, r->rel + 12 * (i - 1), err, errlen);
+        else if (!rc && i) rc = nj_infer_motion(&r->inf, &prev, &cur, &r->cam, r->rel + 12 * (i - 1), err, errlen);
         nj_image_free(&prev);
         prev = cur;
         cur.data = NULL;

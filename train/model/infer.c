@@ -79,15 +79,24 @@ int nj_infer_depth(nj_infer *in, const nj_image *im, int out_w, int out_h, float
     return 0;
 }
 
-int nj_infer_motion(nj_infer *in, const nj_image *first, const nj_image *second, double T[12],
-                    char *err, size_t errlen)
+int nj_infer_motion(nj_infer *in, const nj_image *first, const nj_image *second,
+                    const nj_camera *cam, double T[12], char *err, size_t errlen)
 {
     nj_graph_reset(in->graph);
     err[0] = 0;
+    nj_camera net_cam = {0, 0, 0, 0};
+    if (in->model->cfg.pose_rays) {
+        if (!cam) {
+            snprintf(err, errlen, "this model's pose net sees ray directions (model.pose_rays): "
+                                  "it needs the camera intrinsics");
+            return -1;
+        }
+        net_cam = nj_camera_resize(*cam, first->w, first->h, in->width, in->height);
+    }
     nj_tensor *a = network_input(in, first, err, errlen);
     nj_tensor *b = a ? network_input(in, second, err, errlen) : NULL;
     if (!b) return err[0] ? -1 : graph_error(in, err, errlen);
-    nj_tensor *v = nj_pose_forward(in->graph, in->model, a, b);
+    nj_tensor *v = nj_pose_forward(in->graph, in->model, a, b, in->model->cfg.pose_rays ? &net_cam : NULL);
     if (!v) return graph_error(in, err, errlen);
     double r[3] = {v->data[0], v->data[1], v->data[2]}, R[9];
     nj_rotvec_to_matrix(r, R);

@@ -26,8 +26,10 @@ void nj_infer_free(nj_infer *in);
 int nj_infer_depth(nj_infer *in, const nj_image *im, int out_w, int out_h, float *depth,
                    float *disp, char *err, size_t errlen);
 /* Camera motion between two frames: T (row-major 3×4 [R | t]) maps points of
- * the first frame's camera into the second's.  Returns 0 or -1 with err. */
-int nj_infer_motion(nj_infer *in, const nj_image *first, const nj_image *second, double T[12],
-                    char *err, size_t errlen);
+ * the first frame's camera into the second's.  cam: the frames' intrinsics at
+ * the first frame's size — needed by a pose net with model.pose_rays (an
+ * error without), ignored otherwise (may be NULL).  Returns 0 or -1 with err. */
+int nj_infer_motion(nj_infer *in, const nj_image *first, const nj_image *second,
+                    const nj_camera *cam, double T[12], char *err, size_t errlen);
 
 #endif

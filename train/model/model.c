@@ -18,6 +18,7 @@ void nj_model_config_default(nj_model_config *cfg)
     cfg->pose_width = 1.0f;
     cfg->pose_scale = 0.5f;
     cfg->rotation_scale = 0.0f;   /* follow pose_scale */
+    cfg->pose_norm = 1;
     cfg->bn_momentum = 0.1f;
     cfg->depth_range = (nj_depth_range){NJ_MODEL_DEPTH_NEAR, NJ_MODEL_DEPTH_FAR};
     cfg->seed = 1;
@@ -120,16 +121,26 @@ static int build_depth(builder *b)
     return 0;
 }
 
+static nj_norm_kind pose_norm_kind(const nj_model_config *c)
+{
+    return c->pose_norm ? c->norm : NJ_NORM_NONE;
+}
+
+static int pose_input_channels(const nj_model_config *c)
+{
+    return NJ_MODEL_POSE_FRAME_CHANNELS + (c->pose_rays ? NJ_MODEL_POSE_RAY_CHANNELS : 0);
+}
+
 static int build_pose(builder *b)
 {
     nj_model *m = b->m;
     const nj_model_config *c = &m->cfg;
-    int cin = 6;
+    int cin = pose_input_channels(c);
     char nm[48];
     for (int i = 0; i < c->pose_stages; i++) {
         int k = i == 0 ? 7 : (i == 1 ? 5 : 3), cout = width_of(16 << i, c->pose_width);
         snprintf(nm, sizeof nm, "pose%d", i);
-        m->pose_units[i] = add_unit(b, nm, NJ_GROUP_POSE, cin, cout, k, 2, NJ_PAD_ZERO, c->norm, NJ_ACT_ELU);
+        m->pose_units[i] = add_unit(b, nm, NJ_GROUP_POSE, cin, cout, k, 2, NJ_PAD_ZERO, pose_norm_kind(c), NJ_ACT_ELU);
         if (m->pose_units[i] < 0) return -1;
         cin = cout;
     }
@@ -172,10 +183,10 @@ void nj_model_count(const nj_model_config *c, uint64_t *params, uint64_t *buffer
     }
     for (int s = 0; s < c->scales; s++) count_unit(ch[s], 1, 3, NJ_NORM_NONE, params, buffers);
     if (!c->pose || c->pose_stages < 1 || c->pose_stages > NJ_MAX_STAGES) return;
-    cin = 6;
+    cin = pose_input_channels(c);
     for (int i = 0; i < c->pose_stages; i++) {
         int cout = width_of(16 << i, c->pose_width);
-        count_unit(cin, cout, i == 0 ? 7 : (i == 1 ? 5 : 3), c->norm, params, buffers);
+        count_unit(cin, cout, i == 0 ? 7 : (i == 1 ? 5 : 3), pose_norm_kind(c), params, buffers);
         cin = cout;
     }
     count_unit(cin, 6, 1, NJ_NORM_NONE, params, buffers);
@@ -264,10 +275,28 @@ int nj_depth_forward(nj_graph *g, nj_model *m, nj_tensor *img, nj_tensor **disp)
     return nj_graph_failed(g) ? -1 : 0;
 }
 
-nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor *second)
+/* N×2×H×W: each item's ray directions (nj_camera_rays), a constant input.
+ * Flipped items carry their mirrored cx, so the rays stay true to the view. */
+static nj_tensor *ray_channels(nj_graph *g, const nj_tensor *like, const nj_camera *cams)
+{
+    int N = like->n, H = like->h, W = like->w;
+    nj_tensor *r = nj_tensor_new(g, N, NJ_MODEL_POSE_RAY_CHANNELS, H, W, 0);
+    if (!r) return NULL;
+    size_t plane = (size_t)H * W;
+    for (int n = 0; n < N; n++)
+        nj_camera_rays(cams[n], W, H, r->data + (size_t)n * 2 * plane, r->data + ((size_t)n * 2 + 1) * plane);
+    return r;
+}
+
+nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor *second,
+                           const nj_camera *cams)
 {
     if (!m->cfg.pose) return nj_graph_fail(g, "pose net: this model has none (stereo-only)");
     nj_tensor *x = nj_concat(g, standardise(g, first), standardise(g, second));
+    if (m->cfg.pose_rays) {
+        if (!cams) return nj_graph_fail(g, "pose net: this model (pose_rays) needs the camera intrinsics");
+        if (first) x = nj_concat(g, x, ray_channels(g, first, cams));
+    }
     for (int i = 0; i < m->npose; i++) x = unit_forward(g, m, &m->units[m->pose_units[i]], x);
     x = nj_global_avgpool(g, x);
     float rot = m->cfg.rotation_scale > 0 ? m->cfg.rotation_scale : m->cfg.pose_scale;

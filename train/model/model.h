@@ -8,7 +8,10 @@
  * finest `scales` decoder levels.  Decoder convs use reflection padding.
  * Output scale s has size H/2^s × W/2^s; H and W must be divisible by 2^stages.
  *
- * Pose net: the two frames concatenated on channels (6 channels), a stack of
+ * Pose net (normalised like the depth net unless pose_norm is 0): the two
+ * frames concatenated on channels (6 channels; with
+ * `pose_rays` two more: each pixel's ray direction (u − cx)/fx and
+ * (v − cy)/fy from the item's intrinsics, NJ_MODEL_RAY_* below), a stack of
  * stride-2 convs (7×7, 5×5, then 3×3) + norm + ELU, a 1×1 conv to 6 numbers,
  * spatial mean; the first three times `rotation_scale` (pose_scale when 0) are an axis-angle
  * rotation (radians), the last three times `pose_scale` a translation: the
@@ -27,6 +30,7 @@
 #include "nn/param.h"
 #include "nn/ops.h"
 #include "losses/depth.h"
+#include "nn/geom/camera.h"
 #include <stdint.h>
 
 /* Epsilon of every normalisation layer (batch and group norm): x̂ = (x − μ)/√(σ² + eps). */
@@ -37,6 +41,11 @@
 /* Default depth range (model.depth_range): disparity 1 is NEAR, 0 is FAR (losses/depth.h). */
 #define NJ_MODEL_DEPTH_NEAR 0.1f
 #define NJ_MODEL_DEPTH_FAR 100.0f
+
+/* Input channels of the pose net: two RGB frames, plus the two ray-direction
+ * channels with pose_rays. */
+#define NJ_MODEL_POSE_FRAME_CHANNELS 6
+#define NJ_MODEL_POSE_RAY_CHANNELS 2
 
 #define NJ_MAX_STAGES 6
 #define NJ_MAX_UNITS 48
@@ -56,6 +65,15 @@ typedef struct nj_model_config {
     float pose_width;
     float pose_scale;      /* translation output multiplier (default 0.5) */
     float rotation_scale;  /* rotation output multiplier; 0 (default) = pose_scale */
+    int pose_norm;         /* 1 (default): the pose net's layers are normalised like the
+                              depth net's (norm); 0: conv + bias + ELU only — batch
+                              statistics over a few frame pairs blur the small motion
+                              differences the pose net must read */
+    int pose_rays;         /* 1: the pose net also sees the ray direction of every pixel
+                              (default 0): where the focus of expansion lies relative to
+                              the principal point is what separates a sideways or vertical
+                              translation from a turn; a convolutional net that averages
+                              over the image cannot otherwise tell where a pixel is */
     float bn_momentum;     /* default 0.1 */
     nj_depth_range depth_range; /* what the disparity heads' outputs mean (default
                               NJ_MODEL_DEPTH_NEAR..FAR); the nets do not use it,
@@ -99,8 +117,11 @@ int nj_model_norm_groups(int channels);
 /* Depth net forward on N×3×H×W images in [0, 1]; disp[s] receives the
  * sigmoid disparity at scale s for s < cfg.scales. */
 int nj_depth_forward(nj_graph *g, nj_model *m, nj_tensor *img, nj_tensor **disp);
-/* Pose net forward on two N×3×H×W frames → N×6×1×1 (first → second camera). */
-nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor *second);
+/* Pose net forward on two N×3×H×W frames → N×6×1×1 (first → second camera).
+ * cams: the N items' intrinsics at H×W; needed with cfg.pose_rays (the graph
+ * fails without them), ignored otherwise (may be NULL). */
+nj_tensor *nj_pose_forward(nj_graph *g, nj_model *m, nj_tensor *first, nj_tensor *second,
+                           const nj_camera *cams);
 
 /* m's learned parameters (weights, biases, norm scales and shifts) in unit
  * order, the order replicas combine gradients in; writes up to cap of them

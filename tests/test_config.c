@@ -359,6 +359,10 @@ static void test_shipped(const char *argv0)
          * defence against a vehicle followed at the camera's speed) */
         snprintf(name, sizeof name, "config_shipped_%.*s_video_has_automask", (int)(len - 5), e->d_name);
         if (rc == 0 && c.video && c.noffsets > 0) check(c.loss.automask, name, "loss.automask is off");
+        /* issue 18: batch statistics over a few frame pairs blur the motion the
+         * pose net must read (fleet set 0.237 → 0.180 without them, DEVELOPERS.md) */
+        snprintf(name, sizeof name, "config_shipped_%.*s_video_pose_net_unnormalised", (int)(len - 5), e->d_name);
+        if (rc == 0 && c.video && c.noffsets > 0) check(!c.model.pose_norm, name, "model.pose_norm is true");
         count++;
     }
     if (d) closedir(d);

@@ -246,6 +246,18 @@ static void test_motorcycle(nj_graph *g)
     ref_rmtree(dir);
 }
 
+/* Runs the reference script's `mode` and loads its tensor `tensor` (no
+ * gradient); NULL on failure (reported, the folder removed). */
+static nj_tensor *ref_result(nj_graph *g, const char *mode, const char *tensor, const char *name, char *dir,
+                             size_t len)
+{
+    if (losses_ref_run(mode, dir, len, name)) return NULL;
+    nj_graph_reset(g);
+    nj_tensor *t = losses_ref_tensor(g, dir, tensor, 0);
+    if (!t) ref_rmtree(dir);
+    return t;
+}
+
 /* Intrinsics under resize and crop vs where OpenCV's INTER_AREA resize puts
  * a sub-pixel dot: a point projecting onto the dot at full size must project
  * onto the dot's centroid in the resized (and then cropped) image. */
@@ -253,10 +265,8 @@ static void test_camera(nj_graph *g)
 {
     const char *name = "camera intrinsics resize+crop vs OpenCV INTER_AREA dot centroid";
     char dir[4096];
-    if (losses_ref_run("camera", dir, sizeof dir, name)) return;
-    nj_graph_reset(g);
-    nj_tensor *d = losses_ref_tensor(g, dir, "dot", 0);
-    if (!d) { ref_rmtree(dir); return; }
+    nj_tensor *d = ref_result(g, "camera", "dot", name, dir, sizeof dir);
+    if (!d) return;
     const float *v = d->data;
     nj_camera c = {200.0f, 190.0f, 160.2f, 119.7f};
     float Z = 7.0f, X = (v[0] - c.cx) / c.fx * Z, Y = (v[1] - c.cy) / c.fy * Z;
@@ -273,10 +283,8 @@ static void test_rays(nj_graph *g)
 {
     const char *name = "camera rays vs OpenCV undistortPoints";
     char dir[4096];
-    if (losses_ref_run("rays", dir, sizeof dir, name)) return;
-    nj_graph_reset(g);
-    nj_tensor *r = losses_ref_tensor(g, dir, "rays", 0);
-    if (!r) { ref_rmtree(dir); return; }
+    nj_tensor *r = ref_result(g, "rays", "rays", name, dir, sizeof dir);
+    if (!r) return;
     int W = 24, H = 14;
     if (r->c != 2 || r->h != H || r->w != W) {
         check(0, name, "reference is %dx%dx%d, expected 2x%dx%d", r->c, r->h, r->w, H, W);

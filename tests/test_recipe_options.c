@@ -353,16 +353,22 @@ static void test_offsets_step(void)
           "mask keeps %.3f with every source, %.3f against offset 2 only (want < 0.05 and > 0.9)", all, widest);
 }
 
+/* The small model of the pose_rays and pose_norm checks. */
+static void small_model(nj_model_config *mc)
+{
+    nj_model_config_default(mc);
+    mc->stages = mc->scales = mc->pose_stages = 3;
+    mc->width = mc->pose_width = 0.5f;
+    mc->seed = 5;
+}
+
 /* Pose output of a small model (with or without rays) for cameras `cams`;
  * returns -1 (and the graph's message in msg) when the forward fails. */
 static int rays_run(int rays, const nj_camera *cams, float out[12], char *msg, size_t len, int *cin)
 {
     nj_model_config mc;
-    nj_model_config_default(&mc);
-    mc.stages = mc.scales = mc.pose_stages = 3;
-    mc.width = mc.pose_width = 0.5f;
+    small_model(&mc);
     mc.pose_rays = rays;
-    mc.seed = 5;
     nj_model m;
     if (nj_model_init(&m, &mc, msg, len)) return -1;
     *cin = m.units[m.pose_units[0]].cin;
@@ -427,11 +433,8 @@ static void test_pose_rays(void)
 static int pose_item0(int pose_norm, unsigned seed1, float out[6], int *units_plain, int *depth_plain)
 {
     nj_model_config mc;
-    nj_model_config_default(&mc);
-    mc.stages = mc.scales = mc.pose_stages = 3;
-    mc.width = mc.pose_width = 0.5f;
+    small_model(&mc);
     mc.pose_norm = pose_norm;
-    mc.seed = 5;
     nj_model m;
     char err[256];
     if (nj_model_init(&m, &mc, err, sizeof err)) { check(0, "pose_norm: model", "%s", err); return -1; }

@@ -206,11 +206,11 @@ int nj_checkpoint_init_from(const char *path, nj_model *m, char *err, size_t err
     if (nj_checkpoint_load(path, &src, NULL, NULL, err, errlen)) return -1;
     int rc = -1;
     /* said before the tensor shapes, which would only name a pose tensor */
-    const char *key = !m->cfg.pose || !src.cfg.pose ? NULL
-                      : m->cfg.pose_rays != src.cfg.pose_rays ? "pose_rays"
-                      : m->cfg.pose_norm != src.cfg.pose_norm ? "pose_norm" : NULL;
+    const char *key = NULL;
+    int was = 0;
+    if (m->cfg.pose && src.cfg.pose && m->cfg.pose_rays != src.cfg.pose_rays) key = "pose_rays", was = src.cfg.pose_rays;
+    else if (m->cfg.pose && src.cfg.pose && m->cfg.pose_norm != src.cfg.pose_norm) key = "pose_norm", was = src.cfg.pose_norm;
     if (key) {
-        int was = key[5] == 'r' ? src.cfg.pose_rays : src.cfg.pose_norm;
         snprintf(err, errlen, "%s: its pose net was trained with model.%s %s; the config says %s", path, key,
                  was ? "true" : "false", was ? "false" : "true");
         nj_model_free(&src);

@@ -9,9 +9,9 @@
  * Output scale s has size H/2^s × W/2^s; H and W must be divisible by 2^stages.
  *
  * Pose net (normalised like the depth net unless pose_norm is 0): the two
- * frames concatenated on channels (6 channels; with
- * `pose_rays` two more: each pixel's ray direction (u − cx)/fx and
- * (v − cy)/fy from the item's intrinsics, NJ_MODEL_RAY_* below), a stack of
+ * frames concatenated on channels (NJ_MODEL_POSE_FRAME_CHANNELS; with
+ * `pose_rays` NJ_MODEL_POSE_RAY_CHANNELS more: each pixel's ray direction
+ * (u − cx)/fx and (v − cy)/fy from the item's intrinsics), a stack of
  * stride-2 convs (7×7, 5×5, then 3×3) + norm + ELU, a 1×1 conv to 6 numbers,
  * spatial mean; the first three times `rotation_scale` (pose_scale when 0) are an axis-angle
  * rotation (radians), the last three times `pose_scale` a translation: the

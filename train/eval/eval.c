@@ -196,6 +196,12 @@ static size_t select_frame(const eval_run *r, frame_buf *b, int w, int h)
 
 /* Scores the four methods on the valid pixels of one ground-truth map, on
  * all of them and per region. */
+/* The sequence's intrinsics for its frames as loaded at w×h. */
+static nj_camera camera_at(const nj_sequence *s, int w, int h)
+{
+    return w == s->width && h == s->height ? s->camera : nj_camera_resize(s->camera, s->width, s->height, w, h);
+}
+
 static void score_frame(eval_run *r, frame_buf *b, int w, int h, nj_camera cam)
 {
     size_t k = select_frame(r, b, w, h);
@@ -308,9 +314,7 @@ static int eval_frame(eval_run *r, const nj_sequence *s, int i, char *err, size_
         memcpy(b.scratch, b.flag[1], sizeof(float) * w * h);
         nj_undistort_mask(nj_sequence_undistort(s, 0), b.scratch, b.flag[1]);
     }
-    nj_camera cam = s->camera;
-    if (w != s->width || h != s->height) cam = nj_camera_resize(cam, s->width, s->height, w, h);
-    score_frame(r, &b, w, h, cam);
+    score_frame(r, &b, w, h, camera_at(s, w, h));
     rc = 0;
 done:
     free(img_path);
@@ -405,8 +409,7 @@ static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size
         goto done;
     }
     if (load_frame(s, 0, &prev, err, errlen)) goto done;
-    nj_camera cam = s->camera;   /* for a pose net that sees ray directions */
-    if (prev.w != s->width || prev.h != s->height) cam = nj_camera_resize(cam, s->width, s->height, prev.w, prev.h);
+    nj_camera cam = camera_at(s, prev.w, prev.h);   /* for a pose net that sees ray directions */
     for (int i = 1; i < n; i++) {
         if (load_frame(s, i, &cur, err, errlen) ||
             nj_infer_motion(&r->inf[0], &prev, &cur, &cam, rel + 12 * (i - 1), err, errlen))

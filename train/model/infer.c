@@ -96,7 +96,7 @@ int nj_infer_motion(nj_infer *in, const nj_image *first, const nj_image *second,
     nj_tensor *a = network_input(in, first, err, errlen);
     nj_tensor *b = a ? network_input(in, second, err, errlen) : NULL;
     if (!b) return err[0] ? -1 : graph_error(in, err, errlen);
-    nj_tensor *v = nj_pose_forward(in->graph, in->model, a, b, in->model->cfg.pose_rays ? &net_cam : NULL);
+    nj_tensor *v = nj_pose_forward(in->graph, in->model, a, b, &net_cam);   /* ignored without rays */
     if (!v) return graph_error(in, err, errlen);
     double r[3] = {v->data[0], v->data[1], v->data[2]}, R[9];
     nj_rotvec_to_matrix(r, R);

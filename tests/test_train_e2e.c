@@ -1,23 +1,26 @@
 /* tests/test_train_e2e.c — the main job end to end on small synthetic data,
  * a fixed number of steps per case (900 monocular, 1600 stereo):
- *  - monocular video: training runs to its budget, lowers the loss, logs
- *    validation depth metrics, writes its report, and the model's AbsRel
- *    (median-scaled) on the held-out sequence is below both baselines;
+ *  - monocular video, the shipped demo recipe with three model seeds (one
+ *    after another): each run goes to its budget, lowers the loss, logs
+ *    validation depth metrics without drifting back up or raising the drift
+ *    alarm, writes its report, and its AbsRel (median-scaled) on the held-out
+ *    sequence is below both baselines and a stated bound; the seeds agree
+ *    within a stated spread;
  *  - stereo only: the model's metric depth (no scaling at all) has AbsRel
  *    below 0.2 and beats both baselines — a median-scaled constant depth and
  *    the untrained network — on the held-out sequence within 20 m.
  * Ground truth is the renderer's exact depth; the metrics are the eval
  * command's (checked against NumPy in test_metrics / test_predict_cli).
- * Both cases train with one thread, so each run is bit-for-bit the one
- * measured when its threshold was set (DEVELOPERS.md "Training recipe"),
- * and they run side by side (stereo in a child process).
+ * Every run trains with one thread, so it is bit-for-bit the one measured
+ * when its threshold was set (DEVELOPERS.md "Training recipe"); the two
+ * cases run side by side (stereo in a child process), ~10 minutes in all.
  *
  * NJ_TEST_REDUCED=1 (make sanitize) runs the same pipeline small enough for
  * sanitizers: 4 sequences of 24 frames, 64×32 training with a half-width
- * 4-stage model for 1 minute per case, logging every 2 steps.  It checks the
- * same things except that the depth metrics are not compared with the
- * baselines (the stereo model need only beat the untrained network): a
- * minute at 64×32 is not enough to learn. */
+ * 4-stage model for 40 steps per case (one monocular seed), logging every
+ * 2 steps.  It checks the same things except that the depth metrics are not
+ * compared with the baselines (the stereo model need only beat the untrained
+ * network): 40 steps at 64×32 are not enough to learn. */
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/torch_ref.h"
@@ -28,9 +31,10 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* Steps of training per case (a step budget, not a time budget, so the
+/* Steps of training per run (a step budget, not a time budget, so the
  * result does not depend on how busy the machine is): long enough to learn,
- * short for the suite (about 3 and 7 minutes on one idle core). */
+ * short for the suite (about 3 minutes per monocular seed and 7 for stereo
+ * on one idle core). */
 #define MONO_STEPS "900"
 #define STEREO_STEPS "1600"
 #define REDUCED_STEPS "40"
@@ -41,23 +45,28 @@ static int reduced(void)
     return r && r[0] && strcmp(r, "0") != 0;
 }
 
-/* Measured: after 600 steps, test AbsRel 0.5569 (im2col convolutions) but
- * 0.7105 and 0.6219 with the direct kernels and two batch-norm summation
- * orders — the 600-step outcome hangs on rounding.  900 steps (cosine
- * schedule over 900): 0.4390 against 0.6993 (constant) and 0.7181 (untrained);
- * 0.3917 with the weight gradient along output channels, 0.5602 once the
- * tie-break noise and the gradient norm changed their summation (again a
- * rounding-level change: the outcome of this small run spreads 0.39…0.56).
- * Known weakness, not hidden: with model seeds 3 and 4 this recipe drifts to
- * the far bound on this small 160×96 data (AbsRel 2.9 and 9.2 after 900 steps;
- * the im2col build of the previous release does the same), so the test pins
- * seed 2 and one thread. */
-static const char *MONO_CONFIG =
-    "{ \"run\": { \"name\": \"e2e-mono\", \"seed\": 2, \"threads\": 1, \"log_every\": 10,\n"
-    "           \"validate_every\": 100, \"checkpoint_minutes\": 5, \"keep_last\": 1 },\n"
-    "  \"data\": { \"width\": 160, \"height\": 96, \"batch\": 4, \"frame_offsets\": [2],\n"
-    "            \"video\": true, \"stereo\": false, \"duplicate_threshold\": 0.003 },\n"
-    "  \"optim\": { \"lr\": 2e-4, \"lr_min\": 1e-5, \"warmup_steps\": 50 } }\n";
+/* The monocular case trains the shipped demo recipe (configs/demo.json; its
+ * data path, threads and budget replaced on the command line) with three model
+ * seeds, one after another beside the stereo case.  One thread: each run is
+ * then bit-for-bit the one measured when the thresholds were set
+ * (DEVELOPERS.md "Training recipe", figures below at MONO_SEEDS).
+ *
+ * History, kept because it says what these checks guard: a minimal config
+ * (offset 2, a batch-normalised pose net) drifted to the far bound with seeds
+ * 3 and 4 (AbsRel 2.9 and 9.2 after 900 steps: an inverted depth order), so
+ * this test pinned seed 2 until the pose net lost its batch norm
+ * (model.pose_norm false, in every shipped video config). */
+static const char *MONO_CONFIG_FILE = "configs/demo.json";
+static const int MONO_SEEDS[] = {2, 3, 4};
+#define N_MONO_SEEDS (int)(sizeof MONO_SEEDS / sizeof MONO_SEEDS[0])
+/* Measured (900 steps, one thread, model seeds 2 / 3 / 4 / 5 / 6): test
+ * AbsRel 0.2099 / 0.2407 / 0.2036 / 0.2381 / 0.2256; constant depth 0.699,
+ * untrained 0.66-0.72, row-layout oracle 0.144 (not beaten yet: DEVELOPERS.md).
+ * Bounds: every seed below 0.32 (1.33x the worst measured; the drift this
+ * guards against gave 2.9 and 9.2) and the worst within 1.5x the best
+ * (measured 1.18 over seeds 2-4 and over 2-6; drift gave >10x). */
+#define MONO_ABSREL_MAX 0.32
+#define MONO_SPREAD_MAX 1.5
 
 /* One thread: the run is then bit-for-bit the one measured when this test was
  * set.  1000 steps gave metric AbsRel 0.1931 within 20 m with the im2col
@@ -123,18 +132,19 @@ static long end_step(const char *jsonl)
     return v;
 }
 
-static int train_and_eval(const char *dir, const char *tag, const char *config_text,
+/* Trains `config` (a file) with `train_extra` options added, on `data`, for
+ * `steps` steps, into DIR/TAG, then evaluates the final model on the test
+ * split into DIR/TAG.metrics.json. */
+static int train_and_eval(const char *dir, const char *tag, const char *config, const char *train_extra,
                           const char *steps, const char *data, const char *eval_extra)
 {
-    char cfg[1024], cmd[4096], log[1024];
-    snprintf(cfg, sizeof cfg, "%s/%s.json", dir, tag);
-    e2e_write(cfg, config_text);
+    char cmd[4096], log[1024];
     snprintf(log, sizeof log, "%s/%s-train.txt", dir, tag);
     /* --minutes 0: no time budget (the default is 5 minutes), so a busy or
      * slow machine runs the same steps as an idle one */
     const char *want = reduced() ? REDUCED_STEPS : steps;
-    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/%s --steps %s --minutes 0",
-             e2e_bin(), cfg, data, dir, tag, want);
+    snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/%s --steps %s --minutes 0 %s",
+             e2e_bin(), config, data, dir, tag, want, train_extra);
     int rc = e2e_run(cmd, log);
     char name[128], jsonl[1024];
     snprintf(jsonl, sizeof jsonl, "%s/%s/log.jsonl", dir, tag);
@@ -153,6 +163,14 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
     return check(rc == 0, name, "exit %d (log %s)", rc, log) ? 0 : -1;
 }
 
+/* Writes an inline config to DIR/TAG.json (its path into `path`). */
+static const char *inline_config(const char *dir, const char *tag, const char *text, char *path, size_t cap)
+{
+    snprintf(path, cap, "%s/%s.json", dir, tag);
+    e2e_write(path, text);
+    return path;
+}
+
 /* "Validation never drifts back up": the run ends within 25% of its best
  * validation AbsRel over the second half of the run.  The first half is left
  * out: in its first ~100 steps the net predicts a near-uniform depth, which
@@ -164,51 +182,83 @@ static int train_and_eval(const char *dir, const char *tag, const char *config_t
  * the second half with seeds 3 and 4), so the bound is ×1.25 — 2.4× below the
  * smallest drift measured.  The run's drift alarm (train/loop/health.h) must stay
  * silent as well. */
-static void no_drift(const char *text)
+static void no_drift(const char *tag, const char *text)
 {
     double v[256], best = INFINITY;
     int n = e2e_val_absrels(text, v, 256);
     for (int i = n / 2; i < n; i++) best = v[i] < best ? v[i] : best;
-    check(n >= 3 && v[n - 1] <= 1.25 * best,
-          "monocular validation AbsRel ends at (within 25% of) its best of the second half: no drift back up",
-          "%d validations, best of the second half %.4f, last %.4f", n, best, n ? v[n - 1] : NAN);
-    check(!strstr(text, "drifting"),
-          "monocular run: the drift alarm stays silent", "log.jsonl has a drift record");
+    char name[200];
+    snprintf(name, sizeof name,
+             "%s validation AbsRel ends at (within 25%% of) its best of the second half: no drift back up", tag);
+    check(n >= 3 && v[n - 1] <= 1.25 * best, name, "%d validations, best of the second half %.4f, last %.4f", n,
+          best, n ? v[n - 1] : NAN);
+    snprintf(name, sizeof name, "%s run: the drift alarm stays silent", tag);
+    check(!strstr(text, "drifting"), name, "log.jsonl has a drift record");
+}
+
+/* One monocular run (model seed `seed`); its test AbsRel into *absrel (NAN
+ * when it did not get that far). */
+static void mono_seed(const char *dir, const char *data, int seed, double *absrel)
+{
+    char tag[32], cfg[1024], extra[128], log[1024], metrics[1024], name[200];
+    *absrel = NAN;
+    snprintf(tag, sizeof tag, "mono-s%d", seed);
+    const char *config = reduced() ? inline_config(dir, tag, MONO_REDUCED, cfg, sizeof cfg) : MONO_CONFIG_FILE;
+    snprintf(extra, sizeof extra, "--seed %d --threads %d", seed, reduced() ? 2 : 1);
+    if (train_and_eval(dir, tag, config, extra, MONO_STEPS, data, "")) return;
+    double first = 0, last = 0;
+    snprintf(log, sizeof log, "%s/%s/log.jsonl", dir, tag);
+    snprintf(name, sizeof name, "%s training log has step lines", tag);
+    if (check(loss_ends(log, reduced() ? 5 : 10, &first, &last) == 0, name, "%s", log)) {
+        snprintf(name, sizeof name, "%s training lowers the loss", tag);
+        check(last < 0.9 * first, name, "first %.4f last %.4f", first, last);
+    }
+    char *text = e2e_slurp(log, NULL);
+    char *val = text ? strstr(text, "\"type\":\"val\"") : NULL;
+    char *nl = val ? strchr(val, '\n') : NULL, *abs = val ? strstr(val, "\"absrel\":") : NULL;
+    snprintf(name, sizeof name, "%s validation logs depth metrics where the val split has ground truth", tag);
+    check(abs && (!nl || abs < nl), name, "first val line: %.200s", val ? val : "(none)");
+    if (!reduced()) no_drift(tag, text);
+    free(text);
+    snprintf(log, sizeof log, "%s/%s/report.html", dir, tag);
+    text = e2e_slurp(log, NULL);
+    snprintf(name, sizeof name, "%s run wrote its report with depth-metric curves", tag);
+    check(text && strstr(text, "Validation AbsRel vs step"), name, "%s", log);
+    free(text);
+    snprintf(metrics, sizeof metrics, "%s/%s.metrics.json", dir, tag);
+    double m = e2e_json_number(metrics, "absrel"), c = e2e_json_number(metrics, "baseline_constant.absrel");
+    double u = e2e_json_number(metrics, "baseline_untrained.absrel");
+    snprintf(name, sizeof name, "%s metrics.json has the AbsRel of the model and both baselines", tag);
+    if (!check(isfinite(m) && m > 0 && isfinite(c) && isfinite(u), name, "%s: %g %g %g", metrics, m, c, u)) return;
+    *absrel = m;
+    if (!reduced()) {
+        snprintf(name, sizeof name, "%s AbsRel (median-scaled) beats the constant and untrained baselines", tag);
+        check(m < c && m < u, name, "model %.4f, constant %.4f, untrained %.4f", m, c, u);
+        snprintf(name, sizeof name, "%s AbsRel (median-scaled) below %.2f", tag, MONO_ABSREL_MAX);
+        check(m < MONO_ABSREL_MAX, name, "model %.4f", m);
+    }
 }
 
 static void mono(const char *dir)
 {
-    char cmd[2048], data[1024], log[1024], metrics[1024];
+    char cmd[2048], data[1024], log[1024];
     snprintf(cmd, sizeof cmd, "%s synth --out %s/mono --seed 11 %s", e2e_bin(), dir,
              reduced() ? "--sequences 4 --frames 24 --size 96x64" : "--sequences 6 --frames 100 --size 240x144");
     snprintf(log, sizeof log, "%s/synth-mono.txt", dir);
     if (!check(e2e_run(cmd, log) == 0, "synth renders the monocular data", "see %s", log)) return;
     snprintf(data, sizeof data, "%s/mono/dataset.json", dir);
-    if (train_and_eval(dir, "mono", reduced() ? MONO_REDUCED : MONO_CONFIG, MONO_STEPS, data, "")) return;
-    double first = 0, last = 0;
-    snprintf(log, sizeof log, "%s/mono/log.jsonl", dir);
-    if (check(loss_ends(log, reduced() ? 5 : 10, &first, &last) == 0, "monocular training log has step lines", "%s", log))
-        check(last < 0.9 * first, "monocular training lowers the loss", "first %.4f last %.4f", first, last);
-    char *text = e2e_slurp(log, NULL);
-    char *val = text ? strstr(text, "\"type\":\"val\"") : NULL;
-    char *nl = val ? strchr(val, '\n') : NULL, *abs = val ? strstr(val, "\"absrel\":") : NULL;
-    check(abs && (!nl || abs < nl), "validation logs depth metrics where the val split has ground truth",
-          "first val line: %.200s", val ? val : "(none)");
-    if (!reduced()) no_drift(text);
-    free(text);
-    snprintf(log, sizeof log, "%s/mono/report.html", dir);
-    text = e2e_slurp(log, NULL);
-    check(text && strstr(text, "Validation AbsRel vs step"), "the run wrote its report with depth-metric curves",
-          "%s", log);
-    free(text);
-    snprintf(metrics, sizeof metrics, "%s/mono.metrics.json", dir);
-    double m = e2e_json_number(metrics, "absrel"), c = e2e_json_number(metrics, "baseline_constant.absrel");
-    double u = e2e_json_number(metrics, "baseline_untrained.absrel");
-    check(isfinite(m) && m > 0 && isfinite(c) && isfinite(u), "monocular metrics.json has the AbsRel of the model and both baselines",
-          "%s: %g %g %g", metrics, m, c, u);
+    /* a sanitizer build is ~10x slower: one seed there */
+    int nseeds = reduced() ? 1 : N_MONO_SEEDS;
+    double best = INFINITY, worst = 0;
+    for (int i = 0; i < nseeds; i++) {
+        double m;
+        mono_seed(dir, data, MONO_SEEDS[i], &m);
+        if (!isfinite(m)) worst = INFINITY;
+        else { best = m < best ? m : best; worst = m > worst ? m : worst; }
+    }
     if (!reduced())
-        check(m < c && m < u, "monocular AbsRel (median-scaled) beats the constant and untrained baselines",
-              "model %.4f, constant %.4f, untrained %.4f", m, c, u);
+        check(worst <= MONO_SPREAD_MAX * best, "monocular seeds agree: worst test AbsRel within the stated spread of the best",
+              "best %.4f, worst %.4f (ratio %.2f, bound %.2f)", best, worst, worst / best, MONO_SPREAD_MAX);
 }
 
 static void stereo(const char *dir)
@@ -219,7 +269,10 @@ static void stereo(const char *dir)
     snprintf(log, sizeof log, "%s/synth-stereo.txt", dir);
     if (!check(e2e_run(cmd, log) == 0, "synth renders the stereo data", "see %s", log)) return;
     snprintf(data, sizeof data, "%s/stereo/dataset.json", dir);
-    if (train_and_eval(dir, "stereo", reduced() ? STEREO_REDUCED : STEREO_CONFIG, STEREO_STEPS, data, "--max-depth 20")) return;
+    char cfg[1024];
+    if (train_and_eval(dir, "stereo", inline_config(dir, "stereo", reduced() ? STEREO_REDUCED : STEREO_CONFIG, cfg, sizeof cfg),
+                       "", STEREO_STEPS, data, "--max-depth 20"))
+        return;
     snprintf(metrics, sizeof metrics, "%s/stereo.metrics.json", dir);
     char *text = e2e_slurp(metrics, NULL);
     check(text && strstr(text, "\"metric\""), "stereo model is evaluated metric (no scaling)", "%s", metrics);

@@ -182,18 +182,24 @@ static const char *inline_config(const char *dir, const char *tag, const char *t
  * the second half with seeds 3 and 4), so the bound is ×1.25 — 2.4× below the
  * smallest drift measured.  The run's drift alarm (train/loop/health.h) must stay
  * silent as well. */
+/* "TAG what" into name[200], for the checks of one run. */
+static const char *named(char *name, const char *tag, const char *what)
+{
+    snprintf(name, 200, "%s %s", tag, what);
+    return name;
+}
+
 static void no_drift(const char *tag, const char *text)
 {
     double v[256], best = INFINITY;
     int n = e2e_val_absrels(text, v, 256);
     for (int i = n / 2; i < n; i++) best = v[i] < best ? v[i] : best;
     char name[200];
-    snprintf(name, sizeof name,
-             "%s validation AbsRel ends at (within 25%% of) its best of the second half: no drift back up", tag);
-    check(n >= 3 && v[n - 1] <= 1.25 * best, name, "%d validations, best of the second half %.4f, last %.4f", n,
-          best, n ? v[n - 1] : NAN);
-    snprintf(name, sizeof name, "%s run: the drift alarm stays silent", tag);
-    check(!strstr(text, "drifting"), name, "log.jsonl has a drift record");
+    check(n >= 3 && v[n - 1] <= 1.25 * best,
+          named(name, tag, "validation AbsRel ends at (within 25% of) its best of the second half: no drift back up"),
+          "%d validations, best of the second half %.4f, last %.4f", n, best, n ? v[n - 1] : NAN);
+    check(!strstr(text, "drifting"), named(name, tag, "run: the drift alarm stays silent"),
+          "log.jsonl has a drift record");
 }
 
 /* One monocular run (model seed `seed`); its test AbsRel into *absrel (NAN
@@ -208,32 +214,32 @@ static void mono_seed(const char *dir, const char *data, int seed, double *absre
     if (train_and_eval(dir, tag, config, extra, MONO_STEPS, data, "")) return;
     double first = 0, last = 0;
     snprintf(log, sizeof log, "%s/%s/log.jsonl", dir, tag);
-    snprintf(name, sizeof name, "%s training log has step lines", tag);
-    if (check(loss_ends(log, reduced() ? 5 : 10, &first, &last) == 0, name, "%s", log)) {
-        snprintf(name, sizeof name, "%s training lowers the loss", tag);
-        check(last < 0.9 * first, name, "first %.4f last %.4f", first, last);
-    }
+    if (check(loss_ends(log, reduced() ? 5 : 10, &first, &last) == 0, named(name, tag, "training log has step lines"),
+              "%s", log))
+        check(last < 0.9 * first, named(name, tag, "training lowers the loss"), "first %.4f last %.4f", first, last);
     char *text = e2e_slurp(log, NULL);
     char *val = text ? strstr(text, "\"type\":\"val\"") : NULL;
     char *nl = val ? strchr(val, '\n') : NULL, *abs = val ? strstr(val, "\"absrel\":") : NULL;
-    snprintf(name, sizeof name, "%s validation logs depth metrics where the val split has ground truth", tag);
-    check(abs && (!nl || abs < nl), name, "first val line: %.200s", val ? val : "(none)");
+    check(abs && (!nl || abs < nl), named(name, tag, "validation logs depth metrics where the val split has ground truth"),
+          "first val line: %.200s", val ? val : "(none)");
     if (!reduced()) no_drift(tag, text);
     free(text);
     snprintf(log, sizeof log, "%s/%s/report.html", dir, tag);
     text = e2e_slurp(log, NULL);
-    snprintf(name, sizeof name, "%s run wrote its report with depth-metric curves", tag);
-    check(text && strstr(text, "Validation AbsRel vs step"), name, "%s", log);
+    check(text && strstr(text, "Validation AbsRel vs step"), named(name, tag, "run wrote its report with depth-metric curves"),
+          "%s", log);
     free(text);
     snprintf(metrics, sizeof metrics, "%s/%s.metrics.json", dir, tag);
     double m = e2e_json_number(metrics, "absrel"), c = e2e_json_number(metrics, "baseline_constant.absrel");
     double u = e2e_json_number(metrics, "baseline_untrained.absrel");
-    snprintf(name, sizeof name, "%s metrics.json has the AbsRel of the model and both baselines", tag);
-    if (!check(isfinite(m) && m > 0 && isfinite(c) && isfinite(u), name, "%s: %g %g %g", metrics, m, c, u)) return;
+    if (!check(isfinite(m) && m > 0 && isfinite(c) && isfinite(u),
+               named(name, tag, "metrics.json has the AbsRel of the model and both baselines"), "%s: %g %g %g", metrics, m,
+               c, u))
+        return;
     *absrel = m;
     if (!reduced()) {
-        snprintf(name, sizeof name, "%s AbsRel (median-scaled) beats the constant and untrained baselines", tag);
-        check(m < c && m < u, name, "model %.4f, constant %.4f, untrained %.4f", m, c, u);
+        check(m < c && m < u, named(name, tag, "AbsRel (median-scaled) beats the constant and untrained baselines"),
+              "model %.4f, constant %.4f, untrained %.4f", m, c, u);
         snprintf(name, sizeof name, "%s AbsRel (median-scaled) below %.2f", tag, MONO_ABSREL_MAX);
         check(m < MONO_ABSREL_MAX, name, "model %.4f", m);
     }

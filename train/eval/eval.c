@@ -194,14 +194,14 @@ static size_t select_frame(const eval_run *r, frame_buf *b, int w, int h)
     return k;
 }
 
-/* Scores the four methods on the valid pixels of one ground-truth map, on
- * all of them and per region. */
 /* The sequence's intrinsics for its frames as loaded at w×h. */
 static nj_camera camera_at(const nj_sequence *s, int w, int h)
 {
     return w == s->width && h == s->height ? s->camera : nj_camera_resize(s->camera, s->width, s->height, w, h);
 }
 
+/* Scores the four methods on the valid pixels of one ground-truth map, on
+ * all of them and per region. */
 static void score_frame(eval_run *r, frame_buf *b, int w, int h, nj_camera cam)
 {
     size_t k = select_frame(r, b, w, h);

@@ -59,13 +59,18 @@ static int reduced(void)
 static const char *MONO_CONFIG_FILE = "configs/demo.json";
 static const int MONO_SEEDS[] = {2, 3, 4};
 #define N_MONO_SEEDS (int)(sizeof MONO_SEEDS / sizeof MONO_SEEDS[0])
-/* Measured (900 steps, one thread, model seeds 2 / 3 / 4 / 5 / 6): test
- * AbsRel 0.2099 / 0.2407 / 0.2036 / 0.2381 / 0.2256; constant depth 0.699,
- * untrained 0.66-0.72, row-layout oracle 0.144 (not beaten yet: DEVELOPERS.md).
- * Bounds: every seed below 0.32 (1.33x the worst measured; the drift this
- * guards against gave 2.9 and 9.2) and the worst within 1.5x the best
- * (measured 1.18 over seeds 2-4 and over 2-6; drift gave >10x). */
-#define MONO_ABSREL_MAX 0.32
+/* Measured (900 steps, one thread, model seeds 2 / 3 / 4 / 5 / 6; the demo
+ * recipe with the auto-mask from step 100): test AbsRel 0.2140 / 0.2572 /
+ * 0.2608 / 0.2776 / 0.2356; constant depth 0.699, untrained 0.66-0.72,
+ * row-layout oracle 0.144 (not beaten yet: DEVELOPERS.md).  With the mask from
+ * step 300 (the previous recipe) these were 0.2099 / 0.2407 / 0.2036 / 0.2381 /
+ * 0.2256: the earlier mask costs this cart-free set ~14 % and fixes the
+ * followed cart of the fleet set (DEVELOPERS.md "Training recipe").
+ * Bounds: every seed below 0.35 (1.26x the worst of five, 1.34x the worst of
+ * the three run here; the drift this guards against gave 2.9 and 9.2) and the
+ * worst within 1.5x the best (measured 1.22 over seeds 2-4, 1.30 over 2-6;
+ * drift gave >10x). */
+#define MONO_ABSREL_MAX 0.35
 #define MONO_SPREAD_MAX 1.5
 
 /* One thread: the run is then bit-for-bit the one measured when this test was

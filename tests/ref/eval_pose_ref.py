@@ -24,11 +24,14 @@ R_true (scipy Rotation.from_matrix(...).magnitude()), with
 true = inv(C_{i+1}) @ C_i, means in degrees.  Per camera axis (pitch x,
 yaw y, roll z): the components of Rotation.from_matrix(...).as_rotvec() of
 the predicted and the true motion; the mean and the root-mean-square of
-their difference and the root-mean-square of the true component, degrees.
+their difference, the mean and the root-mean-square of the true component,
+degrees; the slope of the least-squares line of predicted on true
+(np.polyfit, degree 1) and their correlation (np.corrcoef).
 
 Writes OUT.json: {"ate", "ate_std", "rmse", "scale_mean", "snippets",
 "rotation_error_deg", "rotation_true_deg", "pairs", and for AXIS in pitch,
-yaw, roll: "AXIS_mean_error_deg", "AXIS_rms_error_deg", "AXIS_true_rms_deg"}
+yaw, roll: "AXIS_mean_error_deg", "AXIS_rms_error_deg", "AXIS_true_rms_deg",
+"AXIS_true_mean_deg", "AXIS_slope", "AXIS_correlation"}
 (metrics.json's keys).
 """
 import json
@@ -86,6 +89,10 @@ def main():
         res[axis + "_mean_error_deg"] = float(np.mean(ve[:, k]))
         res[axis + "_rms_error_deg"] = float(np.sqrt(np.mean(ve[:, k] ** 2)))
         res[axis + "_true_rms_deg"] = float(np.sqrt(np.mean(vt[:, k] ** 2)))
+        res[axis + "_true_mean_deg"] = float(np.mean(vt[:, k]))
+        vp = ve[:, k] + vt[:, k]
+        res[axis + "_slope"] = float(np.polyfit(vt[:, k], vp, 1)[0])
+        res[axis + "_correlation"] = float(np.corrcoef(vt[:, k], vp)[0, 1])
     json.dump(res, open(out, "w"), indent=1)
 
 

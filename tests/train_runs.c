@@ -243,7 +243,8 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
          * the true component's variance: on test_predict_cli's 6 pairs of one
          * steady turn the yaw's is 3.8e-5 of its mean square, which turns the
          * two sides' double rounding of the true motions into 5e-8 of the slope */
-        double t = k >= 2 + 15 + 3 ? 1e-6 : tol;
+        int nfig = (int)(sizeof FIGURES / sizeof FIGURES[0]);
+        double t = k >= 2 + nfig - 6 ? 1e-6 : tol;
         int same = cJSON_IsNumber(av) && (k < 2 ? a == b : fabs(a - b) <= t * (1 + fabs(b)));
         if (!same) {
             snprintf(why, len, "%s: eval %.9g, reference %.9g", key, a, b);

@@ -45,9 +45,11 @@ typedef struct eval_run {
     double ate_mean, ate_m2, rmse_sum, scale_sum;
     int pairs;                 /* consecutive frame pairs with a rotation error */
     double rot_err_sum, rot_true_sum;   /* radians */
-    double axis_bias[3], axis_err2[3], axis_true2[3];   /* per camera axis (pitch, yaw, roll), radians */
-    /* running means and co-moments (Welford) for the fit of predicted on true:
-     * stable where a component barely varies (a steady turn) */
+    /* per camera axis (pitch, yaw, roll), radians: sums of squares of the error and
+     * of the true component; running means and co-moments (Welford) of the true
+     * and predicted components — the mean error is their difference, and the fit
+     * of predicted on true stays stable where a component barely varies */
+    double axis_err2[3], axis_true2[3];
     double axis_true[3], axis_pred[3], axis_m2t[3], axis_m2p[3], axis_cpt[3];
 } eval_run;
 
@@ -369,13 +371,10 @@ static void add_rotation_errors(eval_run *r, const double *c2w, const double *re
         double vp[3], vt[3];
         nj_rotation_vector(rel + 12 * i, vp);
         nj_rotation_vector(gt, vt);
-        for (int k = 0; k < 3; k++) {
-            r->axis_bias[k] += vp[k] - vt[k];
-            r->axis_err2[k] += (vp[k] - vt[k]) * (vp[k] - vt[k]);
-            r->axis_true2[k] += vt[k] * vt[k];
-        }
         r->pairs++;
         for (int k = 0; k < 3; k++) {
+            r->axis_err2[k] += (vp[k] - vt[k]) * (vp[k] - vt[k]);
+            r->axis_true2[k] += vt[k] * vt[k];
             double dt = vt[k] - r->axis_true[k], dp = vp[k] - r->axis_pred[k];
             r->axis_true[k] += dt / r->pairs;
             r->axis_pred[k] += dp / r->pairs;
@@ -525,7 +524,7 @@ static void print_table(const eval_run *r)
                RAD2DEG(r->rot_err_sum / r->pairs), RAD2DEG(r->rot_true_sum / r->pairs), r->pairs);
     for (int k = 0; k < 3 && r->pairs; k++)
         printf("pose: %-5s (rotation about the camera's %c axis) mean error %+.3f deg, RMS error %.3f deg, "
-               "true RMS %.3f deg\n", AXIS_NAMES[k], "xyz"[k], RAD2DEG(r->axis_bias[k] / r->pairs),
+               "true RMS %.3f deg\n", AXIS_NAMES[k], "xyz"[k], RAD2DEG(r->axis_pred[k] - r->axis_true[k]),
                RAD2DEG(sqrt(r->axis_err2[k] / r->pairs)), RAD2DEG(sqrt(r->axis_true2[k] / r->pairs)));
     for (int k = 0; k < 3 && r->pairs; k++) {
         double slope, corr;
@@ -598,7 +597,7 @@ static cJSON *report_json(const eval_run *r)
         for (int k = 0; k < 3; k++) {
             char key[40];
             snprintf(key, sizeof key, "%s_mean_error_deg", AXIS_NAMES[k]);
-            cJSON_AddNumberToObject(p, key, RAD2DEG(r->axis_bias[k] / r->pairs));
+            cJSON_AddNumberToObject(p, key, RAD2DEG(r->axis_pred[k] - r->axis_true[k]));
             snprintf(key, sizeof key, "%s_rms_error_deg", AXIS_NAMES[k]);
             cJSON_AddNumberToObject(p, key, RAD2DEG(sqrt(r->axis_err2[k] / r->pairs)));
             snprintf(key, sizeof key, "%s_true_rms_deg", AXIS_NAMES[k]);

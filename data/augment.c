@@ -1,4 +1,4 @@
-/* data/augment.c — colour jitter and horizontal flip (see augment.h).
+/* data/augment.c — colour jitter, horizontal flip and turn (see augment.h).
  * YIQ: the NTSC luma/chroma transform (FCC 1953 coefficients). */
 #include "data/augment.h"
 #include <math.h>
@@ -69,4 +69,32 @@ void nj_flip_planes(float *data, int planes, int w, int h)
             r[b] = t;
         }
     }
+}
+
+/* Bilinear read of plane p at (x, y), coordinates clamped to the frame. */
+static float read_clamped(const float *p, int w, int h, float x, float y)
+{
+    x = x < 0 ? 0 : x > (float)(w - 1) ? (float)(w - 1) : x;
+    y = y < 0 ? 0 : y > (float)(h - 1) ? (float)(h - 1) : y;
+    int x0 = (int)x, y0 = (int)y;
+    int x1 = x0 + 1 < w ? x0 + 1 : x0, y1 = y0 + 1 < h ? y0 + 1 : y0;
+    float fx = x - (float)x0, fy = y - (float)y0;
+    const float *r0 = p + (size_t)y0 * w, *r1 = p + (size_t)y1 * w;
+    return (1 - fy) * ((1 - fx) * r0[x0] + fx * r0[x1]) + fy * ((1 - fx) * r1[x0] + fx * r1[x1]);
+}
+
+void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, float yaw)
+{
+    /* ray d' = K⁻¹p of the turned view; the recorded ray is Rᵀd' with
+     * Rᵀ = R_y(−yaw) = [[c, 0, −s], [0, 1, 0], [s, 0, c]] */
+    double c = cos((double)yaw), s = sin((double)yaw);
+    size_t n = (size_t)w * h;
+    for (int v = 0; v < h; v++)
+        for (int u = 0; u < w; u++) {
+            double x = (u - cam.cx) / cam.fx, y = (v - cam.cy) / cam.fy;
+            double dx = c * x - s, dz = s * x + c;
+            float us = (float)(cam.fx * dx / dz + cam.cx), vs = (float)(cam.fy * y / dz + cam.cy);
+            for (int k = 0; k < planes; k++)
+                out[k * n + (size_t)v * w + u] = read_clamped(in + k * n, w, h, us, vs);
+        }
 }

@@ -13,10 +13,19 @@
  * camera's cx becomes W − 1 − cx (nj_camera_flip); the mirrored views are
  * those of a mirrored world, so a stereo partner that was to the right of the
  * target is to its left afterwards.
+ *
+ * Turn: the view of a camera turned about its own centre by a yaw (rotation
+ * about the image's vertical axis), the pixels the recorded view already
+ * holds re-sampled by the rotation homography K·R·K⁻¹ (Hartley & Zisserman
+ * 2004, sec. 8.4.2).  A point X in the recorded camera's frame is R·X in the
+ * turned one, so a source frame turned by R is explained by the pose R·T
+ * where the recorded one needed T: the pose net is given turns no place on a
+ * route predicts (DEVELOPERS.md, "Training recipe").
  */
 #ifndef NJ_AUGMENT_H
 #define NJ_AUGMENT_H
 #include "nn/rng.h"
+#include "nn/geom/camera.h"
 
 typedef struct nj_jitter {
     float brightness, contrast, saturation, hue;   /* factors b, c, s and the hue turn h */
@@ -30,5 +39,12 @@ float nj_jitter_pivot(const nj_jitter *j, const float *rgb, int w, int h);
 void nj_jitter_apply(const nj_jitter *j, float pivot, const float *in, float *out, int w, int h);
 /* Mirrors `planes` planar w×h planes left-right in place. */
 void nj_flip_planes(float *data, int planes, int w, int h);
+/* out = `planes` planar w×h planes of `in` as seen by camera `cam` turned by
+ * R = R_y(yaw) (radians; positive turns the view toward +x, so the scene
+ * moves toward −x): out(p) = in(K·Rᵀ·K⁻¹·p), bilinear, edge pixels repeated
+ * outside the frame.  out must not overlap in. */
+#define NJ_TURN_MAX_DEG 10.0f   /* largest turn a config may ask for: far beyond any
+                                   frame-to-frame yaw of a ground vehicle at 10 fps */
+void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, float yaw);
 
 #endif

@@ -18,6 +18,13 @@ typedef struct nj_batch {
     /* The same images with the item's colour jitter, for the network input
      * (they alias the clean arrays when jitter is off): */
     float *target_in, *sources_in, *partner_in;
+    /* The sources as recorded, before the turn augmentation (data/augment.h),
+     * for the auto-mask's un-warped comparison: a turned frame differs from
+     * the target everywhere, so a vehicle static in the image would lose its
+     * mask.  Aliases `sources` when the batch is not turned. */
+    float *sources_still;
+    float *turn_yaw;         /* n×nsrc: the yaw (radians) source j of item i was turned by,
+                                at i·nsrc + j; NULL when the batch is not turned */
     nj_camera *camera;       /* n: intrinsics at w×h (after flip) */
     float *stereo_tx;        /* n: x of the target→partner transform, for nj_pose_stereo:
                                 −baseline normally, +baseline after a flip; 0 without partner */
@@ -27,10 +34,11 @@ typedef struct nj_batch {
 } nj_batch;
 
 /* Allocates every array of a batch of n items at w×h with nsrc temporal
- * sources, partner arrays when `stereo`, and separate network-input copies
- * when `jitter` (else they alias the clean images).  Everything is zeroed.
- * 0, or -1 when out of memory (nothing held). */
-int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter);
+ * sources, partner arrays when `stereo`, separate network-input copies when
+ * `jitter` (else they alias the clean images) and separate recorded sources
+ * when `turn` (else they alias `sources`).  Everything is zeroed.  0, or -1
+ * when out of memory (nothing held). */
+int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn);
 /* Frees what nj_batch_alloc allocated; b is zeroed. */
 void nj_batch_free(nj_batch *b);
 /* Items [i0, i0 + k) of b, as a view into b's arrays (nothing copied). */

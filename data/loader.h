@@ -10,8 +10,9 @@
  * Each item: the target, its temporal sources and its stereo partner, decoded,
  * resized to the training size (area filter when shrinking), intrinsics
  * scaled to match; then, seeded, a horizontal flip of all its frames (cx
- * mirrored, partner side swapped — see augment.h) and a colour jitter
- * applied only to the network-input copies.
+ * mirrored, partner side swapped — see augment.h), with turn_deg a seeded
+ * turn of each source frame (the recorded ones kept in sources_still) and a
+ * colour jitter applied only to the network-input copies.
  */
 #ifndef NJ_LOADER_H
 #define NJ_LOADER_H
@@ -30,6 +31,8 @@ typedef struct nj_loader_config {
     int jitter;              /* colour jitter on the network-input copies */
     float brightness, contrast, saturation, hue;   /* jitter ranges (see augment.h) */
     float flip_prob;         /* probability of a horizontal flip per item */
+    float turn_deg;          /* each source frame turned by a yaw drawn uniformly in
+                                ±turn_deg degrees (data/augment.h); 0 = off */
     /* Data-parallel shard: the loader yields items [shard_first, shard_first +
      * shard_count) of each step's batch of `batch` items — the same samples and
      * augmentation those items have in an unsharded loader.  shard_count 0:
@@ -42,7 +45,7 @@ typedef struct nj_loader_config {
 } nj_loader_config;
 
 /* 320x240, batch 4, seed 1, workers 1, prefetch 2, jitter on with ranges
- * 0.2/0.2/0.2/0.05, flip probability 0.5, no shard, no frame store. */
+ * 0.2/0.2/0.2/0.05, flip probability 0.5, no turn, no shard, no frame store. */
 void nj_loader_config_default(nj_loader_config *c);
 
 /* nj_batch: data/batch.h */

@@ -7,6 +7,7 @@
 #include "data/augment.h"
 #include "data/framestore.h"
 #include "data/image.h"
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -99,6 +100,21 @@ static void flip_item(nj_batch *b, int i, int partner)
     if (partner) nj_flip_planes(b->partner + (size_t)i * 3 * b->w * b->h, 3, b->w, b->h);
 }
 
+/* Each source turned by its own yaw, drawn after the flip and jitter
+ * parameters so runs without the turn keep their draws; the recorded frames
+ * go to sources_still. */
+static void turn_item(nj_rng *r, float max_deg, nj_batch *b, int i)
+{
+    size_t n = (size_t)3 * b->w * b->h;
+    for (int k = 0; k < b->nsrc; k++) {
+        float yaw = (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0);
+        float *src = b->sources + ((size_t)i * b->nsrc + k) * n, *rec = b->sources_still + ((size_t)i * b->nsrc + k) * n;
+        b->turn_yaw[(size_t)i * b->nsrc + k] = yaw;
+        memcpy(rec, src, n * sizeof(float));
+        nj_turn_planes(rec, src, 3, b->w, b->h, b->camera[i], yaw);
+    }
+}
+
 static int load_item(const nj_loader_config *c, const nj_sequence *q, const nj_sample *s, nj_batch *b, int i,
                      int partner, int *sw, int *sh, char *err, size_t errlen)
 {
@@ -137,6 +153,7 @@ int nj_loader_item(const nj_dataset *ds, const nj_sample *s, const nj_loader_con
     b->has_partner[i] = partner;
     b->stereo_tx[i] = partner ? (flip ? q->baseline : -q->baseline) : 0.0f;
     b->flipped[i] = flip;
+    if (c->turn_deg > 0) turn_item(&r, c->turn_deg, b, i);
     if (c->jitter) jitter_item(&j, b, i, b->stereo);
     return 0;
 }

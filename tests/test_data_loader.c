@@ -14,6 +14,10 @@
  *    side (stereo_tx = +baseline), the flipped target reprojects onto the
  *    flipped partner; and onto the flipped next frame with the mirrored pose
  *    S·T·S, S = diag(−1, 1, 1).  The reprojection here is this test's own.
+ *  - a turned source (data.augment.turn_deg, on a flipped item) is explained
+ *    by the pose R_y(yaw)·T with the yaw the batch records, and not by T; its
+ *    recorded frame (sources_still) and everything else in the batch are
+ *    exactly what a loader without the turn yields;
  *  - several frame offsets ({1, 3}): each sample carries t−1, t+1, t−3, t+3 in
  *    that order, only targets with room for the largest offset are used, and
  *    the loader's source planes are those frames decoded and resized;
@@ -374,6 +378,75 @@ static void test_flip_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     nj_loader_destroy(L);
 }
 
+/* R_y(yaw)·T: the pose that explains a source turned by yaw (data/augment.h). */
+static void turned_pose(const double T[12], double yaw, double out[12])
+{
+    double c = cos(yaw), s = sin(yaw), R[9] = {c, 0, s, 0, 1, 0, -s, 0, c};
+    for (int i = 0; i < 3; i++)
+        for (int j = 0; j < 4; j++) out[4 * i + j] = R[3 * i] * T[j] + R[3 * i + 1] * T[4 + j] + R[3 * i + 2] * T[8 + j];
+}
+
+static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, const char *poses_path)
+{
+    nj_loader_config c;
+    char err[512];
+    nj_loader_config_default(&c);
+    c.width = SW;
+    c.height = SH;
+    c.batch = 2;
+    c.flip_prob = 1.0f;
+    c.jitter = 0;
+    nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    c.turn_deg = 8.0f;
+    nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    c.turn_deg = 10.5f;
+    char bad[512] = "";
+    nj_loader *over = nj_loader_create(ds, s, n, &c, bad, sizeof bad);
+    check(!over && strstr(bad, "turn"), "loader_turn_range", "a turn of 10.5 degrees: %s", over ? "accepted" : bad);
+    nj_loader_destroy(over);
+    const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL, *p = plain ? nj_loader_next(plain, err, sizeof err) : NULL;
+    double *poses = NULL;
+    int np = nj_poses_read(poses_path, &poses, err, sizeof err);
+    if (!b || !p || np <= 0 || !b->turn_yaw) {
+        check(0, "loader_turn_geometry", "%s", err);
+        nj_loader_destroy(L);
+        nj_loader_destroy(plain);
+        free(poses);
+        return;
+    }
+    size_t m = (size_t)3 * SW * SH, srcf = m * b->n * b->nsrc;
+    const nj_sample *q = &s[b->sample[0]];
+    float *d = flipped_depth(&ds->seq[q->seq], q->target);
+    int j = fabsf(b->turn_yaw[0]) > fabsf(b->turn_yaw[1]) ? 0 : 1;   /* item 0's more turned source */
+    double Tt[12], Tr[12], Tw[12], yaw = b->turn_yaw[j];
+    mirrored_relative(poses + 12 * q->target, poses + 12 * q->src[j], Tt);
+    turned_pose(Tt, yaw, Tr);
+    turned_pose(Tt, -yaw, Tw);
+    const float *src = b->sources + j * m;
+    double er = warp(b->target, d, src, Tr, b->camera[0]), et = warp(b->target, d, src, Tt, b->camera[0]);
+    double ew = warp(b->target, d, src, Tw, b->camera[0]), es = warp(b->target, d, b->sources_still + j * m, Tt, b->camera[0]);
+    printf("info: source turned by %.3f deg: warp with R*T %.4f, with T %.4f, with the opposite turn %.4f; "
+           "recorded source with T %.4f\n", yaw * 180 / M_PI, er, et, ew, es);
+    int inside = 1, turned = 0;
+    for (int k = 0; k < b->n * b->nsrc; k++) {
+        inside &= fabsf(b->turn_yaw[k]) <= 8.0f * (float)M_PI / 180;
+        turned += fabsf(b->turn_yaw[k]) > 0.1f * (float)M_PI / 180;
+    }
+    check(inside && turned > 0 && fabs(yaw) > 2 * M_PI / 180 && er < 0.02 && et > 1.5 * er && ew > 2 * er &&
+          fabs(er - es) < 0.01,
+          "loader_turn_explained_by_turned_pose", "yaw %.3f deg, errors R*T %.4f, T %.4f, opposite %.4f, recorded %.4f; "
+          "%d of %d turned", yaw * 180 / M_PI, er, et, ew, es, turned, b->n * b->nsrc);
+    check(p->turn_yaw == NULL && p->sources_still == p->sources && !memcmp(b->sources_still, p->sources, srcf * 4) &&
+          memcmp(b->sources, p->sources, srcf * 4) && !memcmp(b->target, p->target, m * b->n * 4) &&
+          !memcmp(b->camera, p->camera, sizeof(nj_camera) * b->n) && !memcmp(b->sample, p->sample, sizeof(int) * b->n) &&
+          !memcmp(b->flipped, p->flipped, sizeof(int) * b->n),
+          "loader_turn_keeps_the_recorded_batch", "the turned loader's recorded frames, targets or draws differ from a plain one's");
+    free(d);
+    free(poses);
+    nj_loader_destroy(L);
+    nj_loader_destroy(plain);
+}
+
 /* Offsets {1, 3} on the 10-frame sequence (no duplicates skipped): targets
  * 3..6, sources in offset order; the batch's four source planes per item are
  * the named frames (the frame the loader makes is the decoded, resized file:
@@ -467,6 +540,7 @@ int main(void)
     test_clean_and_camera(&ds, s, n);
     test_jitter_identical();
     test_flip_geometry(&ds, s, n, poses);
+    test_turn_geometry(&ds, s, n, poses);
     test_multi_offsets(json);
     test_missing_file(&ds, s, n);
     free(s);

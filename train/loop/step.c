@@ -61,6 +61,8 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
         /* auto-mask against the widest offset only (loss.automask_widest) */
         if (cfg->loss.automask_widest && j / 2 < cfg->noffsets && cfg->offsets[j / 2] < widest)
             in->mask_skip |= 1u << in->nsources;
+        if (b->sources_still != b->sources && !(in->still[in->nsources] = gather_source(g, b, b->sources_still, j)))
+            return -1;
         in->sources[in->nsources] = src;
         in->poses[in->nsources++] = T;
     }

@@ -15,16 +15,12 @@ typedef struct nj_batch {
     float *target;           /* n×3×h×w */
     float *sources;          /* n×nsrc×3×h×w: source j of item i at (i·nsrc + j)·3·h·w; j=2i is t−k_i, j=2i+1 is t+k_i */
     float *partner;          /* n×3×h×w, or NULL when !stereo */
-    /* The same images with the item's colour jitter, for the network input
-     * (they alias the clean arrays when jitter is off): */
+    /* The same images with the item's colour jitter (and the sources' turn),
+     * for the network input (they alias the clean arrays when neither is on): */
     float *target_in, *sources_in, *partner_in;
-    /* The sources as recorded, before the turn augmentation (data/augment.h),
-     * for the auto-mask's un-warped comparison: a turned frame differs from
-     * the target everywhere, so a vehicle static in the image would lose its
-     * mask.  Aliases `sources` when the batch is not turned. */
-    float *sources_still;
-    float *turn_yaw;         /* n×nsrc: the yaw (radians) source j of item i was turned by,
-                                at i·nsrc + j; NULL when the batch is not turned */
+    float *turn_yaw;         /* n×nsrc: the yaw (radians) the network-input copy of source j
+                                of item i was turned by (data/augment.h), at i·nsrc + j; the
+                                clean source is as recorded.  NULL when nothing is turned */
     nj_camera *camera;       /* n: intrinsics at w×h (after flip) */
     float *stereo_tx;        /* n: x of the target→partner transform, for nj_pose_stereo:
                                 −baseline normally, +baseline after a flip; 0 without partner */
@@ -35,9 +31,9 @@ typedef struct nj_batch {
 
 /* Allocates every array of a batch of n items at w×h with nsrc temporal
  * sources, partner arrays when `stereo`, separate network-input copies when
- * `jitter` (else they alias the clean images) and separate recorded sources
- * when `turn` (else they alias `sources`).  Everything is zeroed.  0, or -1
- * when out of memory (nothing held). */
+ * `jitter` (else they alias the clean images; sources_in is separate when
+ * `turn` too) and turn_yaw when `turn`.  Everything is zeroed.  0, or -1 when
+ * out of memory (nothing held). */
 int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn);
 /* Frees what nj_batch_alloc allocated; b is zeroed. */
 void nj_batch_free(nj_batch *b);

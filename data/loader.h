@@ -10,9 +10,9 @@
  * Each item: the target, its temporal sources and its stereo partner, decoded,
  * resized to the training size (area filter when shrinking), intrinsics
  * scaled to match; then, seeded, a horizontal flip of all its frames (cx
- * mirrored, partner side swapped — see augment.h), with turn_deg a seeded
- * turn of each source frame (the recorded ones kept in sources_still) and a
- * colour jitter applied only to the network-input copies.
+ * mirrored, partner side swapped — see augment.h), then, only on the
+ * network-input copies, with turn_deg a seeded turn of each source frame and
+ * a colour jitter.
  */
 #ifndef NJ_LOADER_H
 #define NJ_LOADER_H

@@ -88,7 +88,8 @@ static void jitter_item(const nj_jitter *j, nj_batch *b, int i, int partner)
     nj_jitter_apply(j, pivot, b->target + i * n, b->target_in + i * n, b->w, b->h);
     for (int k = 0; k < b->nsrc; k++) {
         size_t o = ((size_t)i * b->nsrc + k) * n;
-        nj_jitter_apply(j, pivot, b->sources + o, b->sources_in + o, b->w, b->h);
+        /* a turned source's input copy is already in sources_in (turn_item) */
+        nj_jitter_apply(j, pivot, b->turn_yaw ? b->sources_in + o : b->sources + o, b->sources_in + o, b->w, b->h);
     }
     if (partner) nj_jitter_apply(j, pivot, b->partner + i * n, b->partner_in + i * n, b->w, b->h);
 }
@@ -100,18 +101,16 @@ static void flip_item(nj_batch *b, int i, int partner)
     if (partner) nj_flip_planes(b->partner + (size_t)i * 3 * b->w * b->h, 3, b->w, b->h);
 }
 
-/* Each source turned by its own yaw, drawn after the flip and jitter
- * parameters so runs without the turn keep their draws; the recorded frames
- * go to sources_still. */
+/* The network-input copy of each source turned by its own yaw, drawn after
+ * the flip and jitter parameters so runs without the turn keep their draws. */
 static void turn_item(nj_rng *r, float max_deg, nj_batch *b, int i)
 {
     size_t n = (size_t)3 * b->w * b->h;
     for (int k = 0; k < b->nsrc; k++) {
+        size_t o = ((size_t)i * b->nsrc + k) * n;
         float yaw = (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0);
-        float *src = b->sources + ((size_t)i * b->nsrc + k) * n, *rec = b->sources_still + ((size_t)i * b->nsrc + k) * n;
         b->turn_yaw[(size_t)i * b->nsrc + k] = yaw;
-        memcpy(rec, src, n * sizeof(float));
-        nj_turn_planes(rec, src, 3, b->w, b->h, b->camera[i], yaw);
+        nj_turn_planes(b->sources + o, b->sources_in + o, 3, b->w, b->h, b->camera[i], yaw);
     }
 }
 

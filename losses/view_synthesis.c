@@ -72,7 +72,7 @@ static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs
     unsigned skip = (in->mask_skip & ((1u << in->nsources) - 1)) == (1u << in->nsources) - 1 ? 0 : in->mask_skip;
     for (int s = 0; s < in->nsources; s++) {
         if (skip & (1u << s)) continue;
-        nj_tensor *pe = nj_photometric_error(g, in->still[s] ? in->still[s] : in->sources[s], in->target, cfg->alpha);
+        nj_tensor *pe = nj_photometric_error(g, in->sources[s], in->target, cfg->alpha);
         m = m ? nj_minimum(g, m, pe) : pe;
     }
     nj_graph_set_grad(g, grad_was);
@@ -199,9 +199,7 @@ int nj_view_synthesis_loss(nj_graph *g, const nj_vs_config *cfg,
     if (cfg->gain_match) {
         matched = *in;
         for (int s = 0; s < in->nsources; s++)
-            if (!(matched.sources[s] = gain_matched(g, in->sources[s], in->target)) ||
-                (in->still[s] && !(matched.still[s] = gain_matched(g, in->still[s], in->target))))
-                return -1;
+            if (!(matched.sources[s] = gain_matched(g, in->sources[s], in->target))) return -1;
         in = &matched;
     }
     nj_tensor *ident = cfg->automask ? identity_min(g, cfg, in) : NULL;

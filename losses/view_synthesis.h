@@ -5,8 +5,7 @@
  * source frame into the target view with its pose, and take the per-pixel
  * photometric error.  Then:
  *  - per-pixel minimum over sources (Godard et al. 2019);
- *  - auto-masking (Godard et al. 2019): the un-warped sources' errors (of the
- *    recorded frames, nj_vs_input.still, where sources were turned), plus a
+ *  - auto-masking (Godard et al. 2019): the un-warped sources' errors, plus a
  *    tiny random tie-break, compete; pixels where an un-warped source is at
  *    least as good (static relative to the camera) contribute nothing;
  *    pixels whose warped point leaves every source view are excluded too;
@@ -49,10 +48,6 @@ typedef struct nj_vs_input {
     nj_tensor *target;                      /* N×3×H×W, values in [0, 1] */
     nj_tensor *sources[NJ_MAX_SOURCES];     /* N×3×H×W */
     nj_tensor *poses[NJ_MAX_SOURCES];       /* N×1×3×4, target → source */
-    nj_tensor *still[NJ_MAX_SOURCES];       /* N×3×H×W: what the auto-mask compares un-warped
-                                               for source s — the recorded frame when the
-                                               source was turned (data/augment.h); NULL:
-                                               sources[s] itself */
     int nsources;
     unsigned mask_skip;                     /* bit s: source s is left out of the auto-mask's
                                                un-warped minimum (never all of them); 0 = none */

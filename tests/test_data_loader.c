@@ -14,14 +14,17 @@
  *    side (stereo_tx = +baseline), the flipped target reprojects onto the
  *    flipped partner; and onto the flipped next frame with the mirrored pose
  *    S·T·S, S = diag(−1, 1, 1).  The reprojection here is this test's own.
- *  - a turned source (data.augment.turn_deg, on a flipped item) is explained
- *    by the pose R_y(yaw)·T with the yaw the batch records, and not by T; its
- *    recorded frame (sources_still) and everything else in the batch are
- *    exactly what a loader without the turn yields;
+ *  - a turned source (data.augment.turn_deg, on a flipped item: the
+ *    network-input copy) is explained by the pose R_y(yaw)·T with the yaw the
+ *    batch records, and not by T or R_y(−yaw)·T; the clean frames and every
+ *    draw are exactly what a loader without the turn yields; with colour
+ *    jitter the input copy is the jittered frame turned (the jitter is affine
+ *    per pixel, so it commutes with the bilinear turn up to its clamping);
  *  - several frame offsets ({1, 3}): each sample carries t−1, t+1, t−3, t+3 in
  *    that order, only targets with room for the largest offset are used, and
  *    the loader's source planes are those frames decoded and resized;
  *  - a file that disappears gives an error naming it. */
+#include "data/augment.h"
 #include "data/dataset.h"
 #include "data/image.h"
 #include "data/loader.h"
@@ -386,6 +389,47 @@ static void turned_pose(const double T[12], double yaw, double out[12])
         for (int j = 0; j < 4; j++) out[4 * i + j] = R[3 * i] * T[j] + R[3 * i + 1] * T[4 + j] + R[3 * i + 2] * T[8 + j];
 }
 
+/* With colour jitter: the turned loader's input copies against the plain
+ * loader's jittered ones turned by the recorded yaws. */
+static void test_turn_with_jitter(const nj_dataset *ds, const nj_sample *s, int n)
+{
+    nj_loader_config c;
+    char err[512];
+    nj_loader_config_default(&c);
+    c.width = SW;
+    c.height = SH;
+    c.batch = 2;
+    c.seed = 5;
+    nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    c.turn_deg = 3.0f;
+    nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL, *p = plain ? nj_loader_next(plain, err, sizeof err) : NULL;
+    double worst = INFINITY, moved = 0;
+    if (b && p && b->turn_yaw) {
+        size_t m = (size_t)3 * SW * SH;
+        float *t = malloc(sizeof(float) * m);
+        worst = 0;
+        for (int i = 0; i < b->n; i++)
+            for (int k = 0; k < b->nsrc; k++) {
+                size_t o = ((size_t)i * b->nsrc + k) * m;
+                nj_turn_planes(p->sources_in + o, t, 3, SW, SH, p->camera[i], b->turn_yaw[i * b->nsrc + k]);
+                double e = 0, e0 = 0;
+                for (size_t q = 0; q < m; q++) {
+                    e += fabsf(t[q] - b->sources_in[o + q]);
+                    e0 += fabsf(p->sources_in[o + q] - b->sources_in[o + q]);
+                }
+                worst = fmax(worst, e / (double)m);
+                moved = fmax(moved, e0 / (double)m);
+            }
+        free(t);
+        worst = memcmp(b->target_in, p->target_in, m * b->n * 4) ? INFINITY : worst;
+    }
+    checkv(worst < 1e-3 && moved > 10 * worst, "loader_turn_with_jitter",
+          "mean |input - turned jittered frame| %.2e (the unturned one %.2e), same jittered targets", worst, moved);
+    nj_loader_destroy(L);
+    nj_loader_destroy(plain);
+}
+
 static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, const char *poses_path)
 {
     nj_loader_config c;
@@ -422,9 +466,9 @@ static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     mirrored_relative(poses + 12 * q->target, poses + 12 * q->src[j], Tt);
     turned_pose(Tt, yaw, Tr);
     turned_pose(Tt, -yaw, Tw);
-    const float *src = b->sources + j * m;
+    const float *src = b->sources_in + j * m;
     double er = warp(b->target, d, src, Tr, b->camera[0]), et = warp(b->target, d, src, Tt, b->camera[0]);
-    double ew = warp(b->target, d, src, Tw, b->camera[0]), es = warp(b->target, d, b->sources_still + j * m, Tt, b->camera[0]);
+    double ew = warp(b->target, d, src, Tw, b->camera[0]), es = warp(b->target, d, b->sources + j * m, Tt, b->camera[0]);
     printf("info: source turned by %.3f deg: warp with R*T %.4f, with T %.4f, with the opposite turn %.4f; "
            "recorded source with T %.4f\n", yaw * 180 / M_PI, er, et, ew, es);
     int inside = 1, turned = 0;
@@ -436,8 +480,8 @@ static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
           fabs(er - es) < 0.01,
           "loader_turn_explained_by_turned_pose", "yaw %.3f deg, errors R*T %.4f, T %.4f, opposite %.4f, recorded %.4f; "
           "%d of %d turned", yaw * 180 / M_PI, er, et, ew, es, turned, b->n * b->nsrc);
-    check(p->turn_yaw == NULL && p->sources_still == p->sources && !memcmp(b->sources_still, p->sources, srcf * 4) &&
-          memcmp(b->sources, p->sources, srcf * 4) && !memcmp(b->target, p->target, m * b->n * 4) &&
+    check(p->turn_yaw == NULL && p->sources_in == p->sources && !memcmp(b->sources, p->sources, srcf * 4) &&
+          memcmp(b->sources_in, b->sources, srcf * 4) && !memcmp(b->target, p->target, m * b->n * 4) &&
           !memcmp(b->camera, p->camera, sizeof(nj_camera) * b->n) && !memcmp(b->sample, p->sample, sizeof(int) * b->n) &&
           !memcmp(b->flipped, p->flipped, sizeof(int) * b->n),
           "loader_turn_keeps_the_recorded_batch", "the turned loader's recorded frames, targets or draws differ from a plain one's");
@@ -445,6 +489,7 @@ static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     free(poses);
     nj_loader_destroy(L);
     nj_loader_destroy(plain);
+    test_turn_with_jitter(ds, s, n);
 }
 
 /* Offsets {1, 3} on the 10-frame sequence (no duplicates skipped): targets

@@ -66,7 +66,8 @@ typedef struct nj_train_config {
     int frame_store;          /* frames prepared once at the training size, in a file */
     char frame_store_dir[NJ_PATH_MAX];   /* its folder; "" = the run folder */
     float brightness, contrast, saturation, hue, flip;
-    float turn_deg;           /* sources turned by a yaw within ±turn_deg (data/augment.h) */
+    float turn_deg;           /* the pose net's sources turned by a yaw within ±turn_deg
+                                 (data/augment.h; the loss undoes it, train/loop/step.c) */
     /* model and loss */
     nj_model_config model;
     nj_vs_config loss;

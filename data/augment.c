@@ -1,6 +1,7 @@
 /* data/augment.c — colour jitter, horizontal flip and turn (see augment.h).
  * YIQ: the NTSC luma/chroma transform (FCC 1953 coefficients). */
 #include "data/augment.h"
+#include "nn/geom/lens.h"
 #include <math.h>
 #include <stddef.h>
 
@@ -83,17 +84,17 @@ static float read_clamped(const float *p, int w, int h, float x, float y)
     return (1 - fy) * ((1 - fx) * r0[x0] + fx * r0[x1]) + fy * ((1 - fx) * r1[x0] + fx * r1[x1]);
 }
 
-void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, float yaw)
+void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, const float rot[3])
 {
-    /* ray d' = K⁻¹p of the turned view; the recorded ray is Rᵀd' with
-     * Rᵀ = R_y(−yaw) = [[c, 0, −s], [0, 1, 0], [s, 0, c]] */
-    double c = cos((double)yaw), s = sin((double)yaw);
+    /* ray d' = K⁻¹p of the turned view; the recorded ray is Rᵀd' */
+    double v3[3] = {rot[0], rot[1], rot[2]}, R[9];
+    nj_rot_from_vec(v3, R);
     size_t n = (size_t)w * h;
     for (int v = 0; v < h; v++)
         for (int u = 0; u < w; u++) {
             double x = (u - cam.cx) / cam.fx, y = (v - cam.cy) / cam.fy;
-            double dx = c * x - s, dz = s * x + c;
-            float us = (float)(cam.fx * dx / dz + cam.cx), vs = (float)(cam.fy * y / dz + cam.cy);
+            double dx = R[0] * x + R[3] * y + R[6], dy = R[1] * x + R[4] * y + R[7], dz = R[2] * x + R[5] * y + R[8];
+            float us = (float)(cam.fx * dx / dz + cam.cx), vs = (float)(cam.fy * dy / dz + cam.cy);
             for (int k = 0; k < planes; k++)
                 out[k * n + (size_t)v * w + u] = read_clamped(in + k * n, w, h, us, vs);
         }

@@ -14,10 +14,10 @@
  * those of a mirrored world, so a stereo partner that was to the right of the
  * target is to its left afterwards.
  *
- * Turn: the view of a camera turned about its own centre by a yaw (rotation
- * about the image's vertical axis), the pixels the recorded view already
- * holds re-sampled by the rotation homography K·R·K⁻¹ (Hartley & Zisserman
- * 2004, sec. 8.4.2).  A point X in the recorded camera's frame is R·X in the
+ * Turn: the view of a camera turned about its own centre by a rotation R — a
+ * yaw about the image's vertical axis, a roll about the optical axis — the
+ * pixels the recorded view already holds re-sampled by the rotation
+ * homography K·R·K⁻¹ (Hartley & Zisserman 2004, sec. 8.4.2).  A point X in the recorded camera's frame is R·X in the
  * turned one, so a source frame turned by R is explained by the pose R·T
  * where the recorded one needed T: the pose net is given turns no place on a
  * route predicts (DEVELOPERS.md, "Training recipe").  Only the network-input
@@ -42,11 +42,13 @@ void nj_jitter_apply(const nj_jitter *j, float pivot, const float *in, float *ou
 /* Mirrors `planes` planar w×h planes left-right in place. */
 void nj_flip_planes(float *data, int planes, int w, int h);
 /* out = `planes` planar w×h planes of `in` as seen by camera `cam` turned by
- * R = R_y(yaw) (radians; positive turns the view toward +x, so the scene
- * moves toward −x): out(p) = in(K·Rᵀ·K⁻¹·p), bilinear, edge pixels repeated
- * outside the frame.  out must not overlap in. */
+ * the rotation R whose rotation vector is rot (radians; camera axes x right,
+ * y down, z forward: rot = (0, yaw, 0) with yaw > 0 turns the view toward +x,
+ * so the scene moves toward −x; (0, 0, roll) turns it about the optical
+ * axis): out(p) = in(K·Rᵀ·K⁻¹·p), bilinear, edge pixels repeated outside the
+ * frame.  out must not overlap in. */
 #define NJ_TURN_MAX_DEG 10.0f   /* largest turn a config may ask for: far beyond any
                                    frame-to-frame yaw of a ground vehicle at 10 fps */
-void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, float yaw);
+void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, const float rot[3]);
 
 #endif

@@ -23,14 +23,14 @@ int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int j
     b->target_in = jitter ? images(n, img) : b->target;
     b->sources_in = jitter || turn ? images(n * nsrc, img) : b->sources;
     b->partner_in = stereo ? (jitter ? images(n, img) : b->partner) : NULL;
-    b->turn_yaw = turn ? calloc((size_t)(n * nsrc > 0 ? n * nsrc : 1), sizeof(float)) : NULL;
+    b->turn = turn ? calloc((size_t)(n * nsrc > 0 ? n * nsrc : 1) * 3, sizeof(float)) : NULL;
     size_t items = (size_t)(n ? n : 1);
     b->camera = calloc(items, sizeof(nj_camera));
     b->stereo_tx = calloc(items, sizeof(float));
     b->has_partner = calloc(items, sizeof(int));
     b->flipped = calloc(items, sizeof(int));
     b->sample = calloc(items, sizeof(int));
-    if (b->target && b->sources && b->target_in && b->sources_in && (!turn || b->turn_yaw) && (!stereo || (b->partner && b->partner_in)) &&
+    if (b->target && b->sources && b->target_in && b->sources_in && (!turn || b->turn) && (!stereo || (b->partner && b->partner_in)) &&
         b->camera && b->stereo_tx && b->has_partner && b->flipped && b->sample)
         return 0;
     nj_batch_free(b);
@@ -42,7 +42,7 @@ void nj_batch_free(nj_batch *b)
     if (b->target_in != b->target) free(b->target_in);
     if (b->sources_in != b->sources) free(b->sources_in);
     if (b->partner_in != b->partner) free(b->partner_in);
-    free(b->turn_yaw);
+    free(b->turn);
     free(b->target);
     free(b->sources);
     free(b->partner);
@@ -63,7 +63,7 @@ void nj_batch_view(const nj_batch *b, int i0, int k, nj_batch *o)
     o->target_in += i * img;
     if (b->sources) o->sources += i * (size_t)b->nsrc * img;
     if (b->sources_in) o->sources_in += i * (size_t)b->nsrc * img;
-    if (b->turn_yaw) o->turn_yaw += i * (size_t)b->nsrc;
+    if (b->turn) o->turn += i * (size_t)b->nsrc * 3;
     if (b->partner) o->partner += i * img;
     if (b->partner_in) o->partner_in += i * img;
     if (b->camera) o->camera += i;

@@ -18,9 +18,10 @@ typedef struct nj_batch {
     /* The same images with the item's colour jitter (and the sources' turn),
      * for the network input (they alias the clean arrays when neither is on): */
     float *target_in, *sources_in, *partner_in;
-    float *turn_yaw;         /* n×nsrc: the yaw (radians) the network-input copy of source j
-                                of item i was turned by (data/augment.h), at i·nsrc + j; the
-                                clean source is as recorded.  NULL when nothing is turned */
+    float *turn;             /* n×nsrc×3: the rotation vector (radians) the network-input copy
+                                of source j of item i was turned by (data/augment.h), at
+                                (i·nsrc + j)·3; the clean source is as recorded.  NULL when
+                                nothing is turned */
     nj_camera *camera;       /* n: intrinsics at w×h (after flip) */
     float *stereo_tx;        /* n: x of the target→partner transform, for nj_pose_stereo:
                                 −baseline normally, +baseline after a flip; 0 without partner */
@@ -32,7 +33,7 @@ typedef struct nj_batch {
 /* Allocates every array of a batch of n items at w×h with nsrc temporal
  * sources, partner arrays when `stereo`, separate network-input copies when
  * `jitter` (else they alias the clean images; sources_in is separate when
- * `turn` too) and turn_yaw when `turn`.  Everything is zeroed.  0, or -1 when
+ * `turn` too) and `turn` when `turn`.  Everything is zeroed.  0, or -1 when
  * out of memory (nothing held). */
 int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn);
 /* Frees what nj_batch_alloc allocated; b is zeroed. */

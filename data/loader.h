@@ -11,7 +11,8 @@
  * resized to the training size (area filter when shrinking), intrinsics
  * scaled to match; then, seeded, a horizontal flip of all its frames (cx
  * mirrored, partner side swapped — see augment.h), then, only on the
- * network-input copies, with turn_deg a seeded turn of each source frame and
+ * network-input copies, with turn_deg / roll_deg a seeded turn of each source
+ * frame and
  * a colour jitter.
  */
 #ifndef NJ_LOADER_H
@@ -31,8 +32,9 @@ typedef struct nj_loader_config {
     int jitter;              /* colour jitter on the network-input copies */
     float brightness, contrast, saturation, hue;   /* jitter ranges (see augment.h) */
     float flip_prob;         /* probability of a horizontal flip per item */
-    float turn_deg;          /* each source frame turned by a yaw drawn uniformly in
+    float turn_deg;          /* each source's input copy turned by a yaw drawn uniformly in
                                 ±turn_deg degrees (data/augment.h); 0 = off */
+    float roll_deg;          /* ... and by a roll drawn uniformly in ±roll_deg; 0 = off */
     /* Data-parallel shard: the loader yields items [shard_first, shard_first +
      * shard_count) of each step's batch of `batch` items — the same samples and
      * augmentation those items have in an unsharded loader.  shard_count 0:

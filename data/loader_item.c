@@ -89,7 +89,7 @@ static void jitter_item(const nj_jitter *j, nj_batch *b, int i, int partner)
     for (int k = 0; k < b->nsrc; k++) {
         size_t o = ((size_t)i * b->nsrc + k) * n;
         /* a turned source's input copy is already in sources_in (turn_item) */
-        nj_jitter_apply(j, pivot, b->turn_yaw ? b->sources_in + o : b->sources + o, b->sources_in + o, b->w, b->h);
+        nj_jitter_apply(j, pivot, b->turn ? b->sources_in + o : b->sources + o, b->sources_in + o, b->w, b->h);
     }
     if (partner) nj_jitter_apply(j, pivot, b->partner + i * n, b->partner_in + i * n, b->w, b->h);
 }
@@ -101,16 +101,24 @@ static void flip_item(nj_batch *b, int i, int partner)
     if (partner) nj_flip_planes(b->partner + (size_t)i * 3 * b->w * b->h, 3, b->w, b->h);
 }
 
-/* The network-input copy of each source turned by its own yaw, drawn after
- * the flip and jitter parameters so runs without the turn keep their draws. */
-static void turn_item(nj_rng *r, float max_deg, nj_batch *b, int i)
+static float draw_deg(nj_rng *r, float max_deg)
+{
+    return max_deg > 0 ? (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0) : 0.0f;
+}
+
+/* The network-input copy of each source turned by its own yaw and roll,
+ * drawn after the flip and jitter parameters (and nothing drawn for a range
+ * of 0) so runs without them keep their draws. */
+static void turn_item(nj_rng *r, const nj_loader_config *c, nj_batch *b, int i)
 {
     size_t n = (size_t)3 * b->w * b->h;
     for (int k = 0; k < b->nsrc; k++) {
         size_t o = ((size_t)i * b->nsrc + k) * n;
-        float yaw = (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0);
-        b->turn_yaw[(size_t)i * b->nsrc + k] = yaw;
-        nj_turn_planes(b->sources + o, b->sources_in + o, 3, b->w, b->h, b->camera[i], yaw);
+        float *rot = b->turn + ((size_t)i * b->nsrc + k) * 3;
+        rot[0] = 0;
+        rot[1] = draw_deg(r, c->turn_deg);
+        rot[2] = draw_deg(r, c->roll_deg);
+        nj_turn_planes(b->sources + o, b->sources_in + o, 3, b->w, b->h, b->camera[i], rot);
     }
 }
 
@@ -152,7 +160,7 @@ int nj_loader_item(const nj_dataset *ds, const nj_sample *s, const nj_loader_con
     b->has_partner[i] = partner;
     b->stereo_tx[i] = partner ? (flip ? q->baseline : -q->baseline) : 0.0f;
     b->flipped[i] = flip;
-    if (c->turn_deg > 0) turn_item(&r, c->turn_deg, b, i);
+    if (b->turn) turn_item(&r, c, b, i);
     if (c->jitter) jitter_item(&j, b, i, b->stereo);
     return 0;
 }

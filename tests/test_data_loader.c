@@ -15,8 +15,8 @@
  *    flipped partner; and onto the flipped next frame with the mirrored pose
  *    S·T·S, S = diag(−1, 1, 1).  The reprojection here is this test's own.
  *  - a turned source (data.augment.turn_deg, on a flipped item: the
- *    network-input copy) is explained by the pose R_y(yaw)·T with the yaw the
- *    batch records, and not by T or R_y(−yaw)·T; the clean frames and every
+ *    network-input copy, turned by a yaw and a roll) is explained by the pose
+ *    R·T with the rotation the batch records, and not by T or Rᵀ·T; the clean frames and every
  *    draw are exactly what a loader without the turn yields; with colour
  *    jitter the input copy is the jittered frame turned (the jitter is affine
  *    per pixel, so it commutes with the bilinear turn up to its clamping);
@@ -381,10 +381,15 @@ static void test_flip_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     nj_loader_destroy(L);
 }
 
-/* R_y(yaw)·T: the pose that explains a source turned by yaw (data/augment.h). */
-static void turned_pose(const double T[12], double yaw, double out[12])
+/* R·T, R = exp([k·rot]×) (Rodrigues): the pose that explains a source turned
+ * by the rotation vector rot when k = 1 (data/augment.h). */
+static void turned_pose(const double T[12], const float rot[3], double k, double out[12])
 {
-    double c = cos(yaw), s = sin(yaw), R[9] = {c, 0, s, 0, 1, 0, -s, 0, c};
+    double w[3] = {k * rot[0], k * rot[1], k * rot[2]}, th = sqrt(w[0] * w[0] + w[1] * w[1] + w[2] * w[2]);
+    double a[3] = {w[0] / th, w[1] / th, w[2] / th}, c = cos(th), s = sin(th), R[9];
+    for (int i = 0; i < 3; i++)
+        for (int j = 0; j < 3; j++) R[3 * i + j] = (i == j ? c : 0) + (1 - c) * a[i] * a[j];
+    R[1] -= s * a[2], R[2] += s * a[1], R[3] += s * a[2], R[5] -= s * a[0], R[6] -= s * a[1], R[7] += s * a[0];
     for (int i = 0; i < 3; i++)
         for (int j = 0; j < 4; j++) out[4 * i + j] = R[3 * i] * T[j] + R[3 * i + 1] * T[4 + j] + R[3 * i + 2] * T[8 + j];
 }
@@ -405,14 +410,14 @@ static void test_turn_with_jitter(const nj_dataset *ds, const nj_sample *s, int 
     nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
     const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL, *p = plain ? nj_loader_next(plain, err, sizeof err) : NULL;
     double worst = INFINITY, moved = 0;
-    if (b && p && b->turn_yaw) {
+    if (b && p && b->turn) {
         size_t m = (size_t)3 * SW * SH;
         float *t = malloc(sizeof(float) * m);
         worst = 0;
         for (int i = 0; i < b->n; i++)
             for (int k = 0; k < b->nsrc; k++) {
                 size_t o = ((size_t)i * b->nsrc + k) * m;
-                nj_turn_planes(p->sources_in + o, t, 3, SW, SH, p->camera[i], b->turn_yaw[i * b->nsrc + k]);
+                nj_turn_planes(p->sources_in + o, t, 3, SW, SH, p->camera[i], b->turn + ((size_t)i * b->nsrc + k) * 3);
                 double e = 0, e0 = 0;
                 for (size_t q = 0; q < m; q++) {
                     e += fabsf(t[q] - b->sources_in[o + q]);
@@ -442,16 +447,22 @@ static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     c.jitter = 0;
     nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err);
     c.turn_deg = 8.0f;
+    c.roll_deg = 6.0f;
     nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
     c.turn_deg = 10.5f;
-    char bad[512] = "";
+    char bad[512] = "", bad2[512] = "";
     nj_loader *over = nj_loader_create(ds, s, n, &c, bad, sizeof bad);
-    check(!over && strstr(bad, "turn"), "loader_turn_range", "a turn of 10.5 degrees: %s", over ? "accepted" : bad);
+    c.turn_deg = 8.0f;
+    c.roll_deg = 11.0f;
+    nj_loader *over2 = nj_loader_create(ds, s, n, &c, bad2, sizeof bad2);
+    check(!over && !over2 && strstr(bad, "turn") && strstr(bad2, "roll"), "loader_turn_range",
+          "a turn of 10.5 degrees: %s; a roll of 11: %s", over ? "accepted" : bad, over2 ? "accepted" : bad2);
     nj_loader_destroy(over);
+    nj_loader_destroy(over2);
     const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL, *p = plain ? nj_loader_next(plain, err, sizeof err) : NULL;
     double *poses = NULL;
     int np = nj_poses_read(poses_path, &poses, err, sizeof err);
-    if (!b || !p || np <= 0 || !b->turn_yaw) {
+    if (!b || !p || np <= 0 || !b->turn) {
         check(0, "loader_turn_geometry", "%s", err);
         nj_loader_destroy(L);
         nj_loader_destroy(plain);
@@ -461,26 +472,35 @@ static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     size_t m = (size_t)3 * SW * SH, srcf = m * b->n * b->nsrc;
     const nj_sample *q = &s[b->sample[0]];
     float *d = flipped_depth(&ds->seq[q->seq], q->target);
-    int j = fabsf(b->turn_yaw[0]) > fabsf(b->turn_yaw[1]) ? 0 : 1;   /* item 0's more turned source */
-    double Tt[12], Tr[12], Tw[12], yaw = b->turn_yaw[j];
+    int j = hypotf(b->turn[1], b->turn[2]) > hypotf(b->turn[4], b->turn[5]) ? 0 : 1;   /* item 0's more turned source */
+    const float *rot = b->turn + 3 * j;
+    double Tt[12], Tr[12], Tw[12], yaw = rot[1], roll = rot[2];
     mirrored_relative(poses + 12 * q->target, poses + 12 * q->src[j], Tt);
-    turned_pose(Tt, yaw, Tr);
-    turned_pose(Tt, -yaw, Tw);
+    turned_pose(Tt, rot, 1, Tr);
+    turned_pose(Tt, rot, -1, Tw);
+    const float rot_m[3] = {rot[0], rot[1], -rot[2]};   /* the roll mirrored */
+    double Tm[12];
+    turned_pose(Tt, rot_m, 1, Tm);
     const float *src = b->sources_in + j * m;
     double er = warp(b->target, d, src, Tr, b->camera[0]), et = warp(b->target, d, src, Tt, b->camera[0]);
     double ew = warp(b->target, d, src, Tw, b->camera[0]), es = warp(b->target, d, b->sources + j * m, Tt, b->camera[0]);
-    printf("info: source turned by %.3f deg: warp with R*T %.4f, with T %.4f, with the opposite turn %.4f; "
-           "recorded source with T %.4f\n", yaw * 180 / M_PI, er, et, ew, es);
-    int inside = 1, turned = 0;
+    double em = warp(b->target, d, src, Tm, b->camera[0]);
+    printf("info: source turned by yaw %.3f, roll %.3f deg: warp with R*T %.4f, with T %.4f, with the opposite turn "
+           "%.4f, with the roll mirrored %.4f; recorded source with T %.4f\n", yaw * 180 / M_PI, roll * 180 / M_PI, er, et,
+           ew, em, es);
+    int inside = 1, turned = 0, rolled = 0;
     for (int k = 0; k < b->n * b->nsrc; k++) {
-        inside &= fabsf(b->turn_yaw[k]) <= 8.0f * (float)M_PI / 180;
-        turned += fabsf(b->turn_yaw[k]) > 0.1f * (float)M_PI / 180;
+        const float *r = b->turn + 3 * k;
+        inside &= r[0] == 0 && fabsf(r[1]) <= 8.0f * (float)M_PI / 180 && fabsf(r[2]) <= 6.0f * (float)M_PI / 180;
+        turned += fabsf(r[1]) > 0.1f * (float)M_PI / 180;
+        rolled += fabsf(r[2]) > 0.1f * (float)M_PI / 180;
     }
-    check(inside && turned > 0 && fabs(yaw) > 2 * M_PI / 180 && er < 0.02 && et > 1.5 * er && ew > 2 * er &&
-          fabs(er - es) < 0.01,
-          "loader_turn_explained_by_turned_pose", "yaw %.3f deg, errors R*T %.4f, T %.4f, opposite %.4f, recorded %.4f; "
-          "%d of %d turned", yaw * 180 / M_PI, er, et, ew, es, turned, b->n * b->nsrc);
-    check(p->turn_yaw == NULL && p->sources_in == p->sources && !memcmp(b->sources, p->sources, srcf * 4) &&
+    check(inside && turned > 0 && rolled > 0 && hypot(yaw, roll) > 2 * M_PI / 180 && er < 0.02 && et > 1.5 * er &&
+          ew > 2 * er && em > 1.3 * er && fabs(er - es) < 0.01,
+          "loader_turn_explained_by_turned_pose", "yaw %.3f, roll %.3f deg, errors R*T %.4f, T %.4f, opposite %.4f, "
+          "roll mirrored %.4f, recorded %.4f; %d of %d turned, %d rolled", yaw * 180 / M_PI, roll * 180 / M_PI, er, et, ew, em, es, turned,
+          b->n * b->nsrc, rolled);
+    check(p->turn == NULL && p->sources_in == p->sources && !memcmp(b->sources, p->sources, srcf * 4) &&
           memcmp(b->sources_in, b->sources, srcf * 4) && !memcmp(b->target, p->target, m * b->n * 4) &&
           !memcmp(b->camera, p->camera, sizeof(nj_camera) * b->n) && !memcmp(b->sample, p->sample, sizeof(int) * b->n) &&
           !memcmp(b->flipped, p->flipped, sizeof(int) * b->n),

@@ -10,9 +10,11 @@
  *   - SciPy's ndimage.map_coordinates (order 1, mode "nearest" = edge
  *     clamping) at H⁻¹·p from numpy.linalg.inv: exact bilinear, so SP_TOL
  *     (float32 rounding) holds on every image, random noise included.
+ * R comes from SciPy's Rotation.from_rotvec on the same rotation vector.
  * Cases: a turn to each side, one of 8° (many pixels from outside the frame,
- * so the edge rule matters), non-square pixels, an off-centre principal point
- * and a mirrored camera (cx' = W − 1 − cx, as after a flip).  A zero turn
+ * so the edge rule matters), a roll alone, a turn with a roll and a pitch,
+ * non-square pixels, an off-centre principal point and a mirrored camera
+ * (cx' = W − 1 − cx, as after a flip).  A zero turn
  * must give the input back (to SP_TOL: the positions go through K⁻¹ and K in
  * float arithmetic). */
 #include "data/augment.h"
@@ -34,14 +36,16 @@ typedef struct tcase {
     const char *name;
     int planes, w, h, noise;   /* noise: uniform random pixels instead of the smooth image */
     nj_camera cam;
-    double yaw_deg;
+    double deg[3];             /* rotation vector, degrees */
 } tcase;
 
 static const tcase CASES[] = {
-    {"left3", 3, 80, 48, 0, {40.0f, 42.0f, 41.3f, 22.7f}, 3.0},
-    {"right8", 1, 64, 40, 0, {30.0f, 30.0f, 25.0f, 21.5f}, -8.0},
-    {"mirrored", 3, 80, 48, 0, {40.0f, 42.0f, 79 - 41.3f, 22.7f}, 1.5},
-    {"noise", 2, 50, 30, 1, {28.0f, 26.0f, 24.5f, 14.5f}, 2.5},
+    {"left3", 3, 80, 48, 0, {40.0f, 42.0f, 41.3f, 22.7f}, {0, 3.0, 0}},
+    {"right8", 1, 64, 40, 0, {30.0f, 30.0f, 25.0f, 21.5f}, {0, -8.0, 0}},
+    {"mirrored", 3, 80, 48, 0, {40.0f, 42.0f, 79 - 41.3f, 22.7f}, {0, 1.5, 0}},
+    {"roll", 3, 80, 48, 0, {40.0f, 42.0f, 41.3f, 22.7f}, {0, 0, 4.0}},
+    {"all3", 3, 80, 48, 0, {40.0f, 42.0f, 41.3f, 22.7f}, {-1.0, 2.0, -1.5}},
+    {"noise", 2, 50, 30, 1, {28.0f, 26.0f, 24.5f, 14.5f}, {0, 2.5, 1.0}},
 };
 enum { NCASES = sizeof CASES / sizeof CASES[0] };
 
@@ -103,12 +107,15 @@ int main(void)
         snprintf(path, sizeof path, "%s/%s_in.npy", dir, c->name);
         nj_npy_write(path, in, shape, 3, why, sizeof why);
         ours[i] = malloc(n * sizeof(float));
-        nj_turn_planes(in, ours[i], c->planes, c->w, c->h, c->cam, (float)(c->yaw_deg * M_PI / 180));
+        float rot[3];
+        for (int a = 0; a < 3; a++) rot[a] = (float)(c->deg[a] * M_PI / 180);
+        nj_turn_planes(in, ours[i], c->planes, c->w, c->h, c->cam, rot);
         if (!c->noise)
             check(max_grad(in, c->planes, c->w, c->h) <= GRAD_MAX, "turn: smooth test image within GRAD_MAX",
                   "%s: largest neighbour difference %.4f", c->name, max_grad(in, c->planes, c->w, c->h));
-        fprintf(f, "%s{\"name\": \"%s\", \"fx\": %.9g, \"fy\": %.9g, \"cx\": %.9g, \"cy\": %.9g, \"yaw\": %.17g}",
-                i ? ", " : "", c->name, c->cam.fx, c->cam.fy, c->cam.cx, c->cam.cy, (double)(float)(c->yaw_deg * M_PI / 180));
+        fprintf(f, "%s{\"name\": \"%s\", \"fx\": %.9g, \"fy\": %.9g, \"cx\": %.9g, \"cy\": %.9g, "
+                "\"rot\": [%.17g, %.17g, %.17g]}", i ? ", " : "", c->name, c->cam.fx, c->cam.fy, c->cam.cx, c->cam.cy,
+                (double)rot[0], (double)rot[1], (double)rot[2]);
         free(in);
     }
     fprintf(f, "]\n");
@@ -125,18 +132,19 @@ int main(void)
             snprintf(name, sizeof name, "%s_cv", c->name);
             float *cv = ref_load(dir, name, s4, why, sizeof why);
             double esp = sp ? max_abs(ours[i], sp, n) : INFINITY, ecv = cv ? max_abs(ours[i], cv, n) : INFINITY;
-            checkv(esp <= SP_TOL, "turn: matches SciPy map_coordinates at K*R^T*K^-1 p",
-                   "%s (yaw %+.1f deg): max |ours - scipy| %.2e (tolerance %.0e)", c->name, c->yaw_deg, esp, SP_TOL);
+            checkv(esp <= SP_TOL, "turn: matches SciPy map_coordinates at K*R^T*K^-1 p (R from SciPy from_rotvec)",
+                   "%s: max |ours - scipy| %.2e (tolerance %.0e)", c->name, esp, SP_TOL);
             if (!c->noise)
                 checkv(ecv <= CV_TOL, "turn: matches OpenCV warpPerspective with K*R*K^-1",
-                       "%s (yaw %+.1f deg): max |ours - opencv| %.2e (tolerance %.2e)", c->name, c->yaw_deg, ecv, CV_TOL);
+                       "%s: max |ours - opencv| %.2e (tolerance %.2e)", c->name, ecv, CV_TOL);
             free(sp);
             free(cv);
         }
     }
     const tcase *c = &CASES[NCASES - 1];
     float *in = image_of(c), *out = malloc(sizeof(float) * c->planes * c->w * c->h);
-    nj_turn_planes(in, out, c->planes, c->w, c->h, c->cam, 0.0f);
+    const float zero[3] = {0, 0, 0};
+    nj_turn_planes(in, out, c->planes, c->w, c->h, c->cam, zero);
     double e0 = max_abs(in, out, (size_t)c->planes * c->w * c->h);
     check(e0 <= SP_TOL, "turn: a zero turn returns the image", "max change %.2e on the noise image", e0);
     free(in);

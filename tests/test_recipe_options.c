@@ -38,8 +38,9 @@
  *    error is far below the un-warped one).  The training step gives the loss
  *    the recorded frame with Rᵀ·P, R the turn of the pose net's input: with
  *    a pose net held at the identity motion and a recorded source that needs
- *    the motion R_y(ψ), an input turned by −ψ makes the loss's warp exact;
- *    turned by +ψ it is worse than no turn (the direction is checked).
+ *    the motion R (a yaw and a roll), an input turned by Rᵀ makes the loss's
+ *    warp exact; turned by R it is worse than no turn (the direction is
+ *    checked).
  */
 #include "data/augment.h"
 #include "losses/pose.h"
@@ -198,7 +199,8 @@ static float turned_source_loss(float k)
     smooth_image(tgt->data, 0);
     nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
     float yaw = 2.0f * (float)M_PI / 180;
-    nj_turn_planes(tgt->data, src->data, 3, W, H, cam, yaw);
+    const float rot[3] = {0, yaw, 0};
+    nj_turn_planes(tgt->data, src->data, 3, W, H, cam, rot);
     memset(vec->data, 0, 6 * sizeof(float));   /* arena memory is not zeroed */
     vec->data[1] = k * yaw;
     nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
@@ -394,9 +396,9 @@ static float offsets_step(int copies, int widest, float *mask_share)
 }
 
 /* Photometric loss of one training step whose recorded sources need the
- * motion R_y(ψ), ψ = 1.5°, with the pose net held at the identity motion and
- * the batch saying its input was turned by `turn` (radians). */
-static float turned_step_loss(float turn)
+ * motion R with rotation vector (0, 1.5°, 1°), with the pose net held at the
+ * identity motion and the batch saying its input was turned by k·that. */
+static float turned_step_loss(float k)
 {
     nj_train_config cfg;
     nj_train_config_default(&cfg);
@@ -416,14 +418,14 @@ static float turned_step_loss(float turn)
     nj_graph *g = nj_graph_new(1 << 22);
     if (nj_batch_alloc(&b, 2, H, W, 2, 0, 0, 1)) { nj_model_free(&m); nj_graph_free(g); return NAN; }
     size_t img = (size_t)3 * H * W;
-    float psi = 1.5f * (float)M_PI / 180;
+    const float psi[3] = {0, 1.5f * (float)M_PI / 180, 1.0f * (float)M_PI / 180};
     for (int i = 0; i < 2; i++) {
         smooth_image(b.target + i * img, (float)i);
         b.camera[i] = (nj_camera){50.0f, 50.0f, 31.5f, 15.5f};
         for (int j = 0; j < 2; j++) {
             nj_turn_planes(b.target + i * img, b.sources + (2 * i + j) * img, 3, W, H, b.camera[i], psi);
             memcpy(b.sources_in + (2 * i + j) * img, b.sources + (2 * i + j) * img, img * sizeof(float));
-            b.turn_yaw[2 * i + j] = turn;
+            for (int a = 0; a < 3; a++) b.turn[(2 * i + j) * 3 + a] = k * psi[a];
         }
     }
     nj_step_result r;
@@ -437,11 +439,10 @@ static float turned_step_loss(float turn)
 
 static void test_turned_step(void)
 {
-    float psi = 1.5f * (float)M_PI / 180;
-    float undone = turned_step_loss(-psi), none = turned_step_loss(0.0f), wrong = turned_step_loss(psi);
+    float undone = turned_step_loss(-1), none = turned_step_loss(0), wrong = turned_step_loss(1);
     checkv(undone < 0.1f * none && wrong > none, "turned step: the loss warps the recorded frame with R^T * P",
-           "photometric error with the input turned by -1.5 deg %.4f, not turned %.4f, turned by +1.5 deg %.4f",
-           undone, none, wrong);
+           "photometric error with the input turned by -(yaw 1.5, roll 1 deg) %.4f, not turned %.4f, turned by "
+           "+(1.5, 1) %.4f", undone, none, wrong);
 }
 
 static void test_offsets_step(void)

@@ -3,10 +3,12 @@
 
 Usage: /usr/bin/python3 tests/ref/turn_ref.py DIR
 
-DIR/cases.json lists cases {"name", "fx", "fy", "cx", "cy", "yaw"} (yaw in
-radians); DIR/NAME_in.npy holds the planar image (planes × h × w).  For each
-case this writes, for the view of the camera turned by R = R_y(yaw) about its
-centre (a point X of the recorded camera is R·X in the turned one):
+DIR/cases.json lists cases {"name", "fx", "fy", "cx", "cy", "rot"} (rot: a
+rotation vector in radians, camera axes x right, y down, z forward);
+DIR/NAME_in.npy holds the planar image (planes × h × w).  For each case this
+writes, for the view of the camera turned about its centre by R =
+scipy.spatial.transform.Rotation.from_rotvec(rot) (a point X of the recorded
+camera is R·X in the turned one):
   NAME_cv.npy  cv2.warpPerspective with the homography K·R·K⁻¹ (recorded →
                turned pixel), bilinear, edge pixels replicated;
   NAME_sp.npy  scipy.ndimage.map_coordinates (order 1, mode "nearest") at
@@ -22,6 +24,7 @@ try:
     import numpy as np
     import cv2
     from scipy import ndimage
+    from scipy.spatial.transform import Rotation
 except ImportError as e:
     sys.exit("turn_ref.py: %s (Debian packages python3-opencv, python3-scipy, python3-numpy: "
              "tools/deps.sh test)" % e)
@@ -37,8 +40,7 @@ def main():
         img = np.load(os.path.join(d, c["name"] + "_in.npy")).astype(np.float32)
         planes, h, w = img.shape
         K = np.array([[c["fx"], 0, c["cx"]], [0, c["fy"], c["cy"]], [0, 0, 1]], dtype=np.float64)
-        a = c["yaw"]
-        R = np.array([[np.cos(a), 0, np.sin(a)], [0, 1, 0], [-np.sin(a), 0, np.cos(a)]])
+        R = Rotation.from_rotvec(c["rot"]).as_matrix()
         Hm = K @ R @ np.linalg.inv(K)
         cv = np.stack([cv2.warpPerspective(img[k], Hm, (w, h), flags=cv2.INTER_LINEAR,
                                            borderMode=cv2.BORDER_REPLICATE) for k in range(planes)])

@@ -42,6 +42,7 @@ const nj_config_field nj_config_fields[] = {
     F("data.augment", "hue", NJ_F_FLOAT, hue, 0, 0.5, 0, 0),
     F("data.augment", "flip", NJ_F_FLOAT, flip, 0, 1, 0, 0),
     F("data.augment", "turn_deg", NJ_F_FLOAT, turn_deg, 0, NJ_TURN_MAX_DEG, 0, 0),
+    F("data.augment", "roll_deg", NJ_F_FLOAT, roll_deg, 0, NJ_TURN_MAX_DEG, 0, 0),
     F("model", "stages", NJ_F_INT, model.stages, 1, NJ_MAX_STAGES, 0, 0),
     F("model", "width", NJ_F_FLOAT, model.width, 0, 8, 1, 0),
     F("model", "scales", NJ_F_INT, model.scales, 1, NJ_MAX_SCALES, 0, 0),

@@ -13,7 +13,8 @@
  *              "duplicate_threshold": 0.0, "loader_workers": 0,
  *              "frame_store": false, "frame_store_dir": "",
  *              "augment": { "brightness": 0.2, "contrast": 0.2, "saturation": 0.2,
- *                           "hue": 0.05, "flip": 0.5, "turn_deg": 0 } },
+ *                           "hue": 0.05, "flip": 0.5, "turn_deg": 0,
+ *                           "roll_deg": 0 } },
  *   "model": { "stages": 5, "width": 1.0, "scales": 4, "norm": "batch" | "group" | "none",
  *              "head_init": 0.1, "pose_stages": 5, "pose_width": 1.0, "pose_scale": 0.5,
  *              "pose": true, "bn_momentum": 0.1, "depth_range": [0.1, 100] },
@@ -66,8 +67,9 @@ typedef struct nj_train_config {
     int frame_store;          /* frames prepared once at the training size, in a file */
     char frame_store_dir[NJ_PATH_MAX];   /* its folder; "" = the run folder */
     float brightness, contrast, saturation, hue, flip;
-    float turn_deg;           /* the pose net's sources turned by a yaw within ±turn_deg
-                                 (data/augment.h; the loss undoes it, train/loop/step.c) */
+    float turn_deg, roll_deg; /* the pose net's sources turned by a yaw within ±turn_deg and a
+                                 roll within ±roll_deg (data/augment.h; the loss undoes it,
+                                 train/loop/step.c) */
     /* model and loss */
     nj_model_config model;
     nj_vs_config loss;

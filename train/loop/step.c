@@ -30,9 +30,9 @@ static float mean_translation(const nj_tensor *v)
     return (float)(s / v->n);
 }
 
-/* The pose net saw source j turned by R = R_y(yaw) (data.augment.turn_deg),
- * so its motion P stands for R·T; the loss warps the recorded frame with
- * Rᵀ·P.  Warping the turned frame with P instead (the same geometry) cost
+/* The pose net saw source j turned by R (data.augment.turn_deg, roll_deg), so
+ * its motion P stands for R·T; the loss warps the recorded frame with Rᵀ·P
+ * (Rᵀ: the rotation vector negated).  Warping the turned frame with P instead (the same geometry) cost
  * depth: turning set, 1500 steps, seed 1, AbsRel 0.1682 against 0.1534 this
  * way (DEVELOPERS.md, "Training recipe"); the recorded frame also keeps the
  * auto-mask's un-warped comparison true for a vehicle static in the image. */
@@ -41,7 +41,8 @@ static nj_tensor *unturned(nj_graph *g, const nj_batch *b, int j, nj_tensor *P)
     nj_tensor *v = nj_tensor_new(g, b->n, 6, 1, 1, 0);
     if (!v) return NULL;
     memset(v->data, 0, sizeof(float) * 6 * b->n);
-    for (int i = 0; i < b->n; i++) v->data[6 * i + 1] = -b->turn_yaw[i * b->nsrc + j];
+    for (int i = 0; i < b->n; i++)
+        for (int a = 0; a < 3; a++) v->data[6 * i + a] = -b->turn[((size_t)i * b->nsrc + j) * 3 + a];
     return nj_pose_compose(g, nj_pose_from_vec(g, v), P);
 }
 
@@ -76,7 +77,7 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
         /* auto-mask against the widest offset only (loss.automask_widest) */
         if (cfg->loss.automask_widest && j / 2 < cfg->noffsets && cfg->offsets[j / 2] < widest)
             in->mask_skip |= 1u << in->nsources;
-        if (b->turn_yaw && !(T = unturned(g, b, j, T))) return -1;
+        if (b->turn && !(T = unturned(g, b, j, T))) return -1;
         in->sources[in->nsources] = src;
         in->poses[in->nsources++] = T;
     }

@@ -274,6 +274,7 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
     lc.jitter = t->cfg.brightness > 0 || t->cfg.contrast > 0 || t->cfg.saturation > 0 || t->cfg.hue > 0;
     lc.flip_prob = t->cfg.flip;
     lc.turn_deg = t->cfg.turn_deg;
+    lc.roll_deg = t->cfg.roll_deg;
     t->loader = nj_loader_create(&t->ds, t->train, t->ntrain, &lc, err, errlen);
     return t->loader ? 0 : -1;
 }

@@ -51,7 +51,7 @@ static int same_run_data(const nj_train_config *a, const nj_train_config *b, cha
     SAME_STR(dataset) SAME_NUM(width) SAME_NUM(height) SAME_NUM(batch) SAME_NUM(noffsets)
     for (int i = 0; i < a->noffsets && i < NJ_MAX_OFFSETS; i++) SAME_NUM(offsets[i])
     SAME_NUM(video) SAME_NUM(stereo) SAME_NUM(duplicate_threshold) SAME_NUM(brightness) SAME_NUM(contrast)
-    SAME_NUM(saturation) SAME_NUM(hue) SAME_NUM(flip)
+    SAME_NUM(saturation) SAME_NUM(hue) SAME_NUM(flip) SAME_NUM(turn_deg) SAME_NUM(roll_deg)
     SAME_NUM(loader_workers) SAME_NUM(frame_store) SAME_STR(frame_store_dir)
     return 1;
 }
@@ -175,6 +175,8 @@ static const bad_case BAD[] = {
      "run.checkpoint_steps must be between 0 and 1000000000000 (got -5)"},
     {"augment_not_object", "{\"data\": {\"augment\": 0.2}}", "\"data.augment\" must be an object (got a number)"},
     {"hue_range", "{\"data\": {\"augment\": {\"hue\": 0.6}}}", "data.augment.hue must be between 0 and 0.5 (got 0.6)"},
+    {"turn_range", "{\"data\": {\"augment\": {\"turn_deg\": 12}}}", "data.augment.turn_deg must be between 0 and 10 (got 12)"},
+    {"roll_negative", "{\"data\": {\"augment\": {\"roll_deg\": -1}}}", "data.augment.roll_deg must be between 0 and 10 (got -1)"},
 };
 
 static void run_bad_case(int i, const bad_case *bc)
@@ -442,6 +444,8 @@ static void random_config(nj_train_config *c, nj_rng *r)
     c->saturation = uni(r, 0, 0.99);
     c->hue = uni(r, 0, 0.5);
     c->flip = uni(r, 0, 1);
+    c->turn_deg = uni(r, 0, 10);
+    c->roll_deg = uni(r, 0, 10);
     c->loader_workers = (int)nj_rng_below(r, 65);
     c->frame_store = (int)nj_rng_below(r, 2);
     if (nj_rng_below(r, 2)) snprintf(c->frame_store_dir, sizeof c->frame_store_dir, "/fast disk/store %u",

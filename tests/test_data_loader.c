@@ -341,16 +341,23 @@ static void mirrored_relative(const double *pa, const double *pb, double T[12])
     }
 }
 
+/* Batches of 2 items at SW×SH; flip: every item flipped (else the default
+ * probability); jitter on or off. */
+static void pair_config(nj_loader_config *c, int flip, int jitter)
+{
+    nj_loader_config_default(c);
+    c->width = SW;
+    c->height = SH;
+    c->batch = 2;
+    if (flip) c->flip_prob = 1.0f;
+    c->jitter = jitter;
+}
+
 static void test_flip_geometry(const nj_dataset *ds, const nj_sample *s, int n, const char *poses_path)
 {
     nj_loader_config c;
     char err[512];
-    nj_loader_config_default(&c);
-    c.width = SW;
-    c.height = SH;
-    c.batch = 2;
-    c.flip_prob = 1.0f;
-    c.jitter = 0;
+    pair_config(&c, 1, 0);
     nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
     const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL;
     double *poses = NULL;
@@ -400,10 +407,7 @@ static void test_turn_with_jitter(const nj_dataset *ds, const nj_sample *s, int 
 {
     nj_loader_config c;
     char err[512];
-    nj_loader_config_default(&c);
-    c.width = SW;
-    c.height = SH;
-    c.batch = 2;
+    pair_config(&c, 0, 1);
     c.seed = 5;
     nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err);
     c.turn_deg = 3.0f;
@@ -439,12 +443,7 @@ static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
 {
     nj_loader_config c;
     char err[512];
-    nj_loader_config_default(&c);
-    c.width = SW;
-    c.height = SH;
-    c.batch = 2;
-    c.flip_prob = 1.0f;
-    c.jitter = 0;
+    pair_config(&c, 1, 0);
     nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err);
     c.turn_deg = 8.0f;
     c.roll_deg = 6.0f;

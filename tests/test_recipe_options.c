@@ -128,6 +128,32 @@ static void test_rotation_scale(void)
           "rotation %.6g (want 0.02), translation %.6g (want 1), equal scales %.6g (want 1)", gp[0], gp[1], gs[0]);
 }
 
+/* One-scale loss of tgt against `n` sources with `poses` (NULL: the identity
+ * motion for each), constant disparity 0.3, the test camera; the loss's own
+ * defaults changed by `automask` (tie-break off with it), `gain_match`, no
+ * smoothness.  out gets the result; returns 0 or -1. */
+static int small_loss(nj_graph *g, nj_tensor *tgt, nj_tensor *const *src, nj_tensor *const *poses, int n,
+                      unsigned skip, int automask, int gain_match, nj_vs_output *out)
+{
+    nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
+    for (size_t i = 0; i < nj_numel(disp); i++) disp->data[i] = 0.3f;
+    static const nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
+    float tx = 0.0f;
+    nj_vs_input in = {.target = tgt, .nsources = n, .mask_skip = skip, .cams = &cam, .disp = {disp}, .nscales = 1,
+                      .depth_range = {0.1f, 100.0f}, .rng = NULL};
+    for (int s = 0; s < n; s++) {
+        in.sources[s] = src[s];
+        in.poses[s] = poses ? poses[s] : nj_pose_stereo(g, 1, &tx);
+    }
+    nj_vs_config cfg;
+    nj_vs_config_default(&cfg);
+    cfg.automask = automask;
+    cfg.tie_break = 0;
+    cfg.smooth_weight = 0;
+    cfg.gain_match = gain_match;
+    return nj_view_synthesis_loss(g, &cfg, &in, out);
+}
+
 /* Photometric loss of `target` against `source` under the identity motion. */
 static float identity_loss(float gain, int match)
 {
@@ -135,20 +161,8 @@ static float identity_loss(float gain, int match)
     nj_tensor *tgt = nj_tensor_new(g, 1, 3, H, W, 0), *src = nj_tensor_new(g, 1, 3, H, W, 0);
     fill_image(tgt, 3, 0.45f);
     for (size_t i = 0; i < nj_numel(src); i++) src->data[i] = tgt->data[i] * gain;
-    nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
-    for (size_t i = 0; i < nj_numel(disp); i++) disp->data[i] = 0.3f;
-    float tx = 0.0f;
-    nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
-    nj_vs_input in = {.target = tgt, .sources = {src}, .poses = {nj_pose_stereo(g, 1, &tx)},
-                      .nsources = 1, .cams = &cam, .disp = {disp}, .nscales = 1,
-                      .depth_range = {0.1f, 100.0f}, .rng = NULL};
-    nj_vs_config cfg;
-    nj_vs_config_default(&cfg);
-    cfg.automask = 0;
-    cfg.smooth_weight = 0;
-    cfg.gain_match = match;
     nj_vs_output out;
-    float l = nj_view_synthesis_loss(g, &cfg, &in, &out) ? NAN : out.photometric;
+    float l = small_loss(g, tgt, &src, NULL, 1, 0, 0, match, &out) ? NAN : out.photometric;
     nj_graph_free(g);
     return l;
 }
@@ -161,20 +175,9 @@ static float widest_mask_share(int skip)
     nj_tensor *tgt = nj_tensor_new(g, 1, 3, H, W, 0), *other = nj_tensor_new(g, 1, 3, H, W, 0);
     fill_image(tgt, 21, 0.9f);
     fill_image(other, 22, 0.9f);
-    nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
-    for (size_t i = 0; i < nj_numel(disp); i++) disp->data[i] = 0.3f;
-    float tx = 0.0f;
-    nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
-    nj_tensor *id = nj_pose_stereo(g, 1, &tx);
-    nj_vs_input in = {.target = tgt, .sources = {tgt, other}, .poses = {id, id}, .nsources = 2,
-                      .mask_skip = skip ? 1u : 0u, .cams = &cam, .disp = {disp}, .nscales = 1,
-                      .depth_range = {0.1f, 100.0f}, .rng = NULL};
-    nj_vs_config cfg;
-    nj_vs_config_default(&cfg);
-    cfg.automask = 1;
-    cfg.tie_break = 0;
+    nj_tensor *src[2] = {tgt, other};
     nj_vs_output out;
-    float f = nj_view_synthesis_loss(g, &cfg, &in, &out) ? NAN : out.mask_fraction;
+    float f = small_loss(g, tgt, src, NULL, 2, skip ? 1u : 0u, 1, 0, &out) ? NAN : out.mask_fraction;
     nj_graph_free(g);
     return f;
 }
@@ -197,23 +200,14 @@ static float turned_source_loss(float k)
     nj_tensor *tgt = nj_tensor_new(g, 1, 3, H, W, 0), *src = nj_tensor_new(g, 1, 3, H, W, 0);
     nj_tensor *vec = nj_tensor_new(g, 1, 6, 1, 1, 0);
     smooth_image(tgt->data, 0);
-    nj_camera cam = {50.0f, 50.0f, 31.5f, 15.5f};
     float yaw = 2.0f * (float)M_PI / 180;
     const float rot[3] = {0, yaw, 0};
-    nj_turn_planes(tgt->data, src->data, 3, W, H, cam, rot);
+    nj_turn_planes(tgt->data, src->data, 3, W, H, (nj_camera){50.0f, 50.0f, 31.5f, 15.5f}, rot);
     memset(vec->data, 0, 6 * sizeof(float));   /* arena memory is not zeroed */
     vec->data[1] = k * yaw;
-    nj_tensor *disp = nj_tensor_new(g, 1, 1, H, W, 1);
-    for (size_t i = 0; i < nj_numel(disp); i++) disp->data[i] = 0.3f;
-    nj_vs_input in = {.target = tgt, .sources = {src}, .poses = {nj_pose_from_vec(g, vec)},
-                      .nsources = 1, .cams = &cam, .disp = {disp}, .nscales = 1,
-                      .depth_range = {0.1f, 100.0f}, .rng = NULL};
-    nj_vs_config cfg;
-    nj_vs_config_default(&cfg);
-    cfg.automask = 0;
-    cfg.smooth_weight = 0;
+    nj_tensor *pose = nj_pose_from_vec(g, vec);
     nj_vs_output out;
-    float l = nj_view_synthesis_loss(g, &cfg, &in, &out) ? NAN : out.photometric;
+    float l = small_loss(g, tgt, &src, &pose, 1, 0, 0, 0, &out) ? NAN : out.photometric;
     nj_graph_free(g);
     return l;
 }
@@ -337,6 +331,23 @@ static void test_step_config(void)
           "before %d, between %d, after %d, arc off %d", before, between, after, off);
 }
 
+/* A small model (3 stages and scales, width 0.5, seed 9) of cfg's kind with
+ * the pose outputs scaled by pose_scale / rotation_scale; 0 or -1 (a FAIL
+ * line named `what`). */
+static int step_model(nj_model *m, const nj_train_config *cfg, float pose_scale, float rotation_scale, const char *what)
+{
+    nj_model_config mc = cfg->model;
+    mc.stages = mc.scales = mc.pose_stages = 3;
+    mc.width = mc.pose_width = 0.5f;
+    mc.pose_scale = pose_scale;
+    mc.rotation_scale = rotation_scale;
+    mc.seed = 9;
+    char err[256];
+    if (!nj_model_init(m, &mc, err, sizeof err)) return 0;
+    check(0, what, "%s", err);
+    return -1;
+}
+
 /* Photometric loss of one forward step on a fixed batch whose two sources
  * appear `copies` times. */
 static float offsets_step(int copies, int widest, float *mask_share)
@@ -354,18 +365,9 @@ static float offsets_step(int copies, int widest, float *mask_share)
         cfg.loss.tie_break = 0;
         cfg.loss.automask_widest = widest;
     }
-    nj_model_config mc = cfg.model;
-    mc.stages = 3;
-    mc.scales = 3;
-    mc.pose_stages = 3;
-    mc.width = 0.5f;
-    mc.pose_width = 0.5f;
-    mc.pose_scale = 2.0f;       /* untrained outputs would otherwise be ~identity motions */
-    mc.rotation_scale = 0.2f;
-    mc.seed = 9;
     nj_model m;
-    char err[256];
-    if (nj_model_init(&m, &mc, err, sizeof err)) { check(0, "offsets: model", "%s", err); return NAN; }
+    /* pose_scale 2: untrained outputs would otherwise be ~identity motions */
+    if (step_model(&m, &cfg, 2.0f, 0.2f, "offsets: model")) return NAN;
     nj_batch b;
     nj_graph *g = nj_graph_new(1 << 22);
     if (nj_batch_alloc(&b, 2, H, W, 2 * copies, 0, 0, 0)) { nj_model_free(&m); nj_graph_free(g); return NAN; }
@@ -406,14 +408,8 @@ static float turned_step_loss(float k)
     cfg.stereo = 0;
     cfg.loss.automask = 0;
     cfg.loss.smooth_weight = 0;
-    nj_model_config mc = cfg.model;
-    mc.stages = mc.scales = mc.pose_stages = 3;
-    mc.width = mc.pose_width = 0.5f;
-    mc.pose_scale = mc.rotation_scale = 1e-6f;   /* motions ~1e-6: the identity */
-    mc.seed = 9;
     nj_model m;
-    char err[256];
-    if (nj_model_init(&m, &mc, err, sizeof err)) { check(0, "turned step: model", "%s", err); return NAN; }
+    if (step_model(&m, &cfg, 1e-6f, 1e-6f, "turned step: model")) return NAN;   /* motions ~1e-6: the identity */
     nj_batch b;
     nj_graph *g = nj_graph_new(1 << 22);
     if (nj_batch_alloc(&b, 2, H, W, 2, 0, 0, 1)) { nj_model_free(&m); nj_graph_free(g); return NAN; }

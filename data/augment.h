@@ -17,12 +17,12 @@
  * Turn: the view of a camera turned about its own centre by a rotation R — a
  * yaw about the image's vertical axis, a roll about the optical axis — the
  * pixels the recorded view already holds re-sampled by the rotation
- * homography K·R·K⁻¹ (Hartley & Zisserman 2004, sec. 8.4.2).  A point X in the recorded camera's frame is R·X in the
- * turned one, so a source frame turned by R is explained by the pose R·T
- * where the recorded one needed T: the pose net is given turns no place on a
- * route predicts (DEVELOPERS.md, "Training recipe").  Only the network-input
- * copy is turned; the loss warps the recorded frame with Rᵀ·P
- * (train/loop/step.c).
+ * homography K·R·K⁻¹ (Hartley & Zisserman 2004, sec. 8.4.2).  A point X in
+ * the recorded camera's frame is R·X in the turned one, so a source frame
+ * turned by R is explained by the pose R·T where the recorded one needed T:
+ * the pose net is given turns no place on a route predicts (DEVELOPERS.md,
+ * "Training recipe").  Only the network-input copy is turned; the loss warps
+ * the recorded frame with Rᵀ·P (train/loop/step.c).
  */
 #ifndef NJ_AUGMENT_H
 #define NJ_AUGMENT_H

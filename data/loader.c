@@ -177,8 +177,10 @@ static int check_config(const nj_loader_config *c, int nsamples, char *err, size
         why = "the shard must lie within the batch";
     else if (c->prefetch <= 0 || c->prefetch > 64) why = "prefetch must be in 1..64";
     else if (c->start_step < 0) why = "start step must be non-negative";
-    else if (!(c->turn_deg >= 0 && c->turn_deg <= NJ_TURN_MAX_DEG && c->roll_deg >= 0 && c->roll_deg <= NJ_TURN_MAX_DEG))
-        why = "turn and roll must be between 0 and 10 degrees";
+    else if (!(c->turn_deg >= 0 && c->turn_deg <= NJ_TURN_MAX_DEG && c->roll_deg >= 0 && c->roll_deg <= NJ_TURN_MAX_DEG)) {
+        snprintf(err, errlen, "loader: turn and roll must be between 0 and %g degrees", (double)NJ_TURN_MAX_DEG);
+        return -1;
+    }
     if (why) snprintf(err, errlen, "loader: %s", why);
     return why ? -1 : 0;
 }

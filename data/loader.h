@@ -12,8 +12,7 @@
  * scaled to match; then, seeded, a horizontal flip of all its frames (cx
  * mirrored, partner side swapped — see augment.h), then, only on the
  * network-input copies, with turn_deg / roll_deg a seeded turn of each source
- * frame and
- * a colour jitter.
+ * frame, and a colour jitter.
  */
 #ifndef NJ_LOADER_H
 #define NJ_LOADER_H

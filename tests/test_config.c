@@ -148,6 +148,8 @@ static const bad_case BAD[] = {
      "model.depth_range: near (5) must be less than far (5)"},
     {"lr_min_above_lr", "{\"optim\": {\"lr\": 0.001, \"lr_min\": 0.01}}",
      "optim.lr_min (0.01) must not exceed optim.lr (0.001)"},
+    {"arc_with_turn", "{\"loss\": {\"arc_motion\": 1}, \"data\": {\"augment\": {\"turn_deg\": 1}}}",
+     "loss.arc_motion cannot be combined with data.augment.turn_deg or roll_deg"},
     {"offset_zero", "{\"data\": {\"frame_offsets\": [0]}}",
      "data.frame_offsets[0] must be a whole number between 1 and 100 (got 0)"},
     {"offset_negative", "{\"data\": {\"frame_offsets\": [1, -2]}}",
@@ -476,7 +478,8 @@ static void random_model_optim(nj_train_config *c, nj_rng *r)
     c->automask_from = (long)nj_rng_below(r, 100000);
     c->loss.tie_break = uni(r, 0, 1e-3);
     c->loss.saturation_guard = uni(r, 0, 1);
-    c->loss.arc_motion = uni(r, 0, 10);
+    c->loss.arc_motion = nj_rng_below(r, 2) ? uni(r, 0, 10) : 0;
+    if (c->loss.arc_motion > 0) c->turn_deg = c->roll_deg = 0;   /* refused together */
     c->arc_motion_from = (long)nj_rng_below(r, 100000);
     c->lr = uni(r, 1e-7, 1);
     c->lr_min = c->lr * uni(r, 0, 1);

@@ -269,6 +269,9 @@ static int check_rest(const nj_train_config *c, char *err, size_t errlen)
         snprintf(err, errlen, "optim.lr_min (%g) must not exceed optim.lr (%g)", c->lr_min, c->lr);
     else if (c->minutes <= 0 && c->max_steps <= 0)
         snprintf(err, errlen, "run: no budget: set run.minutes, run.hours or run.max_steps");
+    else if (c->loss.arc_motion > 0 && (c->turn_deg > 0 || c->roll_deg > 0))
+        /* the penalty would read the pose net's motion, which includes the input's turn */
+        snprintf(err, errlen, "loss.arc_motion cannot be combined with data.augment.turn_deg or roll_deg");
     else
         return 0;
     return -1;

@@ -32,10 +32,12 @@ static float mean_translation(const nj_tensor *v)
 
 /* The pose net saw source j turned by R (data.augment.turn_deg, roll_deg), so
  * its motion P stands for R·T; the loss warps the recorded frame with Rᵀ·P
- * (Rᵀ: the rotation vector negated).  Warping the turned frame with P instead (the same geometry) cost
- * depth: turning set, 1500 steps, seed 1, AbsRel 0.1682 against 0.1534 this
- * way (DEVELOPERS.md, "Training recipe"); the recorded frame also keeps the
- * auto-mask's un-warped comparison true for a vehicle static in the image. */
+ * (Rᵀ: the rotation vector negated).  Warping the turned frame with P instead
+ * (the same geometry) cost depth: turning set, 1500 steps, seed 1, AbsRel
+ * 0.1682 against 0.1534 this way (DEVELOPERS.md, "Training recipe"); the
+ * recorded frame also keeps the auto-mask's un-warped comparison true for a
+ * vehicle static in the image.  (The arc penalty would read P, turn and all:
+ * the config refuses the two together.) */
 static nj_tensor *unturned(nj_graph *g, const nj_batch *b, int j, nj_tensor *P)
 {
     nj_tensor *v = nj_tensor_new(g, b->n, 6, 1, 1, 0);

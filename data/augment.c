@@ -1,6 +1,7 @@
 /* data/augment.c — colour jitter, horizontal flip and turn (see augment.h).
  * YIQ: the NTSC luma/chroma transform (FCC 1953 coefficients). */
 #include "data/augment.h"
+#include "data/image.h"
 #include "nn/geom/lens.h"
 #include <math.h>
 #include <stddef.h>
@@ -72,18 +73,6 @@ void nj_flip_planes(float *data, int planes, int w, int h)
     }
 }
 
-/* Bilinear read of plane p at (x, y), coordinates clamped to the frame. */
-static float read_clamped(const float *p, int w, int h, float x, float y)
-{
-    x = x < 0 ? 0 : x > (float)(w - 1) ? (float)(w - 1) : x;
-    y = y < 0 ? 0 : y > (float)(h - 1) ? (float)(h - 1) : y;
-    int x0 = (int)x, y0 = (int)y;
-    int x1 = x0 + 1 < w ? x0 + 1 : x0, y1 = y0 + 1 < h ? y0 + 1 : y0;
-    float fx = x - (float)x0, fy = y - (float)y0;
-    const float *r0 = p + (size_t)y0 * w, *r1 = p + (size_t)y1 * w;
-    return (1 - fy) * ((1 - fx) * r0[x0] + fx * r0[x1]) + fy * ((1 - fx) * r1[x0] + fx * r1[x1]);
-}
-
 void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, const float rot[3])
 {
     /* ray d' = K⁻¹p of the turned view; the recorded ray is Rᵀd' */
@@ -96,6 +85,6 @@ void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_ca
             double dx = R[0] * x + R[3] * y + R[6], dy = R[1] * x + R[4] * y + R[7], dz = R[2] * x + R[5] * y + R[8];
             float us = (float)(cam.fx * dx / dz + cam.cx), vs = (float)(cam.fy * dy / dz + cam.cy);
             for (int k = 0; k < planes; k++)
-                out[k * n + (size_t)v * w + u] = read_clamped(in + k * n, w, h, us, vs);
+                out[k * n + (size_t)v * w + u] = nj_plane_bilinear(in + k * n, w, h, us, vs);
         }
 }

@@ -20,6 +20,7 @@
 #define NJ_IMAGE_H
 #include "nn/geom/camera.h"
 #include <stddef.h>
+#include <math.h>
 #include <stdint.h>
 
 #define NJ_IMAGE_MAX_SIDE 16384
@@ -57,5 +58,22 @@ int nj_png_write_rgb(const char *path, const nj_image *im, char *err, size_t err
 /* 16-bit greyscale PNG from w*h values (row-major). */
 int nj_png_write_grey16(const char *path, const uint16_t *v, int w, int h,
                         char *err, size_t errlen);
+
+/* Bilinear sample of plane p (w×h) at (x, y), positions clamped to the image
+ * (so edge pixels repeat outside it): the one clamped sampler of the data
+ * module (undistortion, the turn augmentation). */
+static inline float nj_plane_bilinear(const float *p, int w, int h, float x, float y)
+{
+    x = fminf(fmaxf(x, 0.0f), (float)(w - 1));
+    y = fminf(fmaxf(y, 0.0f), (float)(h - 1));
+    int x0 = (int)x, y0 = (int)y;
+    if (x0 > w - 2) x0 = w > 1 ? w - 2 : 0;
+    if (y0 > h - 2) y0 = h > 1 ? h - 2 : 0;
+    float ax = x - (float)x0, ay = y - (float)y0;
+    int x1 = w > 1 ? x0 + 1 : x0, y1 = h > 1 ? y0 + 1 : y0;
+    const float *r0 = p + (size_t)y0 * w, *r1 = p + (size_t)y1 * w;
+    float top = r0[x0] + ax * (r0[x1] - r0[x0]), bot = r1[x0] + ax * (r1[x1] - r1[x0]);
+    return top + ay * (bot - top);
+}
 
 #endif

@@ -57,21 +57,6 @@ int nj_undistort_same(const nj_undistort *a, const nj_undistort *b)
     return 1;
 }
 
-/* Bilinear sample of plane p (w×h) at (x, y), clamped to the image. */
-static inline float bilinear(const float *p, int w, int h, float x, float y)
-{
-    x = fminf(fmaxf(x, 0.0f), (float)(w - 1));
-    y = fminf(fmaxf(y, 0.0f), (float)(h - 1));
-    int x0 = (int)x, y0 = (int)y;
-    if (x0 > w - 2) x0 = w > 1 ? w - 2 : 0;
-    if (y0 > h - 2) y0 = h > 1 ? h - 2 : 0;
-    float ax = x - (float)x0, ay = y - (float)y0;
-    int x1 = w > 1 ? x0 + 1 : x0, y1 = h > 1 ? y0 + 1 : y0;
-    const float *r0 = p + (size_t)y0 * w, *r1 = p + (size_t)y1 * w;
-    float top = r0[x0] + ax * (r0[x1] - r0[x0]), bot = r1[x0] + ax * (r1[x1] - r1[x0]);
-    return top + ay * (bot - top);
-}
-
 int nj_undistort_image(const nj_undistort *u, nj_image *im, char *err, size_t errlen)
 {
     int w = u->view.w, h = u->view.h;
@@ -90,7 +75,7 @@ int nj_undistort_image(const nj_undistort *u, nj_image *im, char *err, size_t er
         for (int x = 0; x < w; x++) {
             size_t i = (size_t)y * w + x;
             float sx = u->map[2 * i], sy = u->map[2 * i + 1];
-            for (int c = 0; c < 3; c++) out.data[c * n + i] = bilinear(im->data + c * n, w, h, sx, sy);
+            for (int c = 0; c < 3; c++) out.data[c * n + i] = nj_plane_bilinear(im->data + c * n, w, h, sx, sy);
         }
     nj_image_free(im);
     *im = out;

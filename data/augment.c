@@ -88,3 +88,17 @@ void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_ca
                 out[k * n + (size_t)v * w + u] = nj_plane_bilinear(in + k * n, w, h, us, vs);
         }
 }
+
+void nj_rotated_copy(nj_rng *r, const float *in, float *out, int w, int h, nj_camera cam, float max_deg,
+                   float rot[3])
+{
+    for (int a = 0; a < 3; a++)
+        rot[a] = max_deg > 0 ? (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0) : 0.0f;
+    float gain = (float)(1 + (2 * nj_rng_uniform(r) - 1) * NJ_ROTATED_GAIN);
+    float sigma = (float)(nj_rng_uniform(r) * NJ_ROTATED_NOISE);
+    nj_turn_planes(in, out, 3, w, h, cam, rot);
+    for (size_t i = 0; i < (size_t)3 * w * h; i++) {
+        float v = out[i] * gain + sigma * (float)nj_rng_normal(r);
+        out[i] = v < 0 ? 0 : v > 1 ? 1 : v;
+    }
+}

@@ -23,6 +23,13 @@
  * the pose net is given turns no place on a route predicts (DEVELOPERS.md,
  * "Training recipe").  Only the network-input copy is turned; the loss warps
  * the recorded frame with Rᵀ·P (train/loop/step.c).
+ *
+ * Rotated copy: the target's network-input copy turned the same way by a
+ * rotation with every component (pitch, yaw, roll) drawn in ±max_deg, then
+ * scaled by a gain and given sensor noise — the frame a camera that only
+ * turned by R would record.  The pair (frame, copy) has no translation and a
+ * known rotation: a lesson for the pose net with an answer
+ * (loss.rotation_pairs, train/loop/step.c).
  */
 #ifndef NJ_AUGMENT_H
 #define NJ_AUGMENT_H
@@ -50,5 +57,15 @@ void nj_flip_planes(float *data, int planes, int w, int h);
 #define NJ_TURN_MAX_DEG 10.0f   /* largest turn a config may ask for: far beyond any
                                    frame-to-frame yaw of a ground vehicle at 10 fps */
 void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, const float rot[3]);
+/* The rotated copy's gain is drawn in 1 ± NJ_ROTATED_GAIN and its noise's σ in
+ * [0, NJ_ROTATED_NOISE]: the exposure flicker and sensor noise of a stopped
+ * fleet camera (the nuisance set's: σ 0.01, issue 18). */
+#define NJ_ROTATED_GAIN 0.05f
+#define NJ_ROTATED_NOISE 0.01f
+/* out = the rotated copy of the planar RGB image `in` (3 planes, w×h), values
+ * clamped to [0, 1]; rot gets the rotation vector drawn (radians).  Draws
+ * the rotation (x, y, z), the gain, the σ, then one normal per value. */
+void nj_rotated_copy(nj_rng *r, const float *in, float *out, int w, int h, nj_camera cam, float max_deg,
+                   float rot[3]);
 
 #endif

@@ -8,7 +8,7 @@ static float *images(int count, size_t n)
     return calloc((size_t)(count ? count : 1) * n, sizeof(float));
 }
 
-int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn)
+int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn, int rotated)
 {
     memset(b, 0, sizeof *b);
     size_t img = (size_t)3 * w * h;
@@ -25,12 +25,14 @@ int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int j
     b->partner_in = stereo ? (jitter ? images(n, img) : b->partner) : NULL;
     b->turn = turn ? calloc((size_t)(n * nsrc > 0 ? n * nsrc : 1) * 3, sizeof(float)) : NULL;
     size_t items = (size_t)(n ? n : 1);
+    b->rotated = rotated ? images(n, img) : NULL;
+    b->rotated_by = rotated ? calloc(items * 3, sizeof(float)) : NULL;
     b->camera = calloc(items, sizeof(nj_camera));
     b->stereo_tx = calloc(items, sizeof(float));
     b->has_partner = calloc(items, sizeof(int));
     b->flipped = calloc(items, sizeof(int));
     b->sample = calloc(items, sizeof(int));
-    if (b->target && b->sources && b->target_in && b->sources_in && (!turn || b->turn) && (!stereo || (b->partner && b->partner_in)) &&
+    if (b->target && b->sources && b->target_in && b->sources_in && (!turn || b->turn) && (!rotated || (b->rotated && b->rotated_by)) && (!stereo || (b->partner && b->partner_in)) &&
         b->camera && b->stereo_tx && b->has_partner && b->flipped && b->sample)
         return 0;
     nj_batch_free(b);
@@ -43,6 +45,8 @@ void nj_batch_free(nj_batch *b)
     if (b->sources_in != b->sources) free(b->sources_in);
     if (b->partner_in != b->partner) free(b->partner_in);
     free(b->turn);
+    free(b->rotated);
+    free(b->rotated_by);
     free(b->target);
     free(b->sources);
     free(b->partner);
@@ -64,6 +68,8 @@ void nj_batch_view(const nj_batch *b, int i0, int k, nj_batch *o)
     if (b->sources) o->sources += i * (size_t)b->nsrc * img;
     if (b->sources_in) o->sources_in += i * (size_t)b->nsrc * img;
     if (b->turn) o->turn += i * (size_t)b->nsrc * 3;
+    if (b->rotated) o->rotated += i * img;
+    if (b->rotated_by) o->rotated_by += i * 3;
     if (b->partner) o->partner += i * img;
     if (b->partner_in) o->partner_in += i * img;
     if (b->camera) o->camera += i;

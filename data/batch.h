@@ -22,6 +22,12 @@ typedef struct nj_batch {
                                 of source j of item i was turned by (data/augment.h), at
                                 (i·nsrc + j)·3; the clean source is as recorded.  NULL when
                                 nothing is turned */
+    float *rotated;          /* n×3×h×w: item i's target_in turned about the camera centre by
+                                rotated_by, with a gain and sensor noise (nj_rotated_copy,
+                                data/augment.h): beside target_in, a pair with no translation
+                                and a known rotation for the pose net (loss.rotation_pairs);
+                                NULL when off */
+    float *rotated_by;       /* n×3: that rotation vector (radians); NULL when off */
     nj_camera *camera;       /* n: intrinsics at w×h (after flip) */
     float *stereo_tx;        /* n: x of the target→partner transform, for nj_pose_stereo:
                                 −baseline normally, +baseline after a flip; 0 without partner */
@@ -33,9 +39,9 @@ typedef struct nj_batch {
 /* Allocates every array of a batch of n items at w×h with nsrc temporal
  * sources, partner arrays when `stereo`, separate network-input copies when
  * `jitter` (else they alias the clean images; sources_in is separate when
- * `turn` too) and `turn` when `turn`.  Everything is zeroed.  0, or -1 when
+ * `turn` too), `turn` when `turn` and the rotated copies when `rotated`.  Everything is zeroed.  0, or -1 when
  * out of memory (nothing held). */
-int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn);
+int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn, int rotated);
 /* Frees what nj_batch_alloc allocated; b is zeroed. */
 void nj_batch_free(nj_batch *b);
 /* Items [i0, i0 + k) of b, as a view into b's arrays (nothing copied). */

@@ -177,8 +177,9 @@ static int check_config(const nj_loader_config *c, int nsamples, char *err, size
         why = "the shard must lie within the batch";
     else if (c->prefetch <= 0 || c->prefetch > 64) why = "prefetch must be in 1..64";
     else if (c->start_step < 0) why = "start step must be non-negative";
-    else if (!(c->turn_deg >= 0 && c->turn_deg <= NJ_TURN_MAX_DEG && c->roll_deg >= 0 && c->roll_deg <= NJ_TURN_MAX_DEG)) {
-        snprintf(err, errlen, "loader: turn and roll must be between 0 and %g degrees", (double)NJ_TURN_MAX_DEG);
+    else if (!(c->turn_deg >= 0 && c->turn_deg <= NJ_TURN_MAX_DEG && c->roll_deg >= 0 && c->roll_deg <= NJ_TURN_MAX_DEG &&
+               c->rotated_deg >= 0 && c->rotated_deg <= NJ_TURN_MAX_DEG)) {
+        snprintf(err, errlen, "loader: turn, roll and the rotated copy's turn must be between 0 and %g degrees", (double)NJ_TURN_MAX_DEG);
         return -1;
     }
     if (why) snprintf(err, errlen, "loader: %s", why);
@@ -207,7 +208,7 @@ static int setup(nj_loader *L, const nj_sample *samples, int nsamples)
     for (int i = 0; i < L->nslots; i++)
         if (nj_batch_alloc(&L->slots[i].b, L->cfg.shard_count > 0 ? L->cfg.shard_count : L->cfg.batch,
                            L->cfg.height, L->cfg.width, nsrc, stereo, L->cfg.jitter,
-                           L->cfg.turn_deg > 0 || L->cfg.roll_deg > 0))
+                           L->cfg.turn_deg > 0 || L->cfg.roll_deg > 0, L->cfg.rotated))
             return -1;
     return 0;
 }

@@ -67,6 +67,7 @@ static int same_config(const nj_train_config *a, const nj_train_config *b, char 
     SAME_NUM(loss.alpha) SAME_NUM(loss.smooth_weight)
     SAME_NUM(loss.automask) SAME_NUM(automask_from) SAME_NUM(loss.tie_break)
     SAME_NUM(loss.saturation_guard) SAME_NUM(loss.arc_motion) SAME_NUM(arc_motion_from)
+    SAME_NUM(rotation_pairs) SAME_NUM(rotation_pairs_deg)
     SAME_NUM(lr) SAME_NUM(lr_min) SAME_NUM(step_gamma) SAME_NUM(weight_decay) SAME_NUM(grad_clip)
     SAME_NUM(warmup_steps) SAME_NUM(step_every) SAME_NUM(cosine) SAME_STR(init) SAME_NUM(freeze_encoder)
     return 1;
@@ -150,6 +151,10 @@ static const bad_case BAD[] = {
      "optim.lr_min (0.01) must not exceed optim.lr (0.001)"},
     {"arc_with_turn", "{\"loss\": {\"arc_motion\": 1}, \"data\": {\"augment\": {\"turn_deg\": 1}}}",
      "loss.arc_motion cannot be combined with data.augment.turn_deg or roll_deg"},
+    {"rotation_pairs_without_video", "{\"data\": {\"video\": false, \"stereo\": true}, \"loss\": {\"rotation_pairs\": 0.05}}",
+     "loss.rotation_pairs needs video training with a pose net (data.video, model.pose)"},
+    {"rotation_pairs_deg_range", "{\"loss\": {\"rotation_pairs_deg\": 11}}", "loss.rotation_pairs_deg must be between 0 and 10 (got 11)"},
+    {"rotation_pairs_negative", "{\"loss\": {\"rotation_pairs\": -0.1}}", "loss.rotation_pairs must be between 0 and 100 (got -0.1)"},
     {"offset_zero", "{\"data\": {\"frame_offsets\": [0]}}",
      "data.frame_offsets[0] must be a whole number between 1 and 100 (got 0)"},
     {"offset_negative", "{\"data\": {\"frame_offsets\": [1, -2]}}",
@@ -481,6 +486,8 @@ static void random_model_optim(nj_train_config *c, nj_rng *r)
     c->loss.arc_motion = nj_rng_below(r, 2) ? uni(r, 0, 10) : 0;
     if (c->loss.arc_motion > 0) c->turn_deg = c->roll_deg = 0;   /* refused together */
     c->arc_motion_from = (long)nj_rng_below(r, 100000);
+    c->rotation_pairs = c->video && c->model.pose && nj_rng_below(r, 2) ? uni(r, 0, 100) : 0;
+    c->rotation_pairs_deg = uni(r, 0, 10);
     c->lr = uni(r, 1e-7, 1);
     c->lr_min = c->lr * uni(r, 0, 1);
     c->step_gamma = uni(r, 1e-3, 1);

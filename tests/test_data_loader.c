@@ -20,6 +20,13 @@
  *    draw are exactly what a loader without the turn yields; with colour
  *    jitter the input copy is the jittered frame turned (the jitter is affine
  *    per pixel, so it commutes with the bilinear turn up to its clamping);
+ *  - the rotated copy (loss.rotation_pairs): each item's copy is its network-input
+ *    target turned by the rotation the batch records (every component within
+ *    the range, some turned), times a gain in 1 ± NJ_ROTATED_GAIN, plus noise
+ *    of σ ≤ NJ_ROTATED_NOISE — fitted here per item by least squares (gain) and
+ *    the residual's spread; the unturned or oppositely turned frame fits far
+ *    worse.  Everything else the batch holds, and every draw, is what a
+ *    loader without it yields; a range beyond NJ_TURN_MAX_DEG is refused;
  *  - several frame offsets ({1, 3}): each sample carries t−1, t+1, t−3, t+3 in
  *    that order, only targets with room for the largest offset are used, and
  *    the loader's source planes are those frames decoded and resized;
@@ -511,6 +518,86 @@ static void test_turn_geometry(const nj_dataset *ds, const nj_sample *s, int n, 
     test_turn_with_jitter(ds, s, n);
 }
 
+/* Least-squares gain g of copy ≈ g·ref over the pixels the copy did not clamp,
+ * and the residual's standard deviation. */
+static void fit_gain(const float *ref, const float *copy, size_t m, double *gain, double *spread)
+{
+    double sxy = 0, sxx = 0, r2 = 0;
+    size_t k = 0;
+    for (size_t q = 0; q < m; q++)
+        if (copy[q] > 0.02f && copy[q] < 0.98f) sxy += (double)ref[q] * copy[q], sxx += (double)ref[q] * ref[q];
+    *gain = sxx > 0 ? sxy / sxx : 0;
+    for (size_t q = 0; q < m; q++)
+        if (copy[q] > 0.02f && copy[q] < 0.98f) {
+            double e = copy[q] - *gain * ref[q];
+            r2 += e * e;
+            k++;
+        }
+    *spread = k ? sqrt(r2 / k) : INFINITY;
+}
+
+static void test_rotated_copy(const nj_dataset *ds, const nj_sample *s, int n)
+{
+    nj_loader_config c;
+    char err[512], bad[512] = "";
+    pair_config(&c, 1, 1);
+    c.seed = 7;
+    c.turn_deg = 2.0f;
+    nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    c.rotated = 1;
+    c.rotated_deg = 10.5f;
+    nj_loader *over = nj_loader_create(ds, s, n, &c, bad, sizeof bad);
+    check(!over && strstr(bad, "rotated"), "loader_rotated_range", "a rotated copy turned by 10.5 degrees: %s", over ? "accepted" : bad);
+    nj_loader_destroy(over);
+    c.rotated_deg = 4.0f;
+    nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
+    const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL, *p = plain ? nj_loader_next(plain, err, sizeof err) : NULL;
+    if (!b || !p || !b->rotated || !b->rotated_by || p->rotated) {
+        check(0, "loader_rotated_copy", "%s", err);
+        nj_loader_destroy(L);
+        nj_loader_destroy(plain);
+        return;
+    }
+    size_t m = (size_t)3 * SW * SH, srcf = m * b->n * b->nsrc;
+    float *t = malloc(sizeof(float) * m);
+    int inside = 1, turned = 0, fits = 1;
+    double worst_gain = 0, worst_spread = 0, best_other = INFINITY;
+    for (int i = 0; i < b->n; i++) {
+        const float *rot = b->rotated_by + 3 * i;
+        for (int a = 0; a < 3; a++) {
+            inside &= fabsf(rot[a]) <= 4.0f * (float)M_PI / 180;
+            turned += fabsf(rot[a]) > 0.5f * (float)M_PI / 180;
+        }
+        double g, sd, g0, sd0, gw, sdw;
+        nj_turn_planes(b->target_in + i * m, t, 3, SW, SH, b->camera[i], rot);
+        fit_gain(t, b->rotated + i * m, m, &g, &sd);
+        fit_gain(b->target_in + i * m, b->rotated + i * m, m, &g0, &sd0);
+        const float opposite[3] = {-rot[0], -rot[1], -rot[2]};
+        nj_turn_planes(b->target_in + i * m, t, 3, SW, SH, b->camera[i], opposite);
+        fit_gain(t, b->rotated + i * m, m, &gw, &sdw);
+        printf("info: rotated copy %d: rotation (%.2f, %.2f, %.2f) deg, gain %.4f, residual %.4f; unturned %.4f, "
+               "opposite %.4f\n", i, rot[0] * 180 / M_PI, rot[1] * 180 / M_PI, rot[2] * 180 / M_PI, g, sd, sd0, sdw);
+        worst_gain = fmax(worst_gain, fabs(g - 1));
+        worst_spread = fmax(worst_spread, sd);
+        best_other = fmin(best_other, fmin(sd0, sdw));
+        fits &= sd0 > 3 * sd && sdw > 3 * sd;
+    }
+    free(t);
+    check(inside && turned > 0 && fits && worst_gain <= NJ_ROTATED_GAIN + 1e-3 && worst_spread <= NJ_ROTATED_NOISE * 1.1 + 1e-3,
+          "loader_rotated_copy_is_the_input_turned_with_gain_and_noise",
+          "gain off 1 by up to %.4f (limit %.2f), residual up to %.4f (noise limit %.3f), unturned or opposite fit "
+          "%.4f at best; %d components beyond 0.5 deg, all within range %d",
+          worst_gain, (double)NJ_ROTATED_GAIN, worst_spread, (double)NJ_ROTATED_NOISE, best_other, turned, inside);
+    check(!memcmp(b->target, p->target, m * b->n * 4) && !memcmp(b->target_in, p->target_in, m * b->n * 4) &&
+          !memcmp(b->sources, p->sources, srcf * 4) && !memcmp(b->sources_in, p->sources_in, srcf * 4) &&
+          !memcmp(b->turn, p->turn, sizeof(float) * 3 * b->n * b->nsrc) &&
+          !memcmp(b->camera, p->camera, sizeof(nj_camera) * b->n) && !memcmp(b->sample, p->sample, sizeof(int) * b->n) &&
+          !memcmp(b->flipped, p->flipped, sizeof(int) * b->n),
+          "loader_rotated_copy_keeps_the_batch", "with the rotated copy the frames, input copies, turns or draws differ");
+    nj_loader_destroy(L);
+    nj_loader_destroy(plain);
+}
+
 /* Offsets {1, 3} on the 10-frame sequence (no duplicates skipped): targets
  * 3..6, sources in offset order; the batch's four source planes per item are
  * the named frames (the frame the loader makes is the decoded, resized file:
@@ -605,6 +692,7 @@ int main(void)
     test_jitter_identical();
     test_flip_geometry(&ds, s, n, poses);
     test_turn_geometry(&ds, s, n, poses);
+    test_rotated_copy(&ds, s, n);
     test_multi_offsets(json);
     test_missing_file(&ds, s, n);
     free(s);

@@ -12,6 +12,11 @@
  *    scale, averaging and rotation angles are all recomputed outside;
  *  - the figures follow the model: the trained and the untrained model's
  *    differ, while the true rotation (ground truth only) is the same;
+ *  - a stopped camera: with the test sequence's poses of frames 6–8 made
+ *    equal to frame 5's (three pairs without motion), eval counts three
+ *    stopped-camera pairs and its figures for them (predicted rotation,
+ *    predicted translation against the moving pairs') and the moving pairs'
+ *    rotation error equal the reference's;
  *  - the depth baselines: the trained model's "baseline_untrained" block
  *    equals the metrics of the untrained checkpoint made here evaluated as a
  *    model, and differs from the trained model's own metrics. */
@@ -74,6 +79,21 @@ static int make_untrained(const char *trained, const char *out)
     return rc;
 }
 
+/* Frames 6–8 of the test sequence's poses file set to frame 5's pose: the
+ * camera stands still from frame 5 to 8. */
+static int stop_camera(void)
+{
+    char path[600], line[FRAMES][512];
+    snprintf(path, sizeof path, "%s/data/yard-02/poses.txt", dir);
+    FILE *f = fopen(path, "r");
+    int n = 0;
+    while (f && n < FRAMES && fgets(line[n], sizeof line[n], f)) n++;
+    if (f) fclose(f);
+    if (n != FRAMES || !(f = fopen(path, "w"))) return -1;
+    for (int i = 0; i < FRAMES; i++) fputs(line[i >= 6 && i <= 8 ? 5 : i], f);
+    return fclose(f);
+}
+
 static int eval_model(const char *ckpt, const char *out)
 {
     char cmd[2048], log[700];
@@ -97,6 +117,7 @@ static void pose_block(const char *tag, const char *metrics, const char *ckpt)
     check(keys && finite && num(p, "snippets") == 8 && num(p, "snippet_frames") == 5 && num(p, "pairs") == 11, name,
           "keys %d finite %d snippets %g frames %g pairs %g (%s)", keys, finite, num(p, "snippets"),
           num(p, "snippet_frames"), num(p, "pairs"), metrics);
+    printf("info: %s: %g of the pairs are of a stopped camera\n", tag, num(p, "still_pairs"));
     cJSON_Delete(j);
     snprintf(motions, sizeof motions, "%s/motions-%s", dir, tag);
     snprintf(rel, sizeof rel, "%s/yard-02.rel.f64", motions);
@@ -164,6 +185,21 @@ int main(void)
           "absrel %.9g vs %.9g", num(a, "absrel"), num(base, "absrel"));
     cJSON_Delete(a);
     cJSON_Delete(b);
+
+    char ms[700];
+    snprintf(ms, sizeof ms, "%s/metrics-stopped.json", dir);
+    if (check(stop_camera() == 0 && eval_model(trained, ms) == 0, "eval with the camera stopped for frames 5-8",
+              "see %s.log", ms)) {
+        pose_block("stopped", ms, trained);
+        cJSON *c = load_json(ms);
+        const cJSON *pc = cJSON_GetObjectItemCaseSensitive(c, "pose");
+        checkv(num(pc, "still_pairs") == 3 && num(pc, "still_translation_ratio") > 0,
+               "stopped camera: three stopped pairs, the model's motion there reported",
+               "%g pairs; predicted rotation %.4g deg, translation %.4g of a moving pair's; moving pairs' rotation "
+               "error %.4g deg", num(pc, "still_pairs"), num(pc, "still_rotation_deg"),
+               num(pc, "still_translation_ratio"), num(pc, "moving_rotation_error_deg"));
+        cJSON_Delete(c);
+    }
     if (!test_failures()) ref_rmtree(dir);
     else printf("# kept %s for inspection\n", dir);
     return test_exit();

@@ -127,7 +127,7 @@ static nj_batch *take(const nj_dataset *ds, const nj_sample *s, int n, int worke
     for (int i = 0; L && i < steps; i++) {
         const nj_batch *b = nj_loader_next(L, err, sizeof err);
         if (!b) { printf("note: %s\n", err); continue; }
-        nj_batch_alloc(&out[i], b->n, b->h, b->w, b->nsrc, b->stereo, 1, 0);
+        nj_batch_alloc(&out[i], b->n, b->h, b->w, b->nsrc, b->stereo, 1, 0, 0);
         size_t f = batch_floats(b) * 4;
         out[i].step = b->step;
         memcpy(out[i].target, b->target, f);

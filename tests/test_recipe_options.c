@@ -41,6 +41,14 @@
  *    the motion R (a yaw and a roll), an input turned by Rᵀ makes the loss's
  *    warp exact; turned by R it is worse than no turn (the direction is
  *    checked).
+ *  - loss.rotation_pairs: a step whose rotated copies are turned by ρ pulls
+ *    the pose net's output-layer rotation bias toward ρ (the gradient points
+ *    to −ρ) when the two items' rotations are ρ and −ρ — item 1's pair is
+ *    given the other way round, so both answers are ρ — and not at all when
+ *    both are ρ (the answers ρ and −ρ cancel): the pairing and the sign of
+ *    the answer.  That a frame turned by ρ is explained by the pose with
+ *    rotation vector ρ is the turn check above.  The translation outputs get
+ *    no gradient from the lesson (a step with it minus one without).
  */
 #include "data/augment.h"
 #include "losses/pose.h"
@@ -370,7 +378,7 @@ static float offsets_step(int copies, int widest, float *mask_share)
     if (step_model(&m, &cfg, 2.0f, 0.2f, "offsets: model")) return NAN;
     nj_batch b;
     nj_graph *g = nj_graph_new(1 << 22);
-    if (nj_batch_alloc(&b, 2, H, W, 2 * copies, 0, 0, 0)) { nj_model_free(&m); nj_graph_free(g); return NAN; }
+    if (nj_batch_alloc(&b, 2, H, W, 2 * copies, 0, 0, 0, 0)) { nj_model_free(&m); nj_graph_free(g); return NAN; }
     nj_tensor *t = nj_tensor_new(g, 2, 3, H, W, 0), *s0 = nj_tensor_new(g, 2, 3, H, W, 0),
               *s1 = nj_tensor_new(g, 2, 3, H, W, 0);
     fill_image(t, 11, 0.9f);
@@ -412,7 +420,7 @@ static float turned_step_loss(float k)
     if (step_model(&m, &cfg, 1e-6f, 1e-6f, "turned step: model")) return NAN;   /* motions ~1e-6: the identity */
     nj_batch b;
     nj_graph *g = nj_graph_new(1 << 22);
-    if (nj_batch_alloc(&b, 2, H, W, 2, 0, 0, 1)) { nj_model_free(&m); nj_graph_free(g); return NAN; }
+    if (nj_batch_alloc(&b, 2, H, W, 2, 0, 0, 1, 0)) { nj_model_free(&m); nj_graph_free(g); return NAN; }
     size_t img = (size_t)3 * H * W;
     const float psi[3] = {0, 1.5f * (float)M_PI / 180, 1.0f * (float)M_PI / 180};
     for (int i = 0; i < 2; i++) {
@@ -439,6 +447,73 @@ static void test_turned_step(void)
     checkv(undone < 0.1f * none && wrong > none, "turned step: the loss warps the recorded frame with R^T * P",
            "photometric error with the input turned by -(yaw 1.5, roll 1 deg) %.4f, not turned %.4f, turned by "
            "+(1.5, 1) %.4f", undone, none, wrong);
+}
+
+/* One training step with rotated copies turned by `rho` (item 0) and
+ * `sign1`·rho (item 1), static sources, the lesson's weight `weight`: the
+ * gradient of the pose net's output-layer bias (6 values) and the lesson's
+ * figure. */
+static int rotation_step(const float rho[3], float sign1, float weight, float grad[6], float *lesson)
+{
+    nj_train_config cfg;
+    nj_train_config_default(&cfg);
+    cfg.video = 1;
+    cfg.stereo = 0;
+    cfg.loss.automask = 0;
+    cfg.loss.smooth_weight = 0;
+    cfg.rotation_pairs = weight;
+    nj_model m;
+    if (step_model(&m, &cfg, 1.0f, 1e-3f, "rotation lesson: model")) return -1;
+    nj_batch b;
+    nj_graph *g = nj_graph_new(1 << 22);
+    int rc = -1;
+    if (!nj_batch_alloc(&b, 2, H, W, 2, 0, 0, 0, 1)) {
+        size_t img = (size_t)3 * H * W;
+        for (int i = 0; i < 2; i++) {
+            smooth_image(b.target + i * img, 0.7f * (float)i);
+            b.camera[i] = (nj_camera){50.0f, 50.0f, 31.5f, 15.5f};
+            for (int j = 0; j < 2; j++) memcpy(b.sources + (2 * i + j) * img, b.target + i * img, img * sizeof(float));
+            for (int a = 0; a < 3; a++) b.rotated_by[3 * i + a] = (i ? sign1 : 1.0f) * rho[a];
+            nj_turn_planes(b.target + i * img, b.rotated + i * img, 3, W, H, b.camera[i], b.rotated_by + 3 * i);
+        }
+        nj_params_zero_grad(&m.params);
+        nj_step_result r;
+        const nj_param *pb = nj_params_find(&m.params, "pose.out.b");
+        if (pb && !nj_train_step(g, &m, &cfg, &b, NULL, 1, &r)) {
+            memcpy(grad, pb->grad, 6 * sizeof(float));
+            *lesson = r.rotation_lesson;
+            rc = 0;
+        } else check(0, "rotation lesson: step", "%s", pb ? nj_graph_error(g) : "no pose.out.b");
+        nj_batch_free(&b);
+    }
+    nj_graph_free(g);
+    nj_model_free(&m);
+    return rc;
+}
+
+static void test_rotation_step(void)
+{
+    const float rho[3] = {0.02f, -0.03f, 0.025f};
+    float opp[6], same[6], off[6], l_opp, l_same, l_off;
+    if (rotation_step(rho, -1, 1, opp, &l_opp) || rotation_step(rho, 1, 1, same, &l_same) ||
+        rotation_step(rho, -1, 0, off, &l_off))
+        return;
+    double dot = 0, ng = 0, nr = 0, ns = 0, dt = 0;
+    for (int a = 0; a < 3; a++) {
+        dot += ((double)opp[a] - off[a]) * rho[a];
+        ng += ((double)opp[a] - off[a]) * (opp[a] - off[a]);
+        nr += (double)rho[a] * rho[a];
+        ns += ((double)same[a] - off[a]) * (same[a] - off[a]);
+        dt = fmax(dt, fabs((double)opp[3 + a] - off[3 + a]));
+    }
+    double cosine = dot / sqrt(ng * nr + 1e-30);
+    checkv(cosine < -0.99 && sqrt(ns) < 0.02 * sqrt(ng) && l_opp > 0 && l_off == 0,
+           "rotation lesson: the step pulls the rotation answer to the copy's turn",
+           "rotations rho and -rho (answers rho, rho): cosine of the bias gradient with rho %.4f (want -1); rho and "
+           "rho (answers rho, -rho): gradient %.3g against %.3g; lesson %.4g (off: %g)", cosine, sqrt(ns), sqrt(ng),
+           l_opp, l_off);
+    checkv(dt <= 1e-6 * sqrt(ng), "rotation lesson: the translation is left free",
+           "largest change of a translation bias gradient %.3g (rotation's %.3g)", dt, sqrt(ng));
 }
 
 static void test_offsets_step(void)
@@ -581,6 +656,7 @@ int main(void)
     test_automask_widest();
     test_turned_source();
     test_turned_step();
+    test_rotation_step();
     test_arc_slip();
     test_arc_slip_heading_given();
     test_step_config();

@@ -27,12 +27,18 @@ the predicted and the true motion; the mean and the root-mean-square of
 their difference, the mean and the root-mean-square of the true component,
 degrees; the slope of the least-squares line of predicted on true
 (np.polyfit, degree 1) and their correlation (np.corrcoef).
+Stopped camera: the pairs whose true translation is below 2% of their
+sequence's mean true translation (np.linalg.norm); over them the mean
+predicted rotation angle and the mean predicted translation length divided
+by the mean over the other (moving) pairs, whose mean rotation error is
+reported apart.
 
 Writes OUT.json: {"ate", "ate_std", "rmse", "scale_mean", "snippets",
 "rotation_error_deg", "rotation_true_deg", "pairs", and for AXIS in pitch,
 yaw, roll: "AXIS_mean_error_deg", "AXIS_rms_error_deg", "AXIS_true_rms_deg",
 "AXIS_true_mean_deg", "AXIS_slope", "AXIS_correlation"}
-(metrics.json's keys).
+plus "still_pairs", "moving_rotation_error_deg", and where there are still
+pairs "still_rotation_deg", "still_translation_ratio" (metrics.json's keys).
 """
 import json
 import os
@@ -58,6 +64,7 @@ def main():
     root = os.path.dirname(os.path.abspath(dpath))
     desc = json.load(open(dpath))
     ates, rmses, scales, rot_err, rot_true, vec_err, vec_true = [], [], [], [], [], [], []
+    still_rot, still_t, moving_t, moving_err = [], [], [], []
     for s in desc["sequences"]:
         if s.get("split", "train") != split or "poses" not in s:
             continue
@@ -72,6 +79,15 @@ def main():
             ates.append(a)
             rmses.append(r)
             scales.append(k)
+        true_t = [np.linalg.norm((np.linalg.inv(to4(c2w[i + 1])) @ to4(c2w[i]))[:3, 3]) for i in range(n - 1)]
+        for i in range(n - 1):
+            err = Rotation.from_matrix(rel[i, :, :3].T @ (np.linalg.inv(to4(c2w[i + 1])) @ to4(c2w[i]))[:3, :3]).magnitude()
+            if true_t[i] < 0.02 * np.mean(true_t):
+                still_rot.append(Rotation.from_matrix(rel[i, :, :3]).magnitude())
+                still_t.append(np.linalg.norm(rel[i, :, 3]))
+            else:
+                moving_t.append(np.linalg.norm(rel[i, :, 3]))
+                moving_err.append(err)
         for i in range(n - 1):
             true = np.linalg.inv(to4(c2w[i + 1])) @ to4(c2w[i])
             Rt, Rp = true[:3, :3], rel[i, :, :3]
@@ -84,6 +100,12 @@ def main():
            "scale_mean": float(np.mean(scales)), "snippets": len(ates),
            "rotation_error_deg": float(np.degrees(np.mean(rot_err))),
            "rotation_true_deg": float(np.degrees(np.mean(rot_true))), "pairs": len(rot_err)}
+    res["still_pairs"] = len(still_rot)
+    if moving_err:
+        res["moving_rotation_error_deg"] = float(np.degrees(np.mean(moving_err)))
+    if still_rot:
+        res["still_rotation_deg"] = float(np.degrees(np.mean(still_rot)))
+        res["still_translation_ratio"] = float(np.mean(still_t) / np.mean(moving_t)) if moving_t else 0.0
     ve, vt = np.degrees(np.array(vec_err)), np.degrees(np.array(vec_true))
     for k, axis in enumerate(("pitch", "yaw", "roll")):
         res[axis + "_mean_error_deg"] = float(np.mean(ve[:, k]))

@@ -37,7 +37,7 @@ int nj_bench_batch_make(nj_bench_batch *bb, int n, int h, int w, unsigned seed)
     memset(bb, 0, sizeof *bb);
     size_t img = (size_t)3 * h * w;
     nj_batch *b = &bb->b;
-    if (nj_batch_alloc(b, n, h, w, 2, 0, 0, 0)) return -1;
+    if (nj_batch_alloc(b, n, h, w, 2, 0, 0, 0, 0)) return -1;
     nj_rng r;
     nj_rng_seed(&r, seed);
     for (int i = 0; i < n; i++) {

@@ -51,7 +51,13 @@ typedef struct eval_run {
      * of predicted on true stays stable where a component barely varies */
     double axis_err2[3], axis_true2[3];
     double axis_true[3], axis_pred[3], axis_m2t[3], axis_m2p[3], axis_cpt[3];
+    /* pairs of a stopped camera (true translation below STILL_SHARE of its
+     * sequence's mean) and the rest: what the pose net says while standing still */
+    int still_pairs, moving_pairs;
+    double still_rot_sum, still_t_sum, moving_t_sum, moving_err_sum;
 } eval_run;
+
+#define STILL_SHARE 0.02
 
 #define RAD2DEG(x) ((x) * 57.29577951308232)
 /* components of nj_rotation_vector in the camera frame (x right, y down, z forward) */
@@ -361,12 +367,33 @@ static void add_snippets(eval_run *r, const double *c2w, const double *rel, int 
 
 /* Rotation error of every consecutive pair (the pose net's motion against the
  * true one), with the true rotation alongside for scale. */
+static double translation_length(const double *T)
+{
+    return sqrt(T[3] * T[3] + T[7] * T[7] + T[11] * T[11]);
+}
+
 static void add_rotation_errors(eval_run *r, const double *c2w, const double *rel, int n)
 {
+    double mean_t = 0;
     for (int i = 0; i + 1 < n; i++) {
         double gt[12];
         nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt);
-        r->rot_err_sum += nj_rotation_error(rel + 12 * i, gt);
+        mean_t += translation_length(gt) / (n - 1);
+    }
+    for (int i = 0; i + 1 < n; i++) {
+        double gt[12];
+        nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt);
+        double err = nj_rotation_error(rel + 12 * i, gt);
+        if (translation_length(gt) < STILL_SHARE * mean_t) {
+            r->still_pairs++;
+            r->still_rot_sum += nj_rotation_angle(rel + 12 * i);
+            r->still_t_sum += translation_length(rel + 12 * i);
+        } else {
+            r->moving_pairs++;
+            r->moving_t_sum += translation_length(rel + 12 * i);
+            r->moving_err_sum += err;
+        }
+        r->rot_err_sum += err;
         r->rot_true_sum += nj_rotation_angle(gt);
         double vp[3], vt[3];
         nj_rotation_vector(rel + 12 * i, vp);
@@ -383,6 +410,14 @@ static void add_rotation_errors(eval_run *r, const double *c2w, const double *re
             r->axis_cpt[k] += dt * (vp[k] - r->axis_pred[k]);
         }
     }
+}
+
+/* Mean predicted translation of the stopped pairs over that of the moving
+ * ones (the scale-free way to say "it thinks it moved"). */
+static double still_ratio(const eval_run *r)
+{
+    double moving = r->moving_pairs ? r->moving_t_sum / r->moving_pairs : 0;
+    return moving > 0 && r->still_pairs ? r->still_t_sum / r->still_pairs / moving : 0;
 }
 
 /* Least-squares line of the predicted on the true component of axis k over
@@ -522,6 +557,13 @@ static void print_table(const eval_run *r)
         printf("pose: rotation error %.3f deg per frame pair (true rotation %.3f deg; an error as large as "
                "the true rotation means none was learned), over %d pairs\n",
                RAD2DEG(r->rot_err_sum / r->pairs), RAD2DEG(r->rot_true_sum / r->pairs), r->pairs);
+    if (r->moving_pairs)
+        printf("pose: rotation error %.3f deg on the %d pairs of a moving camera\n",
+               RAD2DEG(r->moving_err_sum / r->moving_pairs), r->moving_pairs);
+    if (r->still_pairs)
+        printf("pose: on the %d pairs of a stopped camera: predicted rotation %.3f deg, predicted translation "
+               "%.3f of a moving pair's (0 and 0: standing still is seen)\n", r->still_pairs,
+               RAD2DEG(r->still_rot_sum / r->still_pairs), still_ratio(r));
     for (int k = 0; k < 3 && r->pairs; k++)
         printf("pose: %-5s (rotation about the camera's %c axis) mean error %+.3f deg, RMS error %.3f deg, "
                "true RMS %.3f deg\n", AXIS_NAMES[k], "xyz"[k], RAD2DEG(r->axis_pred[k] - r->axis_true[k]),
@@ -594,6 +636,13 @@ static cJSON *report_json(const eval_run *r)
         cJSON_AddNumberToObject(p, "rotation_error_deg", RAD2DEG(r->rot_err_sum / r->pairs));
         cJSON_AddNumberToObject(p, "rotation_true_deg", RAD2DEG(r->rot_true_sum / r->pairs));
         cJSON_AddNumberToObject(p, "pairs", r->pairs);
+        if (r->moving_pairs) cJSON_AddNumberToObject(p, "moving_rotation_error_deg",
+                                                     RAD2DEG(r->moving_err_sum / r->moving_pairs));
+        cJSON_AddNumberToObject(p, "still_pairs", r->still_pairs);
+        if (r->still_pairs) {
+            cJSON_AddNumberToObject(p, "still_rotation_deg", RAD2DEG(r->still_rot_sum / r->still_pairs));
+            cJSON_AddNumberToObject(p, "still_translation_ratio", still_ratio(r));
+        }
         for (int k = 0; k < 3; k++) {
             char key[40];
             snprintf(key, sizeof key, "%s_mean_error_deg", AXIS_NAMES[k]);
@@ -612,11 +661,14 @@ static cJSON *report_json(const eval_run *r)
                 cJSON_AddNumberToObject(p, key, corr);
             }
         }
-        cJSON_AddStringToObject(p, "axes", "rotation vector of each consecutive pair's motion (camera i into "
-                                           "camera i + 1) in the camera frame: pitch about x (right), yaw about "
-                                           "y (down), roll about z (forward); error = predicted - true component; "
-                                           "slope and correlation: least-squares line of predicted on true "
-                                           "(absent when either does not vary)");
+        char axes[800];
+        snprintf(axes, sizeof axes, "rotation vector of each consecutive pair's motion (camera i into camera i + 1) "
+                 "in the camera frame: pitch about x (right), yaw about y (down), roll about z (forward); error = "
+                 "predicted - true component; slope and correlation: least-squares line of predicted on true "
+                 "(absent when either does not vary); still pairs: true translation below %g%% of the sequence's "
+                 "mean, still_rotation_deg the mean predicted rotation there, still_translation_ratio the mean "
+                 "predicted translation there over the moving pairs' mean", 100 * STILL_SHARE);
+        cJSON_AddStringToObject(p, "axes", axes);
         cJSON_AddStringToObject(p, "protocol",
                                 "Zhou et al. 2017: first frames aligned, least-squares scale, "
                                 "ate = sqrt(sum |e|^2) / n; rmse = sqrt(sum |e|^2 / n)");

@@ -66,6 +66,8 @@ const nj_config_field nj_config_fields[] = {
     TEXT("loss", "automask_widest", NJ_F_BOOL, loss.automask_widest),
     F("loss", "arc_motion", NJ_F_FLOAT, loss.arc_motion, 0, 100, 0, 0),
     F("loss", "arc_motion_from_step", NJ_F_LONG, arc_motion_from, 0, 1e12, 0, 0),
+    F("loss", "rotation_pairs", NJ_F_FLOAT, rotation_pairs, 0, 100, 0, 0),
+    F("loss", "rotation_pairs_deg", NJ_F_FLOAT, rotation_pairs_deg, 0, NJ_TURN_MAX_DEG, 0, 0),
     F("loss", "saturation_guard", NJ_F_FLOAT, loss.saturation_guard, 0, 100, 0, 0),
     F("optim", "lr", NJ_F_FLOAT, lr, 0, 1, 1, 0),
     F("optim", "lr_min", NJ_F_FLOAT, lr_min, 0, 1, 0, 0),
@@ -111,6 +113,7 @@ void nj_train_config_default(nj_train_config *c)
     c->brightness = c->contrast = c->saturation = 0.2f;
     c->hue = 0.05f;
     c->flip = 0.5f;
+    c->rotation_pairs_deg = 1.0f;
     nj_model_config_default(&c->model);
     c->model.seed = c->seed;
     nj_vs_config_default(&c->loss);
@@ -272,6 +275,8 @@ static int check_rest(const nj_train_config *c, char *err, size_t errlen)
     else if (c->loss.arc_motion > 0 && (c->turn_deg > 0 || c->roll_deg > 0))
         /* the penalty would read the pose net's motion, which includes the input's turn */
         snprintf(err, errlen, "loss.arc_motion cannot be combined with data.augment.turn_deg or roll_deg");
+    else if (c->rotation_pairs > 0 && !(c->video && c->model.pose))
+        snprintf(err, errlen, "loss.rotation_pairs needs video training with a pose net (data.video, model.pose)");
     else
         return 0;
     return -1;

@@ -86,10 +86,12 @@ static int probe_batch(const nj_trainer *t, int n, int h, int w, nj_batch *b)
     int nsrc = t->train[0].nsrc, stereo = 0;
     for (int i = 0; i < t->ntrain; i++) stereo |= t->train[i].stereo;
     size_t img = (size_t)3 * h * w;
-    if (nj_batch_alloc(b, n, h, w, nsrc, stereo, 0, 0)) return -1;
+    int rotated = t->cfg.rotation_pairs > 0;
+    if (nj_batch_alloc(b, n, h, w, nsrc, stereo, 0, 0, rotated)) return -1;
     for (size_t i = 0; i < img * n; i++) b->target[i] = 0.25f + 0.5f * (float)((i * 2654435761u) % 1000) / 1000.0f;
     for (size_t i = 0; i < img * n * nsrc; i++) b->sources[i] = b->target[i % (img * n)];
     if (stereo) memcpy(b->partner, b->target, img * n * sizeof(float));
+    if (rotated) memcpy(b->rotated, b->target, img * n * sizeof(float));
     for (int i = 0; i < n; i++) {
         b->camera[i] = (nj_camera){0.6f * w, 0.6f * w, 0.5f * (w - 1), 0.5f * (h - 1)};
         b->stereo_tx[i] = -0.1f;

@@ -135,6 +135,8 @@ static void log_step(nj_trainer *t, const nj_step_result *r, float lr, double ip
         snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1,
                  ",\"inverted\":%.4f,\"far_half\":%.4f,\"depth_p50\":%.4g}", f->inverted, f->far_half,
                  f->depth_p50);
+    if (t->cfg.rotation_pairs > 0 && strlen(line) > 1)
+        snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1, ",\"rotation_lesson\":%.4g}", r->rotation_lesson);
     nj_runlog_json(&t->log, line);
 }
 

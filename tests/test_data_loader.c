@@ -543,14 +543,15 @@ static void test_rotated_copy(const nj_dataset *ds, const nj_sample *s, int n)
     pair_config(&c, 1, 1);
     c.seed = 7;
     c.turn_deg = 2.0f;
-    nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err);
-    c.rotated = 1;
-    c.rotated_deg = 10.5f;
-    nj_loader *over = nj_loader_create(ds, s, n, &c, bad, sizeof bad);
-    check(!over && strstr(bad, "rotated"), "loader_rotated_range", "a rotated copy turned by 10.5 degrees: %s", over ? "accepted" : bad);
+    nj_loader_config with = c, wide = c;
+    with.rotated = wide.rotated = 1;
+    with.rotated_deg = 4.0f;
+    wide.rotated_deg = NJ_TURN_MAX_DEG + 0.5f;
+    nj_loader *plain = nj_loader_create(ds, s, n, &c, err, sizeof err), *L = nj_loader_create(ds, s, n, &with, err, sizeof err);
+    nj_loader *over = nj_loader_create(ds, s, n, &wide, bad, sizeof bad);
+    check(!over && strstr(bad, "rotated"), "loader_rotated_range", "a rotated copy turned by %g degrees: %s",
+          (double)wide.rotated_deg, over ? "accepted" : bad);
     nj_loader_destroy(over);
-    c.rotated_deg = 4.0f;
-    nj_loader *L = nj_loader_create(ds, s, n, &c, err, sizeof err);
     const nj_batch *b = L ? nj_loader_next(L, err, sizeof err) : NULL, *p = plain ? nj_loader_next(plain, err, sizeof err) : NULL;
     if (!b || !p || !b->rotated || !b->rotated_by || p->rotated) {
         check(0, "loader_rotated_copy", "%s", err);

@@ -408,14 +408,21 @@ static float offsets_step(int copies, int widest, float *mask_share)
 /* Photometric loss of one training step whose recorded sources need the
  * motion R with rotation vector (0, 1.5°, 1°), with the pose net held at the
  * identity motion and the batch saying its input was turned by k·that. */
+/* The configuration of the one-step checks below: video, no stereo, no
+ * auto-mask, no smoothness — the photometric error of the warp alone. */
+static void warp_only_config(nj_train_config *cfg)
+{
+    nj_train_config_default(cfg);
+    cfg->video = 1;
+    cfg->stereo = 0;
+    cfg->loss.automask = 0;
+    cfg->loss.smooth_weight = 0;
+}
+
 static float turned_step_loss(float k)
 {
     nj_train_config cfg;
-    nj_train_config_default(&cfg);
-    cfg.video = 1;
-    cfg.stereo = 0;
-    cfg.loss.automask = 0;
-    cfg.loss.smooth_weight = 0;
+    warp_only_config(&cfg);
     nj_model m;
     if (step_model(&m, &cfg, 1e-6f, 1e-6f, "turned step: model")) return NAN;   /* motions ~1e-6: the identity */
     nj_batch b;
@@ -456,11 +463,7 @@ static void test_turned_step(void)
 static int rotation_step(const float rho[3], float sign1, float weight, float grad[6], float *lesson)
 {
     nj_train_config cfg;
-    nj_train_config_default(&cfg);
-    cfg.video = 1;
-    cfg.stereo = 0;
-    cfg.loss.automask = 0;
-    cfg.loss.smooth_weight = 0;
+    warp_only_config(&cfg);
     cfg.rotation_pairs = weight;
     nj_model m;
     if (step_model(&m, &cfg, 1.0f, 1e-3f, "rotation lesson: model")) return -1;

@@ -67,7 +67,7 @@ static int same_config(const nj_train_config *a, const nj_train_config *b, char 
     SAME_NUM(loss.alpha) SAME_NUM(loss.smooth_weight)
     SAME_NUM(loss.automask) SAME_NUM(automask_from) SAME_NUM(loss.tie_break)
     SAME_NUM(loss.saturation_guard) SAME_NUM(loss.arc_motion) SAME_NUM(arc_motion_from)
-    SAME_NUM(rotation_pairs) SAME_NUM(rotation_pairs_deg)
+    SAME_NUM(rotation_pairs) SAME_NUM(rotation_pairs_deg) SAME_NUM(rotation_pairs_until)
     SAME_NUM(lr) SAME_NUM(lr_min) SAME_NUM(step_gamma) SAME_NUM(weight_decay) SAME_NUM(grad_clip)
     SAME_NUM(warmup_steps) SAME_NUM(step_every) SAME_NUM(cosine) SAME_STR(init) SAME_NUM(freeze_encoder)
     return 1;
@@ -488,6 +488,7 @@ static void random_model_optim(nj_train_config *c, nj_rng *r)
     c->arc_motion_from = (long)nj_rng_below(r, 100000);
     c->rotation_pairs = c->video && c->model.pose && nj_rng_below(r, 2) ? uni(r, 0, 100) : 0;
     c->rotation_pairs_deg = uni(r, 0, 10);
+    c->rotation_pairs_until = (long)nj_rng_below(r, 100000);
     c->lr = uni(r, 1e-7, 1);
     c->lr_min = c->lr * uni(r, 0, 1);
     c->step_gamma = uni(r, 1e-3, 1);

@@ -337,6 +337,16 @@ static void test_step_config(void)
     check(before && between && after && off && c.loss.arc_motion == 0.0f && c.loss.automask == 1,
           "step config: auto-mask from automask_from_step, arc penalty from arc_motion_from_step, the config itself untouched",
           "before %d, between %d, after %d, arc off %d", before, between, after, off);
+    c.rotation_pairs = 0.025f;
+    c.rotation_pairs_until = 800;
+    int on = nj_step_config(&c, 799, &tmp) == &c;
+    a = nj_step_config(&c, 800, &tmp);
+    int over = a->rotation_pairs == 0.0f && a->loss.automask == 1 && c.rotation_pairs == 0.025f;
+    c.rotation_pairs_until = 0;
+    int endless = nj_step_config(&c, 100000, &tmp) == &c;
+    check(on && over && endless, "step config: the rotation lesson until rotation_pairs_until_step (0: to the end)",
+          "on at step 799 %d, off from step 800 (the rest kept, the config untouched) %d, never off with 0 %d", on, over,
+          endless);
 }
 
 /* A small model (3 stages and scales, width 0.5, seed 9) of cfg's kind with

@@ -68,6 +68,7 @@ const nj_config_field nj_config_fields[] = {
     F("loss", "arc_motion_from_step", NJ_F_LONG, arc_motion_from, 0, 1e12, 0, 0),
     F("loss", "rotation_pairs", NJ_F_FLOAT, rotation_pairs, 0, 100, 0, 0),
     F("loss", "rotation_pairs_deg", NJ_F_FLOAT, rotation_pairs_deg, 0, NJ_TURN_MAX_DEG, 0, 0),
+    F("loss", "rotation_pairs_until_step", NJ_F_LONG, rotation_pairs_until, 0, 1e12, 0, 0),
     F("loss", "saturation_guard", NJ_F_FLOAT, loss.saturation_guard, 0, 100, 0, 0),
     F("optim", "lr", NJ_F_FLOAT, lr, 0, 1, 1, 0),
     F("optim", "lr_min", NJ_F_FLOAT, lr_min, 0, 1, 0, 0),

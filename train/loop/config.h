@@ -22,7 +22,7 @@
  *              "automask": true, "automask_from_step": 0, "tie_break": 1e-5,
  *              "saturation_guard": 0, "gain_match": false, "automask_widest": false,
  *              "arc_motion": 0, "arc_motion_from_step": 0,
- *              "rotation_pairs": 0, "rotation_pairs_deg": 1 },
+ *              "rotation_pairs": 0, "rotation_pairs_deg": 1, "rotation_pairs_until_step": 0 },
  *   "optim": { "lr": 1e-4, "lr_min": 1e-6, "warmup_steps": 100, "schedule": "cosine" | "step",
  *              "step_every": 1000, "step_gamma": 0.5, "weight_decay": 0, "grad_clip": 1.0,
  *              "init": "", "freeze_encoder": false }
@@ -78,6 +78,7 @@ typedef struct nj_train_config {
     long arc_motion_from;     /* loss.arc_motion (when on) starts at this step; 0 = from the start */
     float rotation_pairs;     /* weight of the rotation lesson (train/loop/step.c); 0 = off */
     float rotation_pairs_deg; /* its copies turned within ± this per axis (data/augment.h) */
+    long rotation_pairs_until;/* the lesson stops at this step; 0 = never */
     /* optimiser */
     float lr, lr_min, step_gamma, weight_decay, grad_clip;
     int warmup_steps, step_every;

@@ -90,7 +90,7 @@ void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_ca
 }
 
 void nj_rotated_copy(nj_rng *r, const float *in, float *out, int w, int h, nj_camera cam, float max_deg,
-                   float rot[3])
+                     float rot[3])
 {
     for (int a = 0; a < 3; a++)
         rot[a] = max_deg > 0 ? (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0) : 0.0f;

@@ -66,6 +66,6 @@ void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_ca
  * clamped to [0, 1]; rot gets the rotation vector drawn (radians).  Draws
  * the rotation (x, y, z), the gain, the σ, then one normal per value. */
 void nj_rotated_copy(nj_rng *r, const float *in, float *out, int w, int h, nj_camera cam, float max_deg,
-                   float rot[3]);
+                     float rot[3]);
 
 #endif

@@ -32,8 +32,9 @@ int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int j
     b->has_partner = calloc(items, sizeof(int));
     b->flipped = calloc(items, sizeof(int));
     b->sample = calloc(items, sizeof(int));
-    if (b->target && b->sources && b->target_in && b->sources_in && (!turn || b->turn) && (!rotated || (b->rotated && b->rotated_by)) && (!stereo || (b->partner && b->partner_in)) &&
-        b->camera && b->stereo_tx && b->has_partner && b->flipped && b->sample)
+    if (b->target && b->sources && b->target_in && b->sources_in && (!turn || b->turn) &&
+        (!rotated || (b->rotated && b->rotated_by)) && (!stereo || (b->partner && b->partner_in)) && b->camera &&
+        b->stereo_tx && b->has_partner && b->flipped && b->sample)
         return 0;
     nj_batch_free(b);
     return -1;

@@ -39,8 +39,8 @@ typedef struct nj_batch {
 /* Allocates every array of a batch of n items at w×h with nsrc temporal
  * sources, partner arrays when `stereo`, separate network-input copies when
  * `jitter` (else they alias the clean images; sources_in is separate when
- * `turn` too), `turn` when `turn` and the rotated copies when `rotated`.  Everything is zeroed.  0, or -1 when
- * out of memory (nothing held). */
+ * `turn` too), `turn` when `turn` and the rotated copies when `rotated`.
+ * Everything is zeroed.  0, or -1 when out of memory (nothing held). */
 int nj_batch_alloc(nj_batch *b, int n, int h, int w, int nsrc, int stereo, int jitter, int turn, int rotated);
 /* Frees what nj_batch_alloc allocated; b is zeroed. */
 void nj_batch_free(nj_batch *b);

@@ -179,7 +179,8 @@ static int check_config(const nj_loader_config *c, int nsamples, char *err, size
     else if (c->start_step < 0) why = "start step must be non-negative";
     else if (!(c->turn_deg >= 0 && c->turn_deg <= NJ_TURN_MAX_DEG && c->roll_deg >= 0 && c->roll_deg <= NJ_TURN_MAX_DEG &&
                c->rotated_deg >= 0 && c->rotated_deg <= NJ_TURN_MAX_DEG)) {
-        snprintf(err, errlen, "loader: turn, roll and the rotated copy's turn must be between 0 and %g degrees", (double)NJ_TURN_MAX_DEG);
+        snprintf(err, errlen, "loader: turn, roll and the rotated copy's turn must be between 0 and %g degrees",
+                 (double)NJ_TURN_MAX_DEG);
         return -1;
     }
     if (why) snprintf(err, errlen, "loader: %s", why);

@@ -165,7 +165,7 @@ int nj_loader_item(const nj_dataset *ds, const nj_sample *s, const nj_loader_con
     if (b->rotated) {
         size_t n = (size_t)3 * b->w * b->h;
         nj_rotated_copy(&r, b->target_in + i * n, b->rotated + i * n, b->w, b->h, b->camera[i], c->rotated_deg,
-                      b->rotated_by + (size_t)i * 3);
+                        b->rotated_by + (size_t)i * 3);
     }
     return 0;
 }

@@ -255,11 +255,13 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
     static const char *const STILL[4] = {"still_pairs", "moving_rotation_error_deg", "still_rotation_deg",
                                          "still_translation_ratio"};
     for (int k = 0; ok && k < 4; k++) {
-        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, STILL[k]), *bv = cJSON_GetObjectItemCaseSensitive(r, STILL[k]);
+        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, STILL[k]);
+        const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, STILL[k]);
         double a = number_of(pose, STILL[k]), b = number_of(r, STILL[k]);
         int same = !av == !bv && (!av || (cJSON_IsNumber(av) && fabs(a - b) <= tol * (1 + fabs(b))));
         if (!same) {
-            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", STILL[k], av ? "" : "(absent) ", a, bv ? "" : "(absent) ", b);
+            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", STILL[k], av ? "" : "(absent) ", a,
+                     bv ? "" : "(absent) ", b);
             ok = 0;
         }
     }

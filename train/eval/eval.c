@@ -365,13 +365,14 @@ static void add_snippets(eval_run *r, const double *c2w, const double *rel, int 
     }
 }
 
-/* Rotation error of every consecutive pair (the pose net's motion against the
- * true one), with the true rotation alongside for scale. */
 static double translation_length(const double *T)
 {
     return sqrt(T[3] * T[3] + T[7] * T[7] + T[11] * T[11]);
 }
 
+/* Rotation error of every consecutive pair (the pose net's motion against the
+ * true one), with the true rotation alongside for scale; the pairs of a
+ * stopped camera and of a moving one apart. */
 static void add_rotation_errors(eval_run *r, const double *c2w, const double *rel, int n)
 {
     double mean_t = 0;

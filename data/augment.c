@@ -89,11 +89,15 @@ void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_ca
         }
 }
 
+float nj_draw_angle(nj_rng *r, float max_deg)
+{
+    return max_deg > 0 ? (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0) : 0.0f;
+}
+
 void nj_rotated_copy(nj_rng *r, const float *in, float *out, int w, int h, nj_camera cam, float max_deg,
                      float rot[3])
 {
-    for (int a = 0; a < 3; a++)
-        rot[a] = max_deg > 0 ? (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0) : 0.0f;
+    for (int a = 0; a < 3; a++) rot[a] = nj_draw_angle(r, max_deg);
     float gain = (float)(1 + (2 * nj_rng_uniform(r) - 1) * NJ_ROTATED_GAIN);
     float sigma = (float)(nj_rng_uniform(r) * NJ_ROTATED_NOISE);
     nj_turn_planes(in, out, 3, w, h, cam, rot);

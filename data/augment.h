@@ -57,6 +57,9 @@ void nj_flip_planes(float *data, int planes, int w, int h);
 #define NJ_TURN_MAX_DEG 10.0f   /* largest turn a config may ask for: far beyond any
                                    frame-to-frame yaw of a ground vehicle at 10 fps */
 void nj_turn_planes(const float *in, float *out, int planes, int w, int h, nj_camera cam, const float rot[3]);
+/* An angle drawn uniformly in ±max_deg degrees, in radians (0, with nothing
+ * drawn, for a range of 0): the turn's and the rotated copy's draws. */
+float nj_draw_angle(nj_rng *r, float max_deg);
 /* The rotated copy's gain is drawn in 1 ± NJ_ROTATED_GAIN and its noise's σ in
  * [0, NJ_ROTATED_NOISE]: the exposure flicker and sensor noise of a stopped
  * fleet camera (the nuisance set's: σ 0.01, issue 18). */

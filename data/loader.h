@@ -37,6 +37,7 @@ typedef struct nj_loader_config {
     int rotated;             /* each item's rotated copy (batch.h `rotated`, augment.h), turned
                                 within ±rotated_deg degrees per axis; drawn after everything else */
     float rotated_deg;       /* (degrees) */
+    long rotated_until;      /* no copies from this step on (the lesson has ended); 0 = never */
     /* Data-parallel shard: the loader yields items [shard_first, shard_first +
      * shard_count) of each step's batch of `batch` items — the same samples and
      * augmentation those items have in an unsharded loader.  shard_count 0:

@@ -7,7 +7,6 @@
 #include "data/augment.h"
 #include "data/framestore.h"
 #include "data/image.h"
-#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -101,11 +100,6 @@ static void flip_item(nj_batch *b, int i, int partner)
     if (partner) nj_flip_planes(b->partner + (size_t)i * 3 * b->w * b->h, 3, b->w, b->h);
 }
 
-static float draw_deg(nj_rng *r, float max_deg)
-{
-    return max_deg > 0 ? (float)((2 * nj_rng_uniform(r) - 1) * max_deg * M_PI / 180.0) : 0.0f;
-}
-
 /* The network-input copy of each source turned by its own yaw and roll,
  * drawn after the flip and jitter parameters (and nothing drawn for a range
  * of 0) so runs without them keep their draws. */
@@ -116,8 +110,8 @@ static void turn_item(nj_rng *r, const nj_loader_config *c, nj_batch *b, int i)
         size_t o = ((size_t)i * b->nsrc + k) * n;
         float *rot = b->turn + ((size_t)i * b->nsrc + k) * 3;
         rot[0] = 0;
-        rot[1] = draw_deg(r, c->turn_deg);
-        rot[2] = draw_deg(r, c->roll_deg);
+        rot[1] = nj_draw_angle(r, c->turn_deg);
+        rot[2] = nj_draw_angle(r, c->roll_deg);
         nj_turn_planes(b->sources + o, b->sources_in + o, 3, b->w, b->h, b->camera[i], rot);
     }
 }
@@ -162,7 +156,7 @@ int nj_loader_item(const nj_dataset *ds, const nj_sample *s, const nj_loader_con
     b->flipped[i] = flip;
     if (b->turn) turn_item(&r, c, b, i);
     if (c->jitter) jitter_item(&j, b, i, b->stereo);
-    if (b->rotated) {
+    if (b->rotated && (c->rotated_until <= 0 || step < c->rotated_until)) {
         size_t n = (size_t)3 * b->w * b->h;
         nj_rotated_copy(&r, b->target_in + i * n, b->rotated + i * n, b->w, b->h, b->camera[i], c->rotated_deg,
                         b->rotated_by + (size_t)i * 3);

@@ -27,6 +27,7 @@
  *    the residual's spread; the unturned or oppositely turned frame fits far
  *    worse.  Everything else the batch holds, and every draw, is what a
  *    loader without it yields; a range beyond NJ_TURN_MAX_DEG is refused;
+ *    from rotated_until on (the lesson over) no copy is made;
  *  - several frame offsets ({1, 3}): each sample carries t−1, t+1, t−3, t+3 in
  *    that order, only targets with room for the largest offset are used, and
  *    the loader's source planes are those frames decoded and resized;
@@ -597,6 +598,15 @@ static void test_rotated_copy(const nj_dataset *ds, const nj_sample *s, int n)
           "loader_rotated_copy_keeps_the_batch", "with the rotated copy the frames, input copies, turns or draws differ");
     nj_loader_destroy(L);
     nj_loader_destroy(plain);
+    /* the lesson over (rotated_until): from that step on no copy is made */
+    with.rotated_until = with.start_step = 1;
+    nj_loader *ended = nj_loader_create(ds, s, n, &with, err, sizeof err);
+    const nj_batch *e = ended ? nj_loader_next(ended, err, sizeof err) : NULL;
+    int blank = e && e->rotated && e->step == 1;
+    for (size_t q = 0; blank && q < m * e->n; q++) blank = e->rotated[q] == 0;
+    for (int q = 0; blank && q < 3 * e->n; q++) blank = e->rotated_by[q] == 0;
+    check(blank, "loader_rotated_copy_ends", "from rotated_until on the copies stay unmade (%s)", e ? "made" : err);
+    nj_loader_destroy(ended);
 }
 
 /* Offsets {1, 3} on the 10-frame sequence (no duplicates skipped): targets

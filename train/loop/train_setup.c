@@ -277,6 +277,7 @@ int nj_trainer_start_loader(nj_trainer *t, char *err, size_t errlen)
     lc.roll_deg = t->cfg.roll_deg;
     lc.rotated = t->cfg.rotation_pairs > 0;
     lc.rotated_deg = t->cfg.rotation_pairs_deg;
+    lc.rotated_until = t->cfg.rotation_pairs_until;
     t->loader = nj_loader_create(&t->ds, t->train, t->ntrain, &lc, err, errlen);
     return t->loader ? 0 : -1;
 }

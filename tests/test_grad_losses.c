@@ -7,6 +7,7 @@
 #include "losses/reproject.h"
 #include "losses/sample.h"
 #include "losses/smooth.h"
+#include "losses/free_space.h"
 #include "losses/view_synthesis.h"
 #include "nn/ops.h"
 #include "tests/check.h"
@@ -112,6 +113,22 @@ static nj_tensor *b_depth(nj_graph *g, nj_tensor *const *in, void *ctx)
     return nj_depth_from_disparity(g, nj_affine(g, in[0], 0.45f, 0.5f), (nj_depth_range){0.5f, 20.0f});
 }
 
+/* Disparity 0.1 + 0.02·input in a 0.5–20 m range: inverse depth 0.206–0.284.
+ * Bounds by pixel: none, 0.15 (never reached) or 0.4 (always beyond): no pixel
+ * near the hinge's kink (nor at ±eps), both sides and unbounded pixels present. */
+static nj_tensor *b_free_space(nj_graph *g, nj_tensor *const *in, void *ctx)
+{
+    (void)ctx;
+    nj_tensor *x = in[0];
+    size_t k = nj_numel(x);
+    float *bound = nj_graph_alloc(g, sizeof(float) * k);
+    if (!bound) return NULL;
+    for (size_t i = 0; i < k; i++) bound[i] = i % 3 == 0 ? 0.0f : (i % 3 == 1 ? 0.15f : 0.4f);
+    /* ×100: the per-pixel gradients (~span/(bound·K)·0.02) would sit near the default atol */
+    return nj_affine(g, nj_free_space_loss(g, nj_affine(g, x, 0.02f, 0.1f), (nj_depth_range){0.5f, 20.0f}, bound, NULL),
+                     100.0f, 0.0f);
+}
+
 static nj_tensor *b_arc_slip(nj_graph *g, nj_tensor *const *in, void *ctx)
 {
     (void)ctx;
@@ -142,6 +159,8 @@ static void grad_checks(void)
     gradcheck("grad edge-aware smoothness", b_smooth, NULL, &sh);
     gc_spec dd = {.nin = 1, .shape = {{2, 1, 5, 4}}, .seed = 10};
     gradcheck("grad disparity to depth", b_depth, NULL, &dd);
+    gc_spec fs = {.nin = 1, .shape = {{2, 1, 5, 6}}, .eps = 1e-2f, .seed = 11};
+    gradcheck("grad free-space hinge", b_free_space, NULL, &fs);
 }
 
 static void warp_check(void)

@@ -8,6 +8,7 @@
  * losses_ref.py says so: those parts check the code against its specification,
  * not against a publication. */
 #include "nn/geom/camera.h"
+#include "losses/free_space.h"
 #include "losses/photometric.h"
 #include "losses/pose.h"
 #include "losses/reproject.h"
@@ -302,6 +303,64 @@ static void test_rays(nj_graph *g)
     ref_rmtree(dir);
 }
 
+/* The free-space hinge's bounds (nj_ground_bound) against OpenCV's rays
+ * intersected with two ground planes, and its value and gradient against
+ * PyTorch autograd of the same formula. */
+static void test_free_space(nj_graph *g)
+{
+    const char *name = "free-space bounds and hinge vs OpenCV rays and PyTorch";
+    char dir[4096];
+    if (losses_ref_run("free_space", dir, sizeof dir, name)) return;
+    nj_graph_reset(g);
+    nj_tensor *pl = losses_ref_tensor(g, dir, "planes", 0), *bd = losses_ref_tensor(g, dir, "bound", 0);
+    nj_tensor *disp = losses_ref_tensor(g, dir, "disp", 1), *lv = losses_ref_tensor(g, dir, "loss", 0);
+    nj_tensor *gr = losses_ref_tensor(g, dir, "grad", 0), *cm = losses_ref_tensor(g, dir, "camera", 0);
+    if (!pl || !bd || !disp || !lv || !gr || !cm) {
+        ref_rmtree(dir);
+        return;
+    }
+    const float *c = cm->data;
+    nj_camera cam = {c[0], c[1], c[2], c[3]};
+    int W = (int)c[4], H = (int)c[5];
+    size_t k = (size_t)W * H;
+    float bound[2 * 20 * 12], rays[2 * 20 * 12];
+    if (disp->n != 2 || k != 20 * 12 || disp->h != H || disp->w != W) {
+        check(0, name, "reference shapes differ from the test's (%dx%d)", W, H);
+        ref_rmtree(dir);
+        return;
+    }
+    double worst = 0, big = 0;
+    int bounded = 0;
+    for (int i = 0; i < 2; i++) {
+        const double n[3] = {pl->data[4 * i], pl->data[4 * i + 1], pl->data[4 * i + 2]};
+        nj_ground_bound(n, pl->data[4 * i + 3], cam, W, H, c[6], rays, bound + i * k);
+    }
+    for (size_t p = 0; p < 2 * k; p++) {
+        worst = fmax(worst, fabs(bound[p] - bd->data[p]));
+        big = fmax(big, bd->data[p]);
+        bounded += bd->data[p] > 0;
+    }
+    check(worst <= 1e-6 * big && bounded > 0 && bounded < (int)(2 * k), "free-space bounds vs OpenCV rays",
+          "largest difference %.2e (largest bound %.3g; %d of %zu pixels bounded)", worst, big, bounded, 2 * k);
+    float share = -1;
+    nj_tensor *l = nj_free_space_loss(g, disp, (nj_depth_range){c[7], c[8]}, bd->data, &share);
+    if (!l || nj_backward(g, l)) {
+        check(0, name, "%s", nj_graph_error(g));
+        ref_rmtree(dir);
+        return;
+    }
+    double gw = 0, gmax = 0;
+    for (size_t p = 0; p < 2 * k; p++) {
+        gw = fmax(gw, fabs(disp->grad[p] - gr->data[p]));
+        gmax = fmax(gmax, fabs(gr->data[p]));
+    }
+    checkv(fabs(l->data[0] - lv->data[0]) <= 1e-5 * lv->data[0] && fabs(share - lv->data[1]) < 1e-6 &&
+               lv->data[1] > 0.1 && lv->data[1] < 0.9 && gw <= 1e-5 * gmax,
+           "free-space hinge vs PyTorch autograd", "loss %.6f vs %.6f, share beyond %.4f vs %.4f, largest gradient "
+           "difference %.2e (largest %.2e)", l->data[0], lv->data[0], share, lv->data[1], gw, gmax);
+    ref_rmtree(dir);
+}
+
 int main(void)
 {
     nj_threads_init(0);
@@ -314,6 +373,7 @@ int main(void)
     test_motorcycle(g);
     test_camera(g);
     test_rays(g);
+    test_free_space(g);
     nj_graph_free(g);
     return test_exit();
 }

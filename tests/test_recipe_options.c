@@ -49,14 +49,24 @@
  *    the answer.  That a frame turned by ρ is explained by the pose with
  *    rotation vector ρ is the turn check above.  The translation outputs get
  *    no gradient from the lesson (a step with it minus one without).
+ *  - loss.free_space: a predicted scene of flat ground seen by a camera 1.2
+ *    units up and pitched 5° down, a box standing on it (nearer than the
+ *    ground behind it) and a patch placed at twice the ground's depth (beyond
+ *    it): the bounds from the prediction's own ground plane
+ *    (nj_free_space_bounds) match the true ground's inverse depth / 1.1 on
+ *    the ground, the patch's pixels and only they are beyond, and the
+ *    hinge's gradient pulls them nearer (larger disparity); a uniform far
+ *    prediction (the network's start) gets no plane and no bound.
  */
 #include "data/augment.h"
+#include "losses/free_space.h"
 #include "losses/pose.h"
 #include "losses/view_synthesis.h"
 #include "nn/graph.h"
 #include "tests/check.h"
 #include "train/loop/config.h"
 #include "train/loop/step.h"
+#include "train/loop/free_space.h"
 #include "train/model/model.h"
 #include "train/model/infer.h"
 #include <math.h>
@@ -661,6 +671,57 @@ static void test_pose_norm(void)
           "item 0 rotation x %.9g vs %.9g", b1[0], b2[0]);
 }
 
+static void test_free_space(void)
+{
+    const nj_depth_range r = {0.1f, 100.0f};
+    const nj_camera cam = {40.0f, 40.0f, 31.5f, 15.5f};
+    const double th = 5.0 * M_PI / 180, h = 1.2, n[3] = {0, cos(th), sin(th)};
+    nj_graph *g = nj_graph_new(1 << 20);
+    nj_tensor *d = nj_tensor_new(g, 2, 1, H, W, 1);
+    float zg[H * W], bound[2 * H * W], scratch[3 * H * W];
+    int ground = 0, hole = 0;
+    for (int v = 0; v < H; v++)
+        for (int u = 0; u < W; u++) {
+            int p = v * W + u;
+            double nd = n[1] * (v - cam.cy) / cam.fy + n[2];
+            zg[p] = nd > 0 ? (float)(h / nd) : 0.0f;
+            float z = nd > 0 && zg[p] < 60 ? zg[p] : 60.0f;                     /* ground, far wall */
+            if (v >= 18 && u >= 40 && u < 50) z = 0.6f * z;                        /* the box */
+            if (v >= 24 && v < 28 && u >= 10 && u < 20) z = 2.0f * zg[p], hole++;  /* beyond the ground */
+            ground += nd > 0 && zg[p] < 60 && z == zg[p];
+            d->data[p] = nj_disparity_from_depth_value(z, r);
+            d->data[H * W + p] = nj_disparity_from_depth_value(9.0f, r);      /* the uniform start */
+        }
+    nj_camera cams[2] = {cam, cam};
+    int planes = nj_free_space_bounds(d, r, cams, 0.1f, scratch, bound);
+    double worst = 0, unbounded = 0;
+    for (int p = 0; p < H * W; p++) {
+        int v = p / W, u = p % W;
+        int on_ground = zg[p] > 0 && zg[p] < 60 && !(v >= 18 && u >= 40 && u < 50) && !(v >= 24 && v < 28 && u >= 10 && u < 20);
+        if (on_ground) worst = fmax(worst, fabs(bound[p] * zg[p] * 1.1 - 1.0));
+        unbounded = fmax(unbounded, bound[H * W + p]);
+    }
+    check(planes == 1 && worst < 0.01 && unbounded == 0, "free space: bounds from the prediction's own ground plane",
+          "%d of 2 items with a plane (want 1: the uniform one has none), largest relative error of a ground bound "
+          "%.4f (%d ground pixels), largest bound of the uniform item %g", planes, worst, ground, unbounded);
+    float share = -1;
+    nj_tensor *l = nj_free_space_loss(g, d, r, bound, &share);
+    int bounded = 0, pulled = 1, others = 1;
+    for (int p = 0; p < H * W; p++) bounded += bound[p] > 0;
+    if (l && !nj_backward(g, l))
+        for (int p = 0; p < H * W; p++) {
+            int v = p / W, u = p % W, in_hole = v >= 24 && v < 28 && u >= 10 && u < 20;
+            if (in_hole) pulled &= d->grad[p] < 0;   /* descent raises the disparity: nearer */
+            else others &= d->grad[p] == 0;
+        }
+    else check(0, "free space: hinge", "%s", nj_graph_error(g));
+    checkv(fabsf(share - (float)hole / (float)bounded) < 1e-6f && pulled && others,
+           "free space: the patch beyond the ground and only it is pulled nearer",
+           "share beyond %.4f (patch %d of %d bounded pixels), every patch gradient negative %d, all others 0 %d",
+           share, hole, bounded, pulled, others);
+    nj_graph_free(g);
+}
+
 int main(void)
 {
     test_pose_norm();
@@ -675,5 +736,6 @@ int main(void)
     test_step_config();
     test_rotation_scale();
     test_gain_match();
+    test_free_space();
     return test_exit();
 }

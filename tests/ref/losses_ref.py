@@ -45,6 +45,11 @@ Every reference value comes from a library this project did not write:
   rays        OpenCV undistortPoints (no distortion) of every pixel centre of a 24x14
               image: the normalised image coordinates K^-1 [u v 1] the pose net's ray
               channels hold (nj_camera_rays).
+  free_space  the ground's inverse depth along every pixel's ray (OpenCV undistortPoints rays,
+              ray-plane intersection z = dist / (n . d)) for two planes, and the free-space
+              hinge mean(max(0, 1 - q / b)) over bounded pixels with its gradient by PyTorch
+              autograd (the hinge is nightjar's own formula, losses/free_space.h: this checks
+              the code against that specification).
   motorcycle  the Middlebury 2014 "motorcycle" stereo pair with ground-truth disparity
               (Scharstein et al. 2014) as shipped by scikit-image (data.stereo_motorcycle).
 Inputs and results are exchanged as float32 .npy files in OUTDIR.
@@ -277,6 +282,42 @@ def mode_rays(out):
     save(out, "rays", n.transpose(2, 0, 1)[None])
 
 
+def mode_free_space(out):
+    """Bounds from two ground planes and the hinge's value and gradient."""
+    import cv2
+    import torch
+    W, H, margin, near, far = 20, 12, 0.1, 0.1, 100.0
+    K = np.array([[16.0, 0, 9.3], [0, 14.5, 5.2], [0, 0, 1]], dtype=np.float64)
+    vv, uu = np.mgrid[0:H, 0:W].astype(np.float64)
+    pts = np.stack([uu.ravel(), vv.ravel()], axis=1).reshape(-1, 1, 2)
+    rays = cv2.undistortPoints(pts, K, None).reshape(H * W, 2)
+    d = np.concatenate([rays, np.ones((H * W, 1))], axis=1)
+    planes = []
+    for pitch, roll, dist in ((0.15, 0.02, 1.3), (-0.05, -0.1, 0.7)):
+        n = np.array([np.sin(roll), np.cos(roll) * np.cos(pitch), np.cos(roll) * np.sin(pitch)])
+        planes.append(list(n) + [dist])
+    planes = np.array(planes)
+    bound = np.zeros((2, 1, H, W))
+    for i, p in enumerate(planes):
+        nd = d @ p[:3]
+        z = np.where(nd > 0, p[3] / np.where(nd > 0, nd, 1), np.inf)   # the ground's z-depth
+        bound[i, 0] = np.where(nd > 0, 1.0 / (z * (1 + margin)), 0.0).reshape(H, W)
+    rng = np.random.default_rng(5)
+    disp = rng.uniform(0.0, 0.08, size=(2, 1, H, W))
+    s_t = torch.tensor(disp, dtype=torch.float64, requires_grad=True)
+    b_t = torch.tensor(bound, dtype=torch.float64)
+    q = 1.0 / far + (1.0 / near - 1.0 / far) * s_t
+    m = b_t > 0
+    loss = torch.clamp(1 - q[m] / b_t[m], min=0).mean()
+    loss.backward()
+    save(out, "planes", planes)
+    save(out, "bound", bound)
+    save(out, "disp", disp)
+    save(out, "loss", np.array([loss.item(), float((q[m] < b_t[m]).double().mean().item())]))
+    save(out, "grad", s_t.grad.numpy())
+    save(out, "camera", np.array([K[0, 0], K[1, 1], K[0, 2], K[1, 2], W, H, margin, near, far]))
+
+
 def main():
     if len(sys.argv) != 2 or ":" not in sys.argv[1]:
         sys.exit("usage: losses_ref.py MODE:OUTDIR")
@@ -284,7 +325,7 @@ def main():
     modes = {"ssim": mode_ssim, "sample": mode_sample, "rotation": mode_rotation,
              "vsloss": mode_vsloss,
              "vsloss_guard": lambda out: mode_vsloss(out, 0.05), "camera": mode_camera, "motorcycle": mode_motorcycle,
-             "rays": mode_rays}
+             "rays": mode_rays, "free_space": mode_free_space}
     if mode not in modes:
         sys.exit("losses_ref.py: unknown mode %s" % mode)
     modes[mode](out)

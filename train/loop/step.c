@@ -1,6 +1,8 @@
 /* train/loop/step.c — the training recipe for one batch (see step.h). */
 #include "train/loop/step.h"
 #include "losses/pose.h"
+#include "losses/free_space.h"
+#include "train/loop/free_space.h"
 #include <math.h>
 #include <string.h>
 
@@ -128,6 +130,19 @@ static int add_stereo(nj_graph *g, const nj_batch *b, nj_vs_input *in)
     return nj_graph_failed(g) ? -1 : 0;
 }
 
+/* The free-space hinge (losses/free_space.h) on the scale-0 disparity, bounded
+ * by each item's own ground plane (train/loop/free_space.h). */
+static nj_tensor *free_space_term(nj_graph *g, const nj_vs_input *in, float margin, float *share)
+{
+    nj_tensor *d = in->disp[0];
+    size_t plane = (size_t)d->h * d->w;
+    float *bound = nj_graph_alloc(g, sizeof(float) * (size_t)d->n * plane);
+    float *scratch = nj_graph_alloc(g, sizeof(float) * plane * 3);
+    if (!bound || !scratch) return nj_graph_fail(g, "free_space: out of memory");
+    nj_free_space_bounds(d, in->depth_range, in->cams, margin, scratch, bound);
+    return nj_free_space_loss(g, d, in->depth_range, bound, share);
+}
+
 static float saturation_share(const nj_tensor *d)
 {
     size_t k = nj_numel(d), s = 0;
@@ -156,7 +171,7 @@ const nj_train_config *nj_step_config(const nj_train_config *cfg, long step, nj_
 void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES])
 {
     float *f[NJ_STEP_FIGURES] = {&r->loss, &r->photometric, &r->smoothness, &r->mask_fraction, &r->saturated,
-                                 &r->translation, &r->rotation_lesson};
+                                 &r->translation, &r->rotation_lesson, &r->free_space};
     memcpy(out, f, sizeof f);
 }
 
@@ -188,6 +203,11 @@ int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj
         if (!st) return -1;
         r->rotation_lesson = st->data[0];
         out.total = nj_add(g, out.total, nj_affine(g, st, cfg->rotation_pairs, 0.0f));
+    }
+    if (cfg->free_space > 0) {
+        nj_tensor *fs = free_space_term(g, &in, cfg->free_space_margin, &r->free_space);
+        if (!fs) return -1;
+        out.total = nj_add(g, out.total, nj_affine(g, fs, cfg->free_space, 0.0f));
     }
     if (nj_graph_failed(g)) return -1;
     r->loss = out.total->data[0];

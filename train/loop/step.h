@@ -13,14 +13,15 @@ typedef struct nj_step_result {
     float saturated;            /* share of scale-0 sigmoid outputs within 0.001 of 0 or 1 */
     float translation;          /* mean |t| of the predicted poses (0 without video) */
     float rotation_lesson;      /* the rotation lesson's error (loss.rotation_pairs; 0 when off) */
+    float free_space;           /* share of bounded pixels beyond the ground (loss.free_space; 0 when off) */
     nj_tensor *disp0;           /* scale-0 disparity (arena; valid until the next reset) */
     nj_tensor *automask, *error;
 } nj_step_result;
 
 /* The loss figures of r that data-parallel shares average (loss,
- * photometric, smoothness, mask_fraction, saturated, translation, rotation_lesson):
- * pointers into r, NJ_STEP_FIGURES of them. */
-enum { NJ_STEP_FIGURES = 7 };
+ * photometric, smoothness, mask_fraction, saturated, translation, rotation_lesson,
+ * free_space): pointers into r, NJ_STEP_FIGURES of them. */
+enum { NJ_STEP_FIGURES = 8 };
 
 /* Arena chunk size of a training step's graph (and of each replica's, train/loop/step_replicas.h). */
 #define NJ_STEP_ARENA_CHUNK ((size_t)64 << 20)

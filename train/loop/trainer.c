@@ -137,6 +137,8 @@ static void log_step(nj_trainer *t, const nj_step_result *r, float lr, double ip
                  f->depth_p50);
     if (t->cfg.rotation_pairs > 0 && strlen(line) > 1)
         snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1, ",\"rotation_lesson\":%.4g}", r->rotation_lesson);
+    if (t->cfg.free_space > 0 && strlen(line) > 1)
+        snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1, ",\"beyond_ground\":%.4g}", r->free_space);
     nj_runlog_json(&t->log, line);
 }
 

@@ -60,14 +60,14 @@ nj_tensor *nj_free_space_loss(nj_graph *g, nj_tensor *disp, nj_depth_range r, co
     return out;
 }
 
-void nj_ground_bound(const double n[3], double dist, nj_camera cam, int w, int h, float margin, float *rays,
-                     float *bound)
+void nj_ground_bound(const double n[3], double dist, nj_camera cam, int w, int h, float margin, float reach,
+                     float *rays, float *bound)
 {
     size_t k = (size_t)w * h;
     float *rx = rays, *ry = rays + k;
     nj_camera_rays(cam, w, h, rx, ry);
     for (size_t p = 0; p < k; p++) {
         double nd = n[0] * rx[p] + n[1] * ry[p] + n[2];
-        bound[p] = nd > 0 && dist > 0 ? (float)(nd / (dist * (1.0 + margin))) : 0.0f;
+        bound[p] = dist > 0 && nd > 0 && nd * reach >= 1.0 ? (float)(nd / (dist * (1.0 + margin))) : 0.0f;
     }
 }

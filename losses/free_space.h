@@ -33,10 +33,13 @@ nj_tensor *nj_free_space_loss(nj_graph *g, nj_tensor *disp, nj_depth_range r, co
 /* The bounds of one w×h image from a ground plane {X : n·X = dist} (|n| = 1,
  * n pointing from the camera to the plane, dist > 0, in the prediction's
  * units): a pixel whose ray d = K⁻¹[u v 1]ᵀ meets the plane in front of the
- * camera (n·d > 0) has the ground at z-depth dist/(n·d) along it, and the
- * bound (n·d)/(dist·(1 + margin)); others get 0.  rays: scratch of 2·w·h
- * floats. */
-void nj_ground_bound(const double n[3], double dist, nj_camera cam, int w, int h, float margin, float *rays,
-                     float *bound);
+ * camera within `reach` plane distances (0 < dist/(n·d) ≤ reach·dist, the
+ * ground's z-depth along the ray) gets the bound (n·d)/(dist·(1 + margin));
+ * others get 0.  Towards the horizon the ground's depth changes fast from
+ * row to row, so a plane fitted a little tilted would bound far structure
+ * wrongly there (measured: the 6–20 m bands pulled in); `reach` keeps the
+ * bound to the near field.  rays: scratch of 2·w·h floats. */
+void nj_ground_bound(const double n[3], double dist, nj_camera cam, int w, int h, float margin, float reach,
+                     float *rays, float *bound);
 
 #endif

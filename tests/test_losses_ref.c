@@ -333,7 +333,7 @@ static void test_free_space(nj_graph *g)
     int bounded = 0;
     for (int i = 0; i < 2; i++) {
         const double n[3] = {pl->data[4 * i], pl->data[4 * i + 1], pl->data[4 * i + 2]};
-        nj_ground_bound(n, pl->data[4 * i + 3], cam, W, H, c[6], rays, bound + i * k);
+        nj_ground_bound(n, pl->data[4 * i + 3], cam, W, H, c[6], c[9], rays, bound + i * k);
     }
     for (size_t p = 0; p < 2 * k; p++) {
         worst = fmax(worst, fabs(bound[p] - bd->data[p]));

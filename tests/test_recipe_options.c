@@ -54,7 +54,8 @@
  *    ground behind it) and a patch placed at twice the ground's depth (beyond
  *    it): the bounds from the prediction's own ground plane
  *    (nj_free_space_bounds) match the true ground's inverse depth / 1.1 on
- *    the ground, the patch's pixels and only they are beyond, and the
+ *    the ground within 8 camera heights and are 0 beyond (loss.free_space_reach),
+ *    the patch's pixels and only they are beyond the ground, and the
  *    hinge's gradient pulls them nearer (larger disparity); a uniform far
  *    prediction (the network's start) gets no plane and no bound.
  */
@@ -679,7 +680,7 @@ static void test_free_space(void)
     nj_graph *g = nj_graph_new(1 << 20);
     nj_tensor *d = nj_tensor_new(g, 2, 1, H, W, 1);
     float zg[H * W], bound[2 * H * W], scratch[3 * H * W];
-    int ground = 0, hole = 0;
+    int hole = 0;
     for (int v = 0; v < H; v++)
         for (int u = 0; u < W; u++) {
             int p = v * W + u;
@@ -688,22 +689,25 @@ static void test_free_space(void)
             float z = nd > 0 && zg[p] < 60 ? zg[p] : 60.0f;                     /* ground, far wall */
             if (v >= 18 && u >= 40 && u < 50) z = 0.6f * z;                        /* the box */
             if (v >= 24 && v < 28 && u >= 10 && u < 20) z = 2.0f * zg[p], hole++;  /* beyond the ground */
-            ground += nd > 0 && zg[p] < 60 && z == zg[p];
             d->data[p] = nj_disparity_from_depth_value(z, r);
             d->data[H * W + p] = nj_disparity_from_depth_value(9.0f, r);      /* the uniform start */
         }
     nj_camera cams[2] = {cam, cam};
-    int planes = nj_free_space_bounds(d, r, cams, 0.1f, scratch, bound);
-    double worst = 0, unbounded = 0;
+    int planes = nj_free_space_bounds(d, r, cams, 0.1f, 8.0f, scratch, bound);
+    double worst = 0, unbounded = 0, beyond_reach = 0;
+    int near = 0, far = 0;
     for (int p = 0; p < H * W; p++) {
         int v = p / W, u = p % W;
         int on_ground = zg[p] > 0 && zg[p] < 60 && !(v >= 18 && u >= 40 && u < 50) && !(v >= 24 && v < 28 && u >= 10 && u < 20);
-        if (on_ground) worst = fmax(worst, fabs(bound[p] * zg[p] * 1.1 - 1.0));
+        if (on_ground && zg[p] < 0.95 * 8 * h) worst = fmax(worst, fabs(bound[p] * zg[p] * 1.1 - 1.0)), near++;
+        if (on_ground && zg[p] > 1.05 * 8 * h) beyond_reach = fmax(beyond_reach, bound[p]), far++;
         unbounded = fmax(unbounded, bound[H * W + p]);
     }
-    check(planes == 1 && worst < 0.01 && unbounded == 0, "free space: bounds from the prediction's own ground plane",
+    check(planes == 1 && worst < 0.01 && near > 100 && far > 100 && beyond_reach == 0 && unbounded == 0,
+          "free space: bounds from the prediction's own ground plane, within the reach",
           "%d of 2 items with a plane (want 1: the uniform one has none), largest relative error of a ground bound "
-          "%.4f (%d ground pixels), largest bound of the uniform item %g", planes, worst, ground, unbounded);
+          "%.4f (%d ground pixels within 8 heights), largest bound beyond the reach %g (%d pixels), of the uniform "
+          "item %g", planes, worst, near, beyond_reach, far, unbounded);
     float share = -1;
     nj_tensor *l = nj_free_space_loss(g, d, r, bound, &share);
     int bounded = 0, pulled = 1, others = 1;

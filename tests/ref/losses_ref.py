@@ -46,7 +46,8 @@ Every reference value comes from a library this project did not write:
               image: the normalised image coordinates K^-1 [u v 1] the pose net's ray
               channels hold (nj_camera_rays).
   free_space  the ground's inverse depth along every pixel's ray (OpenCV undistortPoints rays,
-              ray-plane intersection z = dist / (n . d)) for two planes, and the free-space
+              ray-plane intersection z = dist / (n . d), bounded where z <= reach . dist) for
+              two planes, and the free-space
               hinge mean(max(0, 1 - q / b)) over bounded pixels with its gradient by PyTorch
               autograd (the hinge is nightjar's own formula, losses/free_space.h: this checks
               the code against that specification).
@@ -286,7 +287,7 @@ def mode_free_space(out):
     """Bounds from two ground planes and the hinge's value and gradient."""
     import cv2
     import torch
-    W, H, margin, near, far = 20, 12, 0.1, 0.1, 100.0
+    W, H, margin, near, far, reach = 20, 12, 0.1, 0.1, 100.0, 6.0
     K = np.array([[16.0, 0, 9.3], [0, 14.5, 5.2], [0, 0, 1]], dtype=np.float64)
     vv, uu = np.mgrid[0:H, 0:W].astype(np.float64)
     pts = np.stack([uu.ravel(), vv.ravel()], axis=1).reshape(-1, 1, 2)
@@ -301,7 +302,7 @@ def mode_free_space(out):
     for i, p in enumerate(planes):
         nd = d @ p[:3]
         z = np.where(nd > 0, p[3] / np.where(nd > 0, nd, 1), np.inf)   # the ground's z-depth
-        bound[i, 0] = np.where(nd > 0, 1.0 / (z * (1 + margin)), 0.0).reshape(H, W)
+        bound[i, 0] = np.where((nd > 0) & (z <= reach * p[3]), 1.0 / (z * (1 + margin)), 0.0).reshape(H, W)
     rng = np.random.default_rng(5)
     disp = rng.uniform(0.0, 0.08, size=(2, 1, H, W))
     s_t = torch.tensor(disp, dtype=torch.float64, requires_grad=True)
@@ -315,7 +316,7 @@ def mode_free_space(out):
     save(out, "disp", disp)
     save(out, "loss", np.array([loss.item(), float((q[m] < b_t[m]).double().mean().item())]))
     save(out, "grad", s_t.grad.numpy())
-    save(out, "camera", np.array([K[0, 0], K[1, 1], K[0, 2], K[1, 2], W, H, margin, near, far]))
+    save(out, "camera", np.array([K[0, 0], K[1, 1], K[0, 2], K[1, 2], W, H, margin, near, far, reach]))
 
 
 def main():

@@ -71,6 +71,7 @@ const nj_config_field nj_config_fields[] = {
     F("loss", "rotation_pairs_until_step", NJ_F_LONG, rotation_pairs_until, 0, 1e12, 0, 0),
     F("loss", "free_space", NJ_F_FLOAT, free_space, 0, 100, 0, 0),
     F("loss", "free_space_margin", NJ_F_FLOAT, free_space_margin, 0, 10, 0, 0),
+    F("loss", "free_space_reach", NJ_F_FLOAT, free_space_reach, 1, 1000, 0, 0),
     F("loss", "saturation_guard", NJ_F_FLOAT, loss.saturation_guard, 0, 100, 0, 0),
     F("optim", "lr", NJ_F_FLOAT, lr, 0, 1, 1, 0),
     F("optim", "lr_min", NJ_F_FLOAT, lr_min, 0, 1, 0, 0),
@@ -118,6 +119,7 @@ void nj_train_config_default(nj_train_config *c)
     c->flip = 0.5f;
     c->rotation_pairs_deg = 1.0f;
     c->free_space_margin = 0.1f;
+    c->free_space_reach = 8.0f;
     nj_model_config_default(&c->model);
     c->model.seed = c->seed;
     nj_vs_config_default(&c->loss);

@@ -6,7 +6,7 @@
 #include <string.h>
 
 int nj_free_space_bounds(const nj_tensor *disp, nj_depth_range r, const nj_camera *cams, float margin,
-                         float *scratch, float *bound)
+                         float reach, float *scratch, float *bound)
 {
     int N = disp->n, H = disp->h, W = disp->w, planes = 0;
     size_t plane = (size_t)H * W;
@@ -22,7 +22,7 @@ int nj_free_space_bounds(const nj_tensor *disp, nj_depth_range r, const nj_camer
         nj_plane pl;
         char why[128];
         if (k > 0 && nj_plane_fit(xyz, k, &o, &pl, why, sizeof why) == 0 && pl.dist > 0) {
-            nj_ground_bound(pl.n, pl.dist, cams[n], W, H, margin, rays, bn);
+            nj_ground_bound(pl.n, pl.dist, cams[n], W, H, margin, reach, rays, bn);
             planes++;
         }
         free(xyz);

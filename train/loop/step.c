@@ -132,14 +132,14 @@ static int add_stereo(nj_graph *g, const nj_batch *b, nj_vs_input *in)
 
 /* The free-space hinge (losses/free_space.h) on the scale-0 disparity, bounded
  * by each item's own ground plane (train/loop/free_space.h). */
-static nj_tensor *free_space_term(nj_graph *g, const nj_vs_input *in, float margin, float *share)
+static nj_tensor *free_space_term(nj_graph *g, const nj_vs_input *in, float margin, float reach, float *share)
 {
     nj_tensor *d = in->disp[0];
     size_t plane = (size_t)d->h * d->w;
     float *bound = nj_graph_alloc(g, sizeof(float) * (size_t)d->n * plane);
     float *scratch = nj_graph_alloc(g, sizeof(float) * plane * 3);
     if (!bound || !scratch) return nj_graph_fail(g, "free_space: out of memory");
-    nj_free_space_bounds(d, in->depth_range, in->cams, margin, scratch, bound);
+    nj_free_space_bounds(d, in->depth_range, in->cams, margin, reach, scratch, bound);
     return nj_free_space_loss(g, d, in->depth_range, bound, share);
 }
 
@@ -205,7 +205,7 @@ int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj
         out.total = nj_add(g, out.total, nj_affine(g, st, cfg->rotation_pairs, 0.0f));
     }
     if (cfg->free_space > 0) {
-        nj_tensor *fs = free_space_term(g, &in, cfg->free_space_margin, &r->free_space);
+        nj_tensor *fs = free_space_term(g, &in, cfg->free_space_margin, cfg->free_space_reach, &r->free_space);
         if (!fs) return -1;
         out.total = nj_add(g, out.total, nj_affine(g, fs, cfg->free_space, 0.0f));
     }

@@ -358,6 +358,14 @@ static void test_step_config(void)
     check(on && over && endless, "step config: the rotation lesson until rotation_pairs_until_step (0: to the end)",
           "on at step 799 %d, off from step 800 (the rest kept, the config untouched) %d, never off with 0 %d", on, over,
           endless);
+    c.rotation_pairs = 0.0f;
+    c.free_space = 1.0f;
+    c.free_space_from = 500;
+    a = nj_step_config(&c, 499, &tmp);
+    int waits = a->free_space == 0.0f && a->loss.automask == 1 && c.free_space == 1.0f;
+    int starts = nj_step_config(&c, 500, &tmp) == &c;
+    check(waits && starts, "step config: the free-space hinge from free_space_from_step",
+          "off at step 499 (the rest kept, the config untouched) %d, on from step 500 %d", waits, starts);
 }
 
 /* A small model (3 stages and scales, width 0.5, seed 9) of cfg's kind with

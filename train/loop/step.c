@@ -160,11 +160,13 @@ const nj_train_config *nj_step_config(const nj_train_config *cfg, long step, nj_
     int mask_waits = cfg->loss.automask && step < cfg->automask_from;
     int arc_waits = cfg->loss.arc_motion > 0 && step < cfg->arc_motion_from;
     int lesson_over = cfg->rotation_pairs > 0 && cfg->rotation_pairs_until > 0 && step >= cfg->rotation_pairs_until;
-    if (!mask_waits && !arc_waits && !lesson_over) return cfg;
+    int free_waits = cfg->free_space > 0 && step < cfg->free_space_from;
+    if (!mask_waits && !arc_waits && !lesson_over && !free_waits) return cfg;
     *tmp = *cfg;
     if (mask_waits) tmp->loss.automask = 0;
     if (arc_waits) tmp->loss.arc_motion = 0;
     if (lesson_over) tmp->rotation_pairs = 0;
+    if (free_waits) tmp->free_space = 0;
     return tmp;
 }
 

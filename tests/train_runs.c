@@ -251,10 +251,12 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
             ok = 0;
         }
     }
-    /* the stopped-camera figures: present on both sides or on neither */
-    static const char *const STILL[4] = {"still_pairs", "moving_rotation_error_deg", "still_rotation_deg",
-                                         "still_translation_ratio"};
-    for (int k = 0; ok && k < 4; k++) {
+    /* the stopped- and moving-camera figures: present on both sides or on neither */
+    static const char *const STILL[8] = {"still_pairs", "moving_rotation_error_deg", "still_rotation_deg",
+                                         "still_translation_ratio", "heading_error_deg",
+                                         "heading_elevation_mean_error_deg", "heading_elevation_true_mean_deg",
+                                         "heading_azimuth_mean_error_deg"};
+    for (int k = 0; ok && k < 8; k++) {
         const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, STILL[k]);
         const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, STILL[k]);
         double a = number_of(pose, STILL[k]), b = number_of(r, STILL[k]);

@@ -31,13 +31,20 @@ Stopped camera: the pairs whose true translation is below 2% of their
 sequence's mean true translation (np.linalg.norm); over them the mean
 predicted rotation angle and the mean predicted translation length divided
 by the mean over the other (moving) pairs, whose mean rotation error is
-reported apart.
+reported apart.  Heading of the moving pairs: camera i + 1's centre in
+camera i's frame, c = -R^T t (x right, y down, z forward), for the predicted
+and the true motion; the mean angle between them (np.arccos of the
+normalised dot product, clipped), and the mean errors of the elevation
+np.arctan2(-c_y, hypot(c_x, c_z)) and the azimuth np.arctan2(c_x, c_z),
+with the true elevation's mean, degrees.
 
 Writes OUT.json: {"ate", "ate_std", "rmse", "scale_mean", "snippets",
 "rotation_error_deg", "rotation_true_deg", "pairs", and for AXIS in pitch,
 yaw, roll: "AXIS_mean_error_deg", "AXIS_rms_error_deg", "AXIS_true_rms_deg",
 "AXIS_true_mean_deg", "AXIS_slope", "AXIS_correlation"}
-plus "still_pairs", "moving_rotation_error_deg", and where there are still
+plus "still_pairs", "moving_rotation_error_deg", "heading_error_deg",
+"heading_elevation_mean_error_deg", "heading_elevation_true_mean_deg",
+"heading_azimuth_mean_error_deg", and where there are still
 pairs "still_rotation_deg", "still_translation_ratio" (metrics.json's keys).
 """
 import json
@@ -65,6 +72,7 @@ def main():
     desc = json.load(open(dpath))
     ates, rmses, scales, rot_err, rot_true, vec_err, vec_true = [], [], [], [], [], [], []
     still_rot, still_t, moving_t, moving_err = [], [], [], []
+    head_err, elev_err, azim_err, elev_true = [], [], [], []
     for s in desc["sequences"]:
         if s.get("split", "train") != split or "poses" not in s:
             continue
@@ -88,6 +96,15 @@ def main():
             else:
                 moving_t.append(np.linalg.norm(rel[i, :, 3]))
                 moving_err.append(err)
+                true = np.linalg.inv(to4(c2w[i + 1])) @ to4(c2w[i])
+                cp = -rel[i, :, :3].T @ rel[i, :, 3]
+                ct = -true[:3, :3].T @ true[:3, 3]
+                cosang = cp @ ct / (np.linalg.norm(cp) * np.linalg.norm(ct))
+                head_err.append(np.arccos(np.clip(cosang, -1.0, 1.0)))
+                ep, et = np.arctan2(-cp[1], np.hypot(cp[0], cp[2])), np.arctan2(-ct[1], np.hypot(ct[0], ct[2]))
+                elev_err.append(ep - et)
+                elev_true.append(et)
+                azim_err.append(np.arctan2(cp[0], cp[2]) - np.arctan2(ct[0], ct[2]))
         for i in range(n - 1):
             true = np.linalg.inv(to4(c2w[i + 1])) @ to4(c2w[i])
             Rt, Rp = true[:3, :3], rel[i, :, :3]
@@ -103,6 +120,10 @@ def main():
     res["still_pairs"] = len(still_rot)
     if moving_err:
         res["moving_rotation_error_deg"] = float(np.degrees(np.mean(moving_err)))
+        res["heading_error_deg"] = float(np.degrees(np.mean(head_err)))
+        res["heading_elevation_mean_error_deg"] = float(np.degrees(np.mean(elev_err)))
+        res["heading_elevation_true_mean_deg"] = float(np.degrees(np.mean(elev_true)))
+        res["heading_azimuth_mean_error_deg"] = float(np.degrees(np.mean(azim_err)))
     if still_rot:
         res["still_rotation_deg"] = float(np.degrees(np.mean(still_rot)))
         res["still_translation_ratio"] = float(np.mean(still_t) / np.mean(moving_t)) if moving_t else 0.0

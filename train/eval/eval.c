@@ -55,6 +55,9 @@ typedef struct eval_run {
      * sequence's mean) and the rest: what the pose net says while standing still */
     int still_pairs, moving_pairs;
     double still_rot_sum, still_t_sum, moving_t_sum, moving_err_sum;
+    /* heading of the moving pairs: the direction the camera centre moved, in
+     * the first camera's frame (x right, y down, z forward) */
+    double head_err_sum, head_elev_err_sum, head_azim_err_sum, head_elev_true_sum;
 } eval_run;
 
 #define STILL_SHARE 0.02
@@ -370,6 +373,36 @@ static double translation_length(const double *T)
     return sqrt(T[3] * T[3] + T[7] * T[7] + T[11] * T[11]);
 }
 
+/* Where the camera centre of camera i + 1 lies in camera i's frame for the
+ * motion T (X_{i+1} = R·X_i + t): c = −Rᵀ·t. */
+static void centre_shift(const double *T, double c[3])
+{
+    for (int k = 0; k < 3; k++) c[k] = -(T[k] * T[3] + T[4 + k] * T[7] + T[8 + k] * T[11]);
+}
+
+/* Elevation (up positive: y points down) and azimuth (right positive) of a
+ * direction, radians. */
+static double elevation(const double c[3]) { return atan2(-c[1], hypot(c[0], c[2])); }
+static double azimuth(const double c[3]) { return atan2(c[0], c[2]); }
+
+/* The angle between two directions, atan2(|a×b|, a·b) (stable near 0). */
+static double direction_angle(const double a[3], const double b[3])
+{
+    double x = a[1] * b[2] - a[2] * b[1], y = a[2] * b[0] - a[0] * b[2], z = a[0] * b[1] - a[1] * b[0];
+    return atan2(sqrt(x * x + y * y + z * z), a[0] * b[0] + a[1] * b[1] + a[2] * b[2]);
+}
+
+static void add_heading(eval_run *r, const double *pred, const double *gt)
+{
+    double cp[3], ct[3];
+    centre_shift(pred, cp);
+    centre_shift(gt, ct);
+    r->head_err_sum += direction_angle(cp, ct);
+    r->head_elev_err_sum += elevation(cp) - elevation(ct);
+    r->head_azim_err_sum += azimuth(cp) - azimuth(ct);
+    r->head_elev_true_sum += elevation(ct);
+}
+
 /* Rotation error of every consecutive pair (the pose net's motion against the
  * true one), with the true rotation alongside for scale; the pairs of a
  * stopped camera and of a moving one apart. */
@@ -393,6 +426,7 @@ static void add_rotation_errors(eval_run *r, const double *c2w, const double *re
             r->moving_pairs++;
             r->moving_t_sum += translation_length(rel + 12 * i);
             r->moving_err_sum += err;
+            add_heading(r, rel + 12 * i, gt);
         }
         r->rot_err_sum += err;
         r->rot_true_sum += nj_rotation_angle(gt);
@@ -561,6 +595,11 @@ static void print_table(const eval_run *r)
     if (r->moving_pairs)
         printf("pose: rotation error %.3f deg on the %d pairs of a moving camera\n",
                RAD2DEG(r->moving_err_sum / r->moving_pairs), r->moving_pairs);
+    if (r->moving_pairs)
+        printf("pose: heading (the direction the camera moved) %.3f deg off on the moving pairs; elevation "
+               "error %+.3f deg (true elevation %+.3f deg, up positive), azimuth error %+.3f deg (right positive)\n",
+               RAD2DEG(r->head_err_sum / r->moving_pairs), RAD2DEG(r->head_elev_err_sum / r->moving_pairs),
+               RAD2DEG(r->head_elev_true_sum / r->moving_pairs), RAD2DEG(r->head_azim_err_sum / r->moving_pairs));
     if (r->still_pairs)
         printf("pose: on the %d pairs of a stopped camera: predicted rotation %.3f deg, predicted translation "
                "%.3f of a moving pair's (0 and 0: standing still is seen)\n", r->still_pairs,
@@ -637,8 +676,14 @@ static cJSON *report_json(const eval_run *r)
         cJSON_AddNumberToObject(p, "rotation_error_deg", RAD2DEG(r->rot_err_sum / r->pairs));
         cJSON_AddNumberToObject(p, "rotation_true_deg", RAD2DEG(r->rot_true_sum / r->pairs));
         cJSON_AddNumberToObject(p, "pairs", r->pairs);
-        if (r->moving_pairs) cJSON_AddNumberToObject(p, "moving_rotation_error_deg",
-                                                     RAD2DEG(r->moving_err_sum / r->moving_pairs));
+        if (r->moving_pairs) {
+            double n = r->moving_pairs;
+            cJSON_AddNumberToObject(p, "moving_rotation_error_deg", RAD2DEG(r->moving_err_sum / n));
+            cJSON_AddNumberToObject(p, "heading_error_deg", RAD2DEG(r->head_err_sum / n));
+            cJSON_AddNumberToObject(p, "heading_elevation_mean_error_deg", RAD2DEG(r->head_elev_err_sum / n));
+            cJSON_AddNumberToObject(p, "heading_elevation_true_mean_deg", RAD2DEG(r->head_elev_true_sum / n));
+            cJSON_AddNumberToObject(p, "heading_azimuth_mean_error_deg", RAD2DEG(r->head_azim_err_sum / n));
+        }
         cJSON_AddNumberToObject(p, "still_pairs", r->still_pairs);
         if (r->still_pairs) {
             cJSON_AddNumberToObject(p, "still_rotation_deg", RAD2DEG(r->still_rot_sum / r->still_pairs));
@@ -662,13 +707,15 @@ static cJSON *report_json(const eval_run *r)
                 cJSON_AddNumberToObject(p, key, corr);
             }
         }
-        char axes[800];
+        char axes[1100];
         snprintf(axes, sizeof axes, "rotation vector of each consecutive pair's motion (camera i into camera i + 1) "
                  "in the camera frame: pitch about x (right), yaw about y (down), roll about z (forward); error = "
                  "predicted - true component; slope and correlation: least-squares line of predicted on true "
                  "(absent when either does not vary); still pairs: true translation below %g%% of the sequence's "
                  "mean, still_rotation_deg the mean predicted rotation there, still_translation_ratio the mean "
-                 "predicted translation there over the moving pairs' mean", 100 * STILL_SHARE);
+                 "predicted translation there over the moving pairs' mean; heading (moving pairs): the direction "
+                 "camera i + 1's centre lies in from camera i (-R^T t), its angle to the true one, and the mean "
+                 "errors of its elevation (up positive) and azimuth (right positive)", 100 * STILL_SHARE);
         cJSON_AddStringToObject(p, "axes", axes);
         cJSON_AddStringToObject(p, "protocol",
                                 "Zhou et al. 2017: first frames aligned, least-squares scale, "

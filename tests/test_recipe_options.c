@@ -368,12 +368,12 @@ static void test_step_config(void)
           "off at step 499 (the rest kept, the config untouched) %d, on from step 500 %d", waits, starts);
     c.free_space = 0.0f;
     c.ground_heading = 0.1f;
-    c.ground_heading_from = 300;
-    a = nj_step_config(&c, 299, &tmp);
+    c.ground_heading_from = 200;
+    a = nj_step_config(&c, 199, &tmp);
     int gwaits = a->ground_heading == 0.0f && c.ground_heading == 0.1f;
-    int gstarts = nj_step_config(&c, 300, &tmp) == &c;
+    int gstarts = nj_step_config(&c, 200, &tmp) == &c;
     check(gwaits && gstarts, "step config: the ground-heading pull from ground_heading_from_step",
-          "off at step 299 (the config untouched) %d, on from step 300 %d", gwaits, gstarts);
+          "off at step 199 (the config untouched) %d, on from step 200 %d", gwaits, gstarts);
 }
 
 /* A small model (3 stages and scales, width 0.5, seed 9) of cfg's kind with

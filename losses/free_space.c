@@ -2,7 +2,6 @@
  * and backward side by side.  Gradient check and a NumPy reference:
  * tests/test_free_space.c. */
 #include "losses/free_space.h"
-#include <math.h>
 
 /* The bounded pixels' count and hinge sum; *viol the count beyond the bound. */
 static double hinge_forward(const nj_tensor *d, float lo, float span, const float *bound, size_t *count,
@@ -71,47 +70,4 @@ void nj_ground_bound(const double n[3], double dist, nj_camera cam, int w, int h
         double nd = n[0] * rx[p] + n[1] * ry[p] + n[2];
         bound[p] = dist > 0 && nd > 0 && nd * reach >= 1.0 ? (float)(nd / (dist * (1.0 + margin))) : 0.0f;
     }
-}
-
-static void pull_backward(nj_graph *g, const nj_op *op)
-{
-    (void)g;
-    nj_tensor *d = op->in[0];
-    if (!d->grad || op->i[0] == 0) return;
-    const float *t = op->aux;
-    float lo = op->f[0], span = op->f[1], k = (float)op->i[0], go = op->out->grad[0];
-    size_t n = nj_numel(d);
-    for (size_t i = 0; i < n; i++) {
-        if (!(t[i] > 0)) continue;
-        float e = 1.0f - (lo + span * d->data[i]) / t[i];
-        if (e != 0) d->grad[i] += go * (e > 0 ? -1.0f : 1.0f) * span / (t[i] * k);
-    }
-}
-
-nj_tensor *nj_inverse_depth_pull(nj_graph *g, nj_tensor *disp, nj_depth_range r, const float *target)
-{
-    if (!disp || nj_graph_failed(g)) return NULL;
-    if (disp->c != 1 || !target) return nj_graph_fail(g, "inverse_depth_pull: need an N×1×H×W disparity and targets");
-    if (!nj_depth_range_ok(r))
-        return nj_graph_fail(g, "inverse_depth_pull: need 0 < near < far, got near %g and far %g", r.near, r.far);
-    float lo = 1.0f / r.far, span = 1.0f / r.near - lo;
-    nj_tensor *in[1] = {disp};
-    nj_tensor *out = nj_op_output(g, 1, 1, 1, 1, in, 1);
-    if (!out) return NULL;
-    size_t n = nj_numel(disp), k = 0;
-    double total = 0;
-    for (size_t i = 0; i < n; i++)
-        if (target[i] > 0) {
-            total += fabs(1.0 - (lo + span * disp->data[i]) / target[i]);
-            k++;
-        }
-    out->data[0] = k ? (float)(total / (double)k) : 0.0f;
-    nj_op *op = nj_graph_record(g, "inverse_depth_pull", pull_backward, out, in, 1);
-    if (op) {
-        op->f[0] = lo;
-        op->f[1] = span;
-        op->i[0] = (int)k;
-        op->aux = (void *)target;
-    }
-    return out;
 }

@@ -42,10 +42,4 @@ nj_tensor *nj_free_space_loss(nj_graph *g, nj_tensor *disp, nj_depth_range r, co
 void nj_ground_bound(const double n[3], double dist, nj_camera cam, int w, int h, float margin, float reach,
                      float *rays, float *bound);
 
-/* Pulls the inverse depth q of the pixels with a target t > 0 toward it:
- *   L = (1/K) Σ_{p : t_p > 0} |1 − q_p / t_p|,   K = the count (L = 0 when none);
- * the ground-follows-the-motion prior of train/loop (loss.ground_heading).
- * target: N·H·W, must outlive the backward pass. */
-nj_tensor *nj_inverse_depth_pull(nj_graph *g, nj_tensor *disp, nj_depth_range r, const float *target);
-
 #endif

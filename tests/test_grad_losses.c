@@ -129,20 +129,6 @@ static nj_tensor *b_free_space(nj_graph *g, nj_tensor *const *in, void *ctx)
                      100.0f, 0.0f);
 }
 
-/* The same disparity; targets none, 0.15 or 0.4: |1 − q/t| is 0.37–0.89 or
- * 0.29–0.48 off its kink, of both signs. */
-static nj_tensor *b_depth_pull(nj_graph *g, nj_tensor *const *in, void *ctx)
-{
-    (void)ctx;
-    nj_tensor *x = in[0];
-    size_t k = nj_numel(x);
-    float *target = nj_graph_alloc(g, sizeof(float) * k);
-    if (!target) return NULL;
-    for (size_t i = 0; i < k; i++) target[i] = i % 3 == 0 ? 0.0f : (i % 3 == 1 ? 0.15f : 0.4f);
-    return nj_affine(g, nj_inverse_depth_pull(g, nj_affine(g, x, 0.02f, 0.1f), (nj_depth_range){0.5f, 20.0f}, target),
-                     100.0f, 0.0f);
-}
-
 static nj_tensor *b_arc_slip(nj_graph *g, nj_tensor *const *in, void *ctx)
 {
     (void)ctx;
@@ -175,8 +161,6 @@ static void grad_checks(void)
     gradcheck("grad disparity to depth", b_depth, NULL, &dd);
     gc_spec fs = {.nin = 1, .shape = {{2, 1, 5, 6}}, .eps = 1e-2f, .seed = 11};
     gradcheck("grad free-space hinge", b_free_space, NULL, &fs);
-    fs.seed = 12;
-    gradcheck("grad inverse-depth pull", b_depth_pull, NULL, &fs);
 }
 
 static void warp_check(void)

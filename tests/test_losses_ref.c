@@ -358,22 +358,6 @@ static void test_free_space(nj_graph *g)
                lv->data[1] > 0.1 && lv->data[1] < 0.9 && gw <= 1e-5 * gmax,
            "free-space hinge vs PyTorch autograd", "loss %.6f vs %.6f, share beyond %.4f vs %.4f, largest gradient "
            "difference %.2e (largest %.2e)", l->data[0], lv->data[0], share, lv->data[1], gw, gmax);
-    nj_tensor *d2 = losses_ref_tensor(g, dir, "disp2", 1), *pv = losses_ref_tensor(g, dir, "pull", 0);
-    nj_tensor *pg = losses_ref_tensor(g, dir, "pull_grad", 0);
-    nj_tensor *pl2 = d2 && pv && pg ? nj_inverse_depth_pull(g, d2, (nj_depth_range){c[7], c[8]}, bd->data) : NULL;
-    if (!pl2 || nj_backward(g, pl2)) {
-        check(0, "inverse-depth pull vs PyTorch autograd", "%s", nj_graph_error(g));
-        ref_rmtree(dir);
-        return;
-    }
-    gw = gmax = 0;
-    for (size_t p = 0; p < 2 * k; p++) {
-        gw = fmax(gw, fabs(d2->grad[p] - pg->data[p]));
-        gmax = fmax(gmax, fabs(pg->data[p]));
-    }
-    checkv(fabs(pl2->data[0] - pv->data[0]) <= 1e-5 * pv->data[0] && gw <= 1e-5 * gmax,
-           "inverse-depth pull vs PyTorch autograd", "loss %.6f vs %.6f, largest gradient difference %.2e (largest "
-           "%.2e)", pl2->data[0], pv->data[0], gw, gmax);
     ref_rmtree(dir);
 }
 

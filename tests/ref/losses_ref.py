@@ -50,8 +50,7 @@ Every reference value comes from a library this project did not write:
               two planes, and the free-space
               hinge mean(max(0, 1 - q / b)) over bounded pixels with its gradient by PyTorch
               autograd (the hinge is nightjar's own formula, losses/free_space.h: this checks
-              the code against that specification); the same for the inverse-depth pull
-              mean(|1 - q / t|) toward the bounds taken as targets.
+              the code against that specification).
   motorcycle  the Middlebury 2014 "motorcycle" stereo pair with ground-truth disparity
               (Scharstein et al. 2014) as shipped by scikit-image (data.stereo_motorcycle).
 Inputs and results are exchanged as float32 .npy files in OUTDIR.
@@ -317,13 +316,6 @@ def mode_free_space(out):
     save(out, "disp", disp)
     save(out, "loss", np.array([loss.item(), float((q[m] < b_t[m]).double().mean().item())]))
     save(out, "grad", s_t.grad.numpy())
-    s2 = torch.tensor(disp, dtype=torch.float64, requires_grad=True)
-    q2 = 1.0 / far + (1.0 / near - 1.0 / far) * s2
-    pull = torch.abs(1 - q2[m] / b_t[m]).mean()   # the pull toward targets (here: the bounds)
-    pull.backward()
-    save(out, "disp2", disp)
-    save(out, "pull", np.array([pull.item()]))
-    save(out, "pull_grad", s2.grad.numpy())
     save(out, "camera", np.array([K[0, 0], K[1, 1], K[0, 2], K[1, 2], W, H, margin, near, far, reach]))
 
 

@@ -73,8 +73,6 @@ const nj_config_field nj_config_fields[] = {
     F("loss", "free_space_margin", NJ_F_FLOAT, free_space_margin, 0, 10, 0, 0),
     F("loss", "free_space_reach", NJ_F_FLOAT, free_space_reach, 1, 1000, 0, 0),
     F("loss", "free_space_from_step", NJ_F_LONG, free_space_from, 0, 1e12, 0, 0),
-    F("loss", "ground_heading", NJ_F_FLOAT, ground_heading, 0, 100, 0, 0),
-    F("loss", "ground_heading_from_step", NJ_F_LONG, ground_heading_from, 0, 1e12, 0, 0),
     F("loss", "saturation_guard", NJ_F_FLOAT, loss.saturation_guard, 0, 100, 0, 0),
     F("optim", "lr", NJ_F_FLOAT, lr, 0, 1, 1, 0),
     F("optim", "lr_min", NJ_F_FLOAT, lr_min, 0, 1, 0, 0),

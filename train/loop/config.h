@@ -24,8 +24,7 @@
  *              "arc_motion": 0, "arc_motion_from_step": 0,
  *              "rotation_pairs": 0, "rotation_pairs_deg": 1, "rotation_pairs_until_step": 0,
  *              "free_space": 0, "free_space_margin": 0.1,
- *              "free_space_reach": 8, "free_space_from_step": 0,
- *              "ground_heading": 0, "ground_heading_from_step": 0 },
+ *              "free_space_reach": 8, "free_space_from_step": 0 },
  *   "optim": { "lr": 1e-4, "lr_min": 1e-6, "warmup_steps": 100, "schedule": "cosine" | "step",
  *              "step_every": 1000, "step_gamma": 0.5, "weight_decay": 0, "grad_clip": 1.0,
  *              "init": "", "freeze_encoder": false }
@@ -86,8 +85,6 @@ typedef struct nj_train_config {
     float free_space_margin;  /* the bound is the ground's depth along the ray × (1 + this) */
     float free_space_reach;   /* ...where the ground is within this many camera heights */
     long free_space_from;     /* loss.free_space (when on) starts at this step; 0 = from the start */
-    float ground_heading;     /* weight of the ground-follows-the-motion pull (train/loop/free_space.h); 0 = off */
-    long ground_heading_from; /* ...from this step */
     /* optimiser */
     float lr, lr_min, step_gamma, weight_decay, grad_clip;
     int warmup_steps, step_every;

@@ -17,17 +17,4 @@
 int nj_free_space_bounds(const nj_tensor *disp, nj_depth_range r, const nj_camera *cams, float margin,
                          float reach, float *scratch, float *bound);
 
-/* The ground-follows-the-motion targets (loss.ground_heading): per item with
- * a direction of travel h (3 floats per item, camera frame; a zero vector =
- * none), the ground plane of its own prediction as above, turned by the
- * least rotation that makes it contain h (n' = n − (n·h)h, normalised; its
- * distance kept), gives each ground pixel of the fitted region (within 5 %
- * of the fitted plane) the target inverse depth (n'·d)/dist; every other
- * pixel 0, and every pixel of an item whose direction is more than 5° off
- * its fitted ground (an untrained pose net, or no flat ground).  A camera rigidly mounted on a vehicle on flat ground travels
- * parallel to it, whatever its pitch.  Returns the number of items with
- * targets. */
-int nj_ground_heading_targets(const nj_tensor *disp, nj_depth_range r, const nj_camera *cams, const float *heading,
-                              float *scratch, float *target);
-
 #endif

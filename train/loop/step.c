@@ -143,38 +143,6 @@ static nj_tensor *free_space_term(nj_graph *g, const nj_vs_input *in, float marg
     return nj_free_space_loss(g, d, in->depth_range, bound, share);
 }
 
-/* The ground-follows-the-motion pull (train/loop/free_space.h) on the scale-0
- * disparity: each item's direction of travel from the source whose camera
- * moved farthest (c = −Rᵀt of the pose net's motion, no gradient through
- * it; the plane is the same either way along it). */
-static nj_tensor *ground_heading_term(nj_graph *g, const nj_vs_input *in)
-{
-    nj_tensor *d = in->disp[0];
-    size_t plane = (size_t)d->h * d->w;
-    float *target = nj_graph_alloc(g, sizeof(float) * (size_t)d->n * plane);
-    float *scratch = nj_graph_alloc(g, sizeof(float) * plane * 3);
-    float *heading = nj_graph_alloc(g, sizeof(float) * 3 * (size_t)d->n);
-    if (!target || !scratch || !heading) return nj_graph_fail(g, "ground_heading: out of memory");
-    for (int n = 0; n < d->n; n++) {
-        double best = 0;
-        float *h = heading + 3 * n;
-        h[0] = h[1] = h[2] = 0;
-        for (int j = 0; j < in->nsources; j++) {
-            if (!in->poses[j]) continue;
-            const float *T = in->poses[j]->data + 12 * n;
-            double c[3];
-            for (int k = 0; k < 3; k++) c[k] = -(T[k] * T[3] + T[4 + k] * T[7] + T[8 + k] * T[11]);
-            double l = c[0] * c[0] + c[1] * c[1] + c[2] * c[2];
-            if (l > best) {
-                best = l;
-                for (int k = 0; k < 3; k++) h[k] = (float)c[k];
-            }
-        }
-    }
-    nj_ground_heading_targets(d, in->depth_range, in->cams, heading, scratch, target);
-    return nj_inverse_depth_pull(g, d, in->depth_range, target);
-}
-
 static float saturation_share(const nj_tensor *d)
 {
     size_t k = nj_numel(d), s = 0;
@@ -193,14 +161,12 @@ const nj_train_config *nj_step_config(const nj_train_config *cfg, long step, nj_
     int arc_waits = cfg->loss.arc_motion > 0 && step < cfg->arc_motion_from;
     int lesson_over = cfg->rotation_pairs > 0 && cfg->rotation_pairs_until > 0 && step >= cfg->rotation_pairs_until;
     int free_waits = cfg->free_space > 0 && step < cfg->free_space_from;
-    int heading_waits = cfg->ground_heading > 0 && step < cfg->ground_heading_from;
-    if (!mask_waits && !arc_waits && !lesson_over && !free_waits && !heading_waits) return cfg;
+    if (!mask_waits && !arc_waits && !lesson_over && !free_waits) return cfg;
     *tmp = *cfg;
     if (mask_waits) tmp->loss.automask = 0;
     if (arc_waits) tmp->loss.arc_motion = 0;
     if (lesson_over) tmp->rotation_pairs = 0;
     if (free_waits) tmp->free_space = 0;
-    if (heading_waits) tmp->ground_heading = 0;
     return tmp;
 }
 
@@ -244,11 +210,6 @@ int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj
         nj_tensor *fs = free_space_term(g, &in, cfg->free_space_margin, cfg->free_space_reach, &r->free_space);
         if (!fs) return -1;
         out.total = nj_add(g, out.total, nj_affine(g, fs, cfg->free_space, 0.0f));
-    }
-    if (cfg->ground_heading > 0 && cfg->video && b->nsrc > 0) {
-        nj_tensor *gh = ground_heading_term(g, &in);
-        if (!gh) return -1;
-        out.total = nj_add(g, out.total, nj_affine(g, gh, cfg->ground_heading, 0.0f));
     }
     if (nj_graph_failed(g)) return -1;
     r->loss = out.total->data[0];

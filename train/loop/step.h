@@ -29,8 +29,7 @@ void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES]);
 
 /* The configuration of training step `step`: cfg itself, or *tmp holding cfg
  * with the loss terms that wait for a later step (loss.automask_from_step,
- * loss.arc_motion_from_step, loss.free_space_from_step,
- * loss.ground_heading_from_step) or have ended
+ * loss.arc_motion_from_step, loss.free_space_from_step) or have ended
  * (loss.rotation_pairs_until_step)
  * switched off. */
 const nj_train_config *nj_step_config(const nj_train_config *cfg, long step, nj_train_config *tmp);

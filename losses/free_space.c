@@ -1,6 +1,8 @@
 /* losses/free_space.c — the free-space hinge (losses/free_space.h), forward
- * and backward side by side.  Gradient check and a NumPy reference:
- * tests/test_free_space.c. */
+ * and backward side by side.  Gradient check: tests/test_grad_losses.c;
+ * against PyTorch autograd and OpenCV's rays: tests/test_losses_ref.c (mode
+ * free_space of tests/ref/losses_ref.py); from a scene's own ground:
+ * tests/test_recipe_options.c. */
 #include "losses/free_space.h"
 
 /* The bounded pixels' count and hinge sum; *viol the count beyond the bound. */

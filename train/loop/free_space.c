@@ -19,6 +19,7 @@ int nj_free_space_bounds(const nj_tensor *disp, nj_depth_range r, const nj_camer
         for (size_t p = 0; p < plane; p++) depth[p] = nj_depth_from_disparity_value(disp->data[n * plane + p], r);
         float *xyz = NULL;
         int k = nj_ground_points(depth, W, H, cams[n], &o, &xyz);
+        if (k < 0) return -1;
         nj_plane pl;
         char why[128];
         if (k > 0 && nj_plane_fit(xyz, k, &o, &pl, why, sizeof why) == 0 && pl.dist > 0) {

@@ -13,7 +13,7 @@
  * an acceptable plane is left unbounded (0): the uniform far start has none
  * (its lower region faces the camera, beyond the fit's tilt limit), nor has
  * an inverted prediction.  scratch: 3·H·W floats.  Returns the number of
- * items with a plane. */
+ * items with a plane, or -1 when out of memory. */
 int nj_free_space_bounds(const nj_tensor *disp, nj_depth_range r, const nj_camera *cams, float margin,
                          float reach, float *scratch, float *bound);
 

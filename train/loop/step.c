@@ -138,8 +138,8 @@ static nj_tensor *free_space_term(nj_graph *g, const nj_vs_input *in, float marg
     size_t plane = (size_t)d->h * d->w;
     float *bound = nj_graph_alloc(g, sizeof(float) * (size_t)d->n * plane);
     float *scratch = nj_graph_alloc(g, sizeof(float) * plane * 3);
-    if (!bound || !scratch) return nj_graph_fail(g, "free_space: out of memory");
-    nj_free_space_bounds(d, in->depth_range, in->cams, margin, reach, scratch, bound);
+    if (!bound || !scratch || nj_free_space_bounds(d, in->depth_range, in->cams, margin, reach, scratch, bound) < 0)
+        return nj_graph_fail(g, "free_space: out of memory");
     return nj_free_space_loss(g, d, in->depth_range, bound, share);
 }
 

@@ -252,17 +252,17 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
         }
     }
     /* the stopped- and moving-camera figures: present on both sides or on neither */
-    static const char *const STILL[8] = {"still_pairs", "moving_rotation_error_deg", "still_rotation_deg",
+    static const char *const PAIR_FIGURES[8] = {"still_pairs", "moving_rotation_error_deg", "still_rotation_deg",
                                          "still_translation_ratio", "heading_error_deg",
                                          "heading_elevation_mean_error_deg", "heading_elevation_true_mean_deg",
                                          "heading_azimuth_mean_error_deg"};
     for (int k = 0; ok && k < 8; k++) {
-        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, STILL[k]);
-        const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, STILL[k]);
-        double a = number_of(pose, STILL[k]), b = number_of(r, STILL[k]);
+        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, PAIR_FIGURES[k]);
+        const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, PAIR_FIGURES[k]);
+        double a = number_of(pose, PAIR_FIGURES[k]), b = number_of(r, PAIR_FIGURES[k]);
         int same = !av == !bv && (!av || (cJSON_IsNumber(av) && fabs(a - b) <= tol * (1 + fabs(b))));
         if (!same) {
-            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", STILL[k], av ? "" : "(absent) ", a,
+            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", PAIR_FIGURES[k], av ? "" : "(absent) ", a,
                      bv ? "" : "(absent) ", b);
             ok = 0;
         }

@@ -374,10 +374,13 @@ static double translation_length(const double *T)
 }
 
 /* Where the camera centre of camera i + 1 lies in camera i's frame for the
- * motion T (X_{i+1} = R·X_i + t): c = −Rᵀ·t. */
+ * motion T (X_{i+1} = R·X_i + t): c = −Rᵀ·t, the trajectory's second position
+ * (train/measure/ate.c chains the motions). */
 static void centre_shift(const double *T, double c[3])
 {
-    for (int k = 0; k < 3; k++) c[k] = -(T[k] * T[3] + T[4 + k] * T[7] + T[8 + k] * T[11]);
+    double xyz[6];
+    nj_positions_from_motions(T, 2, xyz);
+    for (int k = 0; k < 3; k++) c[k] = xyz[3 + k];
 }
 
 /* Elevation (up positive: y points down) and azimuth (right positive) of a

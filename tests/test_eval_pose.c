@@ -19,7 +19,12 @@
  *    rotation error equal the reference's;
  *  - the depth baselines: the trained model's "baseline_untrained" block
  *    equals the metrics of the untrained checkpoint made here evaluated as a
- *    model, and differs from the trained model's own metrics. */
+ *    model, and differs from the trained model's own metrics;
+ *  - a model trained on frame offsets [2] is driven on every 2nd frame (its
+ *    pose net learnt the motion over two frames and gives it for any pair):
+ *    frame_step 2, 6 frames, 2 snippets and 5 pairs, every figure equal to
+ *    the reference's from every 2nd pose and the model's motions between
+ *    every 2nd frame. */
 #include "tests/check.h"
 #include "tests/e2e_support.h"
 #include "tests/torch_ref.h"
@@ -27,7 +32,10 @@
 #include "train/loop/checkpoint.h"
 #include <cjson/cJSON.h>
 #include <math.h>
+#include <sys/stat.h>
+#include <unistd.h>
 #include <stdio.h>
+#include <errno.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -102,9 +110,12 @@ static int eval_model(const char *ckpt, const char *out)
     return e2e_run(cmd, log);
 }
 
-static void pose_block(const char *tag, const char *metrics, const char *ckpt)
+/* The pose block of `metrics` against the reference from the poses file and
+ * the model's motions between every `step`-th frame of the test sequence. */
+static void pose_block(const char *tag, const char *metrics, const char *ckpt, int step)
 {
-    char name[200], motions[600], rel[700], ref[700], args[2400], why[512] = "", err[512] = "";
+    char name[300], motions[600], rel[700], ref[700], args[2400], why[512] = "", err[512] = "";
+    int frames = (FRAMES - 1) / step + 1;
     cJSON *j = load_json(metrics);
     const cJSON *p = cJSON_GetObjectItemCaseSensitive(j, "pose");
     int keys = cJSON_IsObject(p), finite = keys;
@@ -113,10 +124,12 @@ static void pose_block(const char *tag, const char *metrics, const char *ckpt)
         keys &= k == 9 ? cJSON_IsString(v) : cJSON_IsNumber(v);
         finite &= k == 9 || isfinite(num(p, POSE_KEYS[k]));
     }
-    snprintf(name, sizeof name, "%s: metrics.json has the pose block, finite, 8 snippets of 5 frames, 11 pairs", tag);
-    check(keys && finite && num(p, "snippets") == 8 && num(p, "snippet_frames") == 5 && num(p, "pairs") == 11, name,
-          "keys %d finite %d snippets %g frames %g pairs %g (%s)", keys, finite, num(p, "snippets"),
-          num(p, "snippet_frames"), num(p, "pairs"), metrics);
+    snprintf(name, sizeof name, "%s: metrics.json has the pose block, finite, %d snippets of 5 frames, %d pairs "
+             "%d frames apart", tag, frames - 4, frames - 1, step);
+    check(keys && finite && num(p, "snippets") == frames - 4 && num(p, "snippet_frames") == 5 &&
+              num(p, "pairs") == frames - 1 && num(p, "frame_step") == step, name,
+          "keys %d finite %d snippets %g frames %g pairs %g frame_step %g (%s)", keys, finite, num(p, "snippets"),
+          num(p, "snippet_frames"), num(p, "pairs"), num(p, "frame_step"), metrics);
     printf("info: %s: %g of the pairs are of a stopped camera\n", tag, num(p, "still_pairs"));
     cJSON_Delete(j);
     snprintf(motions, sizeof motions, "%s/motions-%s", dir, tag);
@@ -124,10 +137,22 @@ static void pose_block(const char *tag, const char *metrics, const char *ckpt)
     snprintf(ref, sizeof ref, "%s/pose-ref-%s.json", dir, tag);
     snprintf(args, sizeof args, "mkdir -p %s", motions);
     int ok = system(args) == 0;
-    char images[600];
-    snprintf(images, sizeof images, "%s/data/yard-02/cam0", dir);
-    ok = ok && tr_dump_motions(ckpt, images, FRAMES, rel, err, sizeof err) == 0;
-    snprintf(args, sizeof args, "/usr/bin/python3 tests/ref/eval_pose_ref.py %s test %s %s", data, motions, ref);
+    char images[700];
+    if (step == 1) snprintf(images, sizeof images, "%s/data/yard-02/cam0", dir);
+    else {   /* every step-th frame, renumbered, for tr_dump_motions */
+        snprintf(images, sizeof images, "%s/every%d", motions, step);
+        ok = ok && (mkdir(images, 0755) == 0 || errno == EEXIST);
+        for (int i = 0; ok && i < frames; i++) {
+            char from[800], to[800];
+            snprintf(from, sizeof from, "%s/data/yard-02/cam0/%06d.png", dir, step * i);
+            snprintf(to, sizeof to, "%s/%06d.png", images, i);
+            unlink(to);
+            ok = symlink(from, to) == 0;
+        }
+    }
+    ok = ok && tr_dump_motions(ckpt, images, frames, rel, err, sizeof err) == 0;
+    snprintf(args, sizeof args, "/usr/bin/python3 tests/ref/eval_pose_ref.py %s test %s %s %d", data, motions, ref,
+             step);
     ok = ok && system(args) == 0;
     snprintf(name, sizeof name, "%s: eval's ATE, RMS, scale and rotation figures = numpy/scipy from the poses file "
              "and the model's motions", tag);
@@ -156,8 +181,8 @@ int main(void)
     if (!check(rt == 0 && ru == 0, "eval on the trained and on the untrained checkpoint", "exits %d %d (logs %s.log, %s.log)",
                rt, ru, mt, mu))
         return test_exit();
-    pose_block("trained", mt, trained);
-    pose_block("untrained", mu, untrained);
+    pose_block("trained", mt, trained, 1);
+    pose_block("untrained", mu, untrained, 1);
 
     cJSON *a = load_json(mt), *b = load_json(mu);
     const cJSON *pa = cJSON_GetObjectItemCaseSensitive(a, "pose"), *pb = cJSON_GetObjectItemCaseSensitive(b, "pose");
@@ -190,7 +215,7 @@ int main(void)
     snprintf(ms, sizeof ms, "%s/metrics-stopped.json", dir);
     if (check(stop_camera() == 0 && eval_model(trained, ms) == 0, "eval with the camera stopped for frames 5-8",
               "see %s.log", ms)) {
-        pose_block("stopped", ms, trained);
+        pose_block("stopped", ms, trained, 1);
         cJSON *c = load_json(ms);
         const cJSON *pc = cJSON_GetObjectItemCaseSensitive(c, "pose");
         checkv(num(pc, "still_pairs") == 3 && num(pc, "still_translation_ratio") > 0,
@@ -200,6 +225,23 @@ int main(void)
                num(pc, "still_translation_ratio"), num(pc, "moving_rotation_error_deg"));
         cJSON_Delete(c);
     }
+
+    /* a model trained on frames 2 apart (the stopped camera's poses stay: the
+     * pairs 4-6 and 6-8 of the every-2nd-frame sequence have no or half motion) */
+    char cfg2[700], log2[700], run2[700], m2[700], cmd[2400];
+    snprintf(cfg2, sizeof cfg2, "%s/train2.json", dir);
+    snprintf(log2, sizeof log2, "%s/train2.log", dir);
+    snprintf(run2, sizeof run2, "%s/run2/final.ckpt", dir);
+    snprintf(m2, sizeof m2, "%s/metrics-step2.json", dir);
+    tr_config(cfg2, "\"validate_every\": 0, \"checkpoint_minutes\": 1000, \"max_steps\": 6", "",
+              "\"lr\": 1e-3, \"warmup_steps\": 0");
+    snprintf(cmd, sizeof cmd, "sed -i 's/\"frame_offsets\": \\[1\\]/\"frame_offsets\": [2]/' %s && grep -q '\\[2\\]' %s",
+             cfg2, cfg2);
+    int r2 = system(cmd) ? -1 : tr_wait(tr_start(log2, "train --config %s --data %s --out %s/run2", cfg2, data, dir), 600);
+    if (check(r2 == 0 && eval_model(run2, m2) == 0, "a model trained on frame offsets [2], and eval on it",
+              "exit %d, see %s and %s.log", r2, log2, m2))
+        pose_block("offset-2", m2, run2, 2);
+
     if (!test_failures()) ref_rmtree(dir);
     else printf("# kept %s for inspection\n", dir);
     return test_exit();

@@ -223,7 +223,7 @@ static cJSON *load_json(const char *path)
 
 int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why, size_t len)
 {
-    static const char *const COUNTS[2] = {"snippets", "pairs"};
+    static const char *const COUNTS[3] = {"snippets", "pairs", "frame_step"};
     static const char *const FIGURES[24] = {"ate", "ate_std", "rmse", "scale_mean", "rotation_error_deg",
                                             "rotation_true_deg", "pitch_mean_error_deg", "pitch_rms_error_deg",
                                             "pitch_true_rms_deg", "yaw_mean_error_deg", "yaw_rms_error_deg",
@@ -235,8 +235,8 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
     const cJSON *pose = cJSON_GetObjectItemCaseSensitive(m, "pose");
     int ok = pose && r;
     if (!ok) snprintf(why, len, "%s", !m ? "no metrics" : !pose ? "metrics.json has no pose block" : "no reference");
-    for (int k = 0; ok && k < 2 + (int)(sizeof FIGURES / sizeof FIGURES[0]); k++) {
-        const char *key = k < 2 ? COUNTS[k] : FIGURES[k - 2];
+    for (int k = 0; ok && k < 3 + (int)(sizeof FIGURES / sizeof FIGURES[0]); k++) {
+        const char *key = k < 3 ? COUNTS[k] : FIGURES[k - 3];
         double a = number_of(pose, key), b = number_of(r, key);
         const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, key);
         /* the per-axis fit (slope, correlation: the last 6 figures) divides by
@@ -244,8 +244,8 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
          * steady turn the yaw's is 3.8e-5 of its mean square, which turns the
          * two sides' double rounding of the true motions into 5e-8 of the slope */
         int nfig = (int)(sizeof FIGURES / sizeof FIGURES[0]);
-        double t = k >= 2 + nfig - 6 ? 1e-6 : tol;
-        int same = cJSON_IsNumber(av) && (k < 2 ? a == b : fabs(a - b) <= t * (1 + fabs(b)));
+        double t = k >= 3 + nfig - 6 ? 1e-6 : tol;
+        int same = cJSON_IsNumber(av) && (k < 3 ? a == b : fabs(a - b) <= t * (1 + fabs(b)));
         if (!same) {
             snprintf(why, len, "%s: eval %.9g, reference %.9g", key, a, b);
             ok = 0;

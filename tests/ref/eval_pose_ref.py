@@ -3,14 +3,17 @@
 of `nightjar eval`'s metrics.json from files (tests/test_eval_pose.c,
 tests/test_predict_cli.c).
 
-Usage: /usr/bin/python3 tests/ref/eval_pose_ref.py DATASET.json SPLIT MOTIONS_DIR OUT.json
+Usage: /usr/bin/python3 tests/ref/eval_pose_ref.py DATASET.json SPLIT MOTIONS_DIR OUT.json [STEP]
 
 For every sequence of SPLIT with "poses" and at least 5 of them: the
 ground-truth camera-to-world poses parsed here from the poses file
 (np.loadtxt, 12 numbers per line, '#' comments), and the model's motions
 between consecutive frames from MOTIONS_DIR/NAME.rel.f64 (raw little-endian
 float64, (frames - 1) x 3 x 4: motion i maps points of camera i into camera
-i + 1), written by the test from the model through the library.
+i + 1), written by the test from the model through the library.  With STEP
+(default 1) only every STEP-th pose is kept (frames 0, STEP, 2*STEP, ...: a
+model trained on frame offsets of STEP and more), and the motions are those
+between the kept frames.
 
 Protocol (Zhou et al. 2017's 5-frame snippets, as in tests/ref/metrics_ref.py):
 for every run of 5 consecutive frames, positions relative to the first frame
@@ -39,7 +42,7 @@ np.arctan2(-c_y, hypot(c_x, c_z)) and the azimuth np.arctan2(c_x, c_z),
 with the true elevation's mean, degrees.
 
 Writes OUT.json: {"ate", "ate_std", "rmse", "scale_mean", "snippets",
-"rotation_error_deg", "rotation_true_deg", "pairs", and for AXIS in pitch,
+"rotation_error_deg", "rotation_true_deg", "pairs", "frame_step", and for AXIS in pitch,
 yaw, roll: "AXIS_mean_error_deg", "AXIS_rms_error_deg", "AXIS_true_rms_deg",
 "AXIS_true_mean_deg", "AXIS_slope", "AXIS_correlation"}
 plus "still_pairs", "moving_rotation_error_deg", "heading_error_deg",
@@ -68,6 +71,7 @@ from metrics_ref import snippet_ate, to4  # noqa: E402
 
 def main():
     dpath, split, motions, out = sys.argv[1:5]
+    step = int(sys.argv[5]) if len(sys.argv) > 5 else 1
     root = os.path.dirname(os.path.abspath(dpath))
     desc = json.load(open(dpath))
     ates, rmses, scales, rot_err, rot_true, vec_err, vec_true = [], [], [], [], [], [], []
@@ -76,7 +80,7 @@ def main():
     for s in desc["sequences"]:
         if s.get("split", "train") != split or "poses" not in s:
             continue
-        c2w = np.loadtxt(os.path.join(root, s["poses"]), comments="#", ndmin=2).reshape(-1, 3, 4)
+        c2w = np.loadtxt(os.path.join(root, s["poses"]), comments="#", ndmin=2).reshape(-1, 3, 4)[::step]
         n = c2w.shape[0]
         if n < SNIPPET:
             continue
@@ -116,7 +120,7 @@ def main():
     res = {"ate": float(np.mean(ates)), "ate_std": float(np.std(ates)), "rmse": float(np.mean(rmses)),
            "scale_mean": float(np.mean(scales)), "snippets": len(ates),
            "rotation_error_deg": float(np.degrees(np.mean(rot_err))),
-           "rotation_true_deg": float(np.degrees(np.mean(rot_true))), "pairs": len(rot_err)}
+           "rotation_true_deg": float(np.degrees(np.mean(rot_true))), "pairs": len(rot_err), "frame_step": step}
     res["still_pairs"] = len(still_rot)
     if moving_err:
         res["moving_rotation_error_deg"] = float(np.degrees(np.mean(moving_err)))

@@ -24,7 +24,9 @@ static const char EPILOGUE[] =
     "  on 5-frame snippets with least-squares scale alignment (Zhou et al. 2017), and the\n"
     "  rotation error of each consecutive frame pair next to the true rotation; per camera\n"
     "  axis (pitch, yaw, roll) the mean and RMS error and the least-squares slope and\n"
-    "  correlation of predicted on true (1 and 1: that axis is learned; 0: it is not).\n";
+    "  correlation of predicted on true (1 and 1: that axis is learned; 0: it is not).\n"
+    "  A model trained on frame offsets of k and more is driven on every k-th frame (k the\n"
+    "  smallest offset: the motion its pose net learnt), and its pairs are k frames apart.\n";
 
 int nj_eval_main(int argc, char **argv)
 {

@@ -41,9 +41,11 @@ typedef struct eval_run {
     nj_eval_regions regions;
     int frames, no_ground, untrained_no_ground, empty;
     /* pose */
+    int frame_step;            /* the pose net is driven on frames this far apart
+                                  (nj_train_config_frame_step) */
     int snippets, pose_sequences;
     double ate_mean, ate_m2, rmse_sum, scale_sum;
-    int pairs;                 /* consecutive frame pairs with a rotation error */
+    int pairs;                 /* frame pairs (frame_step apart) with a rotation error */
     double rot_err_sum, rot_true_sum;   /* radians */
     /* per camera axis (pitch, yaw, roll), radians: sums of squares of the error and
      * of the true component; running means and co-moments (Welford) of the true
@@ -71,6 +73,7 @@ static const char *const AXIS_NAMES[3] = {"pitch", "yaw", "roll"};
 static int load_models(eval_run *r, char *err, size_t errlen)
 {
     if (nj_checkpoint_load(r->a.model, &r->trained, &r->cfg, NULL, err, errlen)) return -1;
+    r->frame_step = nj_train_config_frame_step(&r->cfg);
     r->have_trained = 1;
     char e[512];
     if (nj_model_init(&r->untrained, &r->trained.cfg, e, sizeof e)) {
@@ -406,7 +409,7 @@ static void add_heading(eval_run *r, const double *pred, const double *gt)
     r->head_elev_true_sum += elevation(ct);
 }
 
-/* Rotation error of every consecutive pair (the pose net's motion against the
+/* Rotation error of every pair of neighbours (the pose net's motion against the
  * true one), with the true rotation alongside for scale; the pairs of a
  * stopped camera and of a moving one apart. */
 static void add_rotation_errors(eval_run *r, const double *c2w, const double *rel, int n)
@@ -488,13 +491,19 @@ static void rectify_poses(const nj_sequence *s, double *c2w, int n)
     }
 }
 
+/* The pose net's motions between frames frame_step apart (0, k, 2k, ...: a
+ * model trained on offsets of 2 and more learnt the motion over its smallest
+ * one, and gives that whatever gap it is shown) against the poses of the same
+ * frames. */
 static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size_t errlen)
 {
     double *c2w = NULL, *rel = NULL;
     nj_image prev = {0, 0, NULL}, cur = {0, 0, NULL};
-    int n = nj_poses_read(s->poses, &c2w, err, errlen), rc = -1;
+    int n = nj_poses_read(s->poses, &c2w, err, errlen), rc = -1, k = r->frame_step;
     if (n < 0) return -1;
     rectify_poses(s, c2w, n);
+    n = (n - 1) / k + 1;
+    for (int i = 1; i < n; i++) memmove(c2w + 12 * i, c2w + 12 * i * k, sizeof(double) * 12);
     if (n < NJ_ATE_SNIPPET) {
         free(c2w);
         return 0;
@@ -507,7 +516,7 @@ static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size
     if (load_frame(s, 0, &prev, err, errlen)) goto done;
     nj_camera cam = camera_at(s, prev.w, prev.h);   /* for a pose net that sees ray directions */
     for (int i = 1; i < n; i++) {
-        if (load_frame(s, i, &cur, err, errlen) ||
+        if (load_frame(s, i * k, &cur, err, errlen) ||
             nj_infer_motion(&r->inf[0], &prev, &cur, &cam, rel + 12 * (i - 1), err, errlen))
             goto done;
         nj_image_free(&prev);
@@ -591,6 +600,8 @@ static void print_table(const eval_run *r)
         printf("pose: ATE %.4f +/- %.4f (Zhou et al. 2017 protocol), RMS %.4f, over %d snippets of %d frames\n",
                r->ate_mean, sqrt(r->ate_m2 / r->snippets), r->rmse_sum / r->snippets, r->snippets,
                NJ_ATE_SNIPPET);
+    if (r->pairs && r->frame_step > 1)
+        printf("pose: on frames %d apart (the smallest frame offset the model was trained on)\n", r->frame_step);
     if (r->pairs)
         printf("pose: rotation error %.3f deg per frame pair (true rotation %.3f deg; an error as large as "
                "the true rotation means none was learned), over %d pairs\n",
@@ -679,6 +690,7 @@ static cJSON *report_json(const eval_run *r)
         cJSON_AddNumberToObject(p, "rotation_error_deg", RAD2DEG(r->rot_err_sum / r->pairs));
         cJSON_AddNumberToObject(p, "rotation_true_deg", RAD2DEG(r->rot_true_sum / r->pairs));
         cJSON_AddNumberToObject(p, "pairs", r->pairs);
+        cJSON_AddNumberToObject(p, "frame_step", r->frame_step);
         if (r->moving_pairs) {
             double n = r->moving_pairs;
             cJSON_AddNumberToObject(p, "moving_rotation_error_deg", RAD2DEG(r->moving_err_sum / n));
@@ -711,7 +723,7 @@ static cJSON *report_json(const eval_run *r)
             }
         }
         char axes[1100];
-        snprintf(axes, sizeof axes, "rotation vector of each consecutive pair's motion (camera i into camera i + 1) "
+        snprintf(axes, sizeof axes, "rotation vector of each pair's motion (camera i into camera i + 1; cameras frame_step frames apart) "
                  "in the camera frame: pitch about x (right), yaw about y (down), roll about z (forward); error = "
                  "predicted - true component; slope and correlation: least-squares line of predicted on true "
                  "(absent when either does not vary); still pairs: true translation below %g%% of the sequence's "

@@ -303,6 +303,14 @@ int nj_train_config_check(const nj_train_config *c, char *err, size_t errlen)
  *   lr_min + (lr − lr_min)·(1 + cos(π·t))/2,  t = (step − warmup)/(total − warmup) clipped to [0, 1];
  * otherwise (step schedule, or total unknown) lr·gamma^⌊(step − warmup)/step_every⌋,
  * never below lr_min. */
+int nj_train_config_frame_step(const nj_train_config *c)
+{
+    int k = 0;
+    for (int i = 0; i < c->noffsets && i < NJ_MAX_OFFSETS; i++)
+        if (c->offsets[i] > 0 && (!k || c->offsets[i] < k)) k = c->offsets[i];
+    return k ? k : 1;
+}
+
 float nj_train_config_lr(const nj_train_config *c, long step, long total_steps)
 {
     if (step < 0) step = 0;

@@ -105,10 +105,16 @@ int nj_train_config_check(const nj_train_config *c, char *err, size_t errlen);
 char *nj_train_config_to_json(const nj_train_config *c);
 int nj_train_config_load_text(nj_train_config *c, const char *json, const char *origin,
                               char *err, size_t errlen);
-/* Learning rate at `step` (warm-up, then cosine to lr_min or step decay). */
 /* The data options the run's samples come from: every frame offset (video
  * runs), stereo, the duplicate threshold (training and the report gallery). */
 void nj_train_config_data_options(const nj_train_config *c, nj_data_options *o);
+/* Learning rate at `step` (warm-up, then cosine to lr_min or step decay). */
 float nj_train_config_lr(const nj_train_config *c, long step, long total_steps);
+/* The frame gap whose motion the pose net learnt: the smallest of
+ * data.frame_offsets (1 when none is set).  The pose net answers with the
+ * motion it learnt for a place, whatever the gap of the pair it is shown
+ * (DEVELOPERS.md, "Training recipe"), so eval and map drive it on frames
+ * this far apart. */
+int nj_train_config_frame_step(const nj_train_config *c);
 
 #endif

@@ -165,13 +165,12 @@ static int load_models(map_run *r, char *err, size_t errlen)
 /* The pose network learnt the motion between frames `offset` apart (each of
  * data.frame_offsets): its motion between neighbours of a longer offset is
  * not that motion over a shorter gap, so the map takes every k-th frame, k
- * the smallest offset it learnt (measured on the demo: offset 2 chained over
- * neighbours gave paths ~2x too long).  Ground truth uses every frame. */
+ * the smallest offset it learnt (nj_train_config_frame_step; measured on the
+ * demo: offset 2 chained over neighbours gave paths ~2x too long).  Ground
+ * truth uses every frame. */
 static int choose_frames(map_run *r, char *err, size_t errlen)
 {
-    int k = 0;
-    for (int i = 0; i < r->cfg.noffsets; i++)
-        if (r->cfg.offsets[i] > 0 && (!k || r->cfg.offsets[i] < k)) k = r->cfg.offsets[i];
+    int k = nj_train_config_frame_step(&r->cfg);
     if (r->a.source != NJ_MAP_TRUTH && r->trained.cfg.pose && k > 1) r->step = k;
     r->n = (r->total - 1) / r->step + 1;
     if (r->n < NJ_MAP_MIN_FRAMES) {

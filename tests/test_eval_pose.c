@@ -31,13 +31,13 @@
 #include "tests/train_runs.h"
 #include "train/loop/checkpoint.h"
 #include <cjson/cJSON.h>
-#include <math.h>
-#include <sys/stat.h>
-#include <unistd.h>
-#include <stdio.h>
 #include <errno.h>
+#include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
 
 #define FRAMES 12
 

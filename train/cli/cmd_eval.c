@@ -22,7 +22,7 @@ static const char ABOUT[] =
 static const char EPILOGUE[] =
     "  Where the split has ground-truth poses and the model a pose net: trajectory error\n"
     "  on 5-frame snippets with least-squares scale alignment (Zhou et al. 2017), and the\n"
-    "  rotation error of each consecutive frame pair next to the true rotation; per camera\n"
+    "  rotation error of each pair of neighbouring frames next to the true rotation; per camera\n"
     "  axis (pitch, yaw, roll) the mean and RMS error and the least-squares slope and\n"
     "  correlation of predicted on true (1 and 1: that axis is learned; 0: it is not).\n"
     "  A model trained on frame offsets of k and more is driven on every k-th frame (k the\n"

@@ -70,3 +70,12 @@ int nj_poses_write(const char *path, const double *poses, int n, char *err, size
             ok = fprintf(a.f, "%.9g%c", poses[12 * i + j], j == 11 ? '\n' : ' ') > 0;
     return nj_atomic_close(&a, ok, err, errlen);
 }
+
+int nj_poses_keep_every(double *poses, int n, int k)
+{
+    if (n <= 0) return 0;
+    if (k <= 1) return n;
+    int m = (n - 1) / k + 1;
+    for (int i = 1; i < m; i++) memmove(poses + 12 * i, poses + 12 * (size_t)i * k, sizeof(double) * 12);
+    return m;
+}

@@ -10,5 +10,8 @@
 int nj_poses_read(const char *path, double **out, char *err, size_t errlen);
 /* Writes n poses atomically (%.9g per number). */
 int nj_poses_write(const char *path, const double *poses, int n, char *err, size_t errlen);
+/* Keeps poses 0, k, 2k, ... of n in place, at the front; returns their count
+ * (n − 1)/k + 1 (n when k ≤ 1, 0 when n ≤ 0). */
+int nj_poses_keep_every(double *poses, int n, int k);
 
 #endif

@@ -253,9 +253,9 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
     }
     /* the stopped- and moving-camera figures: present on both sides or on neither */
     static const char *const PAIR_FIGURES[8] = {"still_pairs", "moving_rotation_error_deg", "still_rotation_deg",
-                                         "still_translation_ratio", "heading_error_deg",
-                                         "heading_elevation_mean_error_deg", "heading_elevation_true_mean_deg",
-                                         "heading_azimuth_mean_error_deg"};
+                                                "still_translation_ratio", "heading_error_deg",
+                                                "heading_elevation_mean_error_deg", "heading_elevation_true_mean_deg",
+                                                "heading_azimuth_mean_error_deg"};
     for (int k = 0; ok && k < 8; k++) {
         const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, PAIR_FIGURES[k]);
         const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, PAIR_FIGURES[k]);

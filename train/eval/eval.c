@@ -492,9 +492,8 @@ static void rectify_poses(const nj_sequence *s, double *c2w, int n)
 }
 
 /* The pose net's motions between frames frame_step apart (0, k, 2k, ...: a
- * model trained on offsets of 2 and more learnt the motion over its smallest
- * one, and gives that whatever gap it is shown) against the poses of the same
- * frames. */
+ * model trained on offsets of k and more learnt the motion over k frames, and
+ * gives that whatever gap it is shown) against the poses of the same frames. */
 static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size_t errlen)
 {
     double *c2w = NULL, *rel = NULL;
@@ -502,8 +501,7 @@ static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size
     int n = nj_poses_read(s->poses, &c2w, err, errlen), rc = -1, k = r->frame_step;
     if (n < 0) return -1;
     rectify_poses(s, c2w, n);
-    n = (n - 1) / k + 1;
-    for (int i = 1; i < n; i++) memmove(c2w + 12 * i, c2w + 12 * i * k, sizeof(double) * 12);
+    n = nj_poses_keep_every(c2w, n, k);
     if (n < NJ_ATE_SNIPPET) {
         free(c2w);
         return 0;
@@ -723,8 +721,8 @@ static cJSON *report_json(const eval_run *r)
             }
         }
         char axes[1100];
-        snprintf(axes, sizeof axes, "rotation vector of each pair's motion (camera i into camera i + 1; cameras frame_step frames apart) "
-                 "in the camera frame: pitch about x (right), yaw about y (down), roll about z (forward); error = "
+        snprintf(axes, sizeof axes, "rotation vector of each pair's motion (camera i into camera i + 1; "
+                 "cameras frame_step frames apart) in the camera frame: pitch about x (right), yaw about y (down), roll about z (forward); error = "
                  "predicted - true component; slope and correlation: least-squares line of predicted on true "
                  "(absent when either does not vary); still pairs: true translation below %g%% of the sequence's "
                  "mean, still_rotation_deg the mean predicted rotation there, still_translation_ratio the mean "

@@ -297,12 +297,6 @@ int nj_train_config_check(const nj_train_config *c, char *err, size_t errlen)
     return 0;
 }
 
-/* Warm-up: lr·step/warmup_steps for step < warmup_steps (linear from 0).
- * Then, with the cosine schedule and a known total, cosine annealing
- * (Loshchilov & Hutter 2017) over the remaining steps:
- *   lr_min + (lr − lr_min)·(1 + cos(π·t))/2,  t = (step − warmup)/(total − warmup) clipped to [0, 1];
- * otherwise (step schedule, or total unknown) lr·gamma^⌊(step − warmup)/step_every⌋,
- * never below lr_min. */
 int nj_train_config_frame_step(const nj_train_config *c)
 {
     int k = 0;
@@ -311,6 +305,12 @@ int nj_train_config_frame_step(const nj_train_config *c)
     return k ? k : 1;
 }
 
+/* Warm-up: lr·step/warmup_steps for step < warmup_steps (linear from 0).
+ * Then, with the cosine schedule and a known total, cosine annealing
+ * (Loshchilov & Hutter 2017) over the remaining steps:
+ *   lr_min + (lr − lr_min)·(1 + cos(π·t))/2,  t = (step − warmup)/(total − warmup) clipped to [0, 1];
+ * otherwise (step schedule, or total unknown) lr·gamma^⌊(step − warmup)/step_every⌋,
+ * never below lr_min. */
 float nj_train_config_lr(const nj_train_config *c, long step, long total_steps)
 {
     if (step < 0) step = 0;

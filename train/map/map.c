@@ -178,7 +178,7 @@ static int choose_frames(map_run *r, char *err, size_t errlen)
                  r->a.data, r->a.sequence, r->total, r->step, r->step * (NJ_MAP_MIN_FRAMES - 1) + 1);
         return -1;
     }
-    for (int i = 0; r->gt && i < r->n; i++) memmove(r->gt + 12 * i, r->gt + 12 * i * r->step, sizeof(double) * 12);
+    if (r->gt) nj_poses_keep_every(r->gt, r->total, r->step);
     return 0;
 }
 

@@ -151,6 +151,9 @@ static void pose_block(const char *tag, const char *metrics, const char *ckpt, i
         }
     }
     ok = ok && tr_dump_motions(ckpt, images, frames, rel, err, sizeof err) == 0;
+    char rel2[700];
+    snprintf(rel2, sizeof rel2, "%s/yard-02.rel2.f64", motions);
+    ok = ok && tr_dump_motions_gap(ckpt, images, frames, 2, rel2, err, sizeof err) == 0;
     snprintf(args, sizeof args, "/usr/bin/python3 tests/ref/eval_pose_ref.py %s test %s %s %d", data, motions, ref,
              step);
     ok = ok && system(args) == 0;
@@ -158,6 +161,14 @@ static void pose_block(const char *tag, const char *metrics, const char *ckpt, i
              "and the model's motions", tag);
     int same = ok && tr_pose_matches(metrics, ref, 1e-9, why, sizeof why);
     check(same, name, "%s", ok ? why : err[0] ? err : "reference failed (tests/ref/eval_pose_ref.py)");
+    /* the gap figures are compared only where the reference has them: make sure it does */
+    cJSON *rj = load_json(ref);
+    double triples = num(rj, "gap_triples"), ratio = num(rj, "gap_translation_ratio");
+    snprintf(name, sizeof name, "%s: the gap figures (frames %d apart over their two halves) are compared, over "
+             "moving triples", tag, 2 * step);
+    check(ok && triples > 0 && isfinite(ratio) && isfinite(num(rj, "gap_translation_ratio_true")), name,
+          "reference gap_triples %g, ratio %g", triples, ratio);
+    cJSON_Delete(rj);
 }
 
 int main(void)

@@ -178,7 +178,8 @@ int tr_numbered(const char *run, long *steps, int max)
     return n;
 }
 
-int tr_dump_motions(const char *ckpt, const char *images, int nframes, const char *out, char *err, size_t len)
+int tr_dump_motions_gap(const char *ckpt, const char *images, int nframes, int gap, const char *out, char *err,
+                       size_t len)
 {
     nj_model m;
     nj_train_config cfg;
@@ -192,25 +193,31 @@ int tr_dump_motions(const char *ckpt, const char *images, int nframes, const cha
     FILE *f = fopen(out, "wb");
     int rc = f ? 0 : -1;
     if (!f) snprintf(err, len, "%s: cannot write", out);
-    nj_image prev = {0, 0, NULL}, cur = {0, 0, NULL};
-    for (int i = 0; rc == 0 && i < nframes; i++) {
+    for (int i = gap; rc == 0 && i < nframes; i++) {
         char p[1024];
+        nj_image a = {0, 0, NULL}, b = {0, 0, NULL};
+        snprintf(p, sizeof p, "%s/%06d.png", images, i - gap);
+        rc = nj_image_load(p, &a, err, len);
         snprintf(p, sizeof p, "%s/%06d.png", images, i);
-        if (nj_image_load(p, &cur, err, len)) { rc = -1; break; }
-        if (i > 0) {
-            double T[12];
-            if (nj_infer_motion(&in, &prev, &cur, NULL, T, err, len)) rc = -1;
-            else if (fwrite(T, sizeof(double), 12, f) != 12) { snprintf(err, len, "%s: write failed", out); rc = -1; }
-            nj_image_free(&prev);
+        if (rc == 0) rc = nj_image_load(p, &b, err, len);
+        double T[12];
+        if (rc == 0 && nj_infer_motion(&in, &a, &b, NULL, T, err, len)) rc = -1;
+        if (rc == 0 && fwrite(T, sizeof(double), 12, f) != 12) {
+            snprintf(err, len, "%s: write failed", out);
+            rc = -1;
         }
-        prev = cur;
-        cur.data = NULL;
+        if (a.data) nj_image_free(&a);
+        if (b.data) nj_image_free(&b);
     }
-    if (prev.data) nj_image_free(&prev);
     if (f && fclose(f) && rc == 0) rc = -1;
     nj_infer_free(&in);
     nj_model_free(&m);
     return rc;
+}
+
+int tr_dump_motions(const char *ckpt, const char *images, int nframes, const char *out, char *err, size_t len)
+{
+    return tr_dump_motions_gap(ckpt, images, nframes, 1, out, err, len);
 }
 
 static cJSON *load_json(const char *path)
@@ -263,6 +270,20 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
         int same = !av == !bv && (!av || (cJSON_IsNumber(av) && fabs(a - b) <= tol * (1 + fabs(b))));
         if (!same) {
             snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", PAIR_FIGURES[k], av ? "" : "(absent) ", a,
+                     bv ? "" : "(absent) ", b);
+            ok = 0;
+        }
+    }
+    /* the gap figures: compared where the reference had the two-gap motions
+     * (tr_dump_motions_gap); eval always writes gap_triples */
+    static const char *const GAP_FIGURES[3] = {"gap_triples", "gap_translation_ratio", "gap_translation_ratio_true"};
+    for (int k = 0; ok && cJSON_GetObjectItemCaseSensitive(r, "gap_triples") && k < 3; k++) {
+        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, GAP_FIGURES[k]);
+        const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, GAP_FIGURES[k]);
+        double a = number_of(pose, GAP_FIGURES[k]), b = number_of(r, GAP_FIGURES[k]);
+        int same = !av == !bv && (!av || (cJSON_IsNumber(av) && fabs(a - b) <= tol * (1 + fabs(b))));
+        if (!same) {
+            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", GAP_FIGURES[k], av ? "" : "(absent) ", a,
                      bv ? "" : "(absent) ", b);
             ok = 0;
         }

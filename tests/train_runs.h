@@ -56,6 +56,10 @@ int tr_numbered(const char *run, long *steps, int max);
  * OUT as raw little-endian float64, (nframes − 1) × 3 × 4, for
  * tests/ref/eval_pose_ref.py.  0, or -1 with a message. */
 int tr_dump_motions(const char *ckpt, const char *images, int nframes, const char *out, char *err, size_t len);
+/* The same for frames `gap` apart: motion i maps frame i into frame i + gap,
+ * (nframes − gap) × 3 × 4. */
+int tr_dump_motions_gap(const char *ckpt, const char *images, int nframes, int gap, const char *out, char *err,
+                        size_t len);
 
 /* 1 when the "pose" block of eval's METRICS json matches the REF json of
  * tests/ref/eval_pose_ref.py: the counts exactly, every figure within

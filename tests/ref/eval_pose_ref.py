@@ -40,12 +40,19 @@ and the true motion; the mean angle between them (np.arccos of the
 normalised dot product, clipped), and the mean errors of the elevation
 np.arctan2(-c_y, hypot(c_x, c_z)) and the azimuth np.arctan2(c_x, c_z),
 with the true elevation's mean, degrees.
+Gap: where MOTIONS_DIR/NAME.rel2.f64 exists ((frames - 2) x 3 x 4: motion i
+maps camera i into camera i + 2, of the kept frames), for every triple
+i, i + 1, i + 2 whose two true halves both move (the stopped rule above, per
+half) and whose predicted halves are not both zero: the translation length
+(np.linalg.norm) of i -> i + 2 over the summed lengths of i -> i + 1 and
+i + 1 -> i + 2, for the model and for the truth; their means over triples.
 
 Writes OUT.json: {"ate", "ate_std", "rmse", "scale_mean", "snippets",
 "rotation_error_deg", "rotation_true_deg", "pairs", "frame_step", and for AXIS in pitch,
 yaw, roll: "AXIS_mean_error_deg", "AXIS_rms_error_deg", "AXIS_true_rms_deg",
 "AXIS_true_mean_deg", "AXIS_slope", "AXIS_correlation"}
-plus "still_pairs", "moving_rotation_error_deg", "heading_error_deg",
+plus "gap_triples", "gap_translation_ratio", "gap_translation_ratio_true"
+where every sequence has the rel2 file, "still_pairs", "moving_rotation_error_deg", "heading_error_deg",
 "heading_elevation_mean_error_deg", "heading_elevation_true_mean_deg",
 "heading_azimuth_mean_error_deg", and where there are still
 pairs "still_rotation_deg", "still_translation_ratio" (metrics.json's keys).
@@ -77,6 +84,7 @@ def main():
     ates, rmses, scales, rot_err, rot_true, vec_err, vec_true = [], [], [], [], [], [], []
     still_rot, still_t, moving_t, moving_err = [], [], [], []
     head_err, elev_err, azim_err, elev_true = [], [], [], []
+    gap, gap_true, gap_files = [], [], True
     for s in desc["sequences"]:
         if s.get("split", "train") != split or "poses" not in s:
             continue
@@ -109,6 +117,19 @@ def main():
                 elev_err.append(ep - et)
                 elev_true.append(et)
                 azim_err.append(np.arctan2(cp[0], cp[2]) - np.arctan2(ct[0], ct[2]))
+        rel2_path = os.path.join(motions, s["name"] + ".rel2.f64")
+        gap_files = gap_files and os.path.exists(rel2_path)
+        if gap_files:
+            rel2 = np.fromfile(rel2_path, dtype="<f8").reshape(-1, 3, 4)
+            assert rel2.shape[0] == n - 2, "%s: %d two-gap motions for %d poses" % (s["name"], rel2.shape[0], n)
+            for i in range(n - 2):
+                ta, tb = true_t[i], true_t[i + 1]
+                pa, pb = np.linalg.norm(rel[i, :, 3]), np.linalg.norm(rel[i + 1, :, 3])
+                if ta < 0.02 * np.mean(true_t) or tb < 0.02 * np.mean(true_t) or not pa + pb > 0:
+                    continue
+                gap.append(np.linalg.norm(rel2[i, :, 3]) / (pa + pb))
+                t2 = np.linalg.norm((np.linalg.inv(to4(c2w[i + 2])) @ to4(c2w[i]))[:3, 3])
+                gap_true.append(t2 / (ta + tb))
         for i in range(n - 1):
             true = np.linalg.inv(to4(c2w[i + 1])) @ to4(c2w[i])
             Rt, Rp = true[:3, :3], rel[i, :, :3]
@@ -122,6 +143,11 @@ def main():
            "rotation_error_deg": float(np.degrees(np.mean(rot_err))),
            "rotation_true_deg": float(np.degrees(np.mean(rot_true))), "pairs": len(rot_err), "frame_step": step}
     res["still_pairs"] = len(still_rot)
+    if gap_files:
+        res["gap_triples"] = len(gap)
+        if gap:
+            res["gap_translation_ratio"] = float(np.mean(gap))
+            res["gap_translation_ratio_true"] = float(np.mean(gap_true))
     if moving_err:
         res["moving_rotation_error_deg"] = float(np.degrees(np.mean(moving_err)))
         res["heading_error_deg"] = float(np.degrees(np.mean(head_err)))

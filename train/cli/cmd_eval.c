@@ -26,7 +26,10 @@ static const char EPILOGUE[] =
     "  axis (pitch, yaw, roll) the mean and RMS error and the least-squares slope and\n"
     "  correlation of predicted on true (1 and 1: that axis is learned; 0: it is not).\n"
     "  A model trained on frame offsets of k and more is driven on every k-th frame (k the\n"
-    "  smallest offset: the motion its pose net learnt), and its pairs are k frames apart.\n";
+    "  smallest offset: the motion its pose net learnt), and its pairs are k frames apart.\n"
+    "  Gap: the translation it gives frames 2k apart over the summed translation of their\n"
+    "  two k-frame halves (truth about 1 on a straight route; about 0.5: the pose net gives\n"
+    "  every gap the same motion, the one it learnt for the place, instead of measuring it).\n";
 
 int nj_eval_main(int argc, char **argv)
 {

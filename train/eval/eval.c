@@ -60,6 +60,13 @@ typedef struct eval_run {
     /* heading of the moving pairs: the direction the camera centre moved, in
      * the first camera's frame (x right, y down, z forward) */
     double head_err_sum, head_elev_err_sum, head_azim_err_sum, head_elev_true_sum;
+    /* frames 2·frame_step apart against their two frame_step halves (moving
+     * triples): the pose net's translation length over the halves' summed
+     * length, and the truth's (near 1 on a straight route).  A pose net that
+     * recalls a place's motion instead of measuring it gives any gap the same
+     * motion: about 0.5 (DEVELOPERS.md, "Training recipe") */
+    int gap_triples;
+    double gap_sum, gap_true_sum;
 } eval_run;
 
 #define STILL_SHARE 0.02
@@ -453,6 +460,27 @@ static void add_rotation_errors(eval_run *r, const double *c2w, const double *re
     }
 }
 
+/* rel: motions i → i + 1, rel2: i → i + 2, of the n kept frames. */
+static void add_gap_ratios(eval_run *r, const double *c2w, const double *rel, const double *rel2, int n)
+{
+    double mean_t = 0, gt[3][12];
+    for (int i = 0; i + 1 < n; i++) {
+        nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt[0]);
+        mean_t += translation_length(gt[0]) / (n - 1);
+    }
+    for (int i = 0; i + 2 < n; i++) {
+        nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt[0]);
+        nj_motion_from_c2w(c2w + 12 * (i + 1), c2w + 12 * (i + 2), gt[1]);
+        nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 2), gt[2]);
+        double ta = translation_length(gt[0]), tb = translation_length(gt[1]);
+        double pa = translation_length(rel + 12 * i), pb = translation_length(rel + 12 * (i + 1));
+        if (ta < STILL_SHARE * mean_t || tb < STILL_SHARE * mean_t || !(pa + pb > 0)) continue;
+        r->gap_triples++;
+        r->gap_sum += translation_length(rel2 + 12 * i) / (pa + pb);
+        r->gap_true_sum += translation_length(gt[2]) / (ta + tb);
+    }
+}
+
 /* Mean predicted translation of the stopped pairs over that of the moving
  * ones (the scale-free way to say "it thinks it moved"). */
 static double still_ratio(const eval_run *r)
@@ -497,7 +525,7 @@ static void rectify_poses(const nj_sequence *s, double *c2w, int n)
 static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size_t errlen)
 {
     double *c2w = NULL, *rel = NULL;
-    nj_image prev = {0, 0, NULL}, cur = {0, 0, NULL};
+    nj_image before = {0, 0, NULL}, prev = {0, 0, NULL}, cur = {0, 0, NULL};
     int n = nj_poses_read(s->poses, &c2w, err, errlen), rc = -1, k = r->frame_step;
     if (n < 0) return -1;
     rectify_poses(s, c2w, n);
@@ -506,7 +534,7 @@ static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size
         free(c2w);
         return 0;
     }
-    rel = malloc((size_t)12 * (n - 1) * sizeof *rel);
+    rel = malloc((size_t)12 * (2 * n - 3) * sizeof *rel);   /* then rel2: i → i + 2 */
     if (!rel) {
         snprintf(err, errlen, "out of memory");
         goto done;
@@ -515,17 +543,21 @@ static int eval_pose_sequence(eval_run *r, const nj_sequence *s, char *err, size
     nj_camera cam = camera_at(s, prev.w, prev.h);   /* for a pose net that sees ray directions */
     for (int i = 1; i < n; i++) {
         if (load_frame(s, i * k, &cur, err, errlen) ||
-            nj_infer_motion(&r->inf[0], &prev, &cur, &cam, rel + 12 * (i - 1), err, errlen))
+            nj_infer_motion(&r->inf[0], &prev, &cur, &cam, rel + 12 * (i - 1), err, errlen) ||
+            (i >= 2 && nj_infer_motion(&r->inf[0], &before, &cur, &cam, rel + 12 * (n - 1 + i - 2), err, errlen)))
             goto done;
-        nj_image_free(&prev);
+        nj_image_free(&before);
+        before = prev;
         prev = cur;
         cur.data = NULL;
     }
     add_snippets(r, c2w, rel, n);
     add_rotation_errors(r, c2w, rel, n);
+    add_gap_ratios(r, c2w, rel, rel + 12 * (n - 1), n);
     r->pose_sequences++;
     rc = 0;
 done:
+    nj_image_free(&before);
     nj_image_free(&prev);
     nj_image_free(&cur);
     free(c2w);
@@ -616,6 +648,11 @@ static void print_table(const eval_run *r)
         printf("pose: on the %d pairs of a stopped camera: predicted rotation %.3f deg, predicted translation "
                "%.3f of a moving pair's (0 and 0: standing still is seen)\n", r->still_pairs,
                RAD2DEG(r->still_rot_sum / r->still_pairs), still_ratio(r));
+    if (r->gap_triples)
+        printf("pose: frames %d apart get %.2f of the summed translation of their two halves (truth %.2f; "
+               "near 0.5: the pose net answers with the motion it learnt for the place, it does not measure "
+               "it), over %d moving triples\n", 2 * r->frame_step, r->gap_sum / r->gap_triples,
+               r->gap_true_sum / r->gap_triples, r->gap_triples);
     for (int k = 0; k < 3 && r->pairs; k++)
         printf("pose: %-5s (rotation about the camera's %c axis) mean error %+.3f deg, RMS error %.3f deg, "
                "true RMS %.3f deg\n", AXIS_NAMES[k], "xyz"[k], RAD2DEG(r->axis_pred[k] - r->axis_true[k]),
@@ -702,6 +739,11 @@ static cJSON *report_json(const eval_run *r)
             cJSON_AddNumberToObject(p, "still_rotation_deg", RAD2DEG(r->still_rot_sum / r->still_pairs));
             cJSON_AddNumberToObject(p, "still_translation_ratio", still_ratio(r));
         }
+        cJSON_AddNumberToObject(p, "gap_triples", r->gap_triples);
+        if (r->gap_triples) {
+            cJSON_AddNumberToObject(p, "gap_translation_ratio", r->gap_sum / r->gap_triples);
+            cJSON_AddNumberToObject(p, "gap_translation_ratio_true", r->gap_true_sum / r->gap_triples);
+        }
         for (int k = 0; k < 3; k++) {
             char key[40];
             snprintf(key, sizeof key, "%s_mean_error_deg", AXIS_NAMES[k]);
@@ -720,7 +762,7 @@ static cJSON *report_json(const eval_run *r)
                 cJSON_AddNumberToObject(p, key, corr);
             }
         }
-        char axes[1100];
+        char axes[1400];
         snprintf(axes, sizeof axes, "rotation vector of each pair's motion (camera i into camera i + 1; "
                  "cameras frame_step frames apart) in the camera frame: pitch about x (right), yaw about y (down), roll about z (forward); error = "
                  "predicted - true component; slope and correlation: least-squares line of predicted on true "
@@ -728,7 +770,10 @@ static cJSON *report_json(const eval_run *r)
                  "mean, still_rotation_deg the mean predicted rotation there, still_translation_ratio the mean "
                  "predicted translation there over the moving pairs' mean; heading (moving pairs): the direction "
                  "camera i + 1's centre lies in from camera i (-R^T t), its angle to the true one, and the mean "
-                 "errors of its elevation (up positive) and azimuth (right positive)", 100 * STILL_SHARE);
+                 "errors of its elevation (up positive) and azimuth (right positive); gap (triples of frames i, "
+                 "i + 1, i + 2 with both halves moving): the mean over triples of the translation length of "
+                 "i -> i + 2 over the sum of those of i -> i + 1 and i + 1 -> i + 2, predicted and true",
+                 100 * STILL_SHARE);
         cJSON_AddStringToObject(p, "axes", axes);
         cJSON_AddStringToObject(p, "protocol",
                                 "Zhou et al. 2017: first frames aligned, least-squares scale, "

@@ -7,6 +7,7 @@
 #include "losses/sample.h"
 #include "losses/smooth.h"
 #include "nn/ops.h"
+#include <math.h>
 #include <string.h>
 
 /* Errors at or above this mark a pixel whose warp left the source view. */
@@ -21,6 +22,7 @@ void nj_vs_config_default(nj_vs_config *cfg)
     cfg->saturation_guard = 0.0f;
     cfg->gain_match = 0;
     cfg->arc_motion = 0.0f;
+    cfg->each_offset = 0;
 }
 
 /* Logit magnitude beyond which the saturation guard pushes back. */
@@ -63,13 +65,13 @@ static nj_tensor *gain_matched(nj_graph *g, nj_tensor *src, const nj_tensor *tgt
     return out;
 }
 
-/* Minimum over sources of the un-warped (identity) error, with tie-break noise. */
-static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in)
+/* Minimum of the un-warped (identity) error over the sources not in `skip`,
+ * with tie-break noise. */
+static nj_tensor *identity_min(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in, unsigned skip)
 {
     int grad_was = nj_graph_grad_enabled(g);
     nj_graph_set_grad(g, 0);  /* depends on no parameter */
     nj_tensor *m = NULL;
-    unsigned skip = (in->mask_skip & ((1u << in->nsources) - 1)) == (1u << in->nsources) - 1 ? 0 : in->mask_skip;
     for (int s = 0; s < in->nsources; s++) {
         if (skip & (1u << s)) continue;
         nj_tensor *pe = nj_photometric_error(g, in->sources[s], in->target, cfg->alpha);
@@ -143,26 +145,78 @@ static float photo_norm(nj_graph *g, float used)
     return (float)(r->count / (all > 1 ? all : 1.0));
 }
 
+/* Sources of group k as a bit set; sources outside every group's range are in none. */
+static unsigned group_sources(const nj_vs_input *in, int k)
+{
+    unsigned set = 0;
+    for (int s = 0; s < in->nsources; s++) set |= in->group[s] == k ? 1u << s : 0u;
+    return set;
+}
+
+/* The photometric term of one scale with each_offset: per group, the
+ * per-pixel minimum over its sources, masked against its own un-warped
+ * minimum (ident[k]); the mean over every used (pixel, group) term. */
+static nj_tensor *groups_photo(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in, int s,
+                               nj_tensor *depth, nj_tensor *const *ident, int ngroups, nj_vs_output *out)
+{
+    nj_tensor *pe[NJ_MAX_SOURCES], *sum = NULL, *any = NULL, *emin = NULL;
+    for (int j = 0; j < in->nsources; j++) {
+        nj_tensor *valid = NULL;
+        nj_tensor *coords = nj_reproject(g, depth, in->poses[j], in->cams, &valid);
+        pe[j] = nj_add(g, nj_photometric_error(g, nj_sample_bilinear(g, in->sources[j], coords), in->target, cfg->alpha),
+                       outside_penalty(g, valid));
+    }
+    float used = 0;
+    for (int k = 0; k < ngroups; k++) {
+        nj_tensor *m = NULL;
+        for (int j = 0; j < in->nsources; j++)
+            if (in->group[j] == k) m = m ? nj_minimum(g, m, pe[j]) : pe[j];
+        if (!m) continue;
+        float u = 0;
+        nj_tensor *mask = make_mask(g, m, ident[k], &u);
+        if (!mask) return NULL;
+        used += u;
+        nj_tensor *term = nj_sum(g, nj_mul(g, m, mask), NJ_AXIS_ALL);
+        sum = sum ? nj_add(g, sum, term) : term;
+        if (s == 0) {   /* for the log and the health monitor: used by any group, the smallest error */
+            if (!any && !(any = nj_tensor_new(g, mask->n, 1, mask->h, mask->w, 0))) return NULL;
+            for (size_t i = 0; i < nj_numel(any); i++) any->data[i] = k ? fmaxf(any->data[i], mask->data[i]) : mask->data[i];
+            emin = emin ? nj_minimum(g, emin, m) : m;
+        }
+    }
+    if (s == 0 && any) {
+        out->automask = any;
+        out->error = emin;
+        out->mask_fraction = used / (float)(nj_numel(any) * (size_t)ngroups);
+    }
+    return nj_affine(g, sum, photo_norm(g, used), 0.0f);
+}
+
 static nj_tensor *scale_loss(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in,
-                             int s, nj_tensor *ident, nj_tensor *img,
+                             int s, nj_tensor *const *ident, int ngroups, nj_tensor *img,
                              nj_vs_output *out, float *photo, float *smooth)
 {
     nj_tensor *t = in->target, *d = in->disp[s];
     nj_tensor *up = (d->h == t->h && d->w == t->w) ? d : nj_resize_bilinear(g, d, t->h, t->w);
-    nj_tensor *rmin = reprojection_min(g, cfg, in, nj_depth_from_disparity(g, up, in->depth_range));
-    if (!rmin) return NULL;
-    float used = 0;
-    nj_tensor *mask = make_mask(g, rmin, cfg->automask ? ident : NULL, &used);
-    nj_tensor *pl = nj_affine(g, nj_sum(g, nj_mul(g, rmin, mask), NJ_AXIS_ALL), photo_norm(g, used), 0.0f);
+    nj_tensor *depth = nj_depth_from_disparity(g, up, in->depth_range), *pl;
+    if (cfg->each_offset) {
+        pl = groups_photo(g, cfg, in, s, depth, ident, ngroups, out);
+    } else {
+        nj_tensor *rmin = reprojection_min(g, cfg, in, depth);
+        if (!rmin) return NULL;
+        float used = 0;
+        nj_tensor *mask = make_mask(g, rmin, ident[0], &used);
+        pl = nj_affine(g, nj_sum(g, nj_mul(g, rmin, mask), NJ_AXIS_ALL), photo_norm(g, used), 0.0f);
+        if (s == 0) {
+            out->automask = mask;
+            out->error = rmin;
+            out->mask_fraction = used / (float)nj_numel(mask);
+        }
+    }
     nj_tensor *sl = nj_affine(g, nj_edge_smoothness(g, d, img), cfg->smooth_weight / (float)(1 << s), 0.0f);
     if (!pl || !sl) return NULL;
     *photo = pl->data[0];
     *smooth = sl->data[0];
-    if (s == 0) {
-        out->automask = mask;
-        out->error = rmin;
-        out->mask_fraction = used / (float)nj_numel(mask);
-    }
     return nj_add(g, pl, sl);
 }
 
@@ -202,11 +256,25 @@ int nj_view_synthesis_loss(nj_graph *g, const nj_vs_config *cfg,
             if (!(matched.sources[s] = gain_matched(g, in->sources[s], in->target))) return -1;
         in = &matched;
     }
-    nj_tensor *ident = cfg->automask ? identity_min(g, cfg, in) : NULL;
+    nj_tensor *ident[NJ_MAX_SOURCES] = {NULL};
+    int ngroups = 1;
+    if (cfg->each_offset) {
+        ngroups = 0;
+        for (int s = 0; s < in->nsources; s++) ngroups = in->group[s] + 1 > ngroups ? in->group[s] + 1 : ngroups;
+        if (ngroups > NJ_MAX_SOURCES) {
+            nj_graph_fail(g, "view_synthesis_loss: source groups must be below %d (got %d)", NJ_MAX_SOURCES, ngroups);
+            return -1;
+        }
+        for (int k = 0; cfg->automask && k < ngroups; k++)
+            if (group_sources(in, k)) ident[k] = identity_min(g, cfg, in, ~group_sources(in, k));
+    } else if (cfg->automask) {
+        unsigned all = (1u << in->nsources) - 1;
+        ident[0] = identity_min(g, cfg, in, (in->mask_skip & all) == all ? 0 : in->mask_skip);
+    }
     nj_tensor *total = NULL;
     for (int s = 0; s < in->nscales; s++) {
         float photo = 0, smooth = 0;
-        nj_tensor *l = scale_loss(g, cfg, in, s, ident, pyr[s], out, &photo, &smooth);
+        nj_tensor *l = scale_loss(g, cfg, in, s, ident, ngroups, pyr[s], out, &photo, &smooth);
         if (cfg->saturation_guard > 0) l = nj_add(g, l, saturation_guard(g, cfg, in->disp[s]));
         total = total ? nj_add(g, total, l) : l;
         out->photometric += photo / (float)in->nscales;

@@ -4,7 +4,8 @@
  * the input size, convert to depth (in the input's depth range), warp every
  * source frame into the target view with its pose, and take the per-pixel
  * photometric error.  Then:
- *  - per-pixel minimum over sources (Godard et al. 2019);
+ *  - per-pixel minimum over sources (Godard et al. 2019) — with each_offset,
+ *    within each group of sources, the groups' terms averaged;
  *  - auto-masking (Godard et al. 2019): the un-warped sources' errors, plus a
  *    tiny random tie-break, compete; pixels where an un-warped source is at
  *    least as good (static relative to the camera) contribute nothing;
@@ -42,6 +43,14 @@ typedef struct nj_vs_config {
                               neighbouring frames does move there, and is not masked */
     float arc_motion;      /* weight of the predicted motions' arc slip (losses/pose.h
                               nj_arc_slip), added by the training step; 0 = none */
+    int each_offset;       /* 1: the per-pixel minimum and the auto-mask are taken within
+                              each group of sources (nj_vs_input.group: a frame offset's
+                              two sources, the stereo partner), and the photometric term
+                              is the mean over every used (pixel, group) term, so every
+                              offset must explain the pixel; mask_skip is not used.
+                              With one minimum over all sources an offset-2 source with
+                              a wrong motion is not chosen where an offset-1 source
+                              fits, and nothing teaches the pose net the frame gap */
 } nj_vs_config;
 
 typedef struct nj_vs_input {
@@ -51,6 +60,8 @@ typedef struct nj_vs_input {
     int nsources;
     unsigned mask_skip;                     /* bit s: source s is left out of the auto-mask's
                                                un-warped minimum (never all of them); 0 = none */
+    unsigned char group[NJ_MAX_SOURCES];    /* with cfg.each_offset: source s's group,
+                                               0, 1, ... (below NJ_MAX_SOURCES) */
     const nj_camera *cams;                  /* N intrinsics at H×W */
     nj_tensor *disp[NJ_MAX_SCALES];         /* sigmoid outputs, N×1×(H/2^s)×(W/2^s) */
     nj_depth_range depth_range;             /* what the disparities mean (the model's

@@ -67,6 +67,7 @@ static int same_config(const nj_train_config *a, const nj_train_config *b, char 
     SAME_NUM(loss.alpha) SAME_NUM(loss.smooth_weight)
     SAME_NUM(loss.automask) SAME_NUM(automask_from) SAME_NUM(loss.tie_break)
     SAME_NUM(loss.saturation_guard) SAME_NUM(loss.arc_motion) SAME_NUM(arc_motion_from)
+    SAME_NUM(loss.each_offset) SAME_NUM(loss.automask_widest)
     SAME_NUM(rotation_pairs) SAME_NUM(rotation_pairs_deg) SAME_NUM(rotation_pairs_until)
     SAME_NUM(lr) SAME_NUM(lr_min) SAME_NUM(step_gamma) SAME_NUM(weight_decay) SAME_NUM(grad_clip)
     SAME_NUM(warmup_steps) SAME_NUM(step_every) SAME_NUM(cosine) SAME_STR(init) SAME_NUM(freeze_encoder)
@@ -147,6 +148,8 @@ static const bad_case BAD[] = {
      "model.depth_range: near (10) must be less than far (5)"},
     {"depth_range_empty_interval", "{\"model\": {\"depth_range\": [5, 5]}}",
      "model.depth_range: near (5) must be less than far (5)"},
+    {"each_offset_with_widest", "{\"loss\": {\"each_offset\": true, \"automask_widest\": true}}",
+     "loss.each_offset replaces loss.automask_widest: set automask_widest false"},
     {"lr_min_above_lr", "{\"optim\": {\"lr\": 0.001, \"lr_min\": 0.01}}",
      "optim.lr_min (0.01) must not exceed optim.lr (0.001)"},
     {"arc_with_turn", "{\"loss\": {\"arc_motion\": 1}, \"data\": {\"augment\": {\"turn_deg\": 1}}}",
@@ -485,6 +488,8 @@ static void random_model_optim(nj_train_config *c, nj_rng *r)
     c->loss.saturation_guard = uni(r, 0, 1);
     c->loss.arc_motion = nj_rng_below(r, 2) ? uni(r, 0, 10) : 0;
     if (c->loss.arc_motion > 0) c->turn_deg = c->roll_deg = 0;   /* refused together */
+    c->loss.each_offset = (int)nj_rng_below(r, 2);
+    c->loss.automask_widest = c->loss.each_offset ? 0 : (int)nj_rng_below(r, 2);   /* refused together */
     c->arc_motion_from = (long)nj_rng_below(r, 100000);
     c->rotation_pairs = c->video && c->model.pose && nj_rng_below(r, 2) ? uni(r, 0, 100) : 0;
     c->rotation_pairs_deg = uni(r, 0, 10);

@@ -115,9 +115,11 @@ static void test_rotation(nj_graph *g)
 
 /* The whole loss against an independent PyTorch implementation; with guard
  * > 0 (mode "vsloss_guard") some disparities are saturated and the
- * saturation guard is on. */
-static void test_vsloss(nj_graph *g, const char *mode, float guard)
+ * saturation guard is on; with offsets (mode "vsloss_offsets") four sources
+ * in two groups and loss.each_offset. */
+static void test_vsloss(nj_graph *g, const char *mode, float guard, int offsets)
 {
+    int nsrc = offsets ? 4 : 2;
     char name[128], dir[4096];
     snprintf(name, sizeof name, "%s vs independent PyTorch implementation", mode);
     if (losses_ref_run(mode, dir, sizeof dir, name)) return;
@@ -125,12 +127,13 @@ static void test_vsloss(nj_graph *g, const char *mode, float guard)
     nj_vs_input in;
     memset(&in, 0, sizeof in);
     in.target = losses_ref_tensor(g, dir, "target", 0);
-    in.nsources = 2;
+    in.nsources = nsrc;
     in.nscales = 4;
     in.depth_range = (nj_depth_range){0.1f, 100.0f};   /* the reference's min_d, max_d */
-    nj_tensor *pv[2];
+    nj_tensor *pv[4];
     char nm[32];
-    for (int i = 0; i < 2; i++) {
+    for (int i = 0; i < nsrc; i++) {
+        in.group[i] = (unsigned char)(offsets ? i / 2 : 0);
         snprintf(nm, sizeof nm, "source%d", i);
         in.sources[i] = losses_ref_tensor(g, dir, nm, 0);
         snprintf(nm, sizeof nm, "pose%d", i);
@@ -152,6 +155,7 @@ static void test_vsloss(nj_graph *g, const char *mode, float guard)
     nj_vs_config_default(&cfg);
     cfg.tie_break = 0;          /* the reference has no random tie-break */
     cfg.saturation_guard = guard;
+    cfg.each_offset = offsets;
     nj_vs_output out;
     if (nj_view_synthesis_loss(g, &cfg, &in, &out) || nj_backward(g, out.total)) {
         check(0, name, "%s", nj_graph_error(g));
@@ -170,7 +174,7 @@ static void test_vsloss(nj_graph *g, const char *mode, float guard)
         snprintf(tn, sizeof tn, "%s d(loss)/d(disparity scale %d) vs PyTorch", mode, s);
         compare(tn, in.disp[s]->grad, r->data, nj_numel(r), 1e-4);
     }
-    for (int i = 0; i < 2; i++) {
+    for (int i = 0; i < nsrc; i++) {
         snprintf(nm, sizeof nm, "gpose%d", i);
         nj_tensor *r = losses_ref_tensor(g, dir, nm, 0);
         snprintf(tn, sizeof tn, "%s d(loss)/d(pose %d) vs PyTorch", mode, i);
@@ -368,8 +372,9 @@ int main(void)
     test_ssim(g);
     test_sample(g);
     test_rotation(g);
-    test_vsloss(g, "vsloss", 0.0f);
-    test_vsloss(g, "vsloss_guard", 0.05f);
+    test_vsloss(g, "vsloss", 0.0f, 0);
+    test_vsloss(g, "vsloss_guard", 0.05f, 0);
+    test_vsloss(g, "vsloss_offsets", 0.0f, 1);
     test_motorcycle(g);
     test_camera(g);
     test_rays(g);

@@ -35,6 +35,9 @@ Every reference value comes from a library this project did not write:
                   out of the mean when every source is off-view);
                 the saturation guard weight * mean(relu(-log d - 6) + relu(-log(1 - d) - 6))
                   (mode vsloss_guard);
+                the grouped form (mode vsloss_offsets, loss.each_offset): minimum and
+                  auto-mask within each group of sources (two groups of two here), the
+                  groups' masked terms summed over their masked pixels;
                 the normaliser: the mean over the masked pixels (not over all pixels), the
                   1e-7 in the mean normalisation, and the depth range 0.1 .. 100 m (the
                   model's default depth_range);
@@ -162,18 +165,35 @@ def _rodrigues(v, torch):
     return eye + s * K + (1 - c) * (K @ K)
 
 
-def mode_vsloss(out, guard=0.0):
+def mode_vsloss(out, guard=0.0, groups=None):
     """The whole loss; with guard > 0 some disparities sit deep in both sigmoid
     bounds and the saturation guard, weight * mean(relu(-log d - 6) +
-    relu(-log(1 - d) - 6)) per scale, is part of the total."""
+    relu(-log(1 - d) - 6)) per scale, is part of the total.  With groups (a
+    group index per source, mode vsloss_offsets: loss.each_offset) the
+    minimum and the auto-mask are taken within each group, and the
+    photometric term is the sum of every group's masked minimum over the
+    count of every group's masked pixels; mask0 is 1 where any group uses the
+    pixel."""
     import torch
     import torch.nn.functional as F
     rng = np.random.default_rng(17)
-    N, H, W, S, nsrc = 2, 24, 32, 4, 2
+    N, H, W, S, nsrc = 2, 24, 32, 4, (len(groups) if groups else 2)
     min_d, max_d, smooth_w = 0.1, 100.0, 1e-3
-    target = rng.random((N, 3, H, W)).astype(np.float32)
-    sources = [np.clip(target + 0.1 * rng.standard_normal(target.shape), 0, 1).astype(np.float32)
-               for _ in range(nsrc)]
+    # a smooth target (bilinear from 6x8 random values) and sources with noise of 0.3 or 0.02 per
+    # pixel: a warp then beats the un-warped source where the source's noise at the sampled point
+    # is the smaller one, so the auto-mask keeps part of the pixels (on white-noise images with
+    # uniform noise it kept none, and the photometric term did not take part in the comparison)
+    # (the guard mode keeps the white-noise images: with saturated disparities some warps land
+    # on the source's border, where float32 and float64 can decide a pixel's mask differently)
+    if guard > 0:
+        target = rng.random((N, 3, H, W)).astype(np.float32)
+        sources = [np.clip(target + 0.1 * rng.standard_normal(target.shape), 0, 1).astype(np.float32)
+                   for _ in range(nsrc)]
+    else:
+        coarse = torch.tensor(rng.uniform(0.2, 0.8, (N, 3, 6, 8)))
+        target = F.interpolate(coarse, size=(H, W), mode="bilinear", align_corners=False).numpy().astype(np.float32)
+        sources = [np.clip(target + np.where(rng.random(target.shape) < 0.5, 0.3, 0.02) *
+                           rng.standard_normal(target.shape), 0, 1).astype(np.float32) for _ in range(nsrc)]
     posevec = [np.concatenate([rng.uniform(-0.05, 0.05, (N, 3)), rng.uniform(-0.3, 0.3, (N, 3))],
                               axis=1).astype(np.float32) for _ in range(nsrc)]
     disps = [rng.uniform(0.05, 0.4, (N, 1, H >> s, W >> s)).astype(np.float32) for s in range(S)]
@@ -196,7 +216,8 @@ def mode_vsloss(out, guard=0.0):
     Ss = [torch.tensor(s, dtype=dt) for s in sources]
     P = [torch.tensor(p, dtype=dt, requires_grad=True) for p in posevec]
     D = [torch.tensor(d, dtype=dt, requires_grad=True) for d in disps]
-    ident = torch.stack([_pe(s, T, F, torch) for s in Ss]).min(0).values
+    gsets = [[i for i in range(nsrc) if groups[i] == k] for k in range(max(groups) + 1)] if groups else [list(range(nsrc))]
+    idents = [torch.stack([_pe(Ss[i], T, F, torch) for i in gs]).min(0).values for gs in gsets]
     vv, uu = torch.meshgrid(torch.arange(H, dtype=dt), torch.arange(W, dtype=dt), indexing="ij")
     total, masks = 0, []
     imgs = [T]
@@ -222,9 +243,14 @@ def mode_vsloss(out, guard=0.0):
             grid = torch.stack([2 * x / (W - 1) - 1, 2 * y / (H - 1) - 1], -1)
             warped = F.grid_sample(Ss[i], grid, mode="bilinear", padding_mode="border", align_corners=True)
             errs.append(_pe(warped, T, F, torch) + (1 - valid[:, None]) * 1e3)
-        rmin = torch.stack(errs).min(0).values
-        mask = ((rmin < 1e3) & (rmin < ident)).to(dt).detach()
-        photo = (rmin * mask).sum() / max(float(mask.sum()), 1.0)
+        num, count, mask = 0, 0.0, 0
+        for gs, ident in zip(gsets, idents):
+            rmin = torch.stack([errs[i] for i in gs]).min(0).values
+            m = ((rmin < 1e3) & (rmin < ident)).to(dt).detach()
+            num = num + (rmin * m).sum()
+            count += float(m.sum())
+            mask = torch.maximum(torch.as_tensor(mask, dtype=dt), m)
+        photo = num / max(count, 1.0)
         d = D[s]
         dn = d / (d.mean((2, 3), keepdim=True) + 1e-7)
         img = imgs[s]
@@ -325,7 +351,8 @@ def main():
     mode, out = sys.argv[1].split(":", 1)
     modes = {"ssim": mode_ssim, "sample": mode_sample, "rotation": mode_rotation,
              "vsloss": mode_vsloss,
-             "vsloss_guard": lambda out: mode_vsloss(out, 0.05), "camera": mode_camera, "motorcycle": mode_motorcycle,
+             "vsloss_guard": lambda out: mode_vsloss(out, 0.05),
+             "vsloss_offsets": lambda out: mode_vsloss(out, 0.0, [0, 0, 1, 1]), "camera": mode_camera, "motorcycle": mode_motorcycle,
              "rays": mode_rays, "free_space": mode_free_space}
     if mode not in modes:
         sys.exit("losses_ref.py: unknown mode %s" % mode)

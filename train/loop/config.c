@@ -64,6 +64,7 @@ const nj_config_field nj_config_fields[] = {
     F("loss", "tie_break", NJ_F_FLOAT, loss.tie_break, 0, 1, 0, 0),
     TEXT("loss", "gain_match", NJ_F_BOOL, loss.gain_match),
     TEXT("loss", "automask_widest", NJ_F_BOOL, loss.automask_widest),
+    TEXT("loss", "each_offset", NJ_F_BOOL, loss.each_offset),
     F("loss", "arc_motion", NJ_F_FLOAT, loss.arc_motion, 0, 100, 0, 0),
     F("loss", "arc_motion_from_step", NJ_F_LONG, arc_motion_from, 0, 1e12, 0, 0),
     F("loss", "rotation_pairs", NJ_F_FLOAT, rotation_pairs, 0, 100, 0, 0),
@@ -284,6 +285,9 @@ static int check_rest(const nj_train_config *c, char *err, size_t errlen)
         snprintf(err, errlen, "loss.arc_motion cannot be combined with data.augment.turn_deg or roll_deg");
     else if (c->rotation_pairs > 0 && !(c->video && c->model.pose))
         snprintf(err, errlen, "loss.rotation_pairs needs video training with a pose net (data.video, model.pose)");
+    else if (c->loss.each_offset && c->loss.automask_widest)
+        /* each offset is masked against its own un-warped sources */
+        snprintf(err, errlen, "loss.each_offset replaces loss.automask_widest: set automask_widest false");
     else
         return 0;
     return -1;

@@ -82,6 +82,7 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
         if (cfg->loss.automask_widest && j / 2 < cfg->noffsets && cfg->offsets[j / 2] < widest)
             in->mask_skip |= 1u << in->nsources;
         if (b->turn && !(T = unturned(g, b, j, T))) return -1;
+        in->group[in->nsources] = (unsigned char)(j / 2);   /* t − k and t + k: offset k's group */
         in->sources[in->nsources] = src;
         in->poses[in->nsources++] = T;
     }
@@ -125,6 +126,7 @@ static int add_stereo(nj_graph *g, const nj_batch *b, nj_vs_input *in)
             nj_graph_fail(g, "training batch item %d has no stereo partner", i);
             return -1;
         }
+    in->group[in->nsources] = (unsigned char)(in->nsources ? in->group[in->nsources - 1] + 1 : 0);
     in->sources[in->nsources] = wrap(g, b, b->partner);
     in->poses[in->nsources++] = nj_pose_stereo(g, b->n, b->stereo_tx);
     return nj_graph_failed(g) ? -1 : 0;

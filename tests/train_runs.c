@@ -228,6 +228,24 @@ static cJSON *load_json(const char *path)
     return j;
 }
 
+/* 1 when each of keys[0..n) is on both sides or on neither, and equal within
+ * tol·(1 + |ref|) where present; else 0 with the first difference in why. */
+static int optional_figures(const cJSON *pose, const cJSON *r, const char *const *keys, int n, double tol, char *why,
+                            size_t len)
+{
+    for (int k = 0; k < n; k++) {
+        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, keys[k]);
+        const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, keys[k]);
+        double a = number_of(pose, keys[k]), b = number_of(r, keys[k]);
+        if (!(!av == !bv && (!av || (cJSON_IsNumber(av) && fabs(a - b) <= tol * (1 + fabs(b)))))) {
+            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", keys[k], av ? "" : "(absent) ", a,
+                     bv ? "" : "(absent) ", b);
+            return 0;
+        }
+    }
+    return 1;
+}
+
 int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why, size_t len)
 {
     static const char *const COUNTS[3] = {"snippets", "pairs", "frame_step"};
@@ -263,31 +281,12 @@ int tr_pose_matches(const char *metrics, const char *ref, double tol, char *why,
                                                 "still_translation_ratio", "heading_error_deg",
                                                 "heading_elevation_mean_error_deg", "heading_elevation_true_mean_deg",
                                                 "heading_azimuth_mean_error_deg"};
-    for (int k = 0; ok && k < 8; k++) {
-        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, PAIR_FIGURES[k]);
-        const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, PAIR_FIGURES[k]);
-        double a = number_of(pose, PAIR_FIGURES[k]), b = number_of(r, PAIR_FIGURES[k]);
-        int same = !av == !bv && (!av || (cJSON_IsNumber(av) && fabs(a - b) <= tol * (1 + fabs(b))));
-        if (!same) {
-            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", PAIR_FIGURES[k], av ? "" : "(absent) ", a,
-                     bv ? "" : "(absent) ", b);
-            ok = 0;
-        }
-    }
+    ok = ok && optional_figures(pose, r, PAIR_FIGURES, 8, tol, why, len);
     /* the gap figures: compared where the reference had the two-gap motions
      * (tr_dump_motions_gap); eval always writes gap_triples */
     static const char *const GAP_FIGURES[3] = {"gap_triples", "gap_translation_ratio", "gap_translation_ratio_true"};
-    for (int k = 0; ok && cJSON_GetObjectItemCaseSensitive(r, "gap_triples") && k < 3; k++) {
-        const cJSON *av = cJSON_GetObjectItemCaseSensitive(pose, GAP_FIGURES[k]);
-        const cJSON *bv = cJSON_GetObjectItemCaseSensitive(r, GAP_FIGURES[k]);
-        double a = number_of(pose, GAP_FIGURES[k]), b = number_of(r, GAP_FIGURES[k]);
-        int same = !av == !bv && (!av || (cJSON_IsNumber(av) && fabs(a - b) <= tol * (1 + fabs(b))));
-        if (!same) {
-            snprintf(why, len, "%s: eval %s%.9g, reference %s%.9g", GAP_FIGURES[k], av ? "" : "(absent) ", a,
-                     bv ? "" : "(absent) ", b);
-            ok = 0;
-        }
-    }
+    ok = ok && (!cJSON_GetObjectItemCaseSensitive(r, "gap_triples") ||
+                optional_figures(pose, r, GAP_FIGURES, 3, tol, why, len));
     cJSON_Delete(m);
     cJSON_Delete(r);
     return ok;

@@ -163,8 +163,8 @@ static nj_tensor *groups_photo(nj_graph *g, const nj_vs_config *cfg, const nj_vs
     for (int j = 0; j < in->nsources; j++) {
         nj_tensor *valid = NULL;
         nj_tensor *coords = nj_reproject(g, depth, in->poses[j], in->cams, &valid);
-        pe[j] = nj_add(g, nj_photometric_error(g, nj_sample_bilinear(g, in->sources[j], coords), in->target, cfg->alpha),
-                       outside_penalty(g, valid));
+        nj_tensor *warped = nj_sample_bilinear(g, in->sources[j], coords);
+        pe[j] = nj_add(g, nj_photometric_error(g, warped, in->target, cfg->alpha), outside_penalty(g, valid));
     }
     float used = 0;
     for (int k = 0; k < ngroups; k++) {
@@ -179,8 +179,10 @@ static nj_tensor *groups_photo(nj_graph *g, const nj_vs_config *cfg, const nj_vs
         nj_tensor *term = nj_sum(g, nj_mul(g, m, mask), NJ_AXIS_ALL);
         sum = sum ? nj_add(g, sum, term) : term;
         if (s == 0) {   /* for the log and the health monitor: used by any group, the smallest error */
-            if (!any && !(any = nj_tensor_new(g, mask->n, 1, mask->h, mask->w, 0))) return NULL;
-            for (size_t i = 0; i < nj_numel(any); i++) any->data[i] = k ? fmaxf(any->data[i], mask->data[i]) : mask->data[i];
+            int first = !any;
+            if (first && !(any = nj_tensor_new(g, mask->n, 1, mask->h, mask->w, 0))) return NULL;
+            for (size_t i = 0; i < nj_numel(any); i++)
+                any->data[i] = first ? mask->data[i] : fmaxf(any->data[i], mask->data[i]);
             emin = emin ? nj_minimum(g, emin, m) : m;
         }
     }

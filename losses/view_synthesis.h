@@ -74,9 +74,10 @@ typedef struct nj_vs_output {
     nj_tensor *total;          /* 1×1×1×1, differentiable */
     float photometric;         /* mean over scales, for logging */
     float smoothness;          /* mean over scales of the weighted term */
-    nj_tensor *automask;       /* N×1×H×W at scale 0: 1 = pixel used */
+    nj_tensor *automask;       /* N×1×H×W at scale 0: 1 = pixel used (each_offset: by any group) */
     nj_tensor *error;          /* N×1×H×W minimum photometric error at scale 0 */
-    float mask_fraction;       /* share of scale-0 pixels used */
+    float mask_fraction;       /* share of scale-0 pixels used (each_offset: of the
+                                  (pixel, group) terms) */
 } nj_vs_output;
 
 void nj_vs_config_default(nj_vs_config *cfg);

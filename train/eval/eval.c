@@ -419,14 +419,20 @@ static void add_heading(eval_run *r, const double *pred, const double *gt)
 /* Rotation error of every pair of neighbours (the pose net's motion against the
  * true one), with the true rotation alongside for scale; the pairs of a
  * stopped camera and of a moving one apart. */
-static void add_rotation_errors(eval_run *r, const double *c2w, const double *rel, int n)
+/* Mean true translation of a sequence's n − 1 pairs: the still rule's scale. */
+static double mean_true_translation(const double *c2w, int n)
 {
-    double mean_t = 0;
+    double mean_t = 0, gt[12];
     for (int i = 0; i + 1 < n; i++) {
-        double gt[12];
         nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt);
         mean_t += translation_length(gt) / (n - 1);
     }
+    return mean_t;
+}
+
+static void add_rotation_errors(eval_run *r, const double *c2w, const double *rel, int n)
+{
+    double mean_t = mean_true_translation(c2w, n);
     for (int i = 0; i + 1 < n; i++) {
         double gt[12];
         nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt);
@@ -463,11 +469,7 @@ static void add_rotation_errors(eval_run *r, const double *c2w, const double *re
 /* rel: motions i → i + 1, rel2: i → i + 2, of the n kept frames. */
 static void add_gap_ratios(eval_run *r, const double *c2w, const double *rel, const double *rel2, int n)
 {
-    double mean_t = 0, gt[3][12];
-    for (int i = 0; i + 1 < n; i++) {
-        nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt[0]);
-        mean_t += translation_length(gt[0]) / (n - 1);
-    }
+    double mean_t = mean_true_translation(c2w, n), gt[3][12];
     for (int i = 0; i + 2 < n; i++) {
         nj_motion_from_c2w(c2w + 12 * i, c2w + 12 * (i + 1), gt[0]);
         nj_motion_from_c2w(c2w + 12 * (i + 1), c2w + 12 * (i + 2), gt[1]);

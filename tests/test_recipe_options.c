@@ -386,14 +386,20 @@ static int step_model(nj_model *m, const nj_train_config *cfg, float pose_scale,
 }
 
 /* Photometric loss of one forward step on a fixed batch whose two sources
- * appear `copies` times. */
-static float offsets_step(int copies, int widest, float *mask_share)
+ * appear `copies` times; far_k > 0: the offsets are {1, far_k} (the two
+ * copies are offset 1's and far_k's sources).  res: the step's figures, or NULL. */
+static float offsets_step(int copies, int widest, int far_k, float *mask_share, nj_step_result *res)
 {
     nj_train_config cfg;
     nj_train_config_default(&cfg);
     cfg.video = 1;
     cfg.stereo = 0;
     cfg.loss.arc_motion = 0;
+    if (far_k > 0) {
+        cfg.offsets[0] = 1;
+        cfg.offsets[1] = far_k;
+        cfg.noffsets = 2;
+    }
     if (widest >= 0) {   /* offsets {1, 2}: sources 0, 1 (offset 1) are copies of the target */
         cfg.offsets[0] = 1;
         cfg.offsets[1] = 2;
@@ -427,6 +433,7 @@ static float offsets_step(int copies, int widest, float *mask_share)
     nj_step_result r;
     float l = nj_train_step(g, &m, &cfg, &b, NULL, 0, &r) ? NAN : r.photometric;
     if (mask_share) *mask_share = r.mask_fraction;
+    if (res) *res = r;
     if (isnan(l)) check(0, "offsets: step", "%s", nj_graph_error(g));
     nj_batch_free(&b);
     nj_graph_free(g);
@@ -550,15 +557,28 @@ static void test_rotation_step(void)
 
 static void test_offsets_step(void)
 {
-    float one = offsets_step(1, -1, NULL), two = offsets_step(2, -1, NULL), all = NAN, widest = NAN;
+    float one = offsets_step(1, -1, 0, NULL, NULL), two = offsets_step(2, -1, 0, NULL, NULL), all = NAN, widest = NAN;
     check(fabsf(one - two) <= 1e-6f * fabsf(one) && one > 0, "offsets: sources listed twice give the same loss",
           "one offset %.9g, the same two sources listed as two offsets %.9g", one, two);
     /* the step wires loss.automask_widest to the offset-1 sources: the static
      * copies at offset 1 mask (nearly) everything unless left out */
-    offsets_step(2, 0, &all);
-    offsets_step(2, 1, &widest);
+    offsets_step(2, 0, 0, &all, NULL);
+    offsets_step(2, 1, 0, &widest, NULL);
     check(all < 0.05f && widest > 0.9f, "automask_widest: the step leaves the shorter offset's sources out",
           "mask keeps %.3f with every source, %.3f against offset 2 only (want < 0.05 and > 0.9)", all, widest);
+    /* The log's "gap" (step.h: pace_far / pace_near).  Offsets 1 and 3 get the
+     * same frame pairs, so the pose net gives both the same motion — a net
+     * that does not see the gap — and the motion per frame of gap at offset 3
+     * is exactly a third of offset 1's; with one offset there is no figure. */
+    nj_step_result r1, r13;
+    offsets_step(1, -1, 0, NULL, &r1);
+    offsets_step(2, -1, 3, NULL, &r13);
+    check(r13.pace_near > 0 && fabsf(r13.pace_far * 3.0f - r13.pace_near) <= 1e-6f * r13.pace_near &&
+              fabsf(r13.pace_near - r1.translation) <= 1e-6f * r1.translation && r1.pace_near == 0 && r1.pace_far == 0,
+          "gap figure: the same motion at offsets 1 and 3 reads 1/3 (per frame of gap); none with one offset",
+          "offset 1 %.6g, offset 3 %.6g per frame (ratio %.6g, want 1/3); |t| of the one-offset step %.6g; "
+          "one offset's figures %g %g (want 0)", r13.pace_near, r13.pace_far, r13.pace_far / r13.pace_near,
+          r1.translation, r1.pace_near, r1.pace_far);
 }
 
 /* The small model of the pose_rays and pose_norm checks. */

@@ -89,12 +89,12 @@ static int weights_finite(const char *path)
     return ok;
 }
 
-/* "loss" and "mask_kept" of step line `step` of RUN/log.jsonl (NAN when absent). */
-static void step_values(const char *run, int step, double *loss, double *kept)
+/* "loss", "mask_kept" and "gap" of step line `step` of RUN/log.jsonl (NAN when absent). */
+static void step_values(const char *run, int step, double *loss, double *kept, double *gap)
 {
     char path[600];
     snprintf(path, sizeof path, "%s/log.jsonl", run);
-    *loss = *kept = NAN;
+    *loss = *kept = *gap = NAN;
     char *text = e2e_slurp(path, NULL);
     for (char *line = text ? strtok(text, "\n") : NULL; line; line = strtok(NULL, "\n")) {
         cJSON *j = cJSON_Parse(line);
@@ -102,20 +102,28 @@ static void step_values(const char *run, int step, double *loss, double *kept)
         if (type && !strcmp(type, "step") && cJSON_GetNumberValue(cJSON_GetObjectItem(j, "step")) == step) {
             *loss = cJSON_GetNumberValue(cJSON_GetObjectItem(j, "loss"));
             *kept = cJSON_GetNumberValue(cJSON_GetObjectItem(j, "mask_kept"));
+            *gap = cJSON_GetNumberValue(cJSON_GetObjectItem(j, "gap"));
         }
         cJSON_Delete(j);
     }
     free(text);
 }
 
-/* Same run twice, 10 steps: auto-masking off, and on from step 6. */
+/* Same run three times, 10 steps: auto-masking off, on from step 6, and off
+ * with frame offsets [1, 2] (the step lines' "gap", step.h). */
 static void automask_warmup(void)
 {
-    char cmd[2048], log[400], runs[2][300], mcfg[300];
-    const char *loss_keys[2] = {"\"automask\": false", "\"automask\": true, \"automask_from_step\": 6"};
-    for (int i = 0; i < 2; i++) {
+    char cmd[2048], log[400], runs[3][300], mcfg[300];
+    const char *loss_keys[3] = {"\"automask\": false", "\"automask\": true, \"automask_from_step\": 6",
+                                "\"automask\": false"};
+    for (int i = 0; i < 3; i++) {
         char text[4096], *cut;
         snprintf(text, sizeof text, "%s", CONFIG);
+        if (i == 2) {
+            char *o = strstr(text, "[1],");
+            memmove(o + 6, o + 3, strlen(o + 3) + 1);
+            memcpy(o, "[1, 2]", 6);
+        }
         cut = strrchr(text, '}');
         snprintf(cut, sizeof text - (size_t)(cut - text), ", \"loss\": { %s } }\n", loss_keys[i]);
         snprintf(mcfg, sizeof mcfg, "%s/mask%d.json", dir, i);
@@ -125,14 +133,20 @@ static void automask_warmup(void)
         snprintf(cmd, sizeof cmd, "%s train --config %s --data %s --out %s/mask%d --steps 10", e2e_bin(), mcfg, data, dir, i);
         if (!check(e2e_run(cmd, log) == 0, "auto-mask warm-up run", "config %s, log %s", mcfg, log)) return;
     }
-    int same_before = 1, differ_after = 0;
+    int same_before = 1, differ_after = 0, gap_one = 0, gap_two = 0;
     for (int step = 1; step <= 10; step++) {
-        double l0, k0, l1, k1;
-        step_values(runs[0], step, &l0, &k0);
-        step_values(runs[1], step, &l1, &k1);
+        double l0, k0, l1, k1, g0, g1, l2, k2, g2;
+        step_values(runs[0], step, &l0, &k0, &g0);
+        step_values(runs[1], step, &l1, &k1, &g1);
+        step_values(runs[2], step, &l2, &k2, &g2);
         if (step <= 6) same_before &= l0 == l1 && k0 == k1;
         else differ_after |= k1 < k0;
+        gap_one += !isnan(l0) && isnan(g0);
+        gap_two += l2 > 0 && g2 > 0 && isfinite(g2);
     }
+    check(gap_one == 10 && gap_two == 10, "step lines carry \"gap\" with two frame offsets, not with one",
+          "%d of 10 one-offset lines without it, %d of 10 two-offset lines with a positive figure (%s, %s)", gap_one,
+          gap_two, runs[0], runs[2]);
     check(same_before, "before automask_from_step the run equals one without auto-masking",
           "steps 1-6 differ (%s, %s)", runs[0], runs[1]);
     check(differ_after, "from automask_from_step on, auto-masking removes pixels",

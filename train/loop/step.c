@@ -56,10 +56,25 @@ static nj_tensor *unturned(nj_graph *g, const nj_batch *b, int j, nj_tensor *P)
 /* Scale-free slips below this translation length count as standing still. */
 #define SLIP_EPS 1e-3f
 
-static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
-                     nj_tensor *tgt_in, nj_vs_input *in, float *translation, nj_tensor **slip)
+/* r->pace_near / pace_far (step.h) from the per-offset sums of mean |t|. */
+static void paces(const nj_train_config *cfg, const float *sum, const int *count, nj_step_result *r)
 {
-    float t = 0;
+    int near = -1, far = -1;
+    for (int i = 0; i < cfg->noffsets; i++) {
+        if (!count[i]) continue;
+        if (near < 0 || cfg->offsets[i] < cfg->offsets[near]) near = i;
+        if (far < 0 || cfg->offsets[i] > cfg->offsets[far]) far = i;
+    }
+    if (near < 0 || cfg->offsets[near] == cfg->offsets[far]) return;
+    r->pace_near = sum[near] / (float)(count[near] * cfg->offsets[near]);
+    r->pace_far = sum[far] / (float)(count[far] * cfg->offsets[far]);
+}
+
+static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj_batch *b,
+                     nj_tensor *tgt_in, nj_vs_input *in, nj_step_result *r, nj_tensor **slip)
+{
+    float t = 0, sum[NJ_MAX_OFFSETS] = {0};
+    int count[NJ_MAX_OFFSETS] = {0};
     int widest = 0;
     for (int i = 0; i < cfg->noffsets; i++) widest = cfg->offsets[i] > widest ? cfg->offsets[i] : widest;
     for (int j = 0; j < b->nsrc && in->nsources < NJ_MAX_SOURCES; j++) {
@@ -77,7 +92,12 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
             *slip = *slip ? nj_add(g, *slip, s) : s;
         }
         if (!T) return -1;
-        t += mean_translation(vec);
+        float tj = mean_translation(vec);
+        t += tj;
+        if (j / 2 < cfg->noffsets) {
+            sum[j / 2] += tj;
+            count[j / 2]++;
+        }
         /* auto-mask against the widest offset only (loss.automask_widest) */
         if (cfg->loss.automask_widest && j / 2 < cfg->noffsets && cfg->offsets[j / 2] < widest)
             in->mask_skip |= 1u << in->nsources;
@@ -86,7 +106,8 @@ static int add_video(nj_graph *g, nj_model *m, const nj_train_config *cfg, const
         in->sources[in->nsources] = src;
         in->poses[in->nsources++] = T;
     }
-    *translation = b->nsrc ? t / (float)b->nsrc : 0.0f;
+    r->translation = b->nsrc ? t / (float)b->nsrc : 0.0f;
+    paces(cfg, sum, count, r);
     return 0;
 }
 
@@ -175,7 +196,8 @@ const nj_train_config *nj_step_config(const nj_train_config *cfg, long step, nj_
 void nj_step_figures(nj_step_result *r, float *out[NJ_STEP_FIGURES])
 {
     float *f[NJ_STEP_FIGURES] = {&r->loss, &r->photometric, &r->smoothness, &r->mask_fraction, &r->saturated,
-                                 &r->translation, &r->rotation_lesson, &r->free_space};
+                                 &r->translation, &r->rotation_lesson, &r->free_space, &r->pace_near,
+                                 &r->pace_far};
     memcpy(out, f, sizeof f);
 }
 
@@ -193,7 +215,7 @@ int nj_train_step(nj_graph *g, nj_model *m, const nj_train_config *cfg, const nj
     in.depth_range = m->cfg.depth_range;   /* the model's own: a resumed run keeps its checkpoint's */
     if (nj_depth_forward(g, m, tgt_in, in.disp)) return -1;
     nj_tensor *slip = NULL;
-    if (cfg->video && b->nsrc > 0 && add_video(g, m, cfg, b, tgt_in, &in, &r->translation, &slip)) return -1;
+    if (cfg->video && b->nsrc > 0 && add_video(g, m, cfg, b, tgt_in, &in, r, &slip)) return -1;
     if (cfg->stereo && b->stereo && add_stereo(g, b, &in)) return -1;
     if (in.nsources == 0) {
         nj_graph_fail(g, "training batch has no source frame (check frame_offsets / stereo settings)");

@@ -14,14 +14,19 @@ typedef struct nj_step_result {
     float translation;          /* mean |t| of the predicted poses (0 without video) */
     float rotation_lesson;      /* the rotation lesson's error (loss.rotation_pairs; 0 when off) */
     float free_space;           /* share of bounded pixels beyond the ground (loss.free_space; 0 when off) */
+    /* The pose net's mean |t| per frame of gap at the smallest and at the
+     * widest frame offset (0 with fewer than two offsets).  Their ratio is the
+     * log's "gap": ~1 when the pose net measures the gap, 1/(widest/smallest)
+     * when it gives every gap the same motion (DEVELOPERS.md, stop 38). */
+    float pace_near, pace_far;
     nj_tensor *disp0;           /* scale-0 disparity (arena; valid until the next reset) */
     nj_tensor *automask, *error;
 } nj_step_result;
 
 /* The loss figures of r that data-parallel shares average (loss,
  * photometric, smoothness, mask_fraction, saturated, translation, rotation_lesson,
- * free_space): pointers into r, NJ_STEP_FIGURES of them. */
-enum { NJ_STEP_FIGURES = 8 };
+ * free_space, pace_near, pace_far): pointers into r, NJ_STEP_FIGURES of them. */
+enum { NJ_STEP_FIGURES = 10 };
 
 /* Arena chunk size of a training step's graph (and of each replica's, train/loop/step_replicas.h). */
 #define NJ_STEP_ARENA_CHUNK ((size_t)64 << 20)

@@ -135,6 +135,9 @@ static void log_step(nj_trainer *t, const nj_step_result *r, float lr, double ip
         snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1,
                  ",\"inverted\":%.4f,\"far_half\":%.4f,\"depth_p50\":%.4g}", f->inverted, f->far_half,
                  f->depth_p50);
+    /* the pose net's motion per frame at the widest offset over the smallest's (step.h) */
+    if (r->pace_near > 0 && strlen(line) > 1)
+        snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1, ",\"gap\":%.4f}", r->pace_far / r->pace_near);
     if (t->cfg.rotation_pairs > 0 && strlen(line) > 1)
         snprintf(line + strlen(line) - 1, sizeof line - strlen(line) + 1, ",\"rotation_lesson\":%.4g}", r->rotation_lesson);
     if (t->cfg.free_space > 0 && strlen(line) > 1)

@@ -48,6 +48,7 @@
 
 typedef struct logvals {
     double step[NSTEP], loss[NSTEP], pho[NSTEP], smo[NSTEP], lr[NSTEP], el[NSTEP];
+    double kept[NSTEP], inv[NSTEP], gap[NSTEP];
     double vstep[NVAL], vpho[NVAL], vabs[NVAL], vdel[NVAL];
 } logvals;
 
@@ -64,10 +65,15 @@ static int write_log(const char *dir, logvals *v)
         v->loss[i] = v->pho[i] + v->smo[i];
         v->lr[i] = i < 3 ? 1e-4 * i / 3 : 1e-4 * (0.5 + 0.5 * cos(M_PI * (i - 3) / 9.0));
         v->el[i] = 37.5 * (i + 1) + 0.25 * i * i;
+        v->kept[i] = 0.9 - 0.02 * i;
+        v->inv[i] = 0.3 + 0.2 * sin(i / 2.0);
+        v->gap[i] = 0.5 + 0.03 * i;
         fprintf(f, "{\"type\":\"step\",\"step\":%.0f,\"epoch\":%.3f,\"loss\":%.17g,\"photometric\":%.17g,"
-                   "\"smoothness\":%.17g,\"lr\":%.17g,\"images_per_s\":%.3f,\"mask_kept\":0.5,\"saturated\":0.1,"
-                   "\"translation\":0.01,\"elapsed_s\":%.17g,\"health\":\"ok\"}\n",
-                v->step[i], i * 0.1, v->loss[i], v->pho[i], v->smo[i], v->lr[i], 2.0 + i * 0.1, v->el[i]);
+                   "\"smoothness\":%.17g,\"lr\":%.17g,\"images_per_s\":%.3f,\"mask_kept\":%.17g,\"saturated\":0.1,"
+                   "\"translation\":0.01,\"elapsed_s\":%.17g,\"health\":\"ok\",\"inverted\":%.17g,\"far_half\":0,"
+                   "\"depth_p50\":5,\"gap\":%.17g}\n",
+                v->step[i], i * 0.1, v->loss[i], v->pho[i], v->smo[i], v->lr[i], 2.0 + i * 0.1, v->kept[i], v->el[i],
+                v->inv[i], v->gap[i]);
         if (i == 5) fprintf(f, "{\"type\":\"health\",\"step\":10,\"message\":\"test warning\"}\n");
         if (i % 4 == 3) {
             int k = i / 4;
@@ -239,6 +245,9 @@ static void check_charts(const char *html, const logvals *v)
         {"Validation photometric loss vs step", v->vstep, v->vpho, NVAL},
         {"Validation AbsRel vs step", v->vstep, v->vabs, NVAL},
         {"Validation share within 1.25x vs step", v->vstep, v->vdel, NVAL},
+        {"Auto-mask kept share vs step", v->step, v->kept, NSTEP},
+        {"Depth-order inversion vs step", v->step, v->inv, NSTEP},
+        {"Frame-gap figure vs step", v->step, v->gap, NSTEP},
     };
     for (size_t k = 0; k < sizeof C / sizeof C[0]; k++) {
         const char *end, *svg = find_chart(html, C[k].title, &end);

@@ -6,8 +6,10 @@
 
 static const char ABOUT[] =
     "  Writes one self-contained HTML page about a training run: summary, loss and\n"
-    "  learning-rate charts, a gallery of validation frames at up to three checkpoints,\n"
-    "  the metric table and, when a map was made, its top-down picture.\n";
+    "  learning-rate charts, the health figures that need no ground truth (auto-mask\n"
+    "  share, depth-order inversion, frame-gap figure), a gallery of validation frames at\n"
+    "  up to three checkpoints, the metric table and, when a map was made, its top-down\n"
+    "  picture.\n";
 
 static const char EPILOGUE[] = "  Prints the page's path.\n";
 

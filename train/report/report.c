@@ -5,9 +5,11 @@
 #include "train/report/report.h"
 #include "train/report/report_parts.h"
 #include "data/atomic.h"
+#include "train/loop/health.h"
 #include "train/loop/loop.h"
 #include "train/version.h"
 #include <math.h>
+#include <stddef.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -180,6 +182,49 @@ static void charts(FILE *f, const nj_run_log *log)
     free(a);
 }
 
+/* The step lines' figures that need no ground truth, one chart each, for
+ * the runs whose log carries them: what a user without depth ground truth
+ * can read the run's health from. */
+static void health_charts(FILE *f, const nj_run_log *log)
+{
+    int n = log->nsteps;
+    double *a = malloc(((size_t)2 * n + 1) * sizeof *a), *step = a, *y = a + n;
+    if (!a) return;
+    static const struct { const char *title, *name, *ylabel, *note; size_t at; } C[] = {
+        {"Auto-mask kept share vs step", "mask kept", "share of pixels",
+         "Near 0: nothing moves relative to the camera (stopped vehicle, frames too close together).",
+         offsetof(nj_log_step, mask_kept)},
+        {"Depth-order inversion vs step", "inverted", "share of lower-half pixels",
+         "Share of lower-half pixels predicted farther than the upper half's median depth; the drift alarm "
+         "fires when its median over the last logged steps exceeds the threshold", offsetof(nj_log_step, inverted)},
+        {"Frame-gap figure vs step", "gap", "ratio (dimensionless)",
+         "The pose net's translation per frame at the widest frame offset over that at the smallest: about 1 "
+         "when it measures the gap between frames, 0.5 with offsets [1, 2] when it gives every gap the same "
+         "motion.", offsetof(nj_log_step, gap)},
+    };
+    int any = 0;
+    for (size_t k = 0; k < sizeof C / sizeof C[0]; k++) {
+        int finite = 0;
+        for (int i = 0; i < n; i++) {
+            step[i] = (double)log->steps[i].step;
+            y[i] = *(const double *)((const char *)&log->steps[i] + C[k].at);
+            finite += isfinite(y[i]) != 0;
+        }
+        if (!finite) continue;
+        if (!any++) fputs("<section id=\"health\"><h2>Health figures (no ground truth needed)</h2>\n", f);
+        fputs("<p class=\"note\">", f);
+        nj_html_text(f, C[k].note);
+        if (C[k].at == offsetof(nj_log_step, inverted))
+            fprintf(f, " (%d steps, %.2g).", NJ_HEALTH_WINDOW, (double)NJ_HEALTH_DRIFT_INVERTED);
+        fputs("</p>\n<div class=\"charts\">\n", f);
+        nj_series s = {C[k].name, step, y, n};
+        nj_svg_chart(f, C[k].title, "training step", C[k].ylabel, &s, 1);
+        fputs("</div>\n", f);
+    }
+    if (any) fputs("</section>\n", f);
+    free(a);
+}
+
 static void page(FILE *f, const nj_report_options *o, const nj_run_log *log, const char *metrics,
                  const char *export_dir, const char *map_dir)
 {
@@ -189,6 +234,7 @@ static void page(FILE *f, const nj_report_options *o, const nj_run_log *log, con
     fprintf(f, "</title>\n<style>%s</style></head>\n<body><main>\n", CSS);
     header(f, o->run_dir, log);
     charts(f, log);
+    health_charts(f, log);
     nj_report_gallery(f, o->run_dir);
     nj_report_metrics(f, metrics, export_dir);
     nj_report_map(f, map_dir);

@@ -51,6 +51,9 @@ static int add_record(const cJSON *o, nj_run_log *log, int *scap, int *vcap)
         s->lr = num(o, "lr");
         s->images_per_s = num(o, "images_per_s");
         s->elapsed_s = num(o, "elapsed_s");
+        s->mask_kept = num(o, "mask_kept");
+        s->inverted = num(o, "inverted");
+        s->gap = num(o, "gap");
     } else if (!strcmp(type, "val")) {
         if (grow((void **)&log->vals, log->nvals, vcap, sizeof *log->vals)) return -1;
         nj_log_val *v = &log->vals[log->nvals++];

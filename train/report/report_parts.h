@@ -10,6 +10,10 @@
 typedef struct nj_log_step {
     long step;
     double loss, photometric, smoothness, lr, images_per_s, elapsed_s;
+    /* figures that need no ground truth (NaN when the line lacks them):
+     * the auto-mask's kept share, the drift alarm's `inverted` and the pose
+     * net's frame-gap figure (train/loop/health.h, step.h) */
+    double mask_kept, inverted, gap;
 } nj_log_step;
 
 typedef struct nj_log_val {

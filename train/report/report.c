@@ -5,7 +5,6 @@
 #include "train/report/report.h"
 #include "train/report/report_parts.h"
 #include "data/atomic.h"
-#include "train/loop/health.h"
 #include "train/loop/loop.h"
 #include "train/version.h"
 #include <math.h>

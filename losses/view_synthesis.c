@@ -101,12 +101,13 @@ static nj_tensor *outside_penalty(nj_graph *g, nj_tensor *valid)
     return p;
 }
 
-/* Per-pixel minimum over sources of the warped error at one scale. */
+/* Per-pixel minimum of the warped error at one scale over the sources in `set` (a bit each). */
 static nj_tensor *reprojection_min(nj_graph *g, const nj_vs_config *cfg,
-                                   const nj_vs_input *in, nj_tensor *depth)
+                                   const nj_vs_input *in, nj_tensor *depth, unsigned set)
 {
     nj_tensor *m = NULL;
     for (int s = 0; s < in->nsources; s++) {
+        if (!(set >> s & 1u)) continue;
         nj_tensor *valid = NULL;
         nj_tensor *coords = nj_reproject(g, depth, in->poses[s], in->cams, &valid);
         nj_tensor *warped = nj_sample_bilinear(g, in->sources[s], coords);
@@ -159,19 +160,13 @@ static unsigned group_sources(const nj_vs_input *in, int k)
 static nj_tensor *groups_photo(nj_graph *g, const nj_vs_config *cfg, const nj_vs_input *in, int s,
                                nj_tensor *depth, nj_tensor *const *ident, int ngroups, nj_vs_output *out)
 {
-    nj_tensor *pe[NJ_MAX_SOURCES], *sum = NULL, *any = NULL, *emin = NULL;
-    for (int j = 0; j < in->nsources; j++) {
-        nj_tensor *valid = NULL;
-        nj_tensor *coords = nj_reproject(g, depth, in->poses[j], in->cams, &valid);
-        nj_tensor *warped = nj_sample_bilinear(g, in->sources[j], coords);
-        pe[j] = nj_add(g, nj_photometric_error(g, warped, in->target, cfg->alpha), outside_penalty(g, valid));
-    }
+    nj_tensor *sum = NULL, *any = NULL, *emin = NULL;
     float used = 0;
     for (int k = 0; k < ngroups; k++) {
-        nj_tensor *m = NULL;
-        for (int j = 0; j < in->nsources; j++)
-            if (in->group[j] == k) m = m ? nj_minimum(g, m, pe[j]) : pe[j];
-        if (!m) continue;
+        unsigned set = group_sources(in, k);
+        if (!set) continue;
+        nj_tensor *m = reprojection_min(g, cfg, in, depth, set);
+        if (!m) return NULL;
         float u = 0;
         nj_tensor *mask = make_mask(g, m, ident[k], &u);
         if (!mask) return NULL;
@@ -204,7 +199,7 @@ static nj_tensor *scale_loss(nj_graph *g, const nj_vs_config *cfg, const nj_vs_i
     if (cfg->each_offset) {
         pl = groups_photo(g, cfg, in, s, depth, ident, ngroups, out);
     } else {
-        nj_tensor *rmin = reprojection_min(g, cfg, in, depth);
+        nj_tensor *rmin = reprojection_min(g, cfg, in, depth, (1u << in->nsources) - 1);
         if (!rmin) return NULL;
         float used = 0;
         nj_tensor *mask = make_mask(g, rmin, ident[0], &used);

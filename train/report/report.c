@@ -202,10 +202,10 @@ static void health_charts(FILE *f, const nj_run_log *log)
          "motion.", offsetof(nj_log_step, gap)},
     };
     int any = 0;
+    for (int i = 0; i < n; i++) step[i] = (double)log->steps[i].step;
     for (size_t k = 0; k < sizeof C / sizeof C[0]; k++) {
         int finite = 0;
         for (int i = 0; i < n; i++) {
-            step[i] = (double)log->steps[i].step;
             y[i] = *(const double *)((const char *)&log->steps[i] + C[k].at);
             finite += isfinite(y[i]) != 0;
         }
